@@ -1,0 +1,156 @@
+//! The declarations of one `.ward` file: dimension, boundary, operators,
+//! points, parameters and index kinds.
+//!
+//! A [`Context`] is built once by lowering and then only read: by the
+//! normaliser (index kinds, the dimension), by rule conditions (bulk or
+//! boundary points, operator attributes) and by the printer.
+
+use std::collections::{BTreeMap, BTreeSet};
+
+use crate::term::{Index, Point, Term};
+
+/// Name of the built-in stress tensor.
+pub const STRESS_TENSOR: &str = "T";
+/// Name of the built-in displacement operator.
+pub const DISPLACEMENT: &str = "D";
+/// Name of the dimension symbol.
+pub const DIMENSION: &str = "d";
+/// Name of the normal index.
+pub const NORMAL: &str = "n";
+
+/// A declared operator.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct OperatorDecl {
+    pub name: String,
+    /// Lives on the boundary y = 0 (and so only at boundary points).
+    pub boundary: bool,
+    /// Number of tensor indices (0 for scalars).
+    pub rank: usize,
+    /// Declared attributes such as `dim` or `charge`, as exact terms.
+    pub attrs: BTreeMap<String, Term>,
+}
+
+/// A declared point.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct PointDecl {
+    pub name: String,
+    pub boundary: bool,
+}
+
+/// The kind of a named index.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord)]
+pub enum IndexKind {
+    /// Runs over all d directions.
+    Bulk,
+    /// Runs over the d - 1 directions parallel to the boundary.
+    Parallel,
+}
+
+/// Everything a file declares.
+#[derive(Clone, Debug, Default)]
+pub struct Context {
+    /// The dimension: a number, or the symbol `d`.
+    pub dimension: Option<Term>,
+    /// Name of the normal coordinate when a half-space is declared.
+    pub halfspace: Option<String>,
+    pub operators: BTreeMap<String, OperatorDecl>,
+    /// Points in declaration order; a point's rank is its position here.
+    pub points: Vec<PointDecl>,
+    pub parameters: BTreeSet<String>,
+    pub parallel: BTreeSet<String>,
+    /// Every index name used anywhere in the file, by kind, sorted. Dummy
+    /// indices are renamed to the first free names of their kind, so both
+    /// sides of a claim agree on dummy names.
+    pub index_pool: BTreeMap<IndexKind, BTreeSet<String>>,
+}
+
+impl Context {
+    /// The dimension as a term (`d` if none was declared).
+    pub fn dim(&self) -> Term {
+        self.dimension
+            .clone()
+            .unwrap_or_else(|| Term::Sym(DIMENSION.to_string()))
+    }
+
+    pub fn has_halfspace(&self) -> bool {
+        self.halfspace.is_some()
+    }
+
+    /// The normal coordinate's name (`y` unless declared otherwise).
+    pub fn normal_coord(&self) -> &str {
+        self.halfspace.as_deref().unwrap_or("y")
+    }
+
+    pub fn point(&self, name: &str) -> Option<(u32, &PointDecl)> {
+        self.points
+            .iter()
+            .enumerate()
+            .find(|(_, p)| p.name == name)
+            .map(|(i, p)| (i as u32, p))
+    }
+
+    /// The term-level point for a declared name.
+    pub fn point_term(&self, name: &str, par: bool) -> Option<Point> {
+        self.point(name).map(|(rank, _)| Point {
+            rank,
+            par,
+            name: name.to_string(),
+        })
+    }
+
+    /// True if the point lies on the boundary (declared there, or a `par(x)`).
+    pub fn is_boundary_point(&self, p: &Point) -> bool {
+        p.par || self.point(&p.name).is_some_and(|(_, d)| d.boundary)
+    }
+
+    pub fn index_kind(&self, name: &str) -> IndexKind {
+        if self.parallel.contains(name) {
+            IndexKind::Parallel
+        } else {
+            IndexKind::Bulk
+        }
+    }
+
+    /// The trace δ[i,i] over an index of this kind: d or d - 1.
+    pub fn trace(&self, kind: IndexKind) -> Term {
+        match kind {
+            IndexKind::Bulk => self.dim(),
+            IndexKind::Parallel => Term::Add(vec![self.dim(), Term::int(-1)]),
+        }
+    }
+
+    pub fn operator(&self, name: &str) -> Option<&OperatorDecl> {
+        self.operators.get(name)
+    }
+
+    /// An operator attribute, e.g. `dim` of `O`.
+    pub fn attribute(&self, op: &str, key: &str) -> Option<&Term> {
+        self.operators.get(op).and_then(|o| o.attrs.get(key))
+    }
+
+    /// True if an index slot holds the normal direction or a parallel index.
+    pub fn is_parallel(&self, index: &Index) -> bool {
+        matches!(index, Index::Named(s) if self.parallel.contains(s))
+    }
+
+    /// Adds the built-in operators: T always, D with a half-space.
+    pub fn add_builtins(&mut self) {
+        let dim = self.dim();
+        let t = OperatorDecl {
+            name: STRESS_TENSOR.into(),
+            boundary: false,
+            rank: 2,
+            attrs: BTreeMap::from([("dim".to_string(), dim.clone())]),
+        };
+        self.operators.insert(t.name.clone(), t);
+        if self.has_halfspace() {
+            let d = OperatorDecl {
+                name: DISPLACEMENT.into(),
+                boundary: true,
+                rank: 0,
+                attrs: BTreeMap::from([("dim".to_string(), dim)]),
+            };
+            self.operators.insert(d.name.clone(), d);
+        }
+    }
+}

@@ -1,0 +1,187 @@
+//! Typed errors for everything a user can get wrong, rendered the way rustc
+//! prints them: `error: …`, ` --> file:line:col`, the source line and a caret.
+//!
+//! Every stage returns [`Error`]; only `main` renders it. Rendering goes
+//! through `codespan-reporting` so the layout is a well-kept crate's, not ours.
+
+use std::fmt;
+use std::sync::Arc;
+
+use codespan_reporting::diagnostic::{Diagnostic, Label};
+use codespan_reporting::files::SimpleFile;
+use codespan_reporting::term::{self, termcolor::Buffer, Config};
+
+use crate::syntax::ast::Span;
+
+/// One input text with the name it is reported under.
+#[derive(Debug, PartialEq, Eq)]
+pub struct Source {
+    pub name: String,
+    pub text: String,
+}
+
+impl Source {
+    pub fn new(name: impl Into<String>, text: impl Into<String>) -> Arc<Source> {
+        Arc::new(Source {
+            name: name.into(),
+            text: text.into(),
+        })
+    }
+
+    /// 1-based line and column (in characters) of a byte offset.
+    pub fn line_col(&self, offset: usize) -> (usize, usize) {
+        let offset = offset.min(self.text.len());
+        let before = &self.text[..offset];
+        let line = before.matches('\n').count() + 1;
+        let line_start = before.rfind('\n').map_or(0, |i| i + 1);
+        let col = self.text[line_start..offset].chars().count() + 1;
+        (line, col)
+    }
+}
+
+/// What kind of mistake an [`Error`] reports.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum ErrorKind {
+    /// The text does not follow the grammar.
+    Syntax,
+    /// A name is used before (or without) its declaration, or declared twice.
+    Name,
+    /// Free indices do not balance, or an index appears three times.
+    Index,
+    /// An operator or point is used where it cannot stand (D at a bulk point,
+    /// a boundary operator without a boundary, …).
+    Placement,
+    /// Exact arithmetic failed (division by zero, 0 to a negative power).
+    Arithmetic,
+    /// A rule file is malformed or refers to unbound variables.
+    Rule,
+    /// A file could not be read.
+    Io,
+    /// An expression is outside what the engine handles (a power of a
+    /// correlator, …).
+    Unsupported,
+}
+
+impl ErrorKind {
+    fn code(self) -> &'static str {
+        match self {
+            ErrorKind::Syntax => "syntax",
+            ErrorKind::Name => "name",
+            ErrorKind::Index => "index",
+            ErrorKind::Placement => "placement",
+            ErrorKind::Arithmetic => "arithmetic",
+            ErrorKind::Rule => "rule",
+            ErrorKind::Io => "io",
+            ErrorKind::Unsupported => "unsupported",
+        }
+    }
+}
+
+/// A user-facing error with its location.
+#[derive(Debug)]
+pub struct Error {
+    pub kind: ErrorKind,
+    pub message: String,
+    /// Where it happened, if anywhere in a source text.
+    pub at: Option<(Arc<Source>, Span)>,
+    /// The text under the caret.
+    pub label: String,
+    /// Further lines (`= note: …`).
+    pub notes: Vec<String>,
+}
+
+impl Error {
+    pub fn new(kind: ErrorKind, message: impl Into<String>) -> Error {
+        Error {
+            kind,
+            message: message.into(),
+            at: None,
+            label: String::new(),
+            notes: Vec::new(),
+        }
+    }
+
+    /// An error located in `source` at `span`.
+    pub fn at(
+        kind: ErrorKind,
+        source: &Arc<Source>,
+        span: Span,
+        message: impl Into<String>,
+    ) -> Error {
+        Error::new(kind, message).with_span(source, span)
+    }
+
+    pub fn with_span(mut self, source: &Arc<Source>, span: Span) -> Error {
+        self.at = Some((source.clone(), span));
+        self
+    }
+
+    pub fn with_label(mut self, label: impl Into<String>) -> Error {
+        self.label = label.into();
+        self
+    }
+
+    pub fn with_note(mut self, note: impl Into<String>) -> Error {
+        self.notes.push(note.into());
+        self
+    }
+
+    /// The rendered diagnostic, without colour.
+    pub fn render(&self) -> String {
+        let mut buffer = Buffer::no_color();
+        self.emit(&mut buffer);
+        String::from_utf8_lossy(buffer.as_slice()).into_owned()
+    }
+
+    /// The rendered diagnostic, coloured when `color` is true.
+    pub fn render_to(&self, color: bool) -> Vec<u8> {
+        let mut buffer = if color {
+            Buffer::ansi()
+        } else {
+            Buffer::no_color()
+        };
+        self.emit(&mut buffer);
+        buffer.into_inner()
+    }
+
+    fn emit(&self, buffer: &mut Buffer) {
+        let config = Config::default();
+        let mut diagnostic = Diagnostic::error()
+            .with_message(&self.message)
+            .with_code(self.kind.code())
+            .with_notes(self.notes.clone());
+        let file = match &self.at {
+            Some((source, span)) => {
+                let end = span.end.min(source.text.len());
+                let start = span.start.min(end);
+                diagnostic = diagnostic.with_labels(vec![
+                    Label::primary((), start..end).with_message(&self.label)
+                ]);
+                SimpleFile::new(source.name.clone(), source.text.clone())
+            }
+            None => SimpleFile::new(String::new(), String::new()),
+        };
+        // Rendering into memory cannot fail for in-range spans; if it ever
+        // does, fall back to the plain message rather than lose the error.
+        if term::emit(buffer, &config, &file, &diagnostic).is_err() {
+            use std::io::Write;
+            let _ = writeln!(buffer, "error[{}]: {}", self.kind.code(), self.message);
+        }
+    }
+}
+
+impl fmt::Display for Error {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match &self.at {
+            Some((source, span)) => {
+                let (line, col) = source.line_col(span.start);
+                write!(f, "{}:{}:{}: {}", source.name, line, col, self.message)
+            }
+            None => write!(f, "{}", self.message),
+        }
+    }
+}
+
+impl std::error::Error for Error {}
+
+pub type Result<T> = std::result::Result<T, Error>;

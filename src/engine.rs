@@ -1,0 +1,119 @@
+//! The simplification pipeline for one expression, and the check of one
+//! claim, built from the stages: normalise → e-graph with the Ward rules →
+//! extract → normalise, repeated until the normal form stops changing.
+
+use std::collections::BTreeMap;
+use std::sync::Arc;
+
+use egg::Rewrite;
+
+use crate::context::Context;
+use crate::diagnostic::{Error, ErrorKind, Result};
+use crate::egraph::{add_term, extract_term, run_rules, EGraph, Fold, Limits, Stop, Ward, WardCost};
+use crate::normal::normalize;
+use crate::rules::RuleBook;
+use crate::term::Term;
+
+/// Rounds of (e-graph, extract, normalise) before giving up on a fixpoint.
+const MAX_ROUNDS: usize = 8;
+
+/// The rules and limits for simplifying the expressions of one file.
+pub struct Engine {
+    pub ctx: Arc<Context>,
+    book: Arc<RuleBook>,
+    rewrites: Vec<Rewrite<Ward, Fold>>,
+    pub limits: Limits,
+}
+
+/// The result of simplifying one expression.
+#[derive(Clone, Debug)]
+pub struct Simplified {
+    /// Contact-term normal form.
+    pub term: Term,
+    /// Why the last e-graph run stopped.
+    pub stop: Stop,
+    /// Largest e-graph of any round, in e-nodes.
+    pub nodes: usize,
+    pub iterations: usize,
+    pub rounds: usize,
+    /// Rules applied, with counts, sorted by name.
+    pub applied: BTreeMap<String, usize>,
+}
+
+/// What checking a claim found.
+#[derive(Clone, Debug)]
+pub enum Verdict {
+    /// Both sides have the same normal form.
+    Proved(Simplified),
+    /// They do not; `remainder` is left side minus right side, simplified.
+    NotProved(Simplified),
+}
+
+impl Engine {
+    pub fn new(ctx: Arc<Context>, book: Arc<RuleBook>, limits: Limits) -> Result<Engine> {
+        let rewrites = book.rewrites(&ctx)?;
+        Ok(Engine {
+            ctx,
+            book,
+            rewrites,
+            limits,
+        })
+    }
+
+    /// Simplifies a term to contact-term normal form.
+    pub fn simplify(&self, t: &Term) -> Result<Simplified> {
+        let mut current = normalize(&self.ctx, t)?;
+        let mut out = Simplified {
+            term: current.clone(),
+            stop: Stop::Saturated,
+            nodes: 0,
+            iterations: 0,
+            rounds: 0,
+            applied: BTreeMap::new(),
+        };
+        for _ in 0..MAX_ROUNDS {
+            let mut eg = if self.limits.explanations {
+                EGraph::new(Fold::default()).with_explanations_enabled()
+            } else {
+                EGraph::new(Fold::default())
+            };
+            let root = add_term(&mut eg, &current);
+            let (eg, report) = run_rules(eg, &self.rewrites, &self.limits);
+            if let Some((a, b)) = eg.analysis.conflicts.first() {
+                return Err(Error::new(
+                    ErrorKind::Rule,
+                    format!("the rules proved {a} = {b}: some loaded rule is unsound"),
+                ));
+            }
+            out.rounds += 1;
+            out.iterations += report.iterations;
+            out.nodes = out.nodes.max(report.nodes);
+            for (name, n) in report.applied {
+                *out.applied.entry(name).or_insert(0) += n;
+            }
+            out.stop = report.stop;
+            let redexes = self.book.redexes(&eg, &self.ctx);
+            let extractor = egg::Extractor::new(&eg, WardCost { redexes });
+            let (_, best) = extractor.find_best(eg.find(root));
+            let next = normalize(&self.ctx, &extract_term(&self.ctx, &best)?)?;
+            let done = next == current || !out.stop.is_saturated();
+            current = next;
+            if done {
+                break;
+            }
+        }
+        out.term = current;
+        Ok(out)
+    }
+
+    /// Checks `lhs = rhs` by simplifying their difference to zero.
+    pub fn check(&self, lhs: &Term, rhs: &Term) -> Result<Verdict> {
+        let difference = Term::Add(vec![lhs.clone(), rhs.clone().neg()]);
+        let s = self.simplify(&difference)?;
+        Ok(if s.term.is_zero() {
+            Verdict::Proved(s)
+        } else {
+            Verdict::NotProved(s)
+        })
+    }
+}

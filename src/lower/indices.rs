@@ -1,0 +1,175 @@
+//! Index bookkeeping on the AST: which indices of an expression are free,
+//! which are summed, and where the rules of the summation convention break.
+//!
+//! An index written twice in a product is summed; three times is an error;
+//! every term of a sum must have the same free indices. The normal index `n`
+//! is a fixed direction, not a summation index, and is ignored here.
+
+use std::collections::{BTreeMap, BTreeSet};
+
+use crate::context::NORMAL;
+use crate::syntax::ast::{BinOp, Expr, ExprKind, Insertion, Name, Span};
+
+/// The free indices of an expression, sorted.
+pub type Profile = BTreeSet<String>;
+
+/// Free indices of `e`, or the span and message of the first violation.
+pub fn profile(e: &Expr) -> Result<Profile, (Span, String)> {
+    Ok(walk(e)?.free.into_keys().collect())
+}
+
+/// `{mu, nu}` or `none`.
+pub fn describe(set: &BTreeSet<&String>) -> String {
+    if set.is_empty() {
+        "none".into()
+    } else {
+        let names: Vec<&str> = set.iter().map(|s| s.as_str()).collect();
+        format!("{{{}}}", names.join(", "))
+    }
+}
+
+/// Adds every index name used in `e` to `names`.
+pub fn collect(e: &Expr, names: &mut BTreeSet<String>) {
+    let mut add = |n: &Name| {
+        if !n.is_var && n.text != NORMAL {
+            names.insert(n.text.clone());
+        }
+    };
+    match &e.kind {
+        ExprKind::Neg(a) => collect(a, names),
+        ExprKind::Binary { lhs, rhs, .. } => {
+            collect(lhs, names);
+            collect(rhs, names);
+        }
+        ExprKind::Corr(items) => {
+            for item in items {
+                if let Insertion::Op(op) = item {
+                    op.indices.iter().for_each(&mut add);
+                }
+            }
+        }
+        ExprKind::Op(op) => op.indices.iter().for_each(add),
+        ExprKind::Deriv { index, body, .. } => {
+            add(index);
+            collect(body, names);
+        }
+        ExprKind::Kron(i, j) => {
+            add(i);
+            add(j);
+        }
+        ExprKind::Normal(i) => add(i),
+        ExprKind::Sum { body, .. } => collect(body, names),
+        _ => {}
+    }
+}
+
+#[derive(Default)]
+struct Usage {
+    /// Free index → where it first appears.
+    free: BTreeMap<String, Span>,
+    /// Indices already summed inside → where they are summed.
+    dummies: BTreeMap<String, Span>,
+}
+
+fn walk(e: &Expr) -> Result<Usage, (Span, String)> {
+    match &e.kind {
+        ExprKind::Num(_) | ExprKind::Name(_) | ExprKind::Var(_) | ExprKind::Attr { .. } => {
+            Ok(Usage::default())
+        }
+        ExprKind::DeltaPoints(..) | ExprKind::DeltaNormal { .. } => Ok(Usage::default()),
+        ExprKind::Sum { body, .. } => walk(body),
+        ExprKind::Neg(a) => walk(a),
+        ExprKind::Binary { op, lhs, rhs } => {
+            let l = walk(lhs)?;
+            let r = walk(rhs)?;
+            match op {
+                BinOp::Add | BinOp::Sub => {
+                    let lk: BTreeSet<&String> = l.free.keys().collect();
+                    let rk: BTreeSet<&String> = r.free.keys().collect();
+                    if lk != rk {
+                        return Err((
+                            e.span,
+                            format!(
+                                "the terms of this sum have different free indices: {} and {}",
+                                describe(&lk),
+                                describe(&rk)
+                            ),
+                        ));
+                    }
+                    let mut dummies = l.dummies;
+                    dummies.extend(r.dummies);
+                    Ok(Usage {
+                        free: l.free,
+                        dummies,
+                    })
+                }
+                BinOp::Mul => product(vec![l, r]),
+                BinOp::Div | BinOp::Pow => {
+                    for usage in [&r, &l] {
+                        if let Some((name, span)) = usage.free.iter().next() {
+                            return Err((*span, format!("index `{name}` is free inside a power or a denominator")));
+                        }
+                    }
+                    if matches!(op, BinOp::Pow) && !l.dummies.is_empty() {
+                        return Err((lhs.span, "a power of a contracted expression is ambiguous; write the product out".into()));
+                    }
+                    let mut usage = l;
+                    usage.dummies.extend(r.dummies);
+                    Ok(usage)
+                }
+            }
+        }
+        ExprKind::Corr(items) => {
+            let mut parts = Vec::new();
+            for item in items {
+                if let Insertion::Op(op) = item {
+                    parts.push(names(&op.indices)?);
+                }
+            }
+            product(parts)
+        }
+        ExprKind::Op(op) => names(&op.indices),
+        ExprKind::Deriv { index, body, .. } => {
+            product(vec![names(std::slice::from_ref(index))?, walk(body)?])
+        }
+        ExprKind::Kron(i, j) => names(&[i.clone(), j.clone()]),
+        ExprKind::Normal(i) => names(std::slice::from_ref(i)),
+    }
+}
+
+/// The usage of a list of index names in one factor.
+fn names(list: &[Name]) -> Result<Usage, (Span, String)> {
+    let parts = list
+        .iter()
+        .filter(|n| n.text != NORMAL || n.is_var)
+        .map(|n| Usage {
+            free: BTreeMap::from([(n.text.clone(), n.span)]),
+            dummies: BTreeMap::new(),
+        })
+        .collect();
+    product(parts)
+}
+
+/// Combines factors of a product: a name free in two factors becomes summed.
+fn product(parts: Vec<Usage>) -> Result<Usage, (Span, String)> {
+    let mut out = Usage::default();
+    for part in parts {
+        for (d, span) in &part.dummies {
+            if out.free.contains_key(d) || out.dummies.contains_key(d) {
+                return Err((*span, format!("index `{d}` appears more than twice in one product")));
+            }
+        }
+        for (name, span) in part.free {
+            if out.dummies.contains_key(&name) {
+                return Err((span, format!("index `{name}` appears three times in one product")));
+            }
+            if out.free.remove(&name).is_some() {
+                out.dummies.insert(name, span);
+            } else {
+                out.free.insert(name, span);
+            }
+        }
+        out.dummies.extend(part.dummies);
+    }
+    Ok(out)
+}

@@ -1,0 +1,629 @@
+//! Lowering: a parsed `.ward` file becomes a [`Program`]: its declarations
+//! ([`Context`]) and its statements as [`Term`]s.
+//!
+//! This is where every mistake a parser cannot see is caught, with its span:
+//! undeclared or doubly declared names, operators in the wrong place (D at a
+//! bulk point, a boundary operator without a boundary), unbalanced free
+//! indices, an index used three times, rule syntax in a `.ward` file, and
+//! division by a literal zero.
+
+mod indices;
+
+use std::collections::{BTreeMap, BTreeSet};
+use std::sync::Arc;
+
+use num_rational::BigRational;
+use num_traits::{Signed, Zero};
+
+use crate::context::{
+    Context, IndexKind, OperatorDecl, PointDecl, DIMENSION, DISPLACEMENT, NORMAL, STRESS_TENSOR,
+};
+use crate::diagnostic::{Error, ErrorKind, Result, Source};
+use crate::syntax::ast::{self, BinOp, Expr, ExprKind, Insertion, Name, OpKind, PointRef, Span, Stmt};
+use crate::term::{Index, Op, Point, Term};
+
+/// A lowered `.ward` file.
+#[derive(Debug)]
+pub struct Program {
+    pub source: Arc<Source>,
+    pub ctx: Arc<Context>,
+    pub items: Vec<Item>,
+    /// Rule files named by `rules "…"` statements, as written, with spans.
+    pub rule_files: Vec<(String, Span)>,
+}
+
+/// One statement that asks for work.
+#[derive(Debug)]
+pub struct Item {
+    pub kind: ItemKind,
+    pub span: Span,
+    /// 1-based line of the statement.
+    pub line: usize,
+}
+
+#[derive(Debug)]
+pub enum ItemKind {
+    /// `simplify E [expect R]`.
+    Simplify { expr: Term, expect: Option<Term> },
+    /// `claim L = R`.
+    Claim { lhs: Term, rhs: Term },
+}
+
+/// Lowers a parsed file.
+pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
+    let mut lowerer = Lowerer {
+        source: source.clone(),
+        ctx: Context::default(),
+        declared: BTreeMap::new(),
+    };
+    lowerer.ctx.add_builtins();
+    lowerer.collect_indices(file);
+    let mut items = Vec::new();
+    let mut rule_files = Vec::new();
+    let mut seen_expression = false;
+    for stmt in &file.stmts {
+        match stmt {
+            Stmt::Simplify { expr, expect, span } => {
+                seen_expression = true;
+                let profile = lowerer.free_indices(expr)?;
+                let lowered = lowerer.expr(expr)?;
+                let expect = match expect {
+                    Some(e) => {
+                        lowerer.same_free_indices(&profile, e, "the expected result")?;
+                        Some(lowerer.expr(e)?)
+                    }
+                    None => None,
+                };
+                items.push(Item {
+                    kind: ItemKind::Simplify {
+                        expr: lowered,
+                        expect,
+                    },
+                    span: *span,
+                    line: source.line_col(span.start).0,
+                });
+            }
+            Stmt::Claim { lhs, rhs, span } => {
+                seen_expression = true;
+                let profile = lowerer.free_indices(lhs)?;
+                lowerer.same_free_indices(&profile, rhs, "the right side")?;
+                items.push(Item {
+                    kind: ItemKind::Claim {
+                        lhs: lowerer.expr(lhs)?,
+                        rhs: lowerer.expr(rhs)?,
+                    },
+                    span: *span,
+                    line: source.line_col(span.start).0,
+                });
+            }
+            Stmt::Rules { path, span } => rule_files.push((path.clone(), *span)),
+            Stmt::Dimension(e) if seen_expression => {
+                return Err(lowerer
+                    .err(ErrorKind::Name, e.span, "the dimension must be declared before any expression")
+                    .with_label("declared too late"));
+            }
+            Stmt::Halfspace { coord } if seen_expression => {
+                return Err(lowerer
+                    .err(ErrorKind::Name, coord.span, "the half-space must be declared before any expression")
+                    .with_label("declared too late"));
+            }
+            decl => lowerer.declare(decl)?,
+        }
+    }
+    Ok(Program {
+        source: source.clone(),
+        ctx: Arc::new(lowerer.ctx),
+        items,
+        rule_files,
+    })
+}
+
+/// What a declared name is.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+enum Declared {
+    Operator,
+    Point,
+    Parameter,
+    ParallelIndex,
+}
+
+impl Declared {
+    fn describe(self) -> &'static str {
+        match self {
+            Declared::Operator => "an operator",
+            Declared::Point => "a point",
+            Declared::Parameter => "a parameter",
+            Declared::ParallelIndex => "a parallel index",
+        }
+    }
+}
+
+struct Lowerer {
+    source: Arc<Source>,
+    ctx: Context,
+    declared: BTreeMap<String, (Declared, Span)>,
+}
+
+impl Lowerer {
+    fn err(&self, kind: ErrorKind, span: Span, message: impl Into<String>) -> Error {
+        Error::at(kind, &self.source, span, message)
+    }
+
+    // ───────────────────────── declarations ─────────────────────────
+
+    fn declare(&mut self, stmt: &Stmt) -> Result<()> {
+        match stmt {
+            Stmt::Dimension(e) => {
+                if self.ctx.dimension.is_some() {
+                    return Err(self.err(ErrorKind::Name, e.span, "the dimension is declared twice"));
+                }
+                let dim = match &e.kind {
+                    ExprKind::Name(n) if n.text == DIMENSION => Term::Sym(DIMENSION.into()),
+                    ExprKind::Num(c) if c.is_integer() && *c >= BigRational::from_integer(2.into()) => {
+                        Term::Num(c.clone())
+                    }
+                    _ => {
+                        return Err(self
+                            .err(ErrorKind::Syntax, e.span, "a dimension is a whole number of at least 2, or the symbol d")
+                            .with_label("not a dimension"))
+                    }
+                };
+                self.ctx.dimension = Some(dim);
+                self.ctx.add_builtins();
+            }
+            Stmt::Halfspace { coord } => {
+                if self.ctx.halfspace.is_some() {
+                    return Err(self.err(ErrorKind::Name, coord.span, "the half-space is declared twice"));
+                }
+                self.reserve(coord, "the normal coordinate")?;
+                self.ctx.halfspace = Some(coord.text.clone());
+                self.ctx.add_builtins();
+            }
+            Stmt::Operator {
+                boundary,
+                kind,
+                name,
+                attrs,
+            } => {
+                if *boundary && !self.ctx.has_halfspace() {
+                    return Err(self
+                        .err(ErrorKind::Placement, name.span, format!("boundary operator `{}` needs a boundary", name.text))
+                        .with_label("declared on a boundary that does not exist")
+                        .with_note("declare the boundary first, e.g. `halfspace y >= 0`"));
+                }
+                self.new_name(name, Declared::Operator)?;
+                let mut values = BTreeMap::new();
+                for (key, value) in attrs {
+                    if values.contains_key(&key.text) {
+                        return Err(self.err(ErrorKind::Name, key.span, format!("attribute `{}` is given twice", key.text)));
+                    }
+                    // Bare names in attribute values declare themselves as
+                    // parameters: `scalar O dim Delta` declares Delta.
+                    self.declare_parameters_in(value)?;
+                    if self.free_indices(value)?.iter().next().is_some() {
+                        return Err(self.err(ErrorKind::Index, value.span, "an attribute value cannot carry free indices"));
+                    }
+                    values.insert(key.text.clone(), self.expr(value)?);
+                }
+                if !values.contains_key("dim") {
+                    return Err(self
+                        .err(ErrorKind::Name, name.span, format!("operator `{}` has no dimension", name.text))
+                        .with_label("missing `dim`")
+                        .with_note(format!("write e.g. `scalar {} dim Delta`", name.text)));
+                }
+                self.ctx.operators.insert(
+                    name.text.clone(),
+                    OperatorDecl {
+                        name: name.text.clone(),
+                        boundary: *boundary,
+                        rank: match kind {
+                            OpKind::Scalar => 0,
+                            OpKind::Vector => 1,
+                        },
+                        attrs: values,
+                    },
+                );
+            }
+            Stmt::Points { boundary, names } => {
+                if *boundary && !self.ctx.has_halfspace() {
+                    let span = names.first().map_or(Span::default(), |n| n.span);
+                    return Err(self
+                        .err(ErrorKind::Placement, span, "boundary points need a boundary")
+                        .with_note("declare the boundary first, e.g. `halfspace y >= 0`"));
+                }
+                for name in names {
+                    self.new_name(name, Declared::Point)?;
+                    self.ctx.points.push(PointDecl {
+                        name: name.text.clone(),
+                        boundary: *boundary,
+                    });
+                }
+            }
+            Stmt::Parameters(names) => {
+                for name in names {
+                    self.new_name(name, Declared::Parameter)?;
+                    self.ctx.parameters.insert(name.text.clone());
+                }
+            }
+            Stmt::Parallel(names) => {
+                if !self.ctx.has_halfspace() {
+                    let span = names.first().map_or(Span::default(), |n| n.span);
+                    return Err(self
+                        .err(ErrorKind::Placement, span, "parallel indices need a boundary")
+                        .with_note("declare the boundary first, e.g. `halfspace y >= 0`"));
+                }
+                for name in names {
+                    self.new_name(name, Declared::ParallelIndex)?;
+                    self.ctx.parallel.insert(name.text.clone());
+                }
+            }
+            Stmt::Simplify { .. } | Stmt::Claim { .. } | Stmt::Rules { .. } => {}
+        }
+        Ok(())
+    }
+
+    fn reserve(&self, name: &Name, what: &str) -> Result<()> {
+        let builtin = [DIMENSION, NORMAL, STRESS_TENSOR, DISPLACEMENT];
+        if builtin.contains(&name.text.as_str()) {
+            return Err(self
+                .err(ErrorKind::Name, name.span, format!("`{}` is built in and cannot name {what}", name.text))
+                .with_label("reserved name"));
+        }
+        if let Some((kind, _)) = self.declared.get(&name.text) {
+            return Err(self
+                .err(ErrorKind::Name, name.span, format!("`{}` is already declared as {}", name.text, kind.describe()))
+                .with_label("declared again"));
+        }
+        Ok(())
+    }
+
+    fn new_name(&mut self, name: &Name, kind: Declared) -> Result<()> {
+        self.reserve(name, kind.describe())?;
+        if self.ctx.halfspace.as_deref() == Some(name.text.as_str()) {
+            return Err(self
+                .err(ErrorKind::Name, name.span, format!("`{}` is the normal coordinate", name.text))
+                .with_label("declared again"));
+        }
+        self.declared.insert(name.text.clone(), (kind, name.span));
+        Ok(())
+    }
+
+    fn declare_parameters_in(&mut self, e: &Expr) -> Result<()> {
+        match &e.kind {
+            ExprKind::Name(n) if n.text != DIMENSION && !self.declared.contains_key(&n.text) => {
+                self.new_name(n, Declared::Parameter)?;
+                self.ctx.parameters.insert(n.text.clone());
+            }
+            ExprKind::Neg(a) => self.declare_parameters_in(a)?,
+            ExprKind::Binary { lhs, rhs, .. } => {
+                self.declare_parameters_in(lhs)?;
+                self.declare_parameters_in(rhs)?;
+            }
+            _ => {}
+        }
+        Ok(())
+    }
+
+    /// Records every index name of the file by kind (after all declarations,
+    /// since `parallel` may come after a use in rule-free files).
+    fn collect_indices(&mut self, file: &ast::File) {
+        let mut parallel = BTreeSet::new();
+        for stmt in &file.stmts {
+            if let Stmt::Parallel(names) = stmt {
+                parallel.extend(names.iter().map(|n| n.text.clone()));
+            }
+        }
+        let mut names = BTreeSet::new();
+        for stmt in &file.stmts {
+            match stmt {
+                Stmt::Simplify { expr, expect, .. } => {
+                    indices::collect(expr, &mut names);
+                    if let Some(e) = expect {
+                        indices::collect(e, &mut names);
+                    }
+                }
+                Stmt::Claim { lhs, rhs, .. } => {
+                    indices::collect(lhs, &mut names);
+                    indices::collect(rhs, &mut names);
+                }
+                _ => {}
+            }
+        }
+        for name in names {
+            let kind = if parallel.contains(&name) {
+                IndexKind::Parallel
+            } else {
+                IndexKind::Bulk
+            };
+            self.ctx.index_pool.entry(kind).or_default().insert(name);
+        }
+        for name in parallel {
+            self.ctx
+                .index_pool
+                .entry(IndexKind::Parallel)
+                .or_default()
+                .insert(name);
+        }
+    }
+
+    // ─────────────────────────── indices ────────────────────────────
+
+    fn free_indices(&self, e: &Expr) -> Result<indices::Profile> {
+        indices::profile(e).map_err(|(span, message)| {
+            self.err(ErrorKind::Index, span, message).with_label("here")
+        })
+    }
+
+    fn same_free_indices(&self, left: &indices::Profile, e: &Expr, what: &str) -> Result<()> {
+        let right = self.free_indices(e)?;
+        let l: BTreeSet<&String> = left.iter().collect();
+        let r: BTreeSet<&String> = right.iter().collect();
+        if l != r {
+            return Err(self
+                .err(
+                    ErrorKind::Index,
+                    e.span,
+                    format!(
+                        "free indices do not match: the left side has {}, {what} has {}",
+                        indices::describe(&l),
+                        indices::describe(&r)
+                    ),
+                )
+                .with_label("unbalanced indices"));
+        }
+        Ok(())
+    }
+
+    // ───────────────────────── expressions ──────────────────────────
+
+    fn expr(&self, e: &Expr) -> Result<Term> {
+        Ok(match &e.kind {
+            ExprKind::Num(c) => Term::Num(c.clone()),
+            ExprKind::Name(n) => self.scalar_name(n)?,
+            ExprKind::Var(v) | ExprKind::Attr { var: v, .. } => return Err(self.rule_syntax(v.span)),
+            ExprKind::Sum { op, .. } => return Err(self.rule_syntax(op.span.to(e.span))),
+            ExprKind::Neg(a) => self.expr(a)?.neg(),
+            ExprKind::Binary { op, lhs, rhs } => {
+                let l = self.expr(lhs)?;
+                let r = self.expr(rhs)?;
+                match op {
+                    BinOp::Add => Term::Add(vec![l, r]),
+                    BinOp::Sub => Term::Add(vec![l, r.neg()]),
+                    BinOp::Mul => Term::Mul(vec![l, r]),
+                    BinOp::Div => {
+                        if let Some(v) = constant_value(rhs) {
+                            if v.is_zero() {
+                                return Err(self
+                                    .err(ErrorKind::Arithmetic, rhs.span, "division by zero")
+                                    .with_label("this is zero"));
+                            }
+                        }
+                        Term::Mul(vec![l, Term::Pow(Box::new(r), Box::new(Term::int(-1)))])
+                    }
+                    BinOp::Pow => {
+                        if let (Some(b), Some(x)) = (constant_value(lhs), constant_value(rhs)) {
+                            if b.is_zero() && x.is_negative() {
+                                return Err(self
+                                    .err(ErrorKind::Arithmetic, e.span, "zero raised to a negative power")
+                                    .with_label("division by zero"));
+                            }
+                        }
+                        Term::Pow(Box::new(l), Box::new(r))
+                    }
+                }
+            }
+            ExprKind::Corr(items) => {
+                let mut ops = Vec::new();
+                for item in items {
+                    match item {
+                        Insertion::Op(op) => ops.push(self.op(op)?),
+                        Insertion::Splice(v) => return Err(self.rule_syntax(v.span)),
+                    }
+                }
+                Term::Corr(ops)
+            }
+            ExprKind::Op(op) => {
+                return Err(self
+                    .err(ErrorKind::Placement, op.span, format!("operator `{}` stands outside a correlator", op.name.text))
+                    .with_label("not inside ⟨ ⟩")
+                    .with_note(format!("write it inside a correlator, e.g. `<{} …>`", op.name.text)))
+            }
+            ExprKind::Deriv { index, point, body } => {
+                let i = self.index(index)?;
+                let p = self.point(point)?;
+                if p.par {
+                    return Err(self
+                        .err(ErrorKind::Placement, point.span, "derivatives are taken with respect to declared points, not projections")
+                        .with_label("a projection"));
+                }
+                Term::Der(i, p, Box::new(self.expr(body)?))
+            }
+            ExprKind::Kron(i, j) => Term::Kron(self.index(i)?, self.index(j)?),
+            ExprKind::Normal(i) => {
+                self.need_halfspace(e.span, "the normal n")?;
+                Term::Normal(self.index(i)?)
+            }
+            ExprKind::DeltaPoints(p, q) => {
+                let a = self.point(p)?;
+                let b = self.point(q)?;
+                if a == b {
+                    return Err(self
+                        .err(ErrorKind::Placement, e.span, "δ(p - p) is not a function: both points are the same")
+                        .with_label("same point twice"));
+                }
+                Term::DeltaFn(a, b)
+            }
+            ExprKind::DeltaNormal { coord, point } => {
+                self.need_halfspace(e.span, "the boundary δ-function")?;
+                if self.ctx.halfspace.as_deref() != Some(coord.text.as_str()) {
+                    return Err(self
+                        .err(ErrorKind::Name, coord.span, format!("`{}` is not the normal coordinate", coord.text))
+                        .with_label(format!("expected `{}`", self.ctx.normal_coord())));
+                }
+                let p = self.point(point)?;
+                if self.ctx.is_boundary_point(&p) {
+                    return Err(self
+                        .err(ErrorKind::Placement, point.span, "δ(y(p)) needs a bulk point p")
+                        .with_label("a boundary point"));
+                }
+                Term::DeltaY(p)
+            }
+        })
+    }
+
+    fn rule_syntax(&self, span: Span) -> Error {
+        self.err(ErrorKind::Syntax, span, "rule syntax (`?x`, `...?rest`, `sum`, `?o.attr`) belongs in .rules files")
+            .with_label("not allowed in a .ward file")
+    }
+
+    fn need_halfspace(&self, span: Span, what: &str) -> Result<()> {
+        if self.ctx.has_halfspace() {
+            Ok(())
+        } else {
+            Err(self
+                .err(ErrorKind::Placement, span, format!("{what} needs a boundary"))
+                .with_label("no boundary declared")
+                .with_note("declare one with `halfspace y >= 0`"))
+        }
+    }
+
+    fn scalar_name(&self, n: &Name) -> Result<Term> {
+        if n.text == DIMENSION {
+            return Ok(self.ctx.dim());
+        }
+        match self.declared.get(&n.text) {
+            Some((Declared::Parameter, _)) => Ok(Term::Sym(n.text.clone())),
+            Some((kind, _)) => Err(self
+                .err(ErrorKind::Name, n.span, format!("`{}` is {}, not a parameter", n.text, kind.describe()))
+                .with_label("used as a number")),
+            None => Err(self.undeclared(n, "parameter", "parameters")),
+        }
+    }
+
+    fn undeclared(&self, n: &Name, what: &str, keyword: &str) -> Error {
+        self.err(ErrorKind::Name, n.span, format!("undeclared {what} `{}`", n.text))
+            .with_label("not declared")
+            .with_note(format!("declare it before use, e.g. `{keyword} {}`", n.text))
+    }
+
+    fn index(&self, n: &Name) -> Result<Index> {
+        if n.is_var {
+            return Err(self.rule_syntax(n.span));
+        }
+        if n.text == NORMAL {
+            self.need_halfspace(n.span, "the normal index n")?;
+            return Ok(Index::N);
+        }
+        match self.declared.get(&n.text) {
+            Some((Declared::ParallelIndex, _)) | None => Ok(Index::Named(n.text.clone())),
+            Some((kind, _)) => Err(self
+                .err(ErrorKind::Name, n.span, format!("`{}` is {}, not an index", n.text, kind.describe()))
+                .with_label("used as an index")),
+        }
+    }
+
+    fn point(&self, p: &PointRef) -> Result<Point> {
+        if p.name.is_var {
+            return Err(self.rule_syntax(p.name.span));
+        }
+        let Some((rank, decl)) = self.ctx.point(&p.name.text) else {
+            return Err(match self.declared.get(&p.name.text) {
+                Some((kind, _)) => self
+                    .err(ErrorKind::Name, p.name.span, format!("`{}` is {}, not a point", p.name.text, kind.describe()))
+                    .with_label("used as a point"),
+                None => self.undeclared(&p.name, "point", "points"),
+            });
+        };
+        if p.par {
+            self.need_halfspace(p.span, "a boundary projection")?;
+            if decl.boundary {
+                return Err(self
+                    .err(ErrorKind::Placement, p.span, format!("`{}` is already a boundary point", p.name.text))
+                    .with_label("projection of a boundary point"));
+            }
+        }
+        Ok(Point {
+            rank,
+            par: p.par,
+            name: p.name.text.clone(),
+        })
+    }
+
+    fn op(&self, op: &ast::OpRef) -> Result<Op> {
+        if op.name.is_var {
+            return Err(self.rule_syntax(op.name.span));
+        }
+        let Some(decl) = self.ctx.operator(&op.name.text) else {
+            if op.name.text == DISPLACEMENT {
+                return Err(self
+                    .err(ErrorKind::Placement, op.name.span, "the displacement operator D needs a boundary")
+                    .with_label("no boundary declared")
+                    .with_note("declare one with `halfspace y >= 0`"));
+            }
+            return Err(match self.declared.get(&op.name.text) {
+                Some((kind, _)) => self
+                    .err(ErrorKind::Name, op.name.span, format!("`{}` is {}, not an operator", op.name.text, kind.describe()))
+                    .with_label("used as an operator"),
+                None => self.undeclared(&op.name, "operator", "scalar"),
+            });
+        };
+        if op.indices.len() != decl.rank {
+            return Err(self
+                .err(
+                    ErrorKind::Index,
+                    op.span,
+                    format!("`{}` takes {} index(es), found {}", op.name.text, decl.rank, op.indices.len()),
+                )
+                .with_label("wrong number of indices"));
+        }
+        let point = self.point(&op.point)?;
+        let on_boundary = self.ctx.is_boundary_point(&point);
+        if decl.boundary && !on_boundary {
+            let what = if op.name.text == DISPLACEMENT {
+                "the displacement operator D".to_string()
+            } else {
+                format!("boundary operator `{}`", op.name.text)
+            };
+            return Err(self
+                .err(ErrorKind::Placement, op.point.span, format!("{what} placed at bulk point `{}`", point.name))
+                .with_label("a bulk point")
+                .with_note("use a boundary point (`boundary points s`) or a projection `x∥`"));
+        }
+        if !decl.boundary && on_boundary {
+            return Err(self
+                .err(ErrorKind::Placement, op.point.span, format!("bulk operator `{}` placed at boundary point `{}`", op.name.text, op.point.name.text))
+                .with_label("a boundary point")
+                .with_note("bulk operators stand at bulk points; take the boundary limit explicitly"));
+        }
+        let indices = op
+            .indices
+            .iter()
+            .map(|i| self.index(i))
+            .collect::<Result<Vec<_>>>()?;
+        Ok(Op {
+            point,
+            name: op.name.text.clone(),
+            indices,
+        })
+    }
+}
+
+/// The exact value of an expression made of numbers only.
+fn constant_value(e: &Expr) -> Option<BigRational> {
+    match &e.kind {
+        ExprKind::Num(c) => Some(c.clone()),
+        ExprKind::Neg(a) => constant_value(a).map(|v| -v),
+        ExprKind::Binary { op, lhs, rhs } => {
+            let l = constant_value(lhs)?;
+            let r = constant_value(rhs)?;
+            match op {
+                BinOp::Add => Some(l + r),
+                BinOp::Sub => Some(l - r),
+                BinOp::Mul => Some(l * r),
+                BinOp::Div => (!r.is_zero()).then(|| l / r),
+                BinOp::Pow => None,
+            }
+        }
+        _ => None,
+    }
+}

@@ -1,0 +1,86 @@
+//! The `wardsmith` command: parse arguments, run, print, exit.
+//!
+//! Exit codes: 0 every claim holds, 1 some claim is not proved, 2 the input
+//! is wrong (the diagnostic says where).
+
+use std::io::{IsTerminal, Write};
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+use clap::{Args, Parser, Subcommand};
+use wardsmith::egraph::Limits;
+use wardsmith::run::{run_path, Mode, Options};
+use wardsmith::term::print::Style;
+
+const CONVENTIONS: &str = "\
+Conventions: Euclidean R^d with metric δ_{μν}, path-integral weight e^{-S};
+T^{μν} = -(2/√g) δS/δg_{μν}; minimal contact-term scheme. With `halfspace y >= 0`
+the boundary is y = 0, n is the unit normal pointing into the bulk, x∥ is the
+projection of x onto the boundary, and D(x∥) = T_nn(x∥, y → 0+) is the
+displacement operator.
+
+Exit codes: 0 every claim holds, 1 some claim is not proved, 2 the input is wrong.";
+
+/// Simplify and check conformal Ward identities written in .ward files.
+#[derive(Parser, Debug)]
+#[command(name = "wardsmith", version, after_help = CONVENTIONS)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand, Debug)]
+enum Command {
+    /// Print every `simplify` statement of FILE in contact-term normal form.
+    #[command(after_help = CONVENTIONS)]
+    Simplify(FileArgs),
+    /// Prove or fail every `claim` and every `simplify … expect …` in FILE.
+    #[command(after_help = CONVENTIONS)]
+    Check(FileArgs),
+}
+
+#[derive(Args, Debug)]
+struct FileArgs {
+    /// The .ward file.
+    file: PathBuf,
+    /// Load an extra rule file (may be repeated).
+    #[arg(long = "rules", value_name = "FILE")]
+    rules: Vec<PathBuf>,
+    /// Print with ASCII names (del, delta, <>, par(x)) instead of ∂, δ, ⟨⟩, x∥.
+    #[arg(long)]
+    ascii: bool,
+    /// Stop the e-graph at this many e-nodes.
+    #[arg(long, value_name = "N", default_value_t = Limits::default().nodes)]
+    node_limit: usize,
+    /// Stop the e-graph after this many iterations.
+    #[arg(long, value_name = "N", default_value_t = Limits::default().iterations)]
+    iter_limit: usize,
+}
+
+fn main() -> ExitCode {
+    let cli = Cli::parse();
+    let (mode, args) = match cli.command {
+        Command::Simplify(a) => (Mode::Simplify, a),
+        Command::Check(a) => (Mode::Check, a),
+    };
+    let opts = Options {
+        rules: args.rules,
+        style: if args.ascii { Style::Ascii } else { Style::Unicode },
+        limits: Limits {
+            nodes: args.node_limit,
+            iterations: args.iter_limit,
+            ..Limits::default()
+        },
+    };
+    match run_path(&args.file, mode, &opts) {
+        Ok(outcome) => {
+            print!("{}", outcome.report);
+            ExitCode::from(outcome.code as u8)
+        }
+        Err(e) => {
+            let color = std::io::stderr().is_terminal();
+            let _ = std::io::stderr().write_all(&e.render_to(color));
+            ExitCode::from(2)
+        }
+    }
+}

@@ -1,0 +1,256 @@
+//! Normalisation: any term to its contact-term normal form.
+//!
+//! The normal form is a sum of monomials, each an exact polynomial
+//! coefficient times a sorted list of factors (δ-functions, normals,
+//! Kronecker deltas, derivative chains on correlators). Normalisation
+//! expands products over sums, moves derivatives through sums and
+//! constants (Leibniz rule for products), orders commuting derivatives,
+//! contracts indices (see [`contract`]), renames summed indices canonically
+//! and collects like terms. It is a terminating, syntax-directed pass; it
+//! applies no Ward identity.
+
+mod contract;
+mod monomial;
+
+use std::collections::BTreeMap;
+
+use num_rational::BigRational;
+use num_traits::{One, Signed, ToPrimitive, Zero};
+
+use crate::context::Context;
+use crate::diagnostic::{Error, ErrorKind, Result};
+use crate::term::{Index, Point, Term};
+pub use monomial::{Atoms, Mono};
+
+/// Puts `t` in contact-term normal form.
+pub fn normalize(ctx: &Context, t: &Term) -> Result<Term> {
+    let monos = expand(ctx, t)?;
+    let mut out = Vec::new();
+    for m in monos {
+        for m in contract::contract(ctx, m) {
+            out.push(contract::canonical_dummies(ctx, m));
+        }
+    }
+    Ok(collect(out))
+}
+
+/// Expands a term into a list of monomials (not yet collected).
+fn expand(ctx: &Context, t: &Term) -> Result<Vec<Mono>> {
+    Ok(match t {
+        Term::Num(c) => {
+            if c.is_zero() {
+                vec![]
+            } else {
+                vec![Mono::scalar(c.clone())]
+            }
+        }
+        Term::Sym(s) => vec![Mono::atom(Term::Sym(s.clone()), BigRational::one())],
+        Term::Add(ts) => {
+            let mut out = Vec::new();
+            for t in ts {
+                out.extend(expand(ctx, t)?);
+            }
+            out
+        }
+        Term::Mul(ts) => {
+            let mut acc = vec![Mono::scalar(BigRational::one())];
+            for t in ts {
+                let factor = expand(ctx, t)?;
+                let mut next = Vec::with_capacity(acc.len() * factor.len());
+                for a in &acc {
+                    for b in &factor {
+                        next.push(a.mul(b));
+                    }
+                }
+                acc = next;
+                if acc.is_empty() {
+                    break;
+                }
+            }
+            acc
+        }
+        Term::Pow(b, e) => power(ctx, b, e)?,
+        Term::DeltaFn(p, q) => {
+            let (p, q) = if q < p { (q, p) } else { (p, q) };
+            vec![Mono::factor(Term::DeltaFn(p.clone(), q.clone()))]
+        }
+        Term::DeltaY(p) => vec![Mono::factor(Term::DeltaY(p.clone()))],
+        Term::Normal(Index::N) => vec![Mono::scalar(BigRational::one())],
+        Term::Normal(i) => vec![Mono::factor(Term::Normal(i.clone()))],
+        Term::Kron(i, j) => {
+            let (i, j) = if j < i { (j, i) } else { (i, j) };
+            vec![Mono::factor(Term::Kron(i.clone(), j.clone()))]
+        }
+        Term::Corr(ops) if ops.is_empty() => vec![Mono::scalar(BigRational::one())],
+        Term::Corr(ops) => {
+            let mut ops = ops.clone();
+            ops.sort();
+            vec![Mono::factor(Term::Corr(ops))]
+        }
+        Term::Der(i, p, body) => {
+            let mut out = Vec::new();
+            for m in expand(ctx, body)? {
+                out.extend(differentiate(i, p, m));
+            }
+            out
+        }
+    })
+}
+
+/// ∂[i](p) of one monomial: coefficients are constants, so by the Leibniz
+/// rule the derivative lands on each factor that mentions p in turn.
+fn differentiate(i: &Index, p: &Point, m: Mono) -> Vec<Mono> {
+    let mut out = Vec::new();
+    for (k, f) in m.factors.iter().enumerate() {
+        if f.mentions_point(p) {
+            let mut next = m.clone();
+            next.factors[k] = derivative(i, p, f.clone());
+            out.push(next);
+        }
+    }
+    out
+}
+
+/// Wraps a factor in a derivative, keeping chains of commuting derivatives
+/// ordered by (point, index) so that equal chains compare equal.
+pub(crate) fn derivative(i: &Index, p: &Point, f: Term) -> Term {
+    match f {
+        Term::Der(j, q, g) if (&q, &j) < (p, i) => Term::Der(j, q, Box::new(derivative(i, p, *g))),
+        f => Term::Der(i.clone(), p.clone(), Box::new(f)),
+    }
+}
+
+/// Largest integer power expanded by repeated multiplication.
+const MAX_EXPANDED_POWER: u32 = 16;
+
+fn power(ctx: &Context, b: &Term, e: &Term) -> Result<Vec<Mono>> {
+    let e = normalize(ctx, e)?;
+    let base = expand(ctx, b)?;
+    let Term::Num(q) = &e else {
+        // A symbolic exponent: keep the power whole, as a scalar atom.
+        if base.iter().any(|m| !m.factors.is_empty()) {
+            return Err(unsupported_power());
+        }
+        return Ok(vec![Mono::atom(
+            Term::Pow(Box::new(collect(base)), Box::new(e)),
+            BigRational::one(),
+        )]);
+    };
+    if q.is_zero() {
+        return Ok(vec![Mono::scalar(BigRational::one())]);
+    }
+    if base.is_empty() {
+        return if q.is_positive() {
+            Ok(vec![])
+        } else {
+            Err(Error::new(ErrorKind::Arithmetic, "division by zero: zero raised to a negative power"))
+        };
+    }
+    if base.iter().any(|m| !m.factors.is_empty()) {
+        // Powers of correlators and δ-functions are not distributions.
+        if q.is_integer() && q.is_positive() {
+            if let Some(n) = q.to_u32().filter(|n| *n <= MAX_EXPANDED_POWER) {
+                return Ok(repeat_product(&base, n));
+            }
+        }
+        return Err(unsupported_power());
+    }
+    if base.len() == 1 {
+        return base[0].scalar_power(q).map(|m| vec![m]);
+    }
+    if q.is_integer() && q.is_positive() {
+        if let Some(n) = q.to_u32().filter(|n| *n <= MAX_EXPANDED_POWER) {
+            return Ok(repeat_product(&base, n));
+        }
+    }
+    // A non-integer or negative power of a sum stays a scalar atom, with
+    // its base in normal form.
+    Ok(vec![Mono::atom(
+        Term::Pow(Box::new(collect(base)), Box::new(Term::Num(q.clone()))),
+        BigRational::one(),
+    )])
+}
+
+fn unsupported_power() -> Error {
+    Error::new(
+        ErrorKind::Unsupported,
+        "only scalar expressions can be raised to a non-integer or symbolic power",
+    )
+}
+
+fn repeat_product(base: &[Mono], n: u32) -> Vec<Mono> {
+    let mut acc = vec![Mono::scalar(BigRational::one())];
+    for _ in 0..n {
+        let mut next = Vec::new();
+        for a in &acc {
+            for b in base {
+                next.push(a.mul(b));
+            }
+        }
+        acc = next;
+    }
+    acc
+}
+
+/// Collects like terms and builds the normal-form term.
+pub fn collect(monos: Vec<Mono>) -> Term {
+    // factors → (atoms → coefficient)
+    let mut groups: BTreeMap<Vec<Term>, BTreeMap<Atoms, BigRational>> = BTreeMap::new();
+    for m in monos {
+        if m.coef.is_zero() {
+            continue;
+        }
+        let poly = groups.entry(m.factors).or_default();
+        let c = poly.entry(m.atoms).or_insert_with(BigRational::zero);
+        *c += m.coef;
+    }
+    let mut terms = Vec::new();
+    for (factors, poly) in groups {
+        let poly: BTreeMap<Atoms, BigRational> =
+            poly.into_iter().filter(|(_, c)| !c.is_zero()).collect();
+        if poly.is_empty() {
+            continue;
+        }
+        let mut product = Vec::new();
+        match poly_term(poly) {
+            Term::Num(c) if c.is_one() && !factors.is_empty() => {}
+            Term::Mul(fs) => product.extend(fs),
+            coef => product.push(coef),
+        }
+        product.extend(factors);
+        terms.push(single_or(product, Term::Mul, Term::one));
+    }
+    single_or(terms, Term::Add, Term::zero)
+}
+
+/// A polynomial coefficient as a term: a single monomial inline, otherwise a
+/// sum whose leading monomial is positive (the sign moves outside).
+fn poly_term(poly: BTreeMap<Atoms, BigRational>) -> Term {
+    // Monomials with atoms first (in atom order), the constant last:
+    // `2 d - 1`, not `-1 + 2 d`.
+    let mut ordered: Vec<(&Atoms, &BigRational)> = poly.iter().filter(|(a, _)| !a.is_empty()).collect();
+    ordered.extend(poly.iter().filter(|(a, _)| a.is_empty()));
+    if ordered.len() == 1 {
+        let (atoms, c) = ordered[0];
+        return monomial::scalar_term(c, atoms);
+    }
+    let leading_negative = ordered.first().is_some_and(|(_, c)| c.is_negative());
+    let sign = if leading_negative { -BigRational::one() } else { BigRational::one() };
+    let monos: Vec<Term> = ordered
+        .iter()
+        .map(|(atoms, c)| monomial::scalar_term(&(*c * &sign), atoms))
+        .collect();
+    if leading_negative {
+        Term::Mul(vec![Term::int(-1), Term::Add(monos)])
+    } else {
+        Term::Add(monos)
+    }
+}
+
+fn single_or(mut items: Vec<Term>, many: fn(Vec<Term>) -> Term, none: fn() -> Term) -> Term {
+    match items.len() {
+        0 => none(),
+        1 => items.pop().unwrap_or_else(none),
+        _ => many(items),
+    }
+}

@@ -1,0 +1,92 @@
+//! Text reports of simplifications and checks, as the command line prints
+//! them. Output depends only on the input, never on timing or ids, so it
+//! can be snapshot-tested byte for byte.
+
+use std::fmt::Write as _;
+
+use crate::context::Context;
+use crate::engine::{Simplified, Verdict};
+use crate::term::print::{Printer, Style};
+
+/// Writes report lines for one file.
+pub struct Reporter<'a> {
+    printer: Printer<'a>,
+    out: String,
+}
+
+impl<'a> Reporter<'a> {
+    pub fn new(ctx: &'a Context, style: Style) -> Reporter<'a> {
+        Reporter {
+            printer: Printer::new(ctx, style),
+            out: String::new(),
+        }
+    }
+
+    pub fn finish(self) -> String {
+        self.out
+    }
+
+    /// `line N: simplify` with the input and its normal form.
+    pub fn simplified(&mut self, line: usize, input: &str, s: &Simplified) {
+        let _ = writeln!(self.out, "line {line}: simplify {input}");
+        let _ = writeln!(self.out, "  = {}", self.printer.term(&s.term));
+        let _ = writeln!(self.out, "  [{}]", stats(s));
+    }
+
+    /// The verdict on a claim or an expected result.
+    pub fn verdict(&mut self, line: usize, what: &str, input: &str, v: &Verdict) -> bool {
+        match v {
+            Verdict::Proved(s) => {
+                let _ = writeln!(self.out, "line {line}: {what} proved: {input}");
+                let _ = writeln!(self.out, "  [{}]", stats(s));
+                true
+            }
+            Verdict::NotProved(s) => {
+                let status = if s.stop.is_saturated() {
+                    "NOT PROVED"
+                } else {
+                    "UNKNOWN"
+                };
+                let _ = writeln!(self.out, "line {line}: {what} {status}: {input}");
+                let _ = writeln!(
+                    self.out,
+                    "  left side minus right side simplifies to: {}",
+                    self.printer.term(&s.term)
+                );
+                let reason = if s.stop.is_saturated() {
+                    "the rules saturated: nothing more applies, so the two sides differ by the remainder above".to_string()
+                } else {
+                    format!(
+                        "the e-graph {}; the remainder is not final, so the claim is neither proved nor refuted",
+                        s.stop.describe()
+                    )
+                };
+                let _ = writeln!(self.out, "  stop reason: {reason}");
+                let _ = writeln!(self.out, "  [{}]", stats(s));
+                false
+            }
+        }
+    }
+
+    /// The closing count of a check.
+    pub fn summary(&mut self, proved: usize, failed: usize) {
+        let _ = writeln!(self.out, "{proved} proved, {failed} not proved");
+    }
+}
+
+/// `saturated; 2 rounds, 3 iterations, 40 e-nodes; rules: a ×1, b ×2`.
+fn stats(s: &Simplified) -> String {
+    let rules = if s.applied.is_empty() {
+        "no rule applied".to_string()
+    } else {
+        let names: Vec<String> = s.applied.iter().map(|(n, k)| format!("{n} ×{k}")).collect();
+        format!("rules: {}", names.join(", "))
+    };
+    format!(
+        "{}; {} round(s), {} iteration(s), {} e-nodes; {rules}",
+        s.stop.describe(),
+        s.rounds,
+        s.iterations,
+        s.nodes
+    )
+}

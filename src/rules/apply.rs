@@ -1,0 +1,161 @@
+//! Building a rule's right side in the e-graph from a match.
+//!
+//! Correlators are built with their insertions in canonical order (point
+//! declaration order, then name, then indices), the same order terms use,
+//! so equal correlators share one e-node.
+
+use egg::{Id, Symbol};
+
+use super::matcher::{holds, insertion, name_of, Binding};
+use super::pattern::{IdxPat, NamePat, OpPat, Pat, PtPat};
+use crate::context::{Context, NORMAL};
+use crate::egraph::{add_term, EGraph, Ward};
+
+/// Adds the template under `b`; `None` if an attribute it needs is missing.
+pub fn instantiate(eg: &mut EGraph, ctx: &Context, pat: &Pat, b: &Binding) -> Option<Id> {
+    Some(match pat {
+        Pat::Var(v) => b.var(v)?,
+        Pat::Num(c) => eg.add(Ward::Num(c.clone())),
+        Pat::Dim => add_term(eg, &ctx.dim()),
+        Pat::Sym(s) => eg.add(Ward::Name(Symbol::from(s.as_str()))),
+        Pat::Add(ps) => {
+            let ids = ps.iter().map(|p| instantiate(eg, ctx, p, b)).collect::<Option<Vec<_>>>()?;
+            eg.add(Ward::Add(ids.into()))
+        }
+        Pat::Mul(ps) => {
+            let ids = ps.iter().map(|p| instantiate(eg, ctx, p, b)).collect::<Option<Vec<_>>>()?;
+            eg.add(Ward::Mul(ids.into()))
+        }
+        Pat::Pow(x, y) => {
+            let x = instantiate(eg, ctx, x, b)?;
+            let y = instantiate(eg, ctx, y, b)?;
+            eg.add(Ward::Pow([x, y]))
+        }
+        Pat::Corr { items, splice } => {
+            let mut ids = items
+                .iter()
+                .map(|op| instantiate_op(eg, op, b))
+                .collect::<Option<Vec<_>>>()?;
+            if let Some(s) = splice {
+                ids.extend_from_slice(b.splice(s)?);
+            }
+            let mut keyed: Vec<(InsertionKey, Id)> =
+                ids.into_iter().map(|id| (insertion_key(eg, ctx, id), id)).collect();
+            keyed.sort();
+            eg.add(Ward::Corr(keyed.into_iter().map(|(_, id)| id).collect()))
+        }
+        Pat::Der(i, p, body) => {
+            let i = index(eg, i, b)?;
+            let p = point(eg, p, b)?;
+            let body = instantiate(eg, ctx, body, b)?;
+            eg.add(Ward::Der([i, p, body]))
+        }
+        Pat::Kron(i, j) => {
+            let i = index(eg, i, b)?;
+            let j = index(eg, j, b)?;
+            eg.add(Ward::Kron([i, j]))
+        }
+        Pat::Normal(i) => {
+            let i = index(eg, i, b)?;
+            eg.add(Ward::Normal(i))
+        }
+        Pat::DeltaFn(p, q) => {
+            let p = point(eg, p, b)?;
+            let q = point(eg, q, b)?;
+            eg.add(Ward::DeltaFn([p, q]))
+        }
+        Pat::DeltaY(p) => {
+            let p = point(eg, p, b)?;
+            eg.add(Ward::DeltaY(p))
+        }
+        Pat::Sum {
+            op,
+            point: pt,
+            splice,
+            filter,
+            body,
+        } => {
+            let elements = b.splice(splice)?.to_vec();
+            let mut terms = Vec::new();
+            for element in elements {
+                let (name, at, _) = insertion(eg, element)?;
+                let mut local = b.clone();
+                local.vars.push((op.clone(), name));
+                local.vars.push((pt.clone(), at));
+                if filter.as_ref().is_some_and(|c| !holds(eg, ctx, c, &local)) {
+                    continue;
+                }
+                terms.push(instantiate(eg, ctx, body, &local)?);
+            }
+            match terms.len() {
+                0 => eg.add(Ward::Num(num_traits::Zero::zero())),
+                1 => terms[0],
+                _ => eg.add(Ward::Add(terms.into())),
+            }
+        }
+        Pat::Attr { var, key } => {
+            let op = name_of(eg, b.var(var)?)?.to_string();
+            let value = ctx.attribute(&op, key)?.clone();
+            add_term(eg, &value)
+        }
+    })
+}
+
+fn instantiate_op(eg: &mut EGraph, op: &OpPat, b: &Binding) -> Option<Id> {
+    let mut children = Vec::with_capacity(2 + op.indices.len());
+    children.push(match &op.name {
+        NamePat::Var(v) => b.var(v)?,
+        NamePat::Lit(s) => eg.add(Ward::Name(Symbol::from(s.as_str()))),
+    });
+    children.push(point(eg, &op.point, b)?);
+    for i in &op.indices {
+        children.push(index(eg, i, b)?);
+    }
+    Some(eg.add(Ward::Op(children.into())))
+}
+
+fn index(eg: &mut EGraph, i: &IdxPat, b: &Binding) -> Option<Id> {
+    match i {
+        IdxPat::Var(v) => b.var(v),
+        IdxPat::N => Some(eg.add(Ward::Name(Symbol::from(NORMAL)))),
+    }
+}
+
+fn point(eg: &mut EGraph, p: &PtPat, b: &Binding) -> Option<Id> {
+    match p {
+        PtPat::Var(v) => b.var(v),
+        PtPat::Par(v) => {
+            let inner = b.var(v)?;
+            Some(eg.add(Ward::Par(inner)))
+        }
+    }
+}
+
+/// Sort key of an insertion: the same order as [`crate::term::Op`]'s.
+type InsertionKey = ((u32, bool, String), String, Vec<(bool, String)>);
+
+fn insertion_key(eg: &EGraph, ctx: &Context, class: Id) -> InsertionKey {
+    let Some((name, at, indices)) = insertion(eg, class) else {
+        return ((u32::MAX, false, String::new()), String::new(), Vec::new());
+    };
+    let (point_name, par) = match eg[at].nodes.iter().find_map(|n| match n {
+        Ward::Par(inner) => Some(*inner),
+        _ => None,
+    }) {
+        Some(inner) => (name_of(eg, inner).unwrap_or_default().to_string(), true),
+        None => (name_of(eg, at).unwrap_or_default().to_string(), false),
+    };
+    let rank = ctx.point(&point_name).map_or(u32::MAX, |(r, _)| r);
+    let indices = indices
+        .iter()
+        .map(|i| {
+            let n = name_of(eg, *i).unwrap_or_default();
+            (n != NORMAL, n.to_string())
+        })
+        .collect();
+    (
+        (rank, par, point_name),
+        name_of(eg, name).unwrap_or_default().to_string(),
+        indices,
+    )
+}

@@ -1,0 +1,143 @@
+//! Running one `.ward` file end to end: read it, load its rules, lower it,
+//! simplify or check every statement, and build the report and exit code.
+//!
+//! Everything the command line does lives here, so tests drive exactly what
+//! a user runs.
+
+use std::path::{Path, PathBuf};
+use std::sync::Arc;
+
+use crate::diagnostic::{Error, ErrorKind, Result, Source};
+use crate::egraph::Limits;
+use crate::engine::{Engine, Verdict};
+use crate::lower::{self, ItemKind, Program};
+use crate::report::Reporter;
+use crate::rules::RuleBook;
+use crate::syntax;
+use crate::term::print::Style;
+
+/// What to do with the statements of a file.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Mode {
+    /// Print every `simplify` statement's normal form.
+    Simplify,
+    /// Prove every `claim` and every `simplify … expect …`.
+    Check,
+}
+
+/// Settings from the command line.
+#[derive(Clone, Debug, Default)]
+pub struct Options {
+    /// Extra rule files, beside the shipped ones and the file's own.
+    pub rules: Vec<PathBuf>,
+    pub style: Style,
+    pub limits: Limits,
+}
+
+/// The printed report and the exit code (0: all claims hold, 1: some do not).
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct Outcome {
+    pub report: String,
+    pub code: i32,
+}
+
+/// Reads a file from disk and runs it.
+pub fn run_path(path: &Path, mode: Mode, opts: &Options) -> Result<Outcome> {
+    let source = read_source(path)?;
+    let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
+    run_source(&source, &base, mode, opts)
+}
+
+/// Runs a file's text; `base` is the folder its `rules "…"` paths are
+/// relative to.
+pub fn run_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -> Result<Outcome> {
+    let program = lower::lower(source, &syntax::parse_file(source)?)?;
+    let book = load_rules(&program, base, opts)?;
+    let engine = Engine::new(program.ctx.clone(), Arc::new(book), opts.limits)?;
+    let mut reporter = Reporter::new(&program.ctx, opts.style);
+    let (mut proved, mut failed) = (0, 0);
+    for item in &program.items {
+        let text = collapse(&source.text[item.span.start..item.span.end]);
+        let at_item = |e: Error| locate(e, source, item.span);
+        match (&item.kind, mode) {
+            (ItemKind::Simplify { expr, .. }, Mode::Simplify) => {
+                let s = engine.simplify(expr).map_err(at_item)?;
+                let input = text.strip_prefix("simplify ").unwrap_or(&text);
+                let input = input.split(" expect ").next().unwrap_or(input);
+                reporter.simplified(item.line, input, &s);
+            }
+            (ItemKind::Simplify { expect: None, .. }, Mode::Check) => {}
+            (ItemKind::Simplify { expr, expect: Some(r) }, Mode::Check) => {
+                let v = engine.check(expr, r).map_err(at_item)?;
+                let ok = reporter.verdict(item.line, "expected result", &text, &v);
+                if ok { proved += 1 } else { failed += 1 }
+            }
+            (ItemKind::Claim { lhs, rhs }, Mode::Check) => {
+                let v = engine.check(lhs, rhs).map_err(at_item)?;
+                let ok = reporter.verdict(item.line, "claim", text.strip_prefix("claim ").unwrap_or(&text), &v);
+                if ok { proved += 1 } else { failed += 1 }
+            }
+            (ItemKind::Claim { .. }, Mode::Simplify) => {}
+        }
+    }
+    if mode == Mode::Check {
+        reporter.summary(proved, failed);
+    }
+    Ok(Outcome {
+        report: reporter.finish(),
+        code: i32::from(failed > 0),
+    })
+}
+
+/// Whether a verdict holds (for callers outside this module).
+pub fn holds(v: &Verdict) -> bool {
+    matches!(v, Verdict::Proved(_))
+}
+
+fn read_source(path: &Path) -> Result<Arc<Source>> {
+    let text = std::fs::read_to_string(path).map_err(|e| {
+        Error::new(ErrorKind::Io, format!("cannot read `{}`: {e}", path.display()))
+    })?;
+    Ok(Source::new(path.display().to_string(), text))
+}
+
+/// The shipped rules, then `--rules` files, then the file's `rules "…"`.
+fn load_rules(program: &Program, base: &Path, opts: &Options) -> Result<RuleBook> {
+    let mut book = RuleBook::shipped()?;
+    for path in &opts.rules {
+        book.load(&read_source(path)?)?;
+    }
+    for (rel, span) in &program.rule_files {
+        let path = base.join(rel);
+        let source = read_source(&path).map_err(|e| {
+            Error::at(ErrorKind::Io, &program.source, *span, e.message)
+                .with_label("this rule file")
+        })?;
+        book.load(&source)?;
+    }
+    Ok(book)
+}
+
+/// Errors from later stages carry no span; point them at the statement.
+fn locate(mut e: Error, source: &Arc<Source>, span: crate::syntax::ast::Span) -> Error {
+    if e.at.is_none() {
+        e = e.with_span(source, span);
+        if e.label.is_empty() {
+            e.label = "in this statement".into();
+        }
+    }
+    e
+}
+
+/// A statement's text on one line.
+fn collapse(text: &str) -> String {
+    let without_comments: Vec<&str> = text
+        .lines()
+        .map(|l| l.split('#').next().unwrap_or(""))
+        .collect();
+    without_comments
+        .join(" ")
+        .split_whitespace()
+        .collect::<Vec<_>>()
+        .join(" ")
+}

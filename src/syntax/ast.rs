@@ -1,0 +1,214 @@
+//! The abstract syntax tree of `.ward` and `.rules` files: types only.
+//!
+//! Every node carries the byte span of the text it came from, so that any
+//! later stage can point at the offending characters.
+
+use num_rational::BigRational;
+
+/// A byte range in one source text.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Hash, Default)]
+pub struct Span {
+    pub start: usize,
+    pub end: usize,
+}
+
+impl Span {
+    pub fn new(start: usize, end: usize) -> Span {
+        Span { start, end }
+    }
+    /// The smallest span covering both.
+    pub fn to(self, other: Span) -> Span {
+        Span::new(self.start.min(other.start), self.end.max(other.end))
+    }
+}
+
+/// A name as written: an identifier, or a rule variable such as `?x`.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct Name {
+    pub text: String,
+    /// True for a rule variable (`?x`); `text` then holds the name without `?`.
+    pub is_var: bool,
+    pub span: Span,
+}
+
+/// A point argument: `x1`, `par(x)` / `x∥`, or `?p` in rules.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct PointRef {
+    pub name: Name,
+    /// True for the boundary projection `par(x)` of a bulk point.
+    pub par: bool,
+    pub span: Span,
+}
+
+/// An operator insertion `NAME[indices](point)`.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct OpRef {
+    pub name: Name,
+    pub indices: Vec<Name>,
+    pub point: PointRef,
+    pub span: Span,
+}
+
+/// One element of a correlator: an insertion, or a rule's `...?rest`.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum Insertion {
+    Op(OpRef),
+    Splice(Name),
+}
+
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum BinOp {
+    Add,
+    Sub,
+    Mul,
+    Div,
+    Pow,
+}
+
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct Expr {
+    pub kind: ExprKind,
+    pub span: Span,
+}
+
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum ExprKind {
+    /// An exact number; decimals are read exactly (`1.5` is 3/2).
+    Num(BigRational),
+    /// A parameter, the dimension `d`, or (wrongly placed) any other name.
+    Name(Name),
+    /// A rule variable in a term position: `?c`.
+    Var(Name),
+    /// An operator attribute in a rule template: `?o.dim`.
+    Attr { var: Name, key: Name },
+    Neg(Box<Expr>),
+    Binary {
+        op: BinOp,
+        lhs: Box<Expr>,
+        rhs: Box<Expr>,
+    },
+    Corr(Vec<Insertion>),
+    /// An operator outside a correlator (always an error in lowering).
+    Op(OpRef),
+    Deriv {
+        index: Name,
+        point: PointRef,
+        body: Box<Expr>,
+    },
+    /// Kronecker delta `δ[mu,nu]`.
+    Kron(Name, Name),
+    /// The unit normal `n[mu]`.
+    Normal(Name),
+    /// Bulk delta function `δ(x - p)`.
+    DeltaPoints(PointRef, PointRef),
+    /// Boundary delta function `δ(y(x))`.
+    DeltaNormal { coord: Name, point: PointRef },
+    /// Rule template: `sum ?o(?p) in ?rest if COND { body }`.
+    Sum {
+        op: Name,
+        point: Name,
+        splice: Name,
+        filter: Option<Condition>,
+        body: Box<Expr>,
+    },
+}
+
+/// Kinds of operator a file may declare.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum OpKind {
+    Scalar,
+    Vector,
+}
+
+/// One statement of a `.ward` file.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum Stmt {
+    Dimension(Expr),
+    Halfspace {
+        coord: Name,
+    },
+    Operator {
+        boundary: bool,
+        kind: OpKind,
+        name: Name,
+        attrs: Vec<(Name, Expr)>,
+    },
+    Points {
+        boundary: bool,
+        names: Vec<Name>,
+    },
+    Parameters(Vec<Name>),
+    Parallel(Vec<Name>),
+    Rules {
+        path: String,
+        span: Span,
+    },
+    Simplify {
+        expr: Expr,
+        expect: Option<Expr>,
+        span: Span,
+    },
+    Claim {
+        lhs: Expr,
+        rhs: Expr,
+        span: Span,
+    },
+}
+
+/// A parsed `.ward` file.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct File {
+    pub stmts: Vec<Stmt>,
+}
+
+/// A side condition of a rule.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct Condition {
+    pub kind: ConditionKind,
+    pub span: Span,
+}
+
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum ConditionKind {
+    /// The file declares a half-space.
+    Halfspace,
+    /// The file declares no boundary.
+    NoHalfspace,
+    /// `?v WORD`: a point is bulk/boundary, an index is bulk/parallel/normal,
+    /// every insertion of a sequence is scalar.
+    Is(Name, Property),
+    /// `?rest has KEY`: every insertion of a sequence declares attribute KEY.
+    Has(Name, Name),
+}
+
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Property {
+    Bulk,
+    Boundary,
+    Parallel,
+    Normal,
+    Scalar,
+}
+
+/// One rule of a `.rules` file.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct Rule {
+    pub name: Name,
+    pub conditions: Vec<Condition>,
+    pub from: Expr,
+    pub to: Expr,
+    pub span: Span,
+}
+
+/// A named group of rules.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct RuleSet {
+    pub name: Name,
+    pub rules: Vec<Rule>,
+}
+
+/// A parsed `.rules` file.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct RuleFile {
+    pub sets: Vec<RuleSet>,
+}

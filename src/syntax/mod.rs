@@ -1,0 +1,465 @@
+//! Parsing: text to AST, for `.ward` and `.rules` files.
+//!
+//! The grammar lives in `grammar/ward.pest`; this module has one
+//! `parse_<rule>` function per grammar rule that builds an AST node, and turns
+//! pest's errors into [`Error`]s that list the literal tokens expected.
+//! The parser never touches declarations or the e-graph.
+
+pub mod ast;
+
+use std::str::FromStr;
+use std::sync::{Arc, OnceLock};
+
+use num_bigint::BigInt;
+use num_rational::BigRational;
+use pest::iterators::Pair;
+use pest::pratt_parser::{Assoc, Op, PrattParser};
+use pest::Parser as _;
+
+use crate::diagnostic::{Error, ErrorKind, Result, Source};
+use ast::*;
+
+#[derive(pest_derive::Parser)]
+#[grammar = "../grammar/ward.pest"]
+struct WardParser;
+
+/// Parses a `.ward` file.
+pub fn parse_file(source: &Arc<Source>) -> Result<File> {
+    let mut pairs = parse_rule(source, Rule::file)?;
+    let file = pairs.next().expect("the grammar's file rule always yields one pair");
+    let mut stmts = Vec::new();
+    for pair in file.into_inner() {
+        if pair.as_rule() == Rule::EOI {
+            break;
+        }
+        stmts.push(parse_statement(source, pair)?);
+    }
+    Ok(File { stmts })
+}
+
+/// Parses a `.rules` file.
+pub fn parse_rule_file(source: &Arc<Source>) -> Result<RuleFile> {
+    let mut pairs = parse_rule(source, Rule::rule_file)?;
+    let file = pairs.next().expect("the grammar's rule_file rule always yields one pair");
+    let mut sets = Vec::new();
+    for pair in file.into_inner() {
+        if pair.as_rule() == Rule::ruleset {
+            sets.push(parse_ruleset(pair));
+        }
+    }
+    Ok(RuleFile { sets })
+}
+
+/// Parses a single expression (used to read printed output back).
+pub fn parse_expr(source: &Arc<Source>) -> Result<Expr> {
+    let mut pairs = parse_rule(source, Rule::expr_only)?;
+    let whole = pairs.next().expect("the grammar's expr_only rule always yields one pair");
+    let expr = whole.into_inner().next().expect("expr_only holds an expression");
+    Ok(build_expr(expr))
+}
+
+// ───────────────────────────── errors ─────────────────────────────
+
+fn parse_rule<'i>(
+    source: &'i Arc<Source>,
+    start: Rule,
+) -> Result<pest::iterators::Pairs<'i, Rule>> {
+    pest::set_error_detail(true);
+    WardParser::parse(start, &source.text).map_err(|e| syntax_error(source, e))
+}
+
+fn syntax_error(source: &Arc<Source>, e: pest::error::Error<Rule>) -> Error {
+    let offset = match e.location {
+        pest::error::InputLocation::Pos(p) => p,
+        pest::error::InputLocation::Span((s, _)) => s,
+    };
+    let mut expected: Vec<String> = Vec::new();
+    if let Some(attempts) = e.parse_attempts() {
+        for token in attempts.expected_tokens() {
+            let token = token.to_string();
+            let chars: Vec<char> = token.chars().collect();
+            let is_range = chars.len() == 4 && chars[1] == '.' && chars[2] == '.';
+            if !token.trim().is_empty() && token != "BUILTIN_RULE" && !is_range {
+                expected.push(format!("`{token}`"));
+            }
+        }
+    }
+    if let pest::error::ErrorVariant::ParsingError { positives, .. } = &e.variant {
+        expected.extend(positives.iter().filter_map(|r| describe(*r)).map(String::from));
+    }
+    expected.sort();
+    expected.dedup();
+    let found = source.text[offset.min(source.text.len())..]
+        .chars()
+        .next()
+        .map_or("end of file".to_string(), |c| format!("`{c}`"));
+    let end = offset + source.text[offset.min(source.text.len())..].chars().next().map_or(0, char::len_utf8);
+    let message = if expected.is_empty() {
+        format!("unexpected {found}")
+    } else {
+        format!("expected {}; found {found}", join_or(&expected))
+    };
+    Error::at(ErrorKind::Syntax, source, Span::new(offset, end), message)
+        .with_label("not expected here")
+}
+
+/// A reader's name for grammar rules that are not literal tokens.
+fn describe(r: Rule) -> Option<&'static str> {
+    Some(match r {
+        Rule::ident | Rule::name => "a name",
+        Rule::number => "a number",
+        Rule::var => "a rule variable like `?x`",
+        Rule::key => "an attribute name",
+        Rule::rule_name => "a rule name",
+        Rule::string => "a quoted path",
+        Rule::expr | Rule::primary => "an expression",
+        Rule::point => "a point",
+        Rule::index => "an index",
+        Rule::statement => "a statement (`dimension`, `points`, `simplify`, `claim`, …)",
+        Rule::EOI => "end of file",
+        _ => return None,
+    })
+}
+
+fn join_or(items: &[String]) -> String {
+    match items {
+        [] => String::new(),
+        [one] => one.clone(),
+        [init @ .., last] => format!("{} or {}", init.join(", "), last),
+    }
+}
+
+// ─────────────────────────── statements ───────────────────────────
+
+fn span_of(pair: &Pair<Rule>) -> Span {
+    Span::new(pair.as_span().start(), pair.as_span().end())
+}
+
+fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
+    let span = span_of(&pair);
+    let kind = pair.as_rule();
+    let mut inner = pair.into_inner().peekable();
+    Ok(match kind {
+        Rule::dimension_decl => Stmt::Dimension(parse_expr_pair(source, next(&mut inner))?),
+        Rule::halfspace_decl => Stmt::Halfspace {
+            coord: parse_name(next(&mut inner)),
+        },
+        Rule::operator_decl => {
+            let boundary = inner.peek().map(|p| p.as_rule()) == Some(Rule::boundary_kw);
+            if boundary {
+                inner.next();
+            }
+            let kind = match next(&mut inner).as_str() {
+                "vector" => OpKind::Vector,
+                _ => OpKind::Scalar,
+            };
+            let name = parse_name(next(&mut inner));
+            let mut attrs = Vec::new();
+            for attr in inner {
+                let mut parts = attr.into_inner();
+                let key = parse_name(next(&mut parts));
+                let value = parse_expr_pair(source, next(&mut parts))?;
+                attrs.push((key, value));
+            }
+            Stmt::Operator {
+                boundary,
+                kind,
+                name,
+                attrs,
+            }
+        }
+        Rule::points_decl => {
+            let boundary = inner.peek().map(|p| p.as_rule()) == Some(Rule::boundary_kw);
+            if boundary {
+                inner.next();
+            }
+            Stmt::Points {
+                boundary,
+                names: inner.map(parse_name).collect(),
+            }
+        }
+        Rule::parameters_decl => Stmt::Parameters(inner.map(parse_name).collect()),
+        Rule::parallel_decl => Stmt::Parallel(inner.map(parse_name).collect()),
+        Rule::rules_decl => {
+            let string = next(&mut inner);
+            let body = string.into_inner().next().map_or("", |p| p.as_str());
+            Stmt::Rules {
+                path: body.to_string(),
+                span,
+            }
+        }
+        Rule::simplify_stmt => {
+            let expr = parse_expr_pair(source, next(&mut inner))?;
+            let expect = match inner.next() {
+                Some(p) => Some(parse_expr_pair(source, p)?),
+                None => None,
+            };
+            Stmt::Simplify { expr, expect, span }
+        }
+        Rule::claim_stmt => {
+            let lhs = parse_expr_pair(source, next(&mut inner))?;
+            let rhs = parse_expr_pair(source, next(&mut inner))?;
+            Stmt::Claim { lhs, rhs, span }
+        }
+        other => unreachable_rule(other),
+    })
+}
+
+fn parse_ruleset(pair: Pair<Rule>) -> RuleSet {
+    let mut inner = pair.into_inner();
+    let name = parse_name(next(&mut inner));
+    let rules = inner.map(parse_rule_def).collect();
+    RuleSet { name, rules }
+}
+
+fn parse_rule_def(pair: Pair<Rule>) -> ast::Rule {
+    let span = span_of(&pair);
+    let mut inner = pair.into_inner().peekable();
+    let name = parse_name(next(&mut inner));
+    let mut conditions = Vec::new();
+    if inner.peek().map(|p| p.as_rule()) == Some(Rule::conditions) {
+        for c in next(&mut inner).into_inner() {
+            conditions.push(parse_condition(c));
+        }
+    }
+    // Rule bodies are parsed with a throwaway source: errors inside them are
+    // reported by lowering, which has the real one.
+    let from = build_expr(next(&mut inner));
+    let to = build_expr(next(&mut inner));
+    ast::Rule {
+        name,
+        conditions,
+        from,
+        to,
+        span,
+    }
+}
+
+fn parse_condition(pair: Pair<Rule>) -> Condition {
+    let span = span_of(&pair);
+    let inner = pair.into_inner().next().expect("condition has one alternative");
+    let kind = match inner.as_rule() {
+        Rule::no_halfspace => ConditionKind::NoHalfspace,
+        Rule::has_halfspace => ConditionKind::Halfspace,
+        _ => {
+            let mut parts = inner.into_inner();
+            let var = parse_name(next(&mut parts));
+            let what = next(&mut parts);
+            match what.as_rule() {
+                Rule::cond_has => {
+                    ConditionKind::Has(var, parse_name(next(&mut what.into_inner())))
+                }
+                _ => ConditionKind::Is(
+                    var,
+                    match what.as_str() {
+                        "bulk" => Property::Bulk,
+                        "boundary" => Property::Boundary,
+                        "parallel" => Property::Parallel,
+                        "normal" => Property::Normal,
+                        _ => Property::Scalar,
+                    },
+                ),
+            }
+        }
+    };
+    Condition { kind, span }
+}
+
+// ─────────────────────────── expressions ───────────────────────────
+
+fn pratt() -> &'static PrattParser<Rule> {
+    static PRATT: OnceLock<PrattParser<Rule>> = OnceLock::new();
+    PRATT.get_or_init(|| {
+        PrattParser::new()
+            .op(Op::infix(Rule::add, Assoc::Left) | Op::infix(Rule::sub, Assoc::Left))
+            .op(Op::prefix(Rule::neg))
+            .op(Op::infix(Rule::mul, Assoc::Left)
+                | Op::infix(Rule::div, Assoc::Left)
+                | Op::infix(Rule::implicit, Assoc::Left))
+            .op(Op::infix(Rule::pow, Assoc::Right))
+    })
+}
+
+fn parse_expr_pair(_source: &Arc<Source>, pair: Pair<Rule>) -> Result<Expr> {
+    Ok(build_expr(pair))
+}
+
+/// Builds an expression from an `expr` pair (or any primary).
+fn build_expr(pair: Pair<Rule>) -> Expr {
+    if pair.as_rule() != Rule::expr {
+        return parse_primary(pair);
+    }
+    pratt()
+        .map_primary(parse_primary)
+        .map_prefix(|op, rhs| Expr {
+            span: span_of(&op).to(rhs.span),
+            kind: ExprKind::Neg(Box::new(rhs)),
+        })
+        .map_infix(|lhs, op, rhs| {
+            let op = match op.as_rule() {
+                Rule::add => BinOp::Add,
+                Rule::sub => BinOp::Sub,
+                Rule::div => BinOp::Div,
+                Rule::pow => BinOp::Pow,
+                _ => BinOp::Mul,
+            };
+            Expr {
+                span: lhs.span.to(rhs.span),
+                kind: ExprKind::Binary {
+                    op,
+                    lhs: Box::new(lhs),
+                    rhs: Box::new(rhs),
+                },
+            }
+        })
+        .parse(pair.into_inner())
+}
+
+fn parse_primary(pair: Pair<Rule>) -> Expr {
+    let span = span_of(&pair);
+    let which = pair.as_rule();
+    let kind = match which {
+        Rule::number => ExprKind::Num(parse_number(pair.as_str())),
+        Rule::name => ExprKind::Name(parse_name(pair.into_inner().next().expect("name"))),
+        Rule::var => ExprKind::Var(parse_name(pair)),
+        Rule::attr => {
+            let mut inner = pair.into_inner();
+            let var = parse_name(next(&mut inner));
+            let key = parse_name(next(&mut inner));
+            ExprKind::Attr { var, key }
+        }
+        Rule::group | Rule::brace => return build_expr(pair.into_inner().next().expect("body")),
+        Rule::expr => return build_expr(pair),
+        Rule::corr => ExprKind::Corr(
+            pair.into_inner()
+                .map(|p| match p.as_rule() {
+                    Rule::splice => Insertion::Splice(parse_name(p.into_inner().next().expect("var"))),
+                    _ => Insertion::Op(parse_op(p)),
+                })
+                .collect(),
+        ),
+        Rule::op => ExprKind::Op(parse_op(pair)),
+        Rule::deriv => {
+            let mut inner = pair.into_inner();
+            let index = parse_name(next(&mut inner));
+            let point = parse_point(next(&mut inner));
+            let body = parse_primary(next(&mut inner));
+            ExprKind::Deriv {
+                index,
+                point,
+                body: Box::new(body),
+            }
+        }
+        Rule::kron => {
+            let mut inner = pair.into_inner();
+            ExprKind::Kron(parse_name(next(&mut inner)), parse_name(next(&mut inner)))
+        }
+        Rule::normal => ExprKind::Normal(parse_name(next(&mut pair.into_inner()))),
+        Rule::delta_points => {
+            let mut inner = pair.into_inner();
+            ExprKind::DeltaPoints(parse_point(next(&mut inner)), parse_point(next(&mut inner)))
+        }
+        Rule::delta_normal => {
+            let mut inner = pair.into_inner();
+            let coord = parse_name(next(&mut inner));
+            let point = parse_point(next(&mut inner));
+            ExprKind::DeltaNormal { coord, point }
+        }
+        Rule::sum_over => {
+            let mut inner = pair.into_inner();
+            let op = parse_name(next(&mut inner));
+            let point = parse_name(next(&mut inner));
+            let splice = parse_name(next(&mut inner));
+            let mut rest = next(&mut inner);
+            let mut filter = None;
+            if rest.as_rule() == Rule::condition {
+                filter = Some(parse_condition(rest));
+                rest = next(&mut inner);
+            }
+            ExprKind::Sum {
+                op,
+                point,
+                splice,
+                filter,
+                body: Box::new(build_expr(rest)),
+            }
+        }
+        other => unreachable_rule(other),
+    };
+    Expr { kind, span }
+}
+
+fn parse_op(pair: Pair<Rule>) -> OpRef {
+    let span = span_of(&pair);
+    let mut inner = pair.into_inner().peekable();
+    let name = parse_name(next(&mut inner));
+    let mut indices = Vec::new();
+    if inner.peek().map(|p| p.as_rule()) == Some(Rule::indices) {
+        indices = next(&mut inner).into_inner().map(parse_name).collect();
+    }
+    let point = parse_point(next(&mut inner));
+    OpRef {
+        name,
+        indices,
+        point,
+        span,
+    }
+}
+
+fn parse_point(pair: Pair<Rule>) -> PointRef {
+    let span = span_of(&pair);
+    let inner = pair.into_inner().next().expect("point has one alternative");
+    match inner.as_rule() {
+        Rule::par_point => PointRef {
+            name: parse_name(inner.into_inner().next().expect("par point name")),
+            par: true,
+            span,
+        },
+        _ => PointRef {
+            name: parse_name(inner),
+            par: false,
+            span,
+        },
+    }
+}
+
+/// Names, indices and variables: `index`, `ident`, `var`, `key`, `rule_name`.
+fn parse_name(pair: Pair<Rule>) -> Name {
+    let span = span_of(&pair);
+    match pair.as_rule() {
+        Rule::index => parse_name(pair.into_inner().next().expect("index alternative")),
+        Rule::var => Name {
+            text: pair.as_str()[1..].to_string(),
+            is_var: true,
+            span,
+        },
+        _ => Name {
+            text: pair.as_str().to_string(),
+            is_var: false,
+            span,
+        },
+    }
+}
+
+/// Reads `12` or `1.25` exactly.
+fn parse_number(text: &str) -> BigRational {
+    match text.split_once('.') {
+        None => BigRational::from_integer(BigInt::from_str(text).unwrap_or_default()),
+        Some((int, frac)) => {
+            let digits = format!("{int}{frac}");
+            let numer = BigInt::from_str(&digits).unwrap_or_default();
+            let denom = num_traits::pow(BigInt::from(10), frac.len());
+            BigRational::new(numer, denom)
+        }
+    }
+}
+
+fn next<'i>(inner: &mut impl Iterator<Item = Pair<'i, Rule>>) -> Pair<'i, Rule> {
+    inner
+        .next()
+        .expect("the grammar guarantees this child exists")
+}
+
+fn unreachable_rule(r: Rule) -> ! {
+    unreachable!("grammar rule {r:?} is not an AST node")
+}

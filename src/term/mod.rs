@@ -1,0 +1,128 @@
+//! The tree form of expressions after lowering: [`Term`].
+//!
+//! Terms are what every pass reads and writes: lowering produces them, the
+//! e-graph phase takes them in and hands them back, normalisation puts them
+//! in contact-term normal form and the printer writes them out.
+//! The derived order is structural and deterministic: names compare as
+//! strings, points by declaration rank, never by interned ids.
+
+pub mod print;
+
+use num_rational::BigRational;
+use num_traits::{One, Zero};
+
+/// A point argument: a declared point or the boundary projection of one.
+///
+/// Points order by `rank`, the position of their declaration in the file, so
+/// output lists insertions in the order the user declared the points.
+#[derive(Clone, Debug, PartialEq, Eq, PartialOrd, Ord, Hash)]
+pub struct Point {
+    pub rank: u32,
+    pub par: bool,
+    pub name: String,
+}
+
+impl Point {
+    pub fn named(rank: u32, name: impl Into<String>) -> Point {
+        Point {
+            rank,
+            par: false,
+            name: name.into(),
+        }
+    }
+
+    /// True if a derivative with respect to `wrt` acts on this point
+    /// (`par(x)` moves with `x`).
+    pub fn depends_on(&self, wrt: &Point) -> bool {
+        self.name == wrt.name
+    }
+}
+
+/// A tensor index: the normal direction `n`, or a named index whose kind
+/// (bulk or parallel) is looked up in the file's declarations.
+#[derive(Clone, Debug, PartialEq, Eq, PartialOrd, Ord, Hash)]
+pub enum Index {
+    N,
+    Named(String),
+}
+
+impl Index {
+    pub fn name(&self) -> Option<&str> {
+        match self {
+            Index::N => None,
+            Index::Named(s) => Some(s),
+        }
+    }
+}
+
+/// An operator insertion inside a correlator.
+///
+/// Field order matters: insertions sort by point first, then name.
+#[derive(Clone, Debug, PartialEq, Eq, PartialOrd, Ord, Hash)]
+pub struct Op {
+    pub point: Point,
+    pub name: String,
+    pub indices: Vec<Index>,
+}
+
+/// An expression.
+///
+/// Variant order is the order factors appear in a printed product:
+/// coefficients, then δ-functions, then tensors, then derivatives and
+/// correlators.
+#[derive(Clone, Debug, PartialEq, Eq, PartialOrd, Ord, Hash)]
+pub enum Term {
+    Num(BigRational),
+    /// A parameter or the dimension symbol `d`.
+    Sym(String),
+    Pow(Box<Term>, Box<Term>),
+    Mul(Vec<Term>),
+    Add(Vec<Term>),
+    /// Bulk delta function δ(p - q).
+    DeltaFn(Point, Point),
+    /// Boundary delta function δ(y(p)) in the normal coordinate of p.
+    DeltaY(Point),
+    /// Unit normal n[i].
+    Normal(Index),
+    /// Kronecker delta δ[i,j].
+    Kron(Index, Index),
+    /// ∂[i](p) applied to the body.
+    Der(Index, Point, Box<Term>),
+    /// A correlator ⟨…⟩.
+    Corr(Vec<Op>),
+}
+
+impl Term {
+    pub fn int(n: i64) -> Term {
+        Term::Num(BigRational::from_integer(n.into()))
+    }
+
+    pub fn zero() -> Term {
+        Term::Num(BigRational::zero())
+    }
+
+    pub fn one() -> Term {
+        Term::Num(BigRational::one())
+    }
+
+    pub fn is_zero(&self) -> bool {
+        matches!(self, Term::Num(c) if c.is_zero())
+    }
+
+    pub fn neg(self) -> Term {
+        Term::Mul(vec![Term::int(-1), self])
+    }
+
+    /// Every point this term mentions (δ-functions, derivatives, insertions).
+    pub fn mentions_point(&self, p: &Point) -> bool {
+        match self {
+            Term::Num(_) | Term::Sym(_) | Term::Normal(_) | Term::Kron(..) => false,
+            Term::Pow(a, b) => a.mentions_point(p) || b.mentions_point(p),
+            Term::Mul(ts) | Term::Add(ts) => ts.iter().any(|t| t.mentions_point(p)),
+            Term::DeltaFn(a, b) => a.depends_on(p) || b.depends_on(p),
+            Term::DeltaY(a) => a.depends_on(p),
+            Term::Der(_, q, body) => q.depends_on(p) || body.mentions_point(p),
+            Term::Corr(ops) => ops.iter().any(|o| o.point.depends_on(p)),
+        }
+    }
+}

@@ -1,0 +1,244 @@
+//! Writes terms in the surface syntax, so that printed output parses back to
+//! the same expression.
+//!
+//! Two styles: Unicode (∂, δ, ⟨ ⟩, x∥) and plain ASCII (del, delta, < >,
+//! par(x)). Both are valid input.
+
+use num_rational::BigRational;
+use num_traits::{One, Signed, Zero};
+
+use super::{Index, Op, Point, Term};
+use crate::context::Context;
+
+/// Which characters the printer uses.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub enum Style {
+    #[default]
+    Unicode,
+    Ascii,
+}
+
+/// Prints terms in one style, with the file's declarations at hand (for the
+/// name of the normal coordinate).
+pub struct Printer<'a> {
+    pub ctx: &'a Context,
+    pub style: Style,
+}
+
+impl<'a> Printer<'a> {
+    pub fn new(ctx: &'a Context, style: Style) -> Printer<'a> {
+        Printer { ctx, style }
+    }
+
+    pub fn term(&self, t: &Term) -> String {
+        let mut out = String::new();
+        self.sum(t, &mut out);
+        out
+    }
+
+    fn unicode(&self) -> bool {
+        self.style == Style::Unicode
+    }
+
+    /// A sum: the first term carries its sign as `- `, the others ` + `/` - `.
+    fn sum(&self, t: &Term, out: &mut String) {
+        let terms: Vec<&Term> = match t {
+            Term::Add(ts) if !ts.is_empty() => ts.iter().collect(),
+            _ => vec![t],
+        };
+        for (i, term) in terms.iter().enumerate() {
+            let (negative, magnitude) = split_sign(term);
+            match (i, negative) {
+                (0, true) => out.push_str("- "),
+                (0, false) => {}
+                (_, true) => out.push_str(" - "),
+                (_, false) => out.push_str(" + "),
+            }
+            self.product(&magnitude, out);
+        }
+    }
+
+    /// A product without a leading sign.
+    fn product(&self, t: &Term, out: &mut String) {
+        match t {
+            Term::Mul(fs) if !fs.is_empty() => {
+                for (i, f) in fs.iter().enumerate() {
+                    if i > 0 {
+                        out.push(' ');
+                    }
+                    self.factor(f, out);
+                }
+            }
+            _ => self.factor(t, out),
+        }
+    }
+
+    /// One factor of a product: sums and negative numbers get parentheses.
+    fn factor(&self, t: &Term, out: &mut String) {
+        match t {
+            Term::Add(_) | Term::Mul(_) => {
+                out.push('(');
+                self.sum(t, out);
+                out.push(')');
+            }
+            Term::Num(c) if c.is_negative() => {
+                out.push('(');
+                out.push_str(&number(c));
+                out.push(')');
+            }
+            _ => self.atom(t, out),
+        }
+    }
+
+    fn atom(&self, t: &Term, out: &mut String) {
+        match t {
+            Term::Num(c) => out.push_str(&number(c)),
+            Term::Sym(s) => out.push_str(s),
+            Term::Pow(b, e) => {
+                match **b {
+                    Term::Sym(_) => self.atom(b, out),
+                    Term::Num(ref c) if !c.is_negative() && c.is_integer() => self.atom(b, out),
+                    _ => {
+                        out.push('(');
+                        self.sum(b, out);
+                        out.push(')');
+                    }
+                }
+                out.push('^');
+                match **e {
+                    Term::Num(ref c) if !c.is_negative() && c.is_integer() => self.atom(e, out),
+                    _ => {
+                        out.push('(');
+                        self.sum(e, out);
+                        out.push(')');
+                    }
+                }
+            }
+            Term::Add(_) | Term::Mul(_) => self.factor(t, out),
+            Term::DeltaFn(p, q) => {
+                out.push_str(if self.unicode() { "δ(" } else { "delta(" });
+                self.point(p, out);
+                out.push_str(" - ");
+                self.point(q, out);
+                out.push(')');
+            }
+            Term::DeltaY(p) => {
+                out.push_str(if self.unicode() { "δ(" } else { "delta(" });
+                out.push_str(self.ctx.normal_coord());
+                out.push('(');
+                self.point(p, out);
+                out.push_str("))");
+            }
+            Term::Normal(i) => {
+                out.push_str("n[");
+                out.push_str(&index(i));
+                out.push(']');
+            }
+            Term::Kron(i, j) => {
+                out.push_str(if self.unicode() { "δ[" } else { "delta[" });
+                out.push_str(&index(i));
+                out.push(',');
+                out.push_str(&index(j));
+                out.push(']');
+            }
+            Term::Der(i, p, body) => {
+                out.push_str(if self.unicode() { "∂[" } else { "del[" });
+                out.push_str(&index(i));
+                out.push_str("](");
+                self.point(p, out);
+                out.push_str(") ");
+                match **body {
+                    Term::Corr(_) | Term::Der(..) => self.atom(body, out),
+                    _ => {
+                        out.push_str("{ ");
+                        self.sum(body, out);
+                        out.push_str(" }");
+                    }
+                }
+            }
+            Term::Corr(ops) => {
+                out.push_str(if self.unicode() { "⟨" } else { "<" });
+                for (k, op) in ops.iter().enumerate() {
+                    if k > 0 {
+                        out.push(' ');
+                    }
+                    self.op(op, out);
+                }
+                out.push_str(if self.unicode() { "⟩" } else { ">" });
+            }
+        }
+    }
+
+    fn op(&self, op: &Op, out: &mut String) {
+        out.push_str(&op.name);
+        if !op.indices.is_empty() {
+            out.push('[');
+            let names: Vec<String> = op.indices.iter().map(index).collect();
+            out.push_str(&names.join(","));
+            out.push(']');
+        }
+        out.push('(');
+        self.point(&op.point, out);
+        out.push(')');
+    }
+
+    fn point(&self, p: &Point, out: &mut String) {
+        match (p.par, self.style) {
+            (false, _) => out.push_str(&p.name),
+            (true, Style::Unicode) => {
+                out.push_str(&p.name);
+                out.push('∥');
+            }
+            (true, Style::Ascii) => {
+                out.push_str("par(");
+                out.push_str(&p.name);
+                out.push(')');
+            }
+        }
+    }
+}
+
+/// Splits a leading negative coefficient off a product.
+fn split_sign(t: &Term) -> (bool, Term) {
+    match t {
+        Term::Num(c) if c.is_negative() => (true, Term::Num(-c)),
+        Term::Mul(fs) => match fs.first() {
+            Some(Term::Num(c)) if c.is_negative() => {
+                let c = -c;
+                let mut rest: Vec<Term> = Vec::with_capacity(fs.len());
+                if !c.is_one() || fs.len() == 1 {
+                    rest.push(Term::Num(c));
+                }
+                rest.extend(fs[1..].iter().cloned());
+                (true, unwrap_product(rest))
+            }
+            _ => (false, t.clone()),
+        },
+        _ => (false, t.clone()),
+    }
+}
+
+fn unwrap_product(mut fs: Vec<Term>) -> Term {
+    if fs.len() == 1 {
+        fs.pop().unwrap_or_else(Term::one)
+    } else {
+        Term::Mul(fs)
+    }
+}
+
+fn number(c: &BigRational) -> String {
+    if c.is_integer() {
+        c.numer().to_string()
+    } else if c.is_zero() {
+        "0".into()
+    } else {
+        format!("{}/{}", c.numer(), c.denom())
+    }
+}
+
+fn index(i: &Index) -> String {
+    match i {
+        Index::N => "n".to_string(),
+        Index::Named(s) => s.clone(),
+    }
+}
