@@ -8,6 +8,9 @@ use crate::context::Context;
 use crate::engine::{Simplified, Verdict};
 use crate::term::print::{Printer, Style};
 
+/// Longest normal form printed on a single line.
+const LINE_WIDTH: usize = 100;
+
 /// Writes report lines for one file.
 pub struct Reporter<'a> {
     printer: Printer<'a>,
@@ -29,7 +32,7 @@ impl<'a> Reporter<'a> {
     /// `line N: simplify` with the input and its normal form.
     pub fn simplified(&mut self, line: usize, input: &str, s: &Simplified) {
         let _ = writeln!(self.out, "line {line}: simplify {input}");
-        let _ = writeln!(self.out, "  = {}", self.printer.term(&s.term));
+        let _ = writeln!(self.out, "  = {}", self.layout(&s.term, "    "));
         let _ = writeln!(self.out, "  [{}]", stats(s));
     }
 
@@ -50,8 +53,8 @@ impl<'a> Reporter<'a> {
                 let _ = writeln!(self.out, "line {line}: {what} {status}: {input}");
                 let _ = writeln!(
                     self.out,
-                    "  left side minus right side simplifies to: {}",
-                    self.printer.term(&s.term)
+                    "  left side minus right side simplifies to:\n    {}",
+                    self.layout(&s.term, "    ")
                 );
                 let reason = if s.stop.is_saturated() {
                     "the rules saturated: nothing more applies, so the two sides differ by the remainder above".to_string()
@@ -66,6 +69,15 @@ impl<'a> Reporter<'a> {
                 false
             }
         }
+    }
+
+    /// A term on one line if it is short, otherwise one summand per line.
+    fn layout(&self, t: &crate::term::Term, indent: &str) -> String {
+        let one_line = self.printer.term(t);
+        if one_line.chars().count() <= LINE_WIDTH {
+            return one_line;
+        }
+        self.printer.terms(t).join(&format!("\n{indent}"))
     }
 
     /// The closing count of a check.

@@ -234,6 +234,43 @@ fn poly_term(poly: BTreeMap<Atoms, BigRational>) -> Term {
         let (atoms, c) = ordered[0];
         return monomial::scalar_term(c, atoms);
     }
+    // Pull out the atom powers every monomial shares: `(d - 1) g^2`, not
+    // `d g^2 - g^2`.
+    let common: Atoms = ordered[0]
+        .0
+        .iter()
+        .filter_map(|(a, _)| {
+            let exps: Option<Vec<&BigRational>> = ordered.iter().map(|(m, _)| m.get(a)).collect();
+            let min = exps?.into_iter().min()?.clone();
+            Some((a.clone(), min))
+        })
+        .collect();
+    if !common.is_empty() {
+        let reduced: BTreeMap<Atoms, BigRational> = poly
+            .iter()
+            .map(|(atoms, c)| {
+                let mut rest = atoms.clone();
+                for (a, e) in &common {
+                    let left = &rest[a] - e;
+                    if left.is_zero() {
+                        rest.remove(a);
+                    } else {
+                        rest.insert(a.clone(), left);
+                    }
+                }
+                (rest, c.clone())
+            })
+            .collect();
+        let mut factors = match poly_term(reduced) {
+            Term::Mul(fs) => fs,
+            t => vec![t],
+        };
+        match monomial::scalar_term(&BigRational::one(), &common) {
+            Term::Mul(fs) => factors.extend(fs),
+            t => factors.push(t),
+        }
+        return Term::Mul(factors);
+    }
     let leading_negative = ordered.first().is_some_and(|(_, c)| c.is_negative());
     let sign = if leading_negative { -BigRational::one() } else { BigRational::one() };
     let monos: Vec<Term> = ordered

@@ -36,6 +36,29 @@ impl<'a> Printer<'a> {
         out
     }
 
+    /// The terms of a top-level sum, each with its sign (`- X`, `+ X`; the
+    /// first without `+`), for printing one term per line.
+    pub fn terms(&self, t: &Term) -> Vec<String> {
+        let terms: Vec<&Term> = match t {
+            Term::Add(ts) if !ts.is_empty() => ts.iter().collect(),
+            _ => vec![t],
+        };
+        terms
+            .iter()
+            .enumerate()
+            .map(|(i, term)| {
+                let (negative, magnitude) = split_sign(term);
+                let mut out = String::from(match (i, negative) {
+                    (_, true) => "- ",
+                    (0, false) => "",
+                    (_, false) => "+ ",
+                });
+                self.product(&magnitude, &mut out);
+                out
+            })
+            .collect()
+    }
+
     fn unicode(&self) -> bool {
         self.style == Style::Unicode
     }
@@ -58,18 +81,72 @@ impl<'a> Printer<'a> {
         }
     }
 
-    /// A product without a leading sign.
+    /// A product without a leading sign. Scalar factors come first, with
+    /// negative powers written as one denominator (`3 g/(7 (d + 2))`), then
+    /// δ-functions, tensors and correlators.
     fn product(&self, t: &Term, out: &mut String) {
-        match t {
-            Term::Mul(fs) if !fs.is_empty() => {
-                for (i, f) in fs.iter().enumerate() {
+        let Term::Mul(fs) = t else {
+            return self.factor(t, out);
+        };
+        let mut numer: Vec<Term> = Vec::new();
+        let mut denom: Vec<Term> = Vec::new();
+        let mut rest: Vec<&Term> = Vec::new();
+        for f in fs {
+            match f {
+                Term::Pow(b, e) if matches!(**e, Term::Num(ref q) if q.is_negative()) => {
+                    let Term::Num(q) = &**e else { continue };
+                    let q = -q;
+                    denom.push(if q.is_one() {
+                        (**b).clone()
+                    } else {
+                        Term::Pow(b.clone(), Box::new(Term::Num(q)))
+                    });
+                }
+                Term::Num(_) | Term::Sym(_) | Term::Pow(..) | Term::Add(_) | Term::Mul(_) => numer.push(f.clone()),
+                _ => rest.push(f),
+            }
+        }
+        if !denom.is_empty() {
+            // Fold a rational coefficient's denominator into the fraction.
+            if let Some(Term::Num(c)) = numer.first() {
+                if !c.is_integer() {
+                    let (n, d) = (c.numer().clone(), c.denom().clone());
+                    numer[0] = Term::Num(BigRational::from_integer(n));
+                    denom.insert(0, Term::Num(BigRational::from_integer(d)));
+                }
+            }
+            if numer.is_empty() {
+                numer.push(Term::one());
+            }
+        }
+        let mut first = true;
+        let mut sep = |out: &mut String| {
+            if !std::mem::take(&mut first) {
+                out.push(' ');
+            }
+        };
+        for f in &numer {
+            sep(out);
+            self.factor(f, out);
+        }
+        if !denom.is_empty() {
+            out.push('/');
+            if denom.len() == 1 {
+                self.factor(&denom[0], out);
+            } else {
+                out.push('(');
+                for (i, f) in denom.iter().enumerate() {
                     if i > 0 {
                         out.push(' ');
                     }
                     self.factor(f, out);
                 }
+                out.push(')');
             }
-            _ => self.factor(t, out),
+        }
+        for f in rest {
+            sep(out);
+            self.factor(f, out);
         }
     }
 
@@ -107,6 +184,11 @@ impl<'a> Printer<'a> {
                 out.push('^');
                 match **e {
                     Term::Num(ref c) if !c.is_negative() && c.is_integer() => self.atom(e, out),
+                    Term::Num(ref c) => {
+                        out.push('(');
+                        out.push_str(&number(c));
+                        out.push(')');
+                    }
                     _ => {
                         out.push('(');
                         self.sum(e, out);

@@ -1,0 +1,90 @@
+//! The `wardsmith` binary as a black box: help texts, exit codes, and the
+//! two commands the README gives.
+
+use std::path::PathBuf;
+use std::process::Command;
+
+fn wardsmith(args: &[&str]) -> (i32, String, String) {
+    let out = Command::new(env!("CARGO_BIN_EXE_wardsmith"))
+        .args(args)
+        .output()
+        .expect("the binary runs");
+    (
+        out.status.code().unwrap_or(-1),
+        String::from_utf8_lossy(&out.stdout).into_owned(),
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+    )
+}
+
+/// Writes `text` to a fresh file under the target directory.
+fn scratch(name: &str, text: &str) -> PathBuf {
+    let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("cli");
+    std::fs::create_dir_all(&dir).expect("scratch dir");
+    let path = dir.join(name);
+    std::fs::write(&path, text).expect("scratch file");
+    path
+}
+
+#[test]
+fn help_texts() {
+    for args in [&["--help"][..], &["simplify", "--help"], &["check", "--help"]] {
+        let (code, stdout, _) = wardsmith(args);
+        assert_eq!(code, 0);
+        insta::assert_snapshot!(format!("help-{}", args.join("-")), stdout);
+    }
+}
+
+#[test]
+fn readme_commands_are_the_ones_ci_runs() {
+    let readme = std::fs::read_to_string("README.md").expect("README");
+    assert!(readme.contains("cargo run --release -- check examples/wall-displacement.ward"));
+    assert!(readme.contains("\n    cargo test\n"));
+    let ci = std::fs::read_to_string(".ci/run").expect(".ci/run");
+    assert!(ci.lines().any(|l| l.trim() == "cargo test"), "{ci}");
+}
+
+#[test]
+fn readme_example_checks_clean() {
+    let (code, stdout, stderr) = wardsmith(&["check", "examples/wall-displacement.ward"]);
+    assert_eq!(code, 0, "{stdout}{stderr}");
+    assert!(stdout.ends_with("3 proved, 0 not proved\n"), "{stdout}");
+}
+
+#[test]
+fn exit_code_one_for_an_unproved_claim() {
+    let path = scratch(
+        "sign.ward",
+        "dimension 3\nscalar O dim 1\npoints x x1\nclaim <T[mu,mu](x) O(x1)> = δ(x - x1) <O(x1)>\n",
+    );
+    let (code, stdout, _) = wardsmith(&["check", path.to_str().expect("utf-8 path")]);
+    assert_eq!(code, 1, "{stdout}");
+    assert!(stdout.contains("NOT PROVED"), "{stdout}");
+    assert!(stdout.contains("- 2 δ(x - x1) ⟨O(x1)⟩"), "{stdout}");
+}
+
+#[test]
+fn exit_code_two_for_bad_input_with_location() {
+    let path = scratch("bad.ward", "dimension 3\npoints x\nsimplify <O(x)>\n");
+    let (code, stdout, stderr) = wardsmith(&["simplify", path.to_str().expect("utf-8 path")]);
+    assert_eq!(code, 2);
+    assert!(stdout.is_empty(), "nothing half-written: {stdout}");
+    assert!(stderr.contains("bad.ward:3:11"), "{stderr}");
+    assert!(stderr.contains("undeclared operator `O`"), "{stderr}");
+}
+
+#[test]
+fn missing_file_is_an_input_error() {
+    let (code, _, stderr) = wardsmith(&["check", "no/such/file.ward"]);
+    assert_eq!(code, 2);
+    assert!(stderr.contains("cannot read `no/such/file.ward`"), "{stderr}");
+}
+
+#[test]
+fn ascii_output_is_plain() {
+    let (code, stdout, _) = wardsmith(&["simplify", "--ascii", "examples/bulk-ward.ward"]);
+    assert_eq!(code, 0);
+    let result_lines: Vec<&str> = stdout.lines().filter(|l| !l.starts_with("line ")).collect();
+    for line in result_lines {
+        assert!(!line.contains('∂') && !line.contains('δ') && !line.contains('⟨'), "{line}");
+    }
+}
