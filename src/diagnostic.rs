@@ -9,7 +9,7 @@ use std::sync::Arc;
 
 use codespan_reporting::diagnostic::{Diagnostic, Label};
 use codespan_reporting::files::SimpleFile;
-use codespan_reporting::term::{self, termcolor::Buffer, Config};
+use codespan_reporting::term::{self, termcolor::Buffer, Chars, Config};
 
 use crate::syntax::ast::Span;
 
@@ -145,7 +145,12 @@ impl Error {
     }
 
     fn emit(&self, buffer: &mut Buffer) {
-        let config = Config::default();
+        // rustc's layout: ` --> file:line:col` and `|` borders, not box
+        // drawing, so the location reads the same in every terminal.
+        let config = Config {
+            chars: Chars::ascii(),
+            ..Config::default()
+        };
         let mut diagnostic = Diagnostic::error()
             .with_message(&self.message)
             .with_code(self.kind.code())

@@ -13,8 +13,33 @@ use crate::syntax::ast::{BinOp, Expr, ExprKind, Insertion, Name, Span};
 /// The free indices of an expression, sorted.
 pub type Profile = BTreeSet<String>;
 
-/// Free indices of `e`, or the span and message of the first violation.
-pub fn profile(e: &Expr) -> Result<Profile, (Span, String)> {
+/// A break of the summation convention: where, what, and the text under the
+/// caret.
+pub struct Violation {
+    pub span: Span,
+    pub message: String,
+    pub label: String,
+    pub note: Option<&'static str>,
+}
+
+impl Violation {
+    fn new(span: Span, message: String, label: impl Into<String>) -> Violation {
+        Violation {
+            span,
+            message,
+            label: label.into(),
+            note: None,
+        }
+    }
+
+    fn with_note(mut self, note: &'static str) -> Violation {
+        self.note = Some(note);
+        self
+    }
+}
+
+/// Free indices of `e`, or the first violation.
+pub fn profile(e: &Expr) -> Result<Profile, Violation> {
     Ok(walk(e)?.free.into_keys().collect())
 }
 
@@ -71,7 +96,7 @@ struct Usage {
     dummies: BTreeMap<String, Span>,
 }
 
-fn walk(e: &Expr) -> Result<Usage, (Span, String)> {
+fn walk(e: &Expr) -> Result<Usage, Violation> {
     match &e.kind {
         ExprKind::Num(_) | ExprKind::Name(_) | ExprKind::Var(_) | ExprKind::Attr { .. } => {
             Ok(Usage::default())
@@ -87,14 +112,20 @@ fn walk(e: &Expr) -> Result<Usage, (Span, String)> {
                     let lk: BTreeSet<&String> = l.free.keys().collect();
                     let rk: BTreeSet<&String> = r.free.keys().collect();
                     if lk != rk {
-                        return Err((
-                            e.span,
+                        return Err(Violation::new(
+                            rhs.span,
                             format!(
                                 "the terms of this sum have different free indices: {} and {}",
                                 describe(&lk),
                                 describe(&rk)
                             ),
-                        ));
+                            if rk.is_empty() {
+                                "this term has no free index".to_string()
+                            } else {
+                                format!("this term has free indices {}", describe(&rk))
+                            },
+                        )
+                        .with_note(SUM_NOTE));
                     }
                     let mut dummies = l.dummies;
                     dummies.extend(r.dummies);
@@ -107,11 +138,19 @@ fn walk(e: &Expr) -> Result<Usage, (Span, String)> {
                 BinOp::Div | BinOp::Pow => {
                     for usage in [&r, &l] {
                         if let Some((name, span)) = usage.free.iter().next() {
-                            return Err((*span, format!("index `{name}` is free inside a power or a denominator")));
+                            return Err(Violation::new(
+                                *span,
+                                format!("index `{name}` is free inside a power or a denominator"),
+                                "a free index",
+                            ));
                         }
                     }
                     if matches!(op, BinOp::Pow) && !l.dummies.is_empty() {
-                        return Err((lhs.span, "a power of a contracted expression is ambiguous; write the product out".into()));
+                        return Err(Violation::new(
+                            lhs.span,
+                            "a power of a contracted expression is ambiguous; write the product out".into(),
+                            "contains a summed index",
+                        ));
                     }
                     let mut usage = l;
                     usage.dummies.extend(r.dummies);
@@ -138,7 +177,7 @@ fn walk(e: &Expr) -> Result<Usage, (Span, String)> {
 }
 
 /// The usage of a list of index names in one factor.
-fn names(list: &[Name]) -> Result<Usage, (Span, String)> {
+fn names(list: &[Name]) -> Result<Usage, Violation> {
     let parts = list
         .iter()
         .filter(|n| n.text != NORMAL || n.is_var)
@@ -151,17 +190,17 @@ fn names(list: &[Name]) -> Result<Usage, (Span, String)> {
 }
 
 /// Combines factors of a product: a name free in two factors becomes summed.
-fn product(parts: Vec<Usage>) -> Result<Usage, (Span, String)> {
+fn product(parts: Vec<Usage>) -> Result<Usage, Violation> {
     let mut out = Usage::default();
     for part in parts {
         for (d, span) in &part.dummies {
             if out.free.contains_key(d) || out.dummies.contains_key(d) {
-                return Err((*span, format!("index `{d}` appears more than twice in one product")));
+                return Err(three_times(d, *span));
             }
         }
         for (name, span) in part.free {
             if out.dummies.contains_key(&name) {
-                return Err((span, format!("index `{name}` appears three times in one product")));
+                return Err(three_times(&name, span));
             }
             if out.free.remove(&name).is_some() {
                 out.dummies.insert(name, span);
@@ -172,4 +211,19 @@ fn product(parts: Vec<Usage>) -> Result<Usage, (Span, String)> {
         out.dummies.extend(part.dummies);
     }
     Ok(out)
+}
+
+/// What every term of a sum must share.
+const SUM_NOTE: &str = "every term of a sum carries the same free indices; an index written twice in one term is summed";
+
+/// An index used once too often in a product.
+fn three_times(name: &str, span: Span) -> Violation {
+    Violation::new(
+        span,
+        format!("index `{name}` appears more than twice in one product"),
+        format!("third use of `{name}`"),
+    )
+    .with_note(
+        "a repeated index is summed and may appear exactly twice in a product; rename one pair",
+    )
 }

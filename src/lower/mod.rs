@@ -19,7 +19,9 @@ use crate::context::{
     Context, IndexKind, OperatorDecl, PointDecl, DIMENSION, DISPLACEMENT, NORMAL, STRESS_TENSOR,
 };
 use crate::diagnostic::{Error, ErrorKind, Result, Source};
-use crate::syntax::ast::{self, BinOp, Expr, ExprKind, Insertion, Name, OpKind, PointRef, Span, Stmt};
+use crate::syntax::ast::{
+    self, BinOp, Expr, ExprKind, Insertion, Name, OpKind, PointRef, Span, Stmt,
+};
 use crate::term::{Index, Op, Point, Term};
 
 /// A lowered `.ward` file.
@@ -99,12 +101,20 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
             Stmt::Rules { path, span } => rule_files.push((path.clone(), *span)),
             Stmt::Dimension(e) if seen_expression => {
                 return Err(lowerer
-                    .err(ErrorKind::Name, e.span, "the dimension must be declared before any expression")
+                    .err(
+                        ErrorKind::Name,
+                        e.span,
+                        "the dimension must be declared before any expression",
+                    )
                     .with_label("declared too late"));
             }
             Stmt::Halfspace { coord } if seen_expression => {
                 return Err(lowerer
-                    .err(ErrorKind::Name, coord.span, "the half-space must be declared before any expression")
+                    .err(
+                        ErrorKind::Name,
+                        coord.span,
+                        "the half-space must be declared before any expression",
+                    )
                     .with_label("declared too late"));
             }
             decl => lowerer.declare(decl)?,
@@ -155,16 +165,26 @@ impl Lowerer {
         match stmt {
             Stmt::Dimension(e) => {
                 if self.ctx.dimension.is_some() {
-                    return Err(self.err(ErrorKind::Name, e.span, "the dimension is declared twice"));
+                    return Err(self.err(
+                        ErrorKind::Name,
+                        e.span,
+                        "the dimension is declared twice",
+                    ));
                 }
                 let dim = match &e.kind {
                     ExprKind::Name(n) if n.text == DIMENSION => Term::Sym(DIMENSION.into()),
-                    ExprKind::Num(c) if c.is_integer() && *c >= BigRational::from_integer(2.into()) => {
+                    ExprKind::Num(c)
+                        if c.is_integer() && *c >= BigRational::from_integer(2.into()) =>
+                    {
                         Term::Num(c.clone())
                     }
                     _ => {
                         return Err(self
-                            .err(ErrorKind::Syntax, e.span, "a dimension is a whole number of at least 2, or the symbol d")
+                            .err(
+                                ErrorKind::Syntax,
+                                e.span,
+                                "a dimension is a whole number of at least 2, or the symbol d",
+                            )
                             .with_label("not a dimension"))
                     }
                 };
@@ -173,7 +193,11 @@ impl Lowerer {
             }
             Stmt::Halfspace { coord } => {
                 if self.ctx.halfspace.is_some() {
-                    return Err(self.err(ErrorKind::Name, coord.span, "the half-space is declared twice"));
+                    return Err(self.err(
+                        ErrorKind::Name,
+                        coord.span,
+                        "the half-space is declared twice",
+                    ));
                 }
                 self.reserve(coord, "the normal coordinate")?;
                 self.ctx.halfspace = Some(coord.text.clone());
@@ -187,7 +211,11 @@ impl Lowerer {
             } => {
                 if *boundary && !self.ctx.has_halfspace() {
                     return Err(self
-                        .err(ErrorKind::Placement, name.span, format!("boundary operator `{}` needs a boundary", name.text))
+                        .err(
+                            ErrorKind::Placement,
+                            name.span,
+                            format!("boundary operator `{}` needs a boundary", name.text),
+                        )
                         .with_label("declared on a boundary that does not exist")
                         .with_note("declare the boundary first, e.g. `halfspace y >= 0`"));
                 }
@@ -195,19 +223,31 @@ impl Lowerer {
                 let mut values = BTreeMap::new();
                 for (key, value) in attrs {
                     if values.contains_key(&key.text) {
-                        return Err(self.err(ErrorKind::Name, key.span, format!("attribute `{}` is given twice", key.text)));
+                        return Err(self.err(
+                            ErrorKind::Name,
+                            key.span,
+                            format!("attribute `{}` is given twice", key.text),
+                        ));
                     }
                     // Bare names in attribute values declare themselves as
                     // parameters: `scalar O dim Delta` declares Delta.
                     self.declare_parameters_in(value)?;
                     if self.free_indices(value)?.iter().next().is_some() {
-                        return Err(self.err(ErrorKind::Index, value.span, "an attribute value cannot carry free indices"));
+                        return Err(self.err(
+                            ErrorKind::Index,
+                            value.span,
+                            "an attribute value cannot carry free indices",
+                        ));
                     }
                     values.insert(key.text.clone(), self.expr(value)?);
                 }
                 if !values.contains_key("dim") {
                     return Err(self
-                        .err(ErrorKind::Name, name.span, format!("operator `{}` has no dimension", name.text))
+                        .err(
+                            ErrorKind::Name,
+                            name.span,
+                            format!("operator `{}` has no dimension", name.text),
+                        )
                         .with_label("missing `dim`")
                         .with_note(format!("write e.g. `scalar {} dim Delta`", name.text)));
                 }
@@ -228,7 +268,12 @@ impl Lowerer {
                 if *boundary && !self.ctx.has_halfspace() {
                     let span = names.first().map_or(Span::default(), |n| n.span);
                     return Err(self
-                        .err(ErrorKind::Placement, span, "boundary points need a boundary")
+                        .err(
+                            ErrorKind::Placement,
+                            span,
+                            "boundary points need a boundary",
+                        )
+                        .with_label("declared on a boundary that does not exist")
                         .with_note("declare the boundary first, e.g. `halfspace y >= 0`"));
                 }
                 for name in names {
@@ -249,7 +294,12 @@ impl Lowerer {
                 if !self.ctx.has_halfspace() {
                     let span = names.first().map_or(Span::default(), |n| n.span);
                     return Err(self
-                        .err(ErrorKind::Placement, span, "parallel indices need a boundary")
+                        .err(
+                            ErrorKind::Placement,
+                            span,
+                            "parallel indices need a boundary",
+                        )
+                        .with_label("parallel to a boundary that does not exist")
                         .with_note("declare the boundary first, e.g. `halfspace y >= 0`"));
                 }
                 for name in names {
@@ -263,16 +313,35 @@ impl Lowerer {
     }
 
     fn reserve(&self, name: &Name, what: &str) -> Result<()> {
-        let builtin = [DIMENSION, NORMAL, STRESS_TENSOR, DISPLACEMENT];
-        if builtin.contains(&name.text.as_str()) {
+        let builtin = [
+            (DIMENSION, "the dimension"),
+            (NORMAL, "the unit normal"),
+            (STRESS_TENSOR, "the stress tensor"),
+            (DISPLACEMENT, "the displacement operator"),
+        ];
+        if let Some((_, meaning)) = builtin.iter().find(|(b, _)| *b == name.text) {
             return Err(self
-                .err(ErrorKind::Name, name.span, format!("`{}` is built in and cannot name {what}", name.text))
-                .with_label("reserved name"));
+                .err(
+                    ErrorKind::Name,
+                    name.span,
+                    format!(
+                        "`{}` is built in ({meaning}) and cannot name {what}",
+                        name.text
+                    ),
+                )
+                .with_label("reserved name")
+                .with_note("the names T, D, d and n are reserved; choose another name"));
         }
-        if let Some((kind, _)) = self.declared.get(&name.text) {
+        if let Some((kind, first)) = self.declared.get(&name.text) {
+            let line = self.source.line_col(first.start).0;
             return Err(self
-                .err(ErrorKind::Name, name.span, format!("`{}` is already declared as {}", name.text, kind.describe()))
-                .with_label("declared again"));
+                .err(
+                    ErrorKind::Name,
+                    name.span,
+                    format!("`{}` is already declared as {}", name.text, kind.describe()),
+                )
+                .with_label("declared again")
+                .with_note(format!("`{}` was first declared on line {line}", name.text)));
         }
         Ok(())
     }
@@ -281,7 +350,11 @@ impl Lowerer {
         self.reserve(name, kind.describe())?;
         if self.ctx.halfspace.as_deref() == Some(name.text.as_str()) {
             return Err(self
-                .err(ErrorKind::Name, name.span, format!("`{}` is the normal coordinate", name.text))
+                .err(
+                    ErrorKind::Name,
+                    name.span,
+                    format!("`{}` is the normal coordinate", name.text),
+                )
                 .with_label("declared again"));
         }
         self.declared.insert(name.text.clone(), (kind, name.span));
@@ -349,8 +422,14 @@ impl Lowerer {
     // ─────────────────────────── indices ────────────────────────────
 
     fn free_indices(&self, e: &Expr) -> Result<indices::Profile> {
-        indices::profile(e).map_err(|(span, message)| {
-            self.err(ErrorKind::Index, span, message).with_label("here")
+        indices::profile(e).map_err(|v| {
+            let error = self
+                .err(ErrorKind::Index, v.span, v.message)
+                .with_label(v.label);
+            match v.note {
+                Some(note) => error.with_note(note),
+                None => error,
+            }
         })
     }
 
@@ -369,7 +448,8 @@ impl Lowerer {
                         indices::describe(&r)
                     ),
                 )
-                .with_label("unbalanced indices"));
+                .with_label("unbalanced indices")
+                .with_note("both sides carry the same free indices; an index written twice in one term is summed"));
         }
         Ok(())
     }
@@ -380,15 +460,17 @@ impl Lowerer {
         Ok(match &e.kind {
             ExprKind::Num(c) => Term::Num(c.clone()),
             ExprKind::Name(n) => self.scalar_name(n)?,
-            ExprKind::Var(v) | ExprKind::Attr { var: v, .. } => return Err(self.rule_syntax(v.span)),
+            ExprKind::Var(v) | ExprKind::Attr { var: v, .. } => {
+                return Err(self.rule_syntax(v.span))
+            }
             ExprKind::Sum { op, .. } => return Err(self.rule_syntax(op.span.to(e.span))),
-            ExprKind::Neg(a) => self.expr(a)?.neg(),
+            ExprKind::Neg(a) => self.expr(a)?.negated(),
             ExprKind::Binary { op, lhs, rhs } => {
                 let l = self.expr(lhs)?;
                 let r = self.expr(rhs)?;
                 match op {
                     BinOp::Add => Term::Add(vec![l, r]),
-                    BinOp::Sub => Term::Add(vec![l, r.neg()]),
+                    BinOp::Sub => Term::Add(vec![l, r.negated()]),
                     BinOp::Mul => Term::Mul(vec![l, r]),
                     BinOp::Div => {
                         if let Some(v) = constant_value(rhs) {
@@ -404,7 +486,11 @@ impl Lowerer {
                         if let (Some(b), Some(x)) = (constant_value(lhs), constant_value(rhs)) {
                             if b.is_zero() && x.is_negative() {
                                 return Err(self
-                                    .err(ErrorKind::Arithmetic, e.span, "zero raised to a negative power")
+                                    .err(
+                                        ErrorKind::Arithmetic,
+                                        e.span,
+                                        "zero raised to a negative power",
+                                    )
                                     .with_label("division by zero"));
                             }
                         }
@@ -424,9 +510,16 @@ impl Lowerer {
             }
             ExprKind::Op(op) => {
                 return Err(self
-                    .err(ErrorKind::Placement, op.span, format!("operator `{}` stands outside a correlator", op.name.text))
-                    .with_label("not inside ⟨ ⟩")
-                    .with_note(format!("write it inside a correlator, e.g. `<{} …>`", op.name.text)))
+                    .err(
+                        ErrorKind::Placement,
+                        op.span,
+                        format!("operator `{}` stands outside a correlator", op.name.text),
+                    )
+                    .with_label("not inside `< >`")
+                    .with_note(format!(
+                        "write it inside a correlator, e.g. `<{}>`",
+                        &self.source.text[op.span.start..op.span.end]
+                    )))
             }
             ExprKind::Deriv { index, point, body } => {
                 let i = self.index(index)?;
@@ -448,8 +541,13 @@ impl Lowerer {
                 let b = self.point(q)?;
                 if a == b {
                     return Err(self
-                        .err(ErrorKind::Placement, e.span, "δ(p - p) is not a function: both points are the same")
-                        .with_label("same point twice"));
+                        .err(
+                            ErrorKind::Placement,
+                            e.span,
+                            format!("`δ({0} - {0})` compares a point with itself", p.name.text),
+                        )
+                        .with_label("same point twice")
+                        .with_note("a δ-function of a point with itself is infinite; contact terms compare two different points"));
                 }
                 Term::DeltaFn(a, b)
             }
@@ -457,13 +555,21 @@ impl Lowerer {
                 self.need_halfspace(e.span, "the boundary δ-function")?;
                 if self.ctx.halfspace.as_deref() != Some(coord.text.as_str()) {
                     return Err(self
-                        .err(ErrorKind::Name, coord.span, format!("`{}` is not the normal coordinate", coord.text))
+                        .err(
+                            ErrorKind::Name,
+                            coord.span,
+                            format!("`{}` is not the normal coordinate", coord.text),
+                        )
                         .with_label(format!("expected `{}`", self.ctx.normal_coord())));
                 }
                 let p = self.point(point)?;
                 if self.ctx.is_boundary_point(&p) {
                     return Err(self
-                        .err(ErrorKind::Placement, point.span, "δ(y(p)) needs a bulk point p")
+                        .err(
+                            ErrorKind::Placement,
+                            point.span,
+                            "δ(y(p)) needs a bulk point p",
+                        )
                         .with_label("a boundary point"));
                 }
                 Term::DeltaY(p)
@@ -472,8 +578,12 @@ impl Lowerer {
     }
 
     fn rule_syntax(&self, span: Span) -> Error {
-        self.err(ErrorKind::Syntax, span, "rule syntax (`?x`, `...?rest`, `sum`, `?o.attr`) belongs in .rules files")
-            .with_label("not allowed in a .ward file")
+        self.err(
+            ErrorKind::Syntax,
+            span,
+            "rule syntax (`?x`, `...?rest`, `sum`, `?o.attr`) belongs in .rules files",
+        )
+        .with_label("not allowed in a .ward file")
     }
 
     fn need_halfspace(&self, span: Span, what: &str) -> Result<()> {
@@ -481,7 +591,11 @@ impl Lowerer {
             Ok(())
         } else {
             Err(self
-                .err(ErrorKind::Placement, span, format!("{what} needs a boundary"))
+                .err(
+                    ErrorKind::Placement,
+                    span,
+                    format!("{what} needs a boundary"),
+                )
                 .with_label("no boundary declared")
                 .with_note("declare one with `halfspace y >= 0`"))
         }
@@ -494,16 +608,26 @@ impl Lowerer {
         match self.declared.get(&n.text) {
             Some((Declared::Parameter, _)) => Ok(Term::Sym(n.text.clone())),
             Some((kind, _)) => Err(self
-                .err(ErrorKind::Name, n.span, format!("`{}` is {}, not a parameter", n.text, kind.describe()))
+                .err(
+                    ErrorKind::Name,
+                    n.span,
+                    format!("`{}` is {}, not a parameter", n.text, kind.describe()),
+                )
                 .with_label("used as a number")),
-            None => Err(self.undeclared(n, "parameter", "parameters")),
+            None => Err(self.undeclared(n, "parameter", &format!("parameters {}", n.text))),
         }
     }
 
-    fn undeclared(&self, n: &Name, what: &str, keyword: &str) -> Error {
-        self.err(ErrorKind::Name, n.span, format!("undeclared {what} `{}`", n.text))
-            .with_label("not declared")
-            .with_note(format!("declare it before use, e.g. `{keyword} {}`", n.text))
+    /// A name used as `what` but never declared; `example` is a declaration
+    /// that would make it valid.
+    fn undeclared(&self, n: &Name, what: &str, example: &str) -> Error {
+        self.err(
+            ErrorKind::Name,
+            n.span,
+            format!("undeclared {what} `{}`", n.text),
+        )
+        .with_label("not declared")
+        .with_note(format!("declare it before use, e.g. `{example}`"))
     }
 
     fn index(&self, n: &Name) -> Result<Index> {
@@ -517,7 +641,11 @@ impl Lowerer {
         match self.declared.get(&n.text) {
             Some((Declared::ParallelIndex, _)) | None => Ok(Index::Named(n.text.clone())),
             Some((kind, _)) => Err(self
-                .err(ErrorKind::Name, n.span, format!("`{}` is {}, not an index", n.text, kind.describe()))
+                .err(
+                    ErrorKind::Name,
+                    n.span,
+                    format!("`{}` is {}, not an index", n.text, kind.describe()),
+                )
                 .with_label("used as an index")),
         }
     }
@@ -529,16 +657,24 @@ impl Lowerer {
         let Some((rank, decl)) = self.ctx.point(&p.name.text) else {
             return Err(match self.declared.get(&p.name.text) {
                 Some((kind, _)) => self
-                    .err(ErrorKind::Name, p.name.span, format!("`{}` is {}, not a point", p.name.text, kind.describe()))
+                    .err(
+                        ErrorKind::Name,
+                        p.name.span,
+                        format!("`{}` is {}, not a point", p.name.text, kind.describe()),
+                    )
                     .with_label("used as a point"),
-                None => self.undeclared(&p.name, "point", "points"),
+                None => self.undeclared(&p.name, "point", &format!("points {}", p.name.text)),
             });
         };
         if p.par {
             self.need_halfspace(p.span, "a boundary projection")?;
             if decl.boundary {
                 return Err(self
-                    .err(ErrorKind::Placement, p.span, format!("`{}` is already a boundary point", p.name.text))
+                    .err(
+                        ErrorKind::Placement,
+                        p.span,
+                        format!("`{}` is already a boundary point", p.name.text),
+                    )
                     .with_label("projection of a boundary point"));
             }
         }
@@ -556,15 +692,27 @@ impl Lowerer {
         let Some(decl) = self.ctx.operator(&op.name.text) else {
             if op.name.text == DISPLACEMENT {
                 return Err(self
-                    .err(ErrorKind::Placement, op.name.span, "the displacement operator D needs a boundary")
+                    .err(
+                        ErrorKind::Placement,
+                        op.name.span,
+                        "the displacement operator D needs a boundary",
+                    )
                     .with_label("no boundary declared")
                     .with_note("declare one with `halfspace y >= 0`"));
             }
             return Err(match self.declared.get(&op.name.text) {
                 Some((kind, _)) => self
-                    .err(ErrorKind::Name, op.name.span, format!("`{}` is {}, not an operator", op.name.text, kind.describe()))
+                    .err(
+                        ErrorKind::Name,
+                        op.name.span,
+                        format!("`{}` is {}, not an operator", op.name.text, kind.describe()),
+                    )
                     .with_label("used as an operator"),
-                None => self.undeclared(&op.name, "operator", "scalar"),
+                None => self.undeclared(
+                    &op.name,
+                    "operator",
+                    &format!("scalar {} dim Delta", op.name.text),
+                ),
             });
         };
         if op.indices.len() != decl.rank {
@@ -572,7 +720,12 @@ impl Lowerer {
                 .err(
                     ErrorKind::Index,
                     op.span,
-                    format!("`{}` takes {} index(es), found {}", op.name.text, decl.rank, op.indices.len()),
+                    format!(
+                        "`{}` takes {}, found {}",
+                        op.name.text,
+                        count_indices(decl.rank),
+                        op.indices.len()
+                    ),
                 )
                 .with_label("wrong number of indices"));
         }
@@ -585,15 +738,28 @@ impl Lowerer {
                 format!("boundary operator `{}`", op.name.text)
             };
             return Err(self
-                .err(ErrorKind::Placement, op.point.span, format!("{what} placed at bulk point `{}`", point.name))
+                .err(
+                    ErrorKind::Placement,
+                    op.point.span,
+                    format!("{what} placed at bulk point `{}`", point.name),
+                )
                 .with_label("a bulk point")
                 .with_note("use a boundary point (`boundary points s`) or a projection `x∥`"));
         }
         if !decl.boundary && on_boundary {
             return Err(self
-                .err(ErrorKind::Placement, op.point.span, format!("bulk operator `{}` placed at boundary point `{}`", op.name.text, op.point.name.text))
+                .err(
+                    ErrorKind::Placement,
+                    op.point.span,
+                    format!(
+                        "bulk operator `{}` placed at boundary point `{}`",
+                        op.name.text, op.point.name.text
+                    ),
+                )
                 .with_label("a boundary point")
-                .with_note("bulk operators stand at bulk points; take the boundary limit explicitly"));
+                .with_note(
+                    "bulk operators stand at bulk points; take the boundary limit explicitly",
+                ));
         }
         let indices = op
             .indices
@@ -605,6 +771,15 @@ impl Lowerer {
             name: op.name.text.clone(),
             indices,
         })
+    }
+}
+
+/// "no index", "1 index", "2 indices".
+fn count_indices(n: usize) -> String {
+    match n {
+        0 => "no index".into(),
+        1 => "1 index".into(),
+        n => format!("{n} indices"),
     }
 }
 

@@ -80,7 +80,10 @@ pub enum ExprKind {
     /// A rule variable in a term position: `?c`.
     Var(Name),
     /// An operator attribute in a rule template: `?o.dim`.
-    Attr { var: Name, key: Name },
+    Attr {
+        var: Name,
+        key: Name,
+    },
     Neg(Box<Expr>),
     Binary {
         op: BinOp,
@@ -102,7 +105,10 @@ pub enum ExprKind {
     /// Bulk delta function `δ(x - p)`.
     DeltaPoints(PointRef, PointRef),
     /// Boundary delta function `δ(y(x))`.
-    DeltaNormal { coord: Name, point: PointRef },
+    DeltaNormal {
+        coord: Name,
+        point: PointRef,
+    },
     /// Rule template: `sum ?o(?p) in ?rest if COND { body }`.
     Sum {
         op: Name,

@@ -26,7 +26,9 @@ struct WardParser;
 /// Parses a `.ward` file.
 pub fn parse_file(source: &Arc<Source>) -> Result<File> {
     let mut pairs = parse_rule(source, Rule::file)?;
-    let file = pairs.next().expect("the grammar's file rule always yields one pair");
+    let file = pairs
+        .next()
+        .expect("the grammar's file rule always yields one pair");
     let mut stmts = Vec::new();
     for pair in file.into_inner() {
         if pair.as_rule() == Rule::EOI {
@@ -40,7 +42,9 @@ pub fn parse_file(source: &Arc<Source>) -> Result<File> {
 /// Parses a `.rules` file.
 pub fn parse_rule_file(source: &Arc<Source>) -> Result<RuleFile> {
     let mut pairs = parse_rule(source, Rule::rule_file)?;
-    let file = pairs.next().expect("the grammar's rule_file rule always yields one pair");
+    let file = pairs
+        .next()
+        .expect("the grammar's rule_file rule always yields one pair");
     let mut sets = Vec::new();
     for pair in file.into_inner() {
         if pair.as_rule() == Rule::ruleset {
@@ -53,8 +57,13 @@ pub fn parse_rule_file(source: &Arc<Source>) -> Result<RuleFile> {
 /// Parses a single expression (used to read printed output back).
 pub fn parse_expr(source: &Arc<Source>) -> Result<Expr> {
     let mut pairs = parse_rule(source, Rule::expr_only)?;
-    let whole = pairs.next().expect("the grammar's expr_only rule always yields one pair");
-    let expr = whole.into_inner().next().expect("expr_only holds an expression");
+    let whole = pairs
+        .next()
+        .expect("the grammar's expr_only rule always yields one pair");
+    let expr = whole
+        .into_inner()
+        .next()
+        .expect("expr_only holds an expression");
     Ok(build_expr(expr))
 }
 
@@ -69,38 +78,195 @@ fn parse_rule<'i>(
 }
 
 fn syntax_error(source: &Arc<Source>, e: pest::error::Error<Rule>) -> Error {
-    let offset = match e.location {
+    let text = source.text.as_str();
+    let classic = match e.location {
         pest::error::InputLocation::Pos(p) => p,
         pest::error::InputLocation::Span((s, _)) => s,
+    }
+    .min(text.len());
+    let positives = match &e.variant {
+        pest::error::ErrorVariant::ParsingError { positives, .. } => positives.clone(),
+        pest::error::ErrorVariant::CustomError { .. } => Vec::new(),
     };
-    let mut expected: Vec<String> = Vec::new();
-    if let Some(attempts) = e.parse_attempts() {
-        for token in attempts.expected_tokens() {
-            let token = token.to_string();
-            let chars: Vec<char> = token.chars().collect();
-            let is_range = chars.len() == 4 && chars[1] == '.' && chars[2] == '.';
-            if !token.trim().is_empty() && token != "BUILTIN_RULE" && !is_range {
-                expected.push(format!("`{token}`"));
-            }
-        }
+    if positives.contains(&Rule::string) && text[classic..].starts_with('"') {
+        return unterminated_string(source, classic);
     }
-    if let pest::error::ErrorVariant::ParsingError { positives, .. } = &e.variant {
-        expected.extend(positives.iter().filter_map(|r| describe(*r)).map(String::from));
-    }
-    expected.sort();
-    expected.dedup();
-    let found = source.text[offset.min(source.text.len())..]
-        .chars()
-        .next()
-        .map_or("end of file".to_string(), |c| format!("`{c}`"));
-    let end = offset + source.text[offset.min(source.text.len())..].chars().next().map_or(0, char::len_utf8);
+    // pest records the tokens it tried at the farthest position it reached;
+    // they are the most precise, unless all it tried there was to continue a
+    // word (a keyword seen where a name was expected), in which case the
+    // rules tried where that word starts say more.
+    let farthest = e
+        .parse_attempts()
+        .filter(|a| a.max_position >= classic)
+        .and_then(|a| {
+            let after_word = text[..a.max_position]
+                .chars()
+                .next_back()
+                .is_some_and(is_ident_char);
+            let tokens: Vec<String> = a.expected_tokens().iter().map(|t| t.to_string()).collect();
+            let expected = describe_tokens(&tokens, after_word);
+            let rules: Vec<Rule> = a
+                .call_stacks()
+                .iter()
+                .filter_map(|c| c.deepest.get_rule().copied())
+                .collect();
+            (!expected.is_empty()).then_some((a.max_position, expected, rules))
+        });
+    let (offset, expected, rules) = farthest.unwrap_or_else(|| {
+        let mut expected: Vec<String> = positives
+            .iter()
+            .filter_map(|r| describe(*r))
+            .map(String::from)
+            .collect();
+        expected.sort();
+        expected.dedup();
+        (classic, expected, positives.clone())
+    });
+    let (found, end) = found_at(text, offset);
     let message = if expected.is_empty() {
         format!("unexpected {found}")
     } else {
         format!("expected {}; found {found}", join_or(&expected))
     };
-    Error::at(ErrorKind::Syntax, source, Span::new(offset, end), message)
-        .with_label("not expected here")
+    let mut error = Error::at(ErrorKind::Syntax, source, Span::new(offset, end), message)
+        .with_label("not expected here");
+    for note in hints(&rules) {
+        error = error.with_note(note);
+    }
+    error
+}
+
+/// A quoted path whose closing quote is missing on its line.
+fn unterminated_string(source: &Arc<Source>, start: usize) -> Error {
+    let rest = &source.text[start..];
+    let end = start + rest.find('\n').unwrap_or(rest.len());
+    Error::at(
+        ErrorKind::Syntax,
+        source,
+        Span::new(start, end),
+        "unterminated quoted path",
+    )
+    .with_label("no closing `\"` on this line")
+    .with_note("write the path on one line between quotes, e.g. `rules \"extra.rules\"`")
+}
+
+/// True for characters that continue a name.
+fn is_ident_char(c: char) -> bool {
+    c == '_' || (c.is_alphanumeric() && c != 'δ' && c != '∂')
+}
+
+/// The text at `offset` as the error reports it (a whole word, a number or
+/// one character), and the end of its span.
+fn found_at(text: &str, offset: usize) -> (String, usize) {
+    let rest = &text[offset..];
+    let Some(first) = rest.chars().next() else {
+        return ("end of file".to_string(), offset);
+    };
+    let len = if first.is_ascii_digit() {
+        rest.find(|c: char| !c.is_ascii_digit() && c != '.')
+            .unwrap_or(rest.len())
+    } else if is_ident_char(first) {
+        rest.find(|c: char| !is_ident_char(c)).unwrap_or(rest.len())
+    } else {
+        first.len_utf8()
+    };
+    (format!("`{}`", &rest[..len]), offset + len)
+}
+
+/// Tokens that can start a primary expression.
+const OPERAND_STARTS: &[&str] = &[
+    "(", "<", "⟨", "∂", "del", "δ", "delta", "n", "sum", "?", "a name", "a number",
+];
+/// Keywords that start a statement of a `.ward` file.
+const STATEMENT_STARTS: &[&str] = &[
+    "dimension",
+    "halfspace",
+    "boundary",
+    "scalar",
+    "vector",
+    "points",
+    "parameters",
+    "parallel",
+    "rules",
+    "simplify",
+    "claim",
+];
+/// Infix operators.
+const INFIX: &[&str] = &["+", "-", "*", "/", "^"];
+
+/// A reader's list of the tokens pest expected: white space, comments and
+/// the continuation of a word just read are left out, character ranges
+/// become "a name" or "a number", and long lists are summarised.
+fn describe_tokens(tokens: &[String], after_word: bool) -> Vec<String> {
+    let mut words: Vec<String> = Vec::new();
+    for token in tokens {
+        let word = match token.as_str() {
+            t if t.trim().is_empty() || t == "#" || t == "_" => continue,
+            "a..z" | "A..Z" | "0..9" | "BUILTIN_RULE" if after_word => continue,
+            "a..z" | "A..Z" | "BUILTIN_RULE" => "a name".to_string(),
+            "0..9" => "a number".to_string(),
+            t if t.contains("..") && t.chars().count() == 4 => continue,
+            t => t.to_string(),
+        };
+        if !words.contains(&word) {
+            words.push(word);
+        }
+    }
+    words.sort();
+    let has = |w: &str| words.iter().any(|x| x == w);
+    let mut out: Vec<String> = Vec::new();
+    // A name may start an operand: the whole family is expected.
+    let operand = has("a name") && OPERAND_STARTS.iter().filter(|w| has(w)).count() >= 3;
+    let after_operand = operand && has("*");
+    let statement = STATEMENT_STARTS.iter().filter(|w| has(w)).count() >= 3;
+    for w in &words {
+        let w = w.as_str();
+        if (operand && OPERAND_STARTS.contains(&w))
+            || (after_operand && INFIX.contains(&w))
+            || (operand && !after_operand && w == "-")
+            || (statement && STATEMENT_STARTS.contains(&w))
+        {
+            continue;
+        }
+        out.push(match w {
+            "a name" | "a number" => w.to_string(),
+            _ => format!("`{w}`"),
+        });
+    }
+    if after_operand {
+        out.push("an operator (`+`, `-`, `*`, `/`, `^`)".into());
+        out.push("another factor".into());
+    } else if operand {
+        out.push("an expression".into());
+    }
+    if statement {
+        // Statements are expected only between statements, where the file
+        // may also end.
+        out.push("a new statement".into());
+        out.push("end of file".into());
+    }
+    out
+}
+
+/// A note on the correct form of the construct the parser was inside.
+fn hints(rules: &[Rule]) -> Vec<&'static str> {
+    let mut out = Vec::new();
+    for r in rules {
+        let hint = match r {
+            Rule::deriv => "a derivative takes a bracketed body: `∂[mu](x) <…>`, `∂[mu](x) { … }`, `∂[mu](x) ( … )` or another `∂`",
+            Rule::halfspace_decl => "a half-space is declared as `halfspace y >= 0`, naming the normal coordinate",
+            Rule::key | Rule::attribute | Rule::operator_decl => {
+                "an operator is declared with its attributes, e.g. `scalar O dim Delta`"
+            }
+            Rule::corr_close => "a correlator `<…>` must be closed with `>` before the next statement",
+            Rule::rule | Rule::conditions => "a rule reads `rule NAME [when CONDITIONS] from PATTERN to TEMPLATE`",
+            _ => continue,
+        };
+        if !out.contains(&hint) {
+            out.push(hint);
+        }
+    }
+    out
 }
 
 /// A reader's name for grammar rules that are not literal tokens.
@@ -115,6 +281,8 @@ fn describe(r: Rule) -> Option<&'static str> {
         Rule::expr | Rule::primary => "an expression",
         Rule::point => "a point",
         Rule::index => "an index",
+        Rule::op => "an insertion like `O(x)`",
+        Rule::corr_close => "`>`",
         Rule::statement => "a statement (`dimension`, `points`, `simplify`, `claim`, …)",
         Rule::EOI => "end of file",
         _ => return None,
@@ -135,8 +303,21 @@ fn span_of(pair: &Pair<Rule>) -> Span {
     Span::new(pair.as_span().start(), pair.as_span().end())
 }
 
+/// The span of a statement without the white space and comments pest
+/// includes after its last part when it looks for an optional one.
+fn statement_span(pair: &Pair<Rule>) -> Span {
+    let span = span_of(pair);
+    let end = pair
+        .clone()
+        .into_inner()
+        .map(|p| p.as_span().end())
+        .max()
+        .unwrap_or(span.end);
+    Span::new(span.start, end)
+}
+
 fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
-    let span = span_of(&pair);
+    let span = statement_span(&pair);
     let kind = pair.as_rule();
     let mut inner = pair.into_inner().peekable();
     Ok(match kind {
@@ -237,7 +418,10 @@ fn parse_rule_def(pair: Pair<Rule>) -> ast::Rule {
 
 fn parse_condition(pair: Pair<Rule>) -> Condition {
     let span = span_of(&pair);
-    let inner = pair.into_inner().next().expect("condition has one alternative");
+    let inner = pair
+        .into_inner()
+        .next()
+        .expect("condition has one alternative");
     let kind = match inner.as_rule() {
         Rule::no_halfspace => ConditionKind::NoHalfspace,
         Rule::has_halfspace => ConditionKind::Halfspace,
@@ -246,9 +430,7 @@ fn parse_condition(pair: Pair<Rule>) -> Condition {
             let var = parse_name(next(&mut parts));
             let what = next(&mut parts);
             match what.as_rule() {
-                Rule::cond_has => {
-                    ConditionKind::Has(var, parse_name(next(&mut what.into_inner())))
-                }
+                Rule::cond_has => ConditionKind::Has(var, parse_name(next(&mut what.into_inner()))),
                 _ => ConditionKind::Is(
                     var,
                     match what.as_str() {
@@ -332,8 +514,11 @@ fn parse_primary(pair: Pair<Rule>) -> Expr {
         Rule::expr => return build_expr(pair),
         Rule::corr => ExprKind::Corr(
             pair.into_inner()
+                .filter(|p| p.as_rule() != Rule::corr_close)
                 .map(|p| match p.as_rule() {
-                    Rule::splice => Insertion::Splice(parse_name(p.into_inner().next().expect("var"))),
+                    Rule::splice => {
+                        Insertion::Splice(parse_name(p.into_inner().next().expect("var")))
+                    }
                     _ => Insertion::Op(parse_op(p)),
                 })
                 .collect(),
