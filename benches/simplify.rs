@@ -12,8 +12,13 @@ use wardsmith::run::{run_source, Mode, Options};
 fn main() {
     for n in SIZES {
         let text = file(n);
-        let out = run_source(&Source::new("bench.ward", text), Path::new("."), Mode::Simplify, &Options::default())
-            .expect("benchmark input is valid");
+        let out = run_source(
+            &Source::new("bench.ward", text),
+            Path::new("."),
+            Mode::Simplify,
+            &Options::default(),
+        )
+        .expect("benchmark input is valid");
         let nodes = out
             .report
             .split(" e-nodes")

@@ -9,7 +9,9 @@ use egg::Rewrite;
 
 use crate::context::Context;
 use crate::diagnostic::{Error, ErrorKind, Result};
-use crate::egraph::{add_term, extract_term, run_rules, EGraph, Fold, Limits, Stop, Ward, WardCost};
+use crate::egraph::{
+    add_term, extract_term, run_rules, EGraph, Fold, Limits, Stop, Ward, WardCost,
+};
 use crate::normal::normalize;
 use crate::rules::RuleBook;
 use crate::term::Term;
@@ -108,7 +110,7 @@ impl Engine {
 
     /// Checks `lhs = rhs` by simplifying their difference to zero.
     pub fn check(&self, lhs: &Term, rhs: &Term) -> Result<Verdict> {
-        let difference = Term::Add(vec![lhs.clone(), rhs.clone().neg()]);
+        let difference = Term::Add(vec![lhs.clone(), rhs.clone().negated()]);
         let s = self.simplify(&difference)?;
         Ok(if s.term.is_zero() {
             Verdict::Proved(s)

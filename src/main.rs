@@ -65,7 +65,11 @@ fn main() -> ExitCode {
     };
     let opts = Options {
         rules: args.rules,
-        style: if args.ascii { Style::Ascii } else { Style::Unicode },
+        style: if args.ascii {
+            Style::Ascii
+        } else {
+            Style::Unicode
+        },
         limits: Limits {
             nodes: args.node_limit,
             iterations: args.iter_limit,

@@ -50,7 +50,12 @@ pub fn run_path(path: &Path, mode: Mode, opts: &Options) -> Result<Outcome> {
 
 /// Runs a file's text; `base` is the folder its `rules "…"` paths are
 /// relative to.
-pub fn run_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -> Result<Outcome> {
+pub fn run_source(
+    source: &Arc<Source>,
+    base: &Path,
+    mode: Mode,
+    opts: &Options,
+) -> Result<Outcome> {
     let program = lower::lower(source, &syntax::parse_file(source)?)?;
     let book = load_rules(&program, base, opts)?;
     let engine = Engine::new(program.ctx.clone(), Arc::new(book), opts.limits)?;
@@ -67,15 +72,34 @@ pub fn run_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options)
                 reporter.simplified(item.line, input, &s);
             }
             (ItemKind::Simplify { expect: None, .. }, Mode::Check) => {}
-            (ItemKind::Simplify { expr, expect: Some(r) }, Mode::Check) => {
+            (
+                ItemKind::Simplify {
+                    expr,
+                    expect: Some(r),
+                },
+                Mode::Check,
+            ) => {
                 let v = engine.check(expr, r).map_err(at_item)?;
                 let ok = reporter.verdict(item.line, "expected result", &text, &v);
-                if ok { proved += 1 } else { failed += 1 }
+                if ok {
+                    proved += 1
+                } else {
+                    failed += 1
+                }
             }
             (ItemKind::Claim { lhs, rhs }, Mode::Check) => {
                 let v = engine.check(lhs, rhs).map_err(at_item)?;
-                let ok = reporter.verdict(item.line, "claim", text.strip_prefix("claim ").unwrap_or(&text), &v);
-                if ok { proved += 1 } else { failed += 1 }
+                let ok = reporter.verdict(
+                    item.line,
+                    "claim",
+                    text.strip_prefix("claim ").unwrap_or(&text),
+                    &v,
+                );
+                if ok {
+                    proved += 1
+                } else {
+                    failed += 1
+                }
             }
             (ItemKind::Claim { .. }, Mode::Simplify) => {}
         }
@@ -96,7 +120,10 @@ pub fn holds(v: &Verdict) -> bool {
 
 fn read_source(path: &Path) -> Result<Arc<Source>> {
     let text = std::fs::read_to_string(path).map_err(|e| {
-        Error::new(ErrorKind::Io, format!("cannot read `{}`: {e}", path.display()))
+        Error::new(
+            ErrorKind::Io,
+            format!("cannot read `{}`: {e}", path.display()),
+        )
     })?;
     Ok(Source::new(path.display().to_string(), text))
 }
@@ -110,8 +137,7 @@ fn load_rules(program: &Program, base: &Path, opts: &Options) -> Result<RuleBook
     for (rel, span) in &program.rule_files {
         let path = base.join(rel);
         let source = read_source(&path).map_err(|e| {
-            Error::at(ErrorKind::Io, &program.source, *span, e.message)
-                .with_label("this rule file")
+            Error::at(ErrorKind::Io, &program.source, *span, e.message).with_label("this rule file")
         })?;
         book.load(&source)?;
     }

@@ -27,7 +27,11 @@ fn scratch(name: &str, text: &str) -> PathBuf {
 
 #[test]
 fn help_texts() {
-    for args in [&["--help"][..], &["simplify", "--help"], &["check", "--help"]] {
+    for args in [
+        &["--help"][..],
+        &["simplify", "--help"],
+        &["check", "--help"],
+    ] {
         let (code, stdout, _) = wardsmith(args);
         assert_eq!(code, 0);
         insta::assert_snapshot!(format!("help-{}", args.join("-")), stdout);
@@ -76,7 +80,10 @@ fn exit_code_two_for_bad_input_with_location() {
 fn missing_file_is_an_input_error() {
     let (code, _, stderr) = wardsmith(&["check", "no/such/file.ward"]);
     assert_eq!(code, 2);
-    assert!(stderr.contains("cannot read `no/such/file.ward`"), "{stderr}");
+    assert!(
+        stderr.contains("cannot read `no/such/file.ward`"),
+        "{stderr}"
+    );
 }
 
 #[test]
@@ -85,6 +92,9 @@ fn ascii_output_is_plain() {
     assert_eq!(code, 0);
     let result_lines: Vec<&str> = stdout.lines().filter(|l| !l.starts_with("line ")).collect();
     for line in result_lines {
-        assert!(!line.contains('∂') && !line.contains('δ') && !line.contains('⟨'), "{line}");
+        assert!(
+            !line.contains('∂') && !line.contains('δ') && !line.contains('⟨'),
+            "{line}"
+        );
     }
 }

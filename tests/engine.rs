@@ -34,7 +34,9 @@ fn simplify_all(text: &str) -> Vec<String> {
         .items
         .iter()
         .filter_map(|item| match &item.kind {
-            ItemKind::Simplify { expr, .. } => Some(printer.term(&engine.simplify(expr).expect("simplifies").term)),
+            ItemKind::Simplify { expr, .. } => {
+                Some(printer.term(&engine.simplify(expr).expect("simplifies").term))
+            }
             ItemKind::Claim { .. } => None,
         })
         .collect()
@@ -53,7 +55,9 @@ const WALL: &str = "dimension d\nhalfspace y >= 0\nscalar O dim Delta\nboundary 
 #[test]
 fn divergence_gives_one_contact_term_per_insertion() {
     // Di Francesco et al. (1997), eq. 4.66.
-    let out = simplify_all(&format!("{BULK}simplify ∂[mu](x) <T[mu,nu](x) O(x1) O(x2)>"));
+    let out = simplify_all(&format!(
+        "{BULK}simplify ∂[mu](x) <T[mu,nu](x) O(x1) O(x2)>"
+    ));
     assert_eq!(
         out,
         ["- delta(x - x1) del[nu](x1) <O(x1) O(x2)> - delta(x - x2) del[nu](x2) <O(x1) O(x2)>"]
@@ -93,7 +97,9 @@ fn halfspace_divergence_has_bulk_boundary_and_displacement_terms() {
 
 /// A file with `bulk` bulk and `boundary` boundary insertions in the divergence.
 fn many_insertions(bulk: usize, boundary: usize) -> String {
-    let mut text = String::from("dimension 3\nhalfspace y >= 0\nscalar O dim Delta\nboundary scalar psi dim 2\n");
+    let mut text = String::from(
+        "dimension 3\nhalfspace y >= 0\nscalar O dim Delta\nboundary scalar psi dim 2\n",
+    );
     let bulk_points: Vec<String> = (1..=bulk).map(|i| format!("x{i}")).collect();
     let boundary_points: Vec<String> = (1..=boundary).map(|i| format!("s{i}")).collect();
     text += &format!("points x {}\n", bulk_points.join(" "));
@@ -132,8 +138,14 @@ fn a_sign_error_is_not_proved_and_says_why() {
     );
     assert_eq!(code, 1);
     assert!(report.contains("NOT PROVED"), "{report}");
-    assert!(report.contains("- 2 δ(x - x1) ∂[nu](x1) ⟨O(x1) O(x2)⟩"), "{report}");
-    assert!(report.contains("stop reason: the rules saturated"), "{report}");
+    assert!(
+        report.contains("- 2 δ(x - x1) ∂[nu](x1) ⟨O(x1) O(x2)⟩"),
+        "{report}"
+    );
+    assert!(
+        report.contains("stop reason: the rules saturated"),
+        "{report}"
+    );
     assert!(report.ends_with("0 proved, 1 not proved\n"), "{report}");
 }
 
@@ -182,7 +194,11 @@ fn user_rule_file_for_a_conserved_current() {
         "{}",
         out.report
     );
-    assert!(out.report.contains("rules: current-conservation ×1"), "{}", out.report);
+    assert!(
+        out.report.contains("rules: current-conservation ×1"),
+        "{}",
+        out.report
+    );
 }
 
 #[test]

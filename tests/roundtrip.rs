@@ -34,7 +34,8 @@ fn check_file(path: &str) {
     let mut book = RuleBook::shipped().expect("shipped rules");
     if text.contains("rules \"u1-current.rules\"") {
         let rules = std::fs::read_to_string("examples/u1-current.rules").expect("rule file");
-        book.load(&Source::new("u1-current.rules", rules)).expect("loads");
+        book.load(&Source::new("u1-current.rules", rules))
+            .expect("loads");
     }
     let text = text.replace("rules \"u1-current.rules\"", "");
     let p = program(&text);
@@ -83,6 +84,10 @@ fn coefficients_and_powers_round_trip() {
     for style in [Style::Unicode, Style::Ascii] {
         let printed = Printer::new(&p.ctx, style).term(&t);
         let again = program(&format!("{text}simplify {printed}\n"));
-        assert_eq!(normalize(&again.ctx, &last_expr(&again)).expect("normalises"), t, "{printed}");
+        assert_eq!(
+            normalize(&again.ctx, &last_expr(&again)).expect("normalises"),
+            t,
+            "{printed}"
+        );
     }
 }

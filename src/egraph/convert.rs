@@ -113,15 +113,21 @@ impl Reader<'_> {
             Ward::DeltaY(p) => Term::DeltaY(self.point(*p)?),
             Ward::Normal(i) => Term::Normal(self.index(*i)?),
             Ward::Kron([i, j]) => Term::Kron(self.index(*i)?, self.index(*j)?),
-            Ward::Der([i, p, b]) => Term::Der(self.index(*i)?, self.point(*p)?, Box::new(self.term(*b)?)),
+            Ward::Der([i, p, b]) => {
+                Term::Der(self.index(*i)?, self.point(*p)?, Box::new(self.term(*b)?))
+            }
             Ward::Corr(ids) => Term::Corr(ids.iter().map(|i| self.op(*i)).collect::<Result<_>>()?),
-            Ward::Op(_) | Ward::Par(_) => return Err(internal("an insertion or point stands where a term should")),
+            Ward::Op(_) | Ward::Par(_) => {
+                return Err(internal("an insertion or point stands where a term should"))
+            }
         })
     }
 
     fn op(&self, id: Id) -> Result<Op> {
         let Ward::Op(children) = self.node(id)? else {
-            return Err(internal("a correlator holds something other than an insertion"));
+            return Err(internal(
+                "a correlator holds something other than an insertion",
+            ));
         };
         let [name, point, indices @ ..] = &children[..] else {
             return Err(internal("an insertion without name or point"));
@@ -129,7 +135,10 @@ impl Reader<'_> {
         Ok(Op {
             name: self.name(*name)?,
             point: self.point(*point)?,
-            indices: indices.iter().map(|i| self.index(*i)).collect::<Result<_>>()?,
+            indices: indices
+                .iter()
+                .map(|i| self.index(*i))
+                .collect::<Result<_>>()?,
         })
     }
 
@@ -142,7 +151,11 @@ impl Reader<'_> {
 
     fn index(&self, id: Id) -> Result<Index> {
         let name = self.name(id)?;
-        Ok(if name == NORMAL { Index::N } else { Index::Named(name) })
+        Ok(if name == NORMAL {
+            Index::N
+        } else {
+            Index::Named(name)
+        })
     }
 
     fn point(&self, id: Id) -> Result<Point> {

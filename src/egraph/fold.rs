@@ -25,7 +25,9 @@ impl Analysis<Ward> for Fold {
         let value = |id: &Id| egraph[*id].data.clone();
         match enode {
             Ward::Num(c) => Some(c.clone()),
-            Ward::Add(ids) => ids.iter().try_fold(BigRational::zero(), |acc, id| Some(acc + value(id)?)),
+            Ward::Add(ids) => ids
+                .iter()
+                .try_fold(BigRational::zero(), |acc, id| Some(acc + value(id)?)),
             Ward::Mul(ids) => {
                 let mut acc = BigRational::from_integer(1.into());
                 for id in ids.iter() {

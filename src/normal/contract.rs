@@ -222,7 +222,11 @@ fn canonical_factor(f: Term) -> Term {
 pub fn canonical_dummies(ctx: &Context, mut m: Mono) -> Mono {
     for _ in 0..4 {
         let counts = occurrences(&m.factors);
-        let free: BTreeSet<&String> = counts.iter().filter(|(_, c)| **c == 1).map(|(n, _)| n).collect();
+        let free: BTreeSet<&String> = counts
+            .iter()
+            .filter(|(_, c)| **c == 1)
+            .map(|(n, _)| n)
+            .collect();
         let mut order: Vec<String> = Vec::new();
         for f in &m.factors {
             visit_indices(f, &mut |i| {

@@ -143,7 +143,10 @@ fn power(ctx: &Context, b: &Term, e: &Term) -> Result<Vec<Mono>> {
         return if q.is_positive() {
             Ok(vec![])
         } else {
-            Err(Error::new(ErrorKind::Arithmetic, "division by zero: zero raised to a negative power"))
+            Err(Error::new(
+                ErrorKind::Arithmetic,
+                "division by zero: zero raised to a negative power",
+            ))
         };
     }
     if base.iter().any(|m| !m.factors.is_empty()) {
@@ -228,7 +231,8 @@ pub fn collect(monos: Vec<Mono>) -> Term {
 fn poly_term(poly: BTreeMap<Atoms, BigRational>) -> Term {
     // Monomials with atoms first (in atom order), the constant last:
     // `2 d - 1`, not `-1 + 2 d`.
-    let mut ordered: Vec<(&Atoms, &BigRational)> = poly.iter().filter(|(a, _)| !a.is_empty()).collect();
+    let mut ordered: Vec<(&Atoms, &BigRational)> =
+        poly.iter().filter(|(a, _)| !a.is_empty()).collect();
     ordered.extend(poly.iter().filter(|(a, _)| a.is_empty()));
     if ordered.len() == 1 {
         let (atoms, c) = ordered[0];
@@ -238,8 +242,8 @@ fn poly_term(poly: BTreeMap<Atoms, BigRational>) -> Term {
     // `d g^2 - g^2`.
     let common: Atoms = ordered[0]
         .0
-        .iter()
-        .filter_map(|(a, _)| {
+        .keys()
+        .filter_map(|a| {
             let exps: Option<Vec<&BigRational>> = ordered.iter().map(|(m, _)| m.get(a)).collect();
             let min = exps?.into_iter().min()?.clone();
             Some((a.clone(), min))
@@ -272,7 +276,11 @@ fn poly_term(poly: BTreeMap<Atoms, BigRational>) -> Term {
         return Term::Mul(factors);
     }
     let leading_negative = ordered.first().is_some_and(|(_, c)| c.is_negative());
-    let sign = if leading_negative { -BigRational::one() } else { BigRational::one() };
+    let sign = if leading_negative {
+        -BigRational::one()
+    } else {
+        BigRational::one()
+    };
     let monos: Vec<Term> = ordered
         .iter()
         .map(|(atoms, c)| monomial::scalar_term(&(*c * &sign), atoms))

@@ -88,7 +88,10 @@ impl Mono {
             return if q.is_positive() {
                 Ok(Mono::scalar(BigRational::zero()))
             } else {
-                Err(Error::new(ErrorKind::Arithmetic, "division by zero: zero raised to a negative power"))
+                Err(Error::new(
+                    ErrorKind::Arithmetic,
+                    "division by zero: zero raised to a negative power",
+                ))
             };
         }
         match q.is_integer().then(|| q.to_i32()).flatten() {
@@ -101,7 +104,10 @@ impl Mono {
                 // an atom, with its sign pulled out when q has odd denominator.
                 let c = self.coef.clone();
                 if !c.is_one() {
-                    let e = out.atoms.entry(Term::Num(c)).or_insert_with(BigRational::zero);
+                    let e = out
+                        .atoms
+                        .entry(Term::Num(c))
+                        .or_insert_with(BigRational::zero);
                     *e += q;
                 }
             }
@@ -120,7 +126,10 @@ pub fn scalar_term(c: &BigRational, atoms: &Atoms) -> Term {
         if e.is_one() {
             fs.push(a.clone());
         } else {
-            fs.push(Term::Pow(Box::new(a.clone()), Box::new(Term::Num(e.clone()))));
+            fs.push(Term::Pow(
+                Box::new(a.clone()),
+                Box::new(Term::Num(e.clone())),
+            ));
         }
     }
     if fs.len() == 1 {

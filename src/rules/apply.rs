@@ -19,11 +19,17 @@ pub fn instantiate(eg: &mut EGraph, ctx: &Context, pat: &Pat, b: &Binding) -> Op
         Pat::Dim => add_term(eg, &ctx.dim()),
         Pat::Sym(s) => eg.add(Ward::Name(Symbol::from(s.as_str()))),
         Pat::Add(ps) => {
-            let ids = ps.iter().map(|p| instantiate(eg, ctx, p, b)).collect::<Option<Vec<_>>>()?;
+            let ids = ps
+                .iter()
+                .map(|p| instantiate(eg, ctx, p, b))
+                .collect::<Option<Vec<_>>>()?;
             eg.add(Ward::Add(ids.into()))
         }
         Pat::Mul(ps) => {
-            let ids = ps.iter().map(|p| instantiate(eg, ctx, p, b)).collect::<Option<Vec<_>>>()?;
+            let ids = ps
+                .iter()
+                .map(|p| instantiate(eg, ctx, p, b))
+                .collect::<Option<Vec<_>>>()?;
             eg.add(Ward::Mul(ids.into()))
         }
         Pat::Pow(x, y) => {
@@ -39,8 +45,10 @@ pub fn instantiate(eg: &mut EGraph, ctx: &Context, pat: &Pat, b: &Binding) -> Op
             if let Some(s) = splice {
                 ids.extend_from_slice(b.splice(s)?);
             }
-            let mut keyed: Vec<(InsertionKey, Id)> =
-                ids.into_iter().map(|id| (insertion_key(eg, ctx, id), id)).collect();
+            let mut keyed: Vec<(InsertionKey, Id)> = ids
+                .into_iter()
+                .map(|id| (insertion_key(eg, ctx, id), id))
+                .collect();
             keyed.sort();
             eg.add(Ward::Corr(keyed.into_iter().map(|(_, id)| id).collect()))
         }

@@ -26,7 +26,10 @@ impl Binding {
     }
 
     pub fn splice(&self, name: &str) -> Option<&[Id]> {
-        self.splices.iter().find(|(n, _)| n == name).map(|(_, ids)| ids.as_slice())
+        self.splices
+            .iter()
+            .find(|(n, _)| n == name)
+            .map(|(_, ids)| ids.as_slice())
     }
 
     /// Binds `name` to `id`, or checks that an earlier binding agrees.
@@ -101,14 +104,26 @@ pub fn match_node(eg: &EGraph, pat: &Pat, node: &Ward, b: &Binding) -> Vec<Bindi
     match (pat, node) {
         (Pat::Var(_) | Pat::Num(_), _) => vec![],
         (Pat::Sym(s), Ward::Name(n)) if n.as_str() == s => vec![b.clone()],
-        (Pat::Add(ps), Ward::Add(ids)) | (Pat::Mul(ps), Ward::Mul(ids)) if ps.len() == ids.len() => {
+        (Pat::Add(ps), Ward::Add(ids)) | (Pat::Mul(ps), Ward::Mul(ids))
+            if ps.len() == ids.len() =>
+        {
             match_children(eg, ps.iter().zip(ids.iter()), b)
         }
-        (Pat::Pow(x, y), Ward::Pow([a, e])) => match_children(eg, [(&**x, a), (&**y, e)].into_iter(), b),
+        (Pat::Pow(x, y), Ward::Pow([a, e])) => {
+            match_children(eg, [(&**x, a), (&**y, e)].into_iter(), b)
+        }
         (Pat::Corr { items, splice }, Ward::Corr(children)) => {
             let mut out = Vec::new();
             let mut used = vec![false; children.len()];
-            assign(eg, items, splice.as_deref(), children, &mut used, b, &mut out);
+            assign(
+                eg,
+                items,
+                splice.as_deref(),
+                children,
+                &mut used,
+                b,
+                &mut out,
+            );
             out
         }
         (Pat::Der(i, p, body), Ward::Der([ci, cp, cb])) => {
@@ -141,7 +156,10 @@ fn match_children<'p>(
 ) -> Vec<Binding> {
     let mut acc = vec![b.clone()];
     for (p, id) in pairs {
-        acc = acc.iter().flat_map(|b| match_class(eg, p, *id, b)).collect();
+        acc = acc
+            .iter()
+            .flat_map(|b| match_class(eg, p, *id, b))
+            .collect();
         if acc.is_empty() {
             break;
         }
@@ -194,7 +212,9 @@ fn match_op(eg: &EGraph, pat: &OpPat, class: Id, b: &Binding) -> Vec<Binding> {
     let mut out = Vec::new();
     for node in &eg[class].nodes {
         let Ward::Op(children) = node else { continue };
-        let [name, point, indices @ ..] = &children[..] else { continue };
+        let [name, point, indices @ ..] = &children[..] else {
+            continue;
+        };
         if indices.len() != pat.indices.len() {
             continue;
         }
@@ -208,7 +228,10 @@ fn match_op(eg: &EGraph, pat: &OpPat, class: Id, b: &Binding) -> Vec<Binding> {
             .flat_map(|b1| match_point(eg, &pat.point, *point, b1))
             .collect();
         for (ip, ic) in pat.indices.iter().zip(indices) {
-            acc = acc.iter().flat_map(|b1| match_index(eg, ip, *ic, b1)).collect();
+            acc = acc
+                .iter()
+                .flat_map(|b1| match_index(eg, ip, *ic, b1))
+                .collect();
         }
         out.extend(acc);
     }
@@ -300,7 +323,9 @@ pub fn holds(eg: &EGraph, ctx: &Context, cond: &Cond, b: &Binding) -> bool {
 
 /// A property of a single insertion in a sequence.
 fn insertion_has(eg: &EGraph, ctx: &Context, class: Id, prop: Property) -> bool {
-    let Some((_, point, indices)) = insertion(eg, class) else { return false };
+    let Some((_, point, indices)) = insertion(eg, class) else {
+        return false;
+    };
     match prop {
         Property::Scalar => indices.is_empty(),
         Property::Bulk => point_on_boundary(eg, ctx, point) == Some(false),
@@ -318,7 +343,9 @@ fn class_is(eg: &EGraph, ctx: &Context, class: Id, prop: Property) -> bool {
             _ => false,
         };
     }
-    let Some(name) = name_of(eg, class) else { return false };
+    let Some(name) = name_of(eg, class) else {
+        return false;
+    };
     match prop {
         Property::Normal => name == NORMAL,
         Property::Parallel => ctx.parallel.contains(name),

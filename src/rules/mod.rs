@@ -23,8 +23,14 @@ pub use pattern::{Cond, Pat};
 
 /// The rule files that ship with wardsmith, by file name.
 pub const SHIPPED: &[(&str, &str)] = &[
-    ("stress-tensor.rules", include_str!("../../rules/stress-tensor.rules")),
-    ("halfspace.rules", include_str!("../../rules/halfspace.rules")),
+    (
+        "stress-tensor.rules",
+        include_str!("../../rules/stress-tensor.rules"),
+    ),
+    (
+        "halfspace.rules",
+        include_str!("../../rules/halfspace.rules"),
+    ),
 ];
 
 /// One rule, lowered.
@@ -125,7 +131,11 @@ impl RuleBook {
                 for node in &class.nodes {
                     let matched = matcher::match_node(eg, &rule.from, node, &Binding::default())
                         .iter()
-                        .any(|b| rule.conditions.iter().all(|c| matcher::holds(eg, ctx, c, b)));
+                        .any(|b| {
+                            rule.conditions
+                                .iter()
+                                .all(|c| matcher::holds(eg, ctx, c, b))
+                        });
                     if matched {
                         out.insert(node.clone());
                     }
@@ -144,13 +154,24 @@ struct WardRule {
 }
 
 impl Searcher<Ward, Fold> for WardRule {
-    fn search_eclass_with_limit(&self, eg: &EGraph, eclass: Id, limit: usize) -> Option<SearchMatches<'_, Ward>> {
-        let substs: Vec<Subst> = matcher::match_class(eg, &self.rule.from, eclass, &Binding::default())
-            .into_iter()
-            .filter(|b| self.rule.conditions.iter().all(|c| matcher::holds(eg, &self.ctx, c, b)))
-            .take(limit)
-            .map(|b| b.to_subst())
-            .collect();
+    fn search_eclass_with_limit(
+        &self,
+        eg: &EGraph,
+        eclass: Id,
+        limit: usize,
+    ) -> Option<SearchMatches<'_, Ward>> {
+        let substs: Vec<Subst> =
+            matcher::match_class(eg, &self.rule.from, eclass, &Binding::default())
+                .into_iter()
+                .filter(|b| {
+                    self.rule
+                        .conditions
+                        .iter()
+                        .all(|c| matcher::holds(eg, &self.ctx, c, b))
+                })
+                .take(limit)
+                .map(|b| b.to_subst())
+                .collect();
         if substs.is_empty() {
             None
         } else {

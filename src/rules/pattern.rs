@@ -12,7 +12,9 @@ use num_rational::BigRational;
 
 use crate::context::{DIMENSION, NORMAL};
 use crate::diagnostic::{Error, ErrorKind, Result, Source};
-use crate::syntax::ast::{self, BinOp, ConditionKind, Expr, ExprKind, Insertion, Name, Property, Span};
+use crate::syntax::ast::{
+    self, BinOp, ConditionKind, Expr, ExprKind, Insertion, Name, Property, Span,
+};
 
 /// A pattern (rule left side) or template (rule right side).
 #[derive(Clone, Debug, PartialEq, Eq)]
@@ -92,7 +94,10 @@ pub fn lower_rule(source: &Arc<Source>, rule: &ast::Rule) -> Result<(Pat, Pat, V
     let l = Lowering { source };
     let from = l.pat(&rule.from, false)?;
     if matches!(from, Pat::Var(_)) {
-        return Err(l.err(rule.from.span, "a rule's left side cannot be a bare variable"));
+        return Err(l.err(
+            rule.from.span,
+            "a rule's left side cannot be a bare variable",
+        ));
     }
     let mut bound = Bound::default();
     collect_bound(&from, &mut bound);
@@ -103,7 +108,10 @@ pub fn lower_rule(source: &Arc<Source>, rule: &ast::Rule) -> Result<(Pat, Pat, V
         let cond = l.cond(c)?;
         if let Cond::Is(v, _) | Cond::Has(v, _) = &cond {
             if !bound.vars.contains(v) && !bound.splices.contains(v) {
-                return Err(l.err(c.span, format!("condition on `?{v}`, which the left side does not bind")));
+                return Err(l.err(
+                    c.span,
+                    format!("condition on `?{v}`, which the left side does not bind"),
+                ));
             }
         }
         conds.push(cond);
@@ -194,7 +202,10 @@ impl Lowering<'_> {
                     key: key.text.clone(),
                 }
             }
-            ExprKind::Neg(a) => Pat::Mul(vec![Pat::Num(BigRational::from_integer((-1).into())), self.pat(a, template)?]),
+            ExprKind::Neg(a) => Pat::Mul(vec![
+                Pat::Num(BigRational::from_integer((-1).into())),
+                self.pat(a, template)?,
+            ]),
             ExprKind::Binary { op, lhs, rhs } => {
                 let l = self.pat(lhs, template)?;
                 let r = self.pat(rhs, template)?;
@@ -207,7 +218,10 @@ impl Lowering<'_> {
                     BinOp::Mul => Pat::Mul(flatten_mul(l, r)),
                     BinOp::Div => Pat::Mul(flatten_mul(
                         l,
-                        Pat::Pow(Box::new(r), Box::new(Pat::Num(BigRational::from_integer((-1).into())))),
+                        Pat::Pow(
+                            Box::new(r),
+                            Box::new(Pat::Num(BigRational::from_integer((-1).into()))),
+                        ),
                     )),
                     BinOp::Pow => Pat::Pow(Box::new(l), Box::new(r)),
                 }
@@ -223,12 +237,17 @@ impl Lowering<'_> {
                             } else {
                                 NamePat::Lit(op.name.text.clone())
                             },
-                            indices: op.indices.iter().map(|i| self.index(i)).collect::<Result<_>>()?,
+                            indices: op
+                                .indices
+                                .iter()
+                                .map(|i| self.index(i))
+                                .collect::<Result<_>>()?,
                             point: self.point(&op.point)?,
                         }),
                         Insertion::Splice(v) => {
                             if splice.is_some() {
-                                return Err(self.err(v.span, "a correlator takes at most one `...?sequence`"));
+                                return Err(self
+                                    .err(v.span, "a correlator takes at most one `...?sequence`"));
                             }
                             splice = Some(v.text.clone());
                         }
@@ -236,10 +255,14 @@ impl Lowering<'_> {
                 }
                 Pat::Corr { items: ops, splice }
             }
-            ExprKind::Op(op) => return Err(self.err(op.span, "an operator stands outside a correlator")),
-            ExprKind::Deriv { index, point, body } => {
-                Pat::Der(self.index(index)?, self.point(point)?, Box::new(self.pat(body, template)?))
+            ExprKind::Op(op) => {
+                return Err(self.err(op.span, "an operator stands outside a correlator"))
             }
+            ExprKind::Deriv { index, point, body } => Pat::Der(
+                self.index(index)?,
+                self.point(point)?,
+                Box::new(self.pat(body, template)?),
+            ),
             ExprKind::Kron(i, j) => Pat::Kron(self.index(i)?, self.index(j)?),
             ExprKind::Normal(i) => Pat::Normal(self.index(i)?),
             ExprKind::DeltaPoints(p, q) => Pat::DeltaFn(self.point(p)?, self.point(q)?),
@@ -252,7 +275,10 @@ impl Lowering<'_> {
                 body,
             } => {
                 if !template {
-                    return Err(self.err(e.span, "`sum … in …` may appear only on a rule's right side"));
+                    return Err(self.err(
+                        e.span,
+                        "`sum … in …` may appear only on a rule's right side",
+                    ));
                 }
                 Pat::Sum {
                     op: op.text.clone(),
@@ -271,13 +297,25 @@ impl Lowering<'_> {
         } else if n.text == NORMAL {
             Ok(IdxPat::N)
         } else {
-            Err(self.err(n.span, format!("index `{}` in a rule: use a variable like `?{}` or the normal `n`", n.text, n.text)))
+            Err(self.err(
+                n.span,
+                format!(
+                    "index `{}` in a rule: use a variable like `?{}` or the normal `n`",
+                    n.text, n.text
+                ),
+            ))
         }
     }
 
     fn point(&self, p: &ast::PointRef) -> Result<PtPat> {
         if !p.name.is_var {
-            return Err(self.err(p.span, format!("point `{}` in a rule: use a variable like `?{}`", p.name.text, p.name.text)));
+            return Err(self.err(
+                p.span,
+                format!(
+                    "point `{}` in a rule: use a variable like `?{}`",
+                    p.name.text, p.name.text
+                ),
+            ));
         }
         Ok(if p.par {
             PtPat::Par(p.name.text.clone())
@@ -297,12 +335,19 @@ impl Lowering<'_> {
 
     /// Every variable of a template must be bound by the pattern or by an
     /// enclosing `sum`.
-    fn check_template(&self, e: &Expr, p: &Pat, bound: &Bound, local: &BTreeSet<String>) -> Result<()> {
+    fn check_template(
+        &self,
+        e: &Expr,
+        p: &Pat,
+        bound: &Bound,
+        local: &BTreeSet<String>,
+    ) -> Result<()> {
         let known = |v: &str| bound.vars.contains(v) || local.contains(v);
-        let unbound = |v: &str| self.err(e.span, format!("`?{v}` on the right side is not bound by the left side"));
         match p {
-            Pat::Var(v) | Pat::Attr { var: v, .. } if !known(v) => Err(unbound(v)),
-            Pat::Add(ps) | Pat::Mul(ps) => ps.iter().try_for_each(|q| self.check_template(e, q, bound, local)),
+            Pat::Var(v) | Pat::Attr { var: v, .. } => self.check_var(e, v, &known),
+            Pat::Add(ps) | Pat::Mul(ps) => ps
+                .iter()
+                .try_for_each(|q| self.check_template(e, q, bound, local)),
             Pat::Pow(a, b) => {
                 self.check_template(e, a, bound, local)?;
                 self.check_template(e, b, bound, local)
@@ -310,26 +355,20 @@ impl Lowering<'_> {
             Pat::Corr { items, splice } => {
                 if let Some(s) = splice {
                     if !bound.splices.contains(s) {
-                        return Err(self.err(e.span, format!("sequence `...?{s}` is not bound by the left side")));
+                        return Err(self.err(
+                            e.span,
+                            format!("sequence `...?{s}` is not bound by the left side"),
+                        ));
                     }
                 }
                 for item in items {
                     if let NamePat::Var(v) = &item.name {
-                        if !known(v) {
-                            return Err(unbound(v));
-                        }
+                        self.check_var(e, v, &known)?;
                     }
                     for i in &item.indices {
-                        if let IdxPat::Var(v) = i {
-                            if !known(v) {
-                                return Err(unbound(v));
-                            }
-                        }
+                        self.check_index(e, i, &known)?;
                     }
-                    let (PtPat::Var(v) | PtPat::Par(v)) = &item.point;
-                    if !known(v) {
-                        return Err(unbound(v));
-                    }
+                    self.check_point(e, &item.point, &known)?;
                 }
                 Ok(())
             }
@@ -362,9 +401,8 @@ impl Lowering<'_> {
                 inner.insert(op.clone());
                 inner.insert(point.clone());
                 if let Some(Cond::Is(v, _) | Cond::Has(v, _)) = filter {
-                    if !inner.contains(v) && !bound.vars.contains(v) {
-                        return Err(unbound(v));
-                    }
+                    let known_inside = |w: &str| inner.contains(w) || bound.vars.contains(w);
+                    self.check_var(e, v, &known_inside)?;
                 }
                 self.check_template(e, body, bound, &inner)
             }
@@ -374,21 +412,29 @@ impl Lowering<'_> {
 
     fn check_index(&self, e: &Expr, i: &IdxPat, known: &dyn Fn(&str) -> bool) -> Result<()> {
         match i {
-            IdxPat::Var(v) if !known(v) => Err(self.err(e.span, format!("`?{v}` on the right side is not bound by the left side"))),
-            _ => Ok(()),
+            IdxPat::Var(v) => self.check_var(e, v, known),
+            IdxPat::N => Ok(()),
         }
     }
 
     fn check_point(&self, e: &Expr, p: &PtPat, known: &dyn Fn(&str) -> bool) -> Result<()> {
         let (PtPat::Var(v) | PtPat::Par(v)) = p;
+        self.check_var(e, v, known)
+    }
+
+    fn check_var(&self, e: &Expr, v: &str, known: &dyn Fn(&str) -> bool) -> Result<()> {
         if known(v) {
             Ok(())
         } else {
-            Err(self.err(e.span, format!("`?{v}` on the right side is not bound by the left side")))
+            Err(self.err(
+                e.span,
+                format!("`?{v}` on the right side is not bound by the left side"),
+            ))
         }
     }
 }
 
+/// `l + r` with a left sum flattened: `a + b + c` is one n-ary sum.
 fn flatten_add(l: Pat, r: Pat) -> Vec<Pat> {
     let mut out = match l {
         Pat::Add(ps) => ps,
@@ -398,11 +444,13 @@ fn flatten_add(l: Pat, r: Pat) -> Vec<Pat> {
     out
 }
 
+/// `l * r` with a left product flattened.
 fn flatten_mul(l: Pat, r: Pat) -> Vec<Pat> {
-    let mut out = match l {
-        Pat::Mul(ps) => ps,
-        p => vec![p],
-    };
-    out.push(r);
-    out
+    match (l, r) {
+        (Pat::Mul(mut ps), r) => {
+            ps.push(r);
+            ps
+        }
+        (l, r) => vec![l, r],
+    }
 }

@@ -109,7 +109,7 @@ impl Term {
         matches!(self, Term::Num(c) if c.is_zero())
     }
 
-    pub fn neg(self) -> Term {
+    pub fn negated(self) -> Term {
         Term::Mul(vec![Term::int(-1), self])
     }
 

@@ -102,7 +102,9 @@ impl<'a> Printer<'a> {
                         Term::Pow(b.clone(), Box::new(Term::Num(q)))
                     });
                 }
-                Term::Num(_) | Term::Sym(_) | Term::Pow(..) | Term::Add(_) | Term::Mul(_) => numer.push(f.clone()),
+                Term::Num(_) | Term::Sym(_) | Term::Pow(..) | Term::Add(_) | Term::Mul(_) => {
+                    numer.push(f.clone())
+                }
                 _ => rest.push(f),
             }
         }
