@@ -210,3 +210,15 @@ fn shipped_examples_check_clean() {
         assert_eq!(out.code, 0, "{path}:\n{}", out.report);
     }
 }
+
+#[test]
+fn zero_stands_for_a_tensor_of_any_rank() {
+    // Away from the boundary and with no insertions T is conserved: the
+    // divergence of <T> alone is zero, written `= 0` with nu free.
+    let (report, code) = run(
+        &format!("{BULK}claim ∂[mu](x) <T[mu,nu](x)> = 0\nclaim 0 = ∂[mu](x) <T[mu,nu](x) O(x1)> + δ(x - x1) ∂[nu](x1) <O(x1)>"),
+        Mode::Check,
+    );
+    assert_eq!(code, 0, "{report}");
+    assert!(report.ends_with("2 proved, 0 not proved\n"), "{report}");
+}

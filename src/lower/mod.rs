@@ -87,8 +87,11 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
             }
             Stmt::Claim { lhs, rhs, span } => {
                 seen_expression = true;
-                let profile = lowerer.free_indices(lhs)?;
-                lowerer.same_free_indices(&profile, rhs, "the right side")?;
+                // `L = 0` and `0 = R` hold for tensors of any index structure.
+                if !is_zero(lhs) {
+                    let profile = lowerer.free_indices(lhs)?;
+                    lowerer.same_free_indices(&profile, rhs, "the right side")?;
+                }
                 items.push(Item {
                     kind: ItemKind::Claim {
                         lhs: lowerer.expr(lhs)?,
@@ -435,6 +438,9 @@ impl Lowerer {
 
     fn same_free_indices(&self, left: &indices::Profile, e: &Expr, what: &str) -> Result<()> {
         let right = self.free_indices(e)?;
+        if is_zero(e) {
+            return Ok(());
+        }
         let l: BTreeSet<&String> = left.iter().collect();
         let r: BTreeSet<&String> = right.iter().collect();
         if l != r {
@@ -781,6 +787,12 @@ fn count_indices(n: usize) -> String {
         1 => "1 index".into(),
         n => format!("{n} indices"),
     }
+}
+
+/// True for an expression that is exactly the number zero, which stands for
+/// the zero tensor of any index structure.
+fn is_zero(e: &Expr) -> bool {
+    constant_value(e).is_some_and(|v| v.is_zero())
 }
 
 /// The exact value of an expression made of numbers only.

@@ -177,7 +177,8 @@ fn power(ctx: &Context, b: &Term, e: &Term) -> Result<Vec<Mono>> {
 fn unsupported_power() -> Error {
     Error::new(
         ErrorKind::Unsupported,
-        "only scalar expressions can be raised to a non-integer or symbolic power",
+        "a correlator, δ-function or tensor can only be raised to a positive whole power; \
+         negative, fractional and symbolic powers apply to scalar expressions",
     )
 }
 

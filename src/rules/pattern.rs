@@ -395,7 +395,8 @@ impl Lowering<'_> {
                 body,
             } => {
                 if !bound.splices.contains(splice) {
-                    return Err(self.err(e.span, format!("`sum` runs over `?{splice}`, which the left side does not bind as `...?{splice}`")));
+                    let span = var_span(e, splice).unwrap_or(e.span);
+                    return Err(self.err(span, format!("`sum` runs over `?{splice}`, which the left side does not bind as `...?{splice}`")));
                 }
                 let mut inner = local.clone();
                 inner.insert(op.clone());
@@ -426,11 +427,57 @@ impl Lowering<'_> {
         if known(v) {
             Ok(())
         } else {
-            Err(self.err(
-                e.span,
-                format!("`?{v}` on the right side is not bound by the left side"),
-            ))
+            let span = var_span(e, v).unwrap_or(e.span);
+            Err(
+                Error::at(ErrorKind::Rule, self.source, span, format!("`?{v}` on the right side is not bound by the left side"))
+                    .with_label("unbound variable")
+                    .with_note("every variable of a rule's right side must appear on its left side or in an enclosing `sum ?o(?p) in …`"),
+            )
         }
+    }
+}
+
+/// Where variable `?v` is first written inside `e`.
+fn var_span(e: &Expr, v: &str) -> Option<Span> {
+    let name = |n: &Name| (n.is_var && n.text == v).then_some(n.span);
+    let point = |p: &ast::PointRef| name(&p.name);
+    match &e.kind {
+        ExprKind::Var(n) => name(n),
+        ExprKind::Attr { var, .. } => name(var),
+        ExprKind::Neg(a) => var_span(a, v),
+        ExprKind::Binary { lhs, rhs, .. } => var_span(lhs, v).or_else(|| var_span(rhs, v)),
+        ExprKind::Corr(items) => items.iter().find_map(|item| match item {
+            Insertion::Op(op) => name(&op.name)
+                .or_else(|| op.indices.iter().find_map(name))
+                .or_else(|| point(&op.point)),
+            Insertion::Splice(n) => name(n),
+        }),
+        ExprKind::Op(op) => name(&op.name)
+            .or_else(|| op.indices.iter().find_map(name))
+            .or_else(|| point(&op.point)),
+        ExprKind::Deriv {
+            index,
+            point: p,
+            body,
+        } => name(index)
+            .or_else(|| point(p))
+            .or_else(|| var_span(body, v)),
+        ExprKind::Kron(i, j) => name(i).or_else(|| name(j)),
+        ExprKind::Normal(i) => name(i),
+        ExprKind::DeltaPoints(p, q) => point(p).or_else(|| point(q)),
+        ExprKind::DeltaNormal { point: p, .. } => point(p),
+        ExprKind::Sum {
+            splice,
+            filter,
+            body,
+            ..
+        } => name(splice)
+            .or_else(|| match filter.as_ref().map(|c| &c.kind) {
+                Some(ast::ConditionKind::Is(n, _) | ast::ConditionKind::Has(n, _)) => name(n),
+                _ => None,
+            })
+            .or_else(|| var_span(body, v)),
+        ExprKind::Num(_) | ExprKind::Name(_) => None,
     }
 }
 
