@@ -7,7 +7,7 @@
 
 use std::collections::{BTreeMap, BTreeSet};
 
-use crate::term::{Index, Point, Term};
+use crate::term::{Index, Point, Region, Term};
 
 /// Name of the built-in stress tensor.
 pub const STRESS_TENSOR: &str = "T";
@@ -37,6 +37,51 @@ pub struct PointDecl {
     pub boundary: bool,
 }
 
+/// A declared parameter with indices (a vector a[i] or a tensor ω[i,j]).
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct ParamDecl {
+    pub name: String,
+    pub rank: usize,
+    /// No normal component: a[n] = 0, ω[n,i] = 0.
+    pub parallel: bool,
+    /// ω[i,j] = -ω[j,i].
+    pub antisymmetric: bool,
+}
+
+/// A declared conformal Killing vector, by family and parameter.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum Killing {
+    /// ε = a, or ε = n when `param` is `None`.
+    Translation(Option<String>),
+    /// ε_i = ω[i,k] x[k].
+    Rotation(String),
+    /// ε_i = n[i] (e·x) - e[i] (n·x): rotation mixing n with the parallel e.
+    Mixing(String),
+    /// ε = λ x.
+    Dilatation(String),
+    /// ε_i = 2 (b·x) x[i] - x² b[i], or b = n when `param` is `None`.
+    Special(Option<String>),
+}
+
+impl Killing {
+    pub fn family(&self) -> &'static str {
+        match self {
+            Killing::Translation(_) => "translation",
+            Killing::Rotation(_) | Killing::Mixing(_) => "rotation",
+            Killing::Dilatation(_) => "dilatation",
+            Killing::Special(_) => "special conformal transformation",
+        }
+    }
+}
+
+/// Where a point lies with respect to a region, as declared by `place`.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Placement {
+    Inside,
+    Outside,
+    OnSurface,
+}
+
 /// The kind of a named index.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord)]
 pub enum IndexKind {
@@ -62,6 +107,14 @@ pub struct Context {
     /// indices are renamed to the first free names of their kind, so both
     /// sides of a claim agree on dummy names.
     pub index_pool: BTreeMap<IndexKind, BTreeSet<String>>,
+    /// Unknown functions of one variable.
+    pub functions: BTreeSet<String>,
+    /// Parameters with indices.
+    pub params: BTreeMap<String, ParamDecl>,
+    /// Conformal Killing vectors by name.
+    pub killing: BTreeMap<String, Killing>,
+    /// Declared positions of points relative to regions.
+    pub placements: Vec<(String, Region, Placement)>,
 }
 
 impl Context {
@@ -131,6 +184,19 @@ impl Context {
     /// True if an index slot holds the normal direction or a parallel index.
     pub fn is_parallel(&self, index: &Index) -> bool {
         matches!(index, Index::Named(s) if self.parallel.contains(s))
+    }
+
+    /// The declared placement of a point with respect to a region.
+    pub fn placement(&self, point: &str, region: &Region) -> Option<Placement> {
+        self.placements
+            .iter()
+            .find(|(p, r, _)| p == point && r == region)
+            .map(|(_, _, place)| *place)
+    }
+
+    /// True for operators whose two indices are symmetric (T).
+    pub fn is_symmetric_op(&self, name: &str) -> bool {
+        name == STRESS_TENSOR
     }
 
     /// Adds the built-in operators: T always, D with a half-space.

@@ -36,6 +36,28 @@ impl<'a> Reporter<'a> {
         let _ = writeln!(self.out, "  [{}]", stats(s));
     }
 
+    /// Whether a conformal Killing vector is preserved by the boundary.
+    pub fn classified(
+        &mut self,
+        line: usize,
+        name: &str,
+        family: &str,
+        normal: &crate::term::Term,
+    ) {
+        if normal.is_zero() {
+            let _ = writeln!(
+                self.out,
+                "line {line}: {name} ({family}) is preserved: {name}[n] = 0 on the boundary"
+            );
+        } else {
+            let _ = writeln!(
+                self.out,
+                "line {line}: {name} ({family}) is broken: on the boundary {name}[n] = {}",
+                self.printer.term(normal)
+            );
+        }
+    }
+
     /// The verdict on a claim or an expected result.
     pub fn verdict(&mut self, line: usize, what: &str, input: &str, v: &Verdict) -> bool {
         match v {

@@ -102,6 +102,17 @@ pub fn run_source(
                 }
             }
             (ItemKind::Claim { .. }, Mode::Simplify) => {}
+            (
+                ItemKind::Classify {
+                    name,
+                    family,
+                    normal_component,
+                },
+                _,
+            ) => {
+                let s = engine.simplify(normal_component).map_err(at_item)?;
+                reporter.classified(item.line, name, family, &s.term);
+            }
         }
     }
     if mode == Mode::Check {

@@ -37,7 +37,7 @@ fn simplify_all(text: &str) -> Vec<String> {
             ItemKind::Simplify { expr, .. } => {
                 Some(printer.term(&engine.simplify(expr).expect("simplifies").term))
             }
-            ItemKind::Claim { .. } => None,
+            _ => None,
         })
         .collect()
 }

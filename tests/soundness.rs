@@ -66,7 +66,7 @@ fn simplify_all(text: &str) -> (Arc<Context>, Vec<Term>) {
                     .unwrap_or_else(|e| panic!("{}", e.render()))
                     .term
             }
-            ItemKind::Claim { .. } => panic!("only `simplify` statements here"),
+            _ => panic!("only `simplify` statements here"),
         })
         .collect();
     (program.ctx.clone(), terms)

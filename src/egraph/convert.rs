@@ -1,11 +1,12 @@
 //! Terms into e-classes and extracted expressions back into terms.
 
 use egg::{Id, RecExpr, Symbol};
+use num_rational::BigRational;
 
 use super::{EGraph, Ward};
 use crate::context::{Context, NORMAL};
 use crate::diagnostic::{Error, ErrorKind, Result};
-use crate::term::{Index, Op, Point, Term};
+use crate::term::{Index, Integral, Op, Point, Region, Term};
 
 /// Adds a term to the e-graph and returns its class.
 pub fn add_term(eg: &mut EGraph, t: &Term) -> Id {
@@ -53,8 +54,62 @@ pub fn add_term(eg: &mut EGraph, t: &Term) -> Id {
             let ids = ops.iter().map(|o| add_op(eg, o)).collect();
             eg.add(Ward::Corr(ids))
         }
+        Term::Dist(p, q) => {
+            let p = add_point(eg, p);
+            let q = add_point(eg, q);
+            eg.add(Ward::Dist([p, q]))
+        }
+        Term::Fun(name, order, args) => {
+            let mut children = vec![
+                eg.add(Ward::Name(Symbol::from(name.as_str()))),
+                eg.add(Ward::Num(BigRational::from_integer((*order).into()))),
+            ];
+            children.extend(args.iter().map(|a| add_term(eg, a)));
+            eg.add(Ward::Fun(children.into()))
+        }
+        Term::Comp(p, i) => {
+            let p = add_point(eg, p);
+            let i = add_index(eg, i);
+            eg.add(Ward::Comp([p, i]))
+        }
+        Term::Param(name, indices) => {
+            let mut children = vec![eg.add(Ward::Name(Symbol::from(name.as_str())))];
+            children.extend(indices.iter().map(|i| add_index(eg, i)));
+            eg.add(Ward::Param(children.into()))
+        }
+        Term::OutNormal(i) => {
+            let i = add_index(eg, i);
+            eg.add(Ward::OutNormal(i))
+        }
+        Term::Integral(integral) => {
+            let var = add_point(eg, &integral.var);
+            let region = add_region(eg, &integral.region);
+            let body = add_term(eg, &integral.body);
+            if integral.surface {
+                eg.add(Ward::Surface([var, region, body]))
+            } else {
+                eg.add(Ward::Integral([var, region, body]))
+            }
+        }
     }
 }
+
+fn add_region(eg: &mut EGraph, r: &Region) -> Id {
+    match r {
+        Region::Space => eg.add(Ward::Name(Symbol::from(SPACE))),
+        Region::Halfspace => eg.add(Ward::Name(Symbol::from(HALFSPACE))),
+        Region::Boundary => eg.add(Ward::Name(Symbol::from(BOUNDARY))),
+        Region::Ball(c, radius) => {
+            let c = add_point(eg, c);
+            let radius = add_term(eg, radius);
+            eg.add(Ward::Ball([c, radius]))
+        }
+    }
+}
+
+const SPACE: &str = "space";
+const HALFSPACE: &str = "halfspace";
+const BOUNDARY: &str = "boundary";
 
 pub fn add_op(eg: &mut EGraph, op: &Op) -> Id {
     let mut children = Vec::with_capacity(2 + op.indices.len());
@@ -117,10 +172,62 @@ impl Reader<'_> {
                 Term::Der(self.index(*i)?, self.point(*p)?, Box::new(self.term(*b)?))
             }
             Ward::Corr(ids) => Term::Corr(ids.iter().map(|i| self.op(*i)).collect::<Result<_>>()?),
-            Ward::Op(_) | Ward::Par(_) => {
-                return Err(internal("an insertion or point stands where a term should"))
+            Ward::Dist([p, q]) => Term::Dist(self.point(*p)?, self.point(*q)?),
+            Ward::Fun(children) => {
+                let [name, order, args @ ..] = &children[..] else {
+                    return Err(internal("a function without name or order"));
+                };
+                let order = match self.node(*order)? {
+                    Ward::Num(c) if c.is_integer() => c.to_integer().try_into().unwrap_or(0),
+                    _ => return Err(internal("a function's order is not a number")),
+                };
+                Term::Fun(
+                    self.name(*name)?,
+                    order,
+                    args.iter().map(|a| self.term(*a)).collect::<Result<_>>()?,
+                )
+            }
+            Ward::Comp([p, i]) => Term::Comp(self.point(*p)?, self.index(*i)?),
+            Ward::Param(children) => {
+                let [name, indices @ ..] = &children[..] else {
+                    return Err(internal("a parameter without a name"));
+                };
+                Term::Param(
+                    self.name(*name)?,
+                    indices
+                        .iter()
+                        .map(|i| self.index(*i))
+                        .collect::<Result<_>>()?,
+                )
+            }
+            Ward::OutNormal(i) => Term::OutNormal(self.index(*i)?),
+            Ward::Integral([v, r, b]) | Ward::Surface([v, r, b]) => {
+                Term::Integral(Box::new(Integral {
+                    var: self.point(*v)?,
+                    region: self.region(*r)?,
+                    surface: matches!(self.node(id)?, Ward::Surface(_)),
+                    body: self.term(*b)?,
+                }))
+            }
+            Ward::Op(_) | Ward::Par(_) | Ward::Ball(_) => {
+                return Err(internal(
+                    "an insertion, point or region stands where a term should",
+                ))
             }
         })
+    }
+
+    fn region(&self, id: Id) -> Result<Region> {
+        match self.node(id)? {
+            Ward::Ball([c, r]) => Ok(Region::Ball(self.point(*c)?, self.term(*r)?)),
+            Ward::Name(s) => match s.as_str() {
+                SPACE => Ok(Region::Space),
+                HALFSPACE => Ok(Region::Halfspace),
+                BOUNDARY => Ok(Region::Boundary),
+                _ => Err(internal("an unknown region")),
+            },
+            _ => Err(internal("expected a region")),
+        }
     }
 
     fn op(&self, id: Id) -> Result<Op> {

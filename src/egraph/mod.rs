@@ -37,6 +37,20 @@ define_language! {
         "delta" = DeltaFn([Id; 2]),
         "delta-y" = DeltaY(Id),
         "par" = Par(Id),
+        "dist" = Dist([Id; 2]),
+        // [name, order, argument…]
+        "fun" = Fun(Box<[Id]>),
+        // [point, index]
+        "comp" = Comp([Id; 2]),
+        // [name, index…]
+        "param" = Param(Box<[Id]>),
+        "out-normal" = OutNormal(Id),
+        // [variable, region, body]; regions are the names `space`,
+        // `halfspace`, `boundary` or a `ball` node.
+        "int" = Integral([Id; 3]),
+        "surface-int" = Surface([Id; 3]),
+        // [center, radius]
+        "ball" = Ball([Id; 2]),
         Num(BigRational),
         Name(Symbol),
     }

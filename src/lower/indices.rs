@@ -83,7 +83,8 @@ pub fn collect(e: &Expr, names: &mut BTreeSet<String>) {
             add(j);
         }
         ExprKind::Normal(i) => add(i),
-        ExprKind::Sum { body, .. } => collect(body, names),
+        ExprKind::Sum { body, .. } | ExprKind::Integral { body, .. } => collect(body, names),
+        ExprKind::Component { indices, .. } => indices.iter().for_each(add),
         _ => {}
     }
 }
@@ -102,7 +103,21 @@ fn walk(e: &Expr) -> Result<Usage, Violation> {
             Ok(Usage::default())
         }
         ExprKind::DeltaPoints(..) | ExprKind::DeltaNormal { .. } => Ok(Usage::default()),
-        ExprKind::Sum { body, .. } => walk(body),
+        ExprKind::Sum { body, .. } | ExprKind::Integral { body, .. } => walk(body),
+        ExprKind::Distance(..) => Ok(Usage::default()),
+        ExprKind::Component { indices, .. } => names(indices),
+        ExprKind::Call { args, .. } => {
+            for arg in args {
+                if let Some((name, span)) = walk(arg)?.free.into_iter().next() {
+                    return Err(Violation::new(
+                        span,
+                        format!("index `{name}` is free inside a function argument"),
+                        "free index",
+                    ));
+                }
+            }
+            Ok(Usage::default())
+        }
         ExprKind::Neg(a) => walk(a),
         ExprKind::Binary { op, lhs, rhs } => {
             let l = walk(lhs)?;

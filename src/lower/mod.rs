@@ -7,6 +7,7 @@
 //! indices, an index used three times, rule syntax in a `.ward` file, and
 //! division by a literal zero.
 
+mod explicit;
 mod indices;
 
 use std::collections::{BTreeMap, BTreeSet};
@@ -49,6 +50,12 @@ pub enum ItemKind {
     Simplify { expr: Term, expect: Option<Term> },
     /// `claim L = R`.
     Claim { lhs: Term, rhs: Term },
+    /// `classify eps`: ε[n] on the boundary, zero for a preserved generator.
+    Classify {
+        name: String,
+        family: &'static str,
+        normal_component: Term,
+    },
 }
 
 /// Lowers a parsed file.
@@ -57,6 +64,8 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
         source: source.clone(),
         ctx: Context::default(),
         declared: BTreeMap::new(),
+        lets: BTreeMap::new(),
+        fresh: std::cell::Cell::new(0),
     };
     lowerer.ctx.add_builtins();
     lowerer.collect_indices(file);
@@ -102,6 +111,19 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                 });
             }
             Stmt::Rules { path, span } => rule_files.push((path.clone(), *span)),
+            Stmt::Classify { name, span } => {
+                seen_expression = true;
+                let (family, normal_component) = lowerer.classify(name)?;
+                items.push(Item {
+                    kind: ItemKind::Classify {
+                        name: name.text.clone(),
+                        family,
+                        normal_component,
+                    },
+                    span: *span,
+                    line: source.line_col(span.start).0,
+                });
+            }
             Stmt::Dimension(e) if seen_expression => {
                 return Err(lowerer
                     .err(
@@ -138,6 +160,10 @@ enum Declared {
     Point,
     Parameter,
     ParallelIndex,
+    Function,
+    Vector,
+    Killing,
+    Let,
 }
 
 impl Declared {
@@ -147,6 +173,10 @@ impl Declared {
             Declared::Point => "a point",
             Declared::Parameter => "a parameter",
             Declared::ParallelIndex => "a parallel index",
+            Declared::Function => "a function",
+            Declared::Vector => "a parameter with indices",
+            Declared::Killing => "a Killing vector",
+            Declared::Let => "a named expression (`let`)",
         }
     }
 }
@@ -155,6 +185,10 @@ struct Lowerer {
     source: Arc<Source>,
     ctx: Context,
     declared: BTreeMap<String, (Declared, Span)>,
+    /// Named expressions from `let`, lowered where they are used.
+    lets: BTreeMap<String, Expr>,
+    /// Counter for fresh summation indices inside Killing vectors.
+    fresh: std::cell::Cell<u32>,
 }
 
 impl Lowerer {
@@ -310,7 +344,44 @@ impl Lowerer {
                     self.ctx.parallel.insert(name.text.clone());
                 }
             }
-            Stmt::Simplify { .. } | Stmt::Claim { .. } | Stmt::Rules { .. } => {}
+            Stmt::Functions(names) => {
+                for name in names {
+                    self.new_name(name, Declared::Function)?;
+                    self.ctx.functions.insert(name.text.clone());
+                }
+            }
+            Stmt::Let { name, expr } => {
+                if let Some((index, span)) = self
+                    .free_indices(expr)?
+                    .iter()
+                    .next()
+                    .map(|i| (i.clone(), expr.span))
+                {
+                    return Err(self
+                        .err(
+                            ErrorKind::Index,
+                            span,
+                            format!("a named expression cannot carry the free index `{index}`"),
+                        )
+                        .with_label("has a free index"));
+                }
+                self.expr(expr)?;
+                self.new_name(name, Declared::Let)?;
+                self.lets.insert(name.text.clone(), expr.clone());
+            }
+            Stmt::Killing {
+                name, generator, ..
+            } => self.declare_killing(name, generator)?,
+            Stmt::Place {
+                point,
+                kind,
+                region,
+                ..
+            } => self.declare_place(point, *kind, region)?,
+            Stmt::Simplify { .. }
+            | Stmt::Claim { .. }
+            | Stmt::Rules { .. }
+            | Stmt::Classify { .. } => {}
         }
         Ok(())
     }
@@ -470,6 +541,15 @@ impl Lowerer {
                 return Err(self.rule_syntax(v.span))
             }
             ExprKind::Sum { op, .. } => return Err(self.rule_syntax(op.span.to(e.span))),
+            ExprKind::Distance(p, q) => self.distance(p, q, e.span)?,
+            ExprKind::Component { name, indices } => self.component(name, indices)?,
+            ExprKind::Call { name, primes, args } => self.call(name, *primes, args, e.span)?,
+            ExprKind::Integral {
+                var,
+                region,
+                surface,
+                body,
+            } => self.integral(var, region, *surface, body)?,
             ExprKind::Neg(a) => self.expr(a)?.negated(),
             ExprKind::Binary { op, lhs, rhs } => {
                 let l = self.expr(lhs)?;
@@ -513,6 +593,9 @@ impl Lowerer {
                     }
                 }
                 Term::Corr(ops)
+            }
+            ExprKind::Op(op) if !op.name.is_var && self.ctx.killing.contains_key(&op.name.text) => {
+                self.killing_vector(op)?
             }
             ExprKind::Op(op) => {
                 return Err(self
@@ -613,6 +696,14 @@ impl Lowerer {
         }
         match self.declared.get(&n.text) {
             Some((Declared::Parameter, _)) => Ok(Term::Sym(n.text.clone())),
+            Some((Declared::Let, _)) => match self.lets.get(&n.text) {
+                Some(e) => self.expr(e),
+                None => Err(self.err(
+                    ErrorKind::Name,
+                    n.span,
+                    "a named expression is used inside its own definition",
+                )),
+            },
             Some((kind, _)) => Err(self
                 .err(
                     ErrorKind::Name,

@@ -16,7 +16,7 @@ use num_traits::One;
 
 use super::{derivative, expand, Mono};
 use crate::context::{Context, IndexKind};
-use crate::term::{Index, Op, Term};
+use crate::term::{Index, Integral, Op, Term};
 
 /// Applies the index algebra until nothing changes.
 pub fn contract(ctx: &Context, m: Mono) -> Vec<Mono> {
@@ -29,7 +29,7 @@ pub fn contract(ctx: &Context, m: Mono) -> Vec<Mono> {
         budget = budget.saturating_sub(1);
         match step(ctx, &m) {
             Some(next) if budget > 0 => work.extend(next),
-            _ => done.push(finish(m)),
+            _ => done.push(finish(ctx, m)),
         }
     }
     done
@@ -117,9 +117,31 @@ fn local(ctx: &Context, f: &Term) -> Local {
         }
         Term::Normal(Index::N) => Local::Scalar(vec![Mono::scalar(BigRational::one())]),
         Term::Normal(i) if parallel(i) => Local::Zero,
+        // A coordinate or parameter component with only normal indices is a
+        // scalar; with a normal index on a parallel parameter it vanishes.
+        Term::Comp(..) | Term::Param(..) if has_normal(f) => {
+            Local::Scalar(super::expand(ctx, f).unwrap_or_default())
+        }
+        Term::Param(name, indices)
+            if is_antisymmetric(ctx, name) && indices.len() == 2 && indices[0] == indices[1] =>
+        {
+            Local::Zero
+        }
         Term::Der(..) if normal_derivative_at_boundary(ctx, f) => Local::Zero,
         _ => Local::Keep,
     }
+}
+
+fn has_normal(f: &Term) -> bool {
+    match f {
+        Term::Comp(_, i) => *i == Index::N,
+        Term::Param(_, indices) => indices.contains(&Index::N),
+        _ => false,
+    }
+}
+
+fn is_antisymmetric(ctx: &Context, name: &str) -> bool {
+    ctx.params.get(name).is_some_and(|p| p.antisymmetric)
 }
 
 /// True if a derivative chain contains ∂[n](s) at a boundary point s.
@@ -145,21 +167,32 @@ fn occurrences(factors: &[Term]) -> BTreeMap<String, usize> {
     counts
 }
 
-/// Named indices in the order they appear.
+/// Named indices in the order they appear, anywhere inside a factor.
 fn visit_indices(f: &Term, visit: &mut impl FnMut(&Index)) {
     match f {
         Term::Kron(i, j) => {
             visit(i);
             visit(j);
         }
-        Term::Normal(i) => visit(i),
+        Term::Normal(i) | Term::OutNormal(i) | Term::Comp(_, i) => visit(i),
+        Term::Param(_, indices) => indices.iter().for_each(visit),
         Term::Der(i, _, body) => {
             visit(i);
             visit_indices(body, visit);
         }
         Term::Corr(ops) => ops.iter().flat_map(|o| &o.indices).for_each(visit),
         Term::Mul(ts) | Term::Add(ts) => ts.iter().for_each(|t| visit_indices(t, visit)),
-        _ => {}
+        Term::Pow(a, b) => {
+            visit_indices(a, visit);
+            visit_indices(b, visit);
+        }
+        Term::Integral(i) => visit_indices(&i.body, visit),
+        Term::Num(_)
+        | Term::Sym(_)
+        | Term::Dist(..)
+        | Term::Fun(..)
+        | Term::DeltaFn(..)
+        | Term::DeltaY(_) => {}
     }
 }
 
@@ -172,16 +205,20 @@ fn rename(m: &Mono, from: &str, to: &Index) -> Mono {
     }
 }
 
-/// Renames indices simultaneously.
+/// Renames indices simultaneously, anywhere inside a factor.
 fn rename_in(f: &Term, map: &BTreeMap<String, Index>) -> Term {
     let r = |i: &Index| match i {
         Index::Named(n) => map.get(n).cloned().unwrap_or_else(|| i.clone()),
         Index::N => Index::N,
     };
+    let sub = |t: &Term| rename_in(t, map);
     match f {
         Term::Kron(i, j) => Term::Kron(r(i), r(j)),
         Term::Normal(i) => Term::Normal(r(i)),
-        Term::Der(i, p, body) => Term::Der(r(i), p.clone(), Box::new(rename_in(body, map))),
+        Term::OutNormal(i) => Term::OutNormal(r(i)),
+        Term::Comp(p, i) => Term::Comp(p.clone(), r(i)),
+        Term::Param(name, indices) => Term::Param(name.clone(), indices.iter().map(r).collect()),
+        Term::Der(i, p, body) => Term::Der(r(i), p.clone(), Box::new(sub(body))),
         Term::Corr(ops) => Term::Corr(
             ops.iter()
                 .map(|o| Op {
@@ -191,35 +228,108 @@ fn rename_in(f: &Term, map: &BTreeMap<String, Index>) -> Term {
                 })
                 .collect(),
         ),
-        other => other.clone(),
+        Term::Mul(ts) => Term::Mul(ts.iter().map(sub).collect()),
+        Term::Add(ts) => Term::Add(ts.iter().map(sub).collect()),
+        Term::Pow(a, b) => Term::Pow(Box::new(sub(a)), Box::new(sub(b))),
+        Term::Integral(i) => Term::Integral(Box::new(Integral {
+            var: i.var.clone(),
+            region: i.region.clone(),
+            surface: i.surface,
+            body: sub(&i.body),
+        })),
+        Term::Num(_)
+        | Term::Sym(_)
+        | Term::Dist(..)
+        | Term::Fun(..)
+        | Term::DeltaFn(..)
+        | Term::DeltaY(_) => f.clone(),
     }
 }
 
-/// Puts each factor in canonical shape and sorts the factors.
-fn finish(mut m: Mono) -> Mono {
+/// Puts each factor in canonical shape (symmetric and antisymmetric index
+/// pairs sorted, with the sign an antisymmetric swap brings) and sorts the
+/// factors.
+fn finish(ctx: &Context, mut m: Mono) -> Mono {
+    let mut negate = false;
     for f in &mut m.factors {
-        *f = canonical_factor(std::mem::replace(f, Term::one()));
+        *f = canonical_factor(ctx, std::mem::replace(f, Term::one()), &mut negate);
+    }
+    if negate {
+        m.coef = -m.coef;
     }
     m.factors.sort();
     m
 }
 
-fn canonical_factor(f: Term) -> Term {
+fn canonical_factor(ctx: &Context, f: Term, negate: &mut bool) -> Term {
     match f {
         Term::Kron(i, j) if j < i => Term::Kron(j, i),
+        Term::Param(name, mut indices)
+            if is_antisymmetric(ctx, &name) && indices.len() == 2 && indices[1] < indices[0] =>
+        {
+            indices.swap(0, 1);
+            *negate = !*negate;
+            Term::Param(name, indices)
+        }
         Term::Corr(mut ops) => {
+            for op in &mut ops {
+                if ctx.is_symmetric_op(&op.name)
+                    && op.indices.len() == 2
+                    && op.indices[1] < op.indices[0]
+                {
+                    op.indices.swap(0, 1);
+                }
+            }
             ops.sort();
             Term::Corr(ops)
         }
-        Term::Der(i, p, body) => derivative(&i, &p, canonical_factor(*body)),
+        Term::Der(i, p, body) => derivative(&i, &p, canonical_factor(ctx, *body, negate)),
         other => other,
     }
 }
 
 /// Renames summed indices to the first unused names of their kind from the
 /// file's index pool, in order of appearance, so that monomials equal up to
-/// the names of summed indices become identical.
-pub fn canonical_dummies(ctx: &Context, mut m: Mono) -> Mono {
+/// the names of summed indices become identical. A monomial that equals
+/// minus itself when two summed indices swap (an antisymmetric tensor
+/// contracted with a symmetric one) is zero.
+pub fn canonical_dummies(ctx: &Context, m: Mono) -> Mono {
+    let m = rename_canonically(ctx, m);
+    let counts = occurrences(&m.factors);
+    let dummies: Vec<&String> = counts
+        .iter()
+        .filter(|(_, c)| **c == 2)
+        .map(|(n, _)| n)
+        .collect();
+    for (k, a) in dummies.iter().enumerate() {
+        for b in &dummies[k + 1..] {
+            let map = BTreeMap::from([
+                ((*a).clone(), Index::Named((*b).clone())),
+                ((*b).clone(), Index::Named((*a).clone())),
+            ]);
+            let swapped = rename_canonically(
+                ctx,
+                finish(
+                    ctx,
+                    Mono {
+                        coef: m.coef.clone(),
+                        atoms: m.atoms.clone(),
+                        factors: m.factors.iter().map(|f| rename_in(f, &map)).collect(),
+                    },
+                ),
+            );
+            if swapped.factors == m.factors
+                && swapped.atoms == m.atoms
+                && swapped.coef == -m.coef.clone()
+            {
+                return Mono::scalar(num_rational::BigRational::from_integer(0.into()));
+            }
+        }
+    }
+    m
+}
+
+fn rename_canonically(ctx: &Context, mut m: Mono) -> Mono {
     for _ in 0..4 {
         let counts = occurrences(&m.factors);
         let free: BTreeSet<&String> = counts
@@ -240,33 +350,76 @@ pub fn canonical_dummies(ctx: &Context, mut m: Mono) -> Mono {
         if order.is_empty() {
             return m;
         }
+        // Order summed indices by where they occur, with every other summed
+        // index anonymised, so that the order does not depend on names:
+        // x[k] x[k] x[m] b[m] and x[k] x[m] x[m] b[k] agree. Ties keep the
+        // order of first appearance.
+        let dummies: BTreeSet<String> = order.iter().cloned().collect();
+        let signatures: BTreeMap<String, Vec<String>> = order
+            .iter()
+            .map(|d| (d.clone(), signature(&m.factors, d, &dummies)))
+            .collect();
+        order.sort_by(|a, b| signatures[a].cmp(&signatures[b]));
         let mut used: BTreeMap<IndexKind, usize> = BTreeMap::new();
         let mut map = BTreeMap::new();
         for name in &order {
             let kind = ctx.index_kind(name);
-            let pool: Vec<&String> = ctx
+            let mut pool: Vec<String> = ctx
                 .index_pool
                 .get(&kind)
-                .map(|s| s.iter().filter(|n| !free.contains(n)).collect())
+                .map(|s| s.iter().filter(|n| !free.contains(n)).cloned().collect())
                 .unwrap_or_default();
             let k = used.entry(kind).or_insert(0);
-            let target = pool.get(*k).map(|s| (*s).clone()).unwrap_or_else(|| {
-                // The pool always holds the file's own names; this is a
-                // fallback for terms built outside a file.
-                format!("k{}", *k + 1)
-            });
+            // Beyond the file's own names: k1, k2, … (bulk indices need no
+            // declaration, so these read back).
+            let mut extra = 1;
+            while pool.len() <= *k {
+                let candidate = format!("k{extra}");
+                extra += 1;
+                if !free.contains(&candidate) && !pool.contains(&candidate) {
+                    pool.push(candidate);
+                }
+            }
+            map.insert(name.clone(), Index::Named(pool[*k].clone()));
             *k += 1;
-            map.insert(name.clone(), Index::Named(target));
         }
-        let renamed = finish(Mono {
-            coef: m.coef.clone(),
-            atoms: m.atoms.clone(),
-            factors: m.factors.iter().map(|f| rename_in(f, &map)).collect(),
-        });
+        let renamed = finish(
+            ctx,
+            Mono {
+                coef: m.coef.clone(),
+                atoms: m.atoms.clone(),
+                factors: m.factors.iter().map(|f| rename_in(f, &map)).collect(),
+            },
+        );
         if renamed == m {
             return m;
         }
         m = renamed;
     }
     m
+}
+
+/// Where a summed index occurs: each factor holding it, written with the
+/// index as `#` and every other summed index as `_`, sorted.
+fn signature(factors: &[Term], dummy: &str, dummies: &BTreeSet<String>) -> Vec<String> {
+    let map: BTreeMap<String, Index> = dummies
+        .iter()
+        .map(|d| {
+            let mark = if d == dummy { "#" } else { "_" };
+            (d.clone(), Index::Named(mark.to_string()))
+        })
+        .collect();
+    let mut out: Vec<String> = factors
+        .iter()
+        .filter(|f| {
+            let mut found = false;
+            visit_indices(f, &mut |i| {
+                found |= matches!(i, Index::Named(n) if n == dummy)
+            });
+            found
+        })
+        .map(|f| format!("{:?}", rename_in(f, &map)))
+        .collect();
+    out.sort();
+    out
 }

@@ -6,10 +6,17 @@
 //! expands products over sums, moves derivatives through sums and
 //! constants (Leibniz rule for products), orders commuting derivatives,
 //! contracts indices (see [`contract`]), renames summed indices canonically
-//! and collects like terms. It is a terminating, syntax-directed pass; it
-//! applies no Ward identity.
+//! and collects like terms. Explicit functions (distances, coordinates,
+//! unknown functions) are differentiated symbolically ([`calculus`]),
+//! integrals sift their δ-functions ([`integrate`]), and powers of a
+//! distance that differ by even integers are put over a common power
+//! ([`distance`]) so that identities between them cancel. It is a
+//! terminating, syntax-directed pass; it applies no Ward identity.
 
+mod calculus;
 mod contract;
+mod distance;
+mod integrate;
 mod monomial;
 
 use std::collections::BTreeMap;
@@ -24,14 +31,41 @@ pub use monomial::{Atoms, Mono};
 
 /// Puts `t` in contact-term normal form.
 pub fn normalize(ctx: &Context, t: &Term) -> Result<Term> {
-    let monos = expand(ctx, t)?;
+    let monos = canonical(ctx, expand(ctx, t)?);
+    let has_distance = monos
+        .iter()
+        .any(|m| m.atoms.keys().any(|a| matches!(a, Term::Dist(..))));
+    let plain = collect(monos.clone());
+    if !has_distance {
+        return Ok(plain);
+    }
+    // Over a common power of each distance, terms that cancel by the
+    // algebra of distances do; keep that form when it is no longer.
+    let common = collect(canonical(ctx, distance::common_powers(ctx, monos)?));
+    Ok(if term_count(&common) <= term_count(&plain) {
+        common
+    } else {
+        plain
+    })
+}
+
+/// Contracts indices and renames summed indices canonically.
+fn canonical(ctx: &Context, monos: Vec<Mono>) -> Vec<Mono> {
     let mut out = Vec::new();
     for m in monos {
         for m in contract::contract(ctx, m) {
             out.push(contract::canonical_dummies(ctx, m));
         }
     }
-    Ok(collect(out))
+    out
+}
+
+fn term_count(t: &Term) -> usize {
+    match t {
+        Term::Add(ts) => ts.len(),
+        t if t.is_zero() => 0,
+        _ => 1,
+    }
 }
 
 /// Expands a term into a list of monomials (not yet collected).
@@ -90,25 +124,86 @@ fn expand(ctx: &Context, t: &Term) -> Result<Vec<Mono>> {
         Term::Der(i, p, body) => {
             let mut out = Vec::new();
             for m in expand(ctx, body)? {
-                out.extend(differentiate(i, p, m));
+                out.extend(calculus::differentiate(ctx, i, p, m)?);
             }
             out
         }
+        Term::Dist(p, q) => {
+            if p.name == q.name && p.par == q.par {
+                vec![]
+            } else {
+                let (p, q) = if q < p { (q, p) } else { (p, q) };
+                vec![Mono::atom(
+                    Term::Dist(p.clone(), q.clone()),
+                    BigRational::one(),
+                )]
+            }
+        }
+        Term::Fun(name, order, args) => {
+            let args = args
+                .iter()
+                .map(|a| normalize(ctx, a))
+                .collect::<Result<Vec<_>>>()?;
+            vec![Mono::atom(
+                Term::Fun(name.clone(), *order, args),
+                BigRational::one(),
+            )]
+        }
+        Term::Comp(p, i) => coordinate(ctx, p, i)?,
+        Term::Param(name, indices) => {
+            let decl = ctx.params.get(name);
+            let parallel = decl.is_some_and(|d| d.parallel);
+            if parallel && indices.contains(&Index::N) {
+                vec![]
+            } else if indices.iter().all(|i| *i == Index::N) {
+                if decl.is_some_and(|d| d.antisymmetric) {
+                    vec![]
+                } else {
+                    vec![Mono::atom(t.clone(), BigRational::one())]
+                }
+            } else {
+                vec![Mono::factor(t.clone())]
+            }
+        }
+        Term::OutNormal(_) => vec![Mono::factor(t.clone())],
+        Term::Integral(integral) => integrate::integral(ctx, integral)?,
     })
 }
 
-/// ∂[i](p) of one monomial: coefficients are constants, so by the Leibniz
-/// rule the derivative lands on each factor that mentions p in turn.
-fn differentiate(i: &Index, p: &Point, m: Mono) -> Vec<Mono> {
-    let mut out = Vec::new();
-    for (k, f) in m.factors.iter().enumerate() {
-        if f.mentions_point(p) {
-            let mut next = m.clone();
-            next.factors[k] = derivative(i, p, f.clone());
-            out.push(next);
-        }
+/// The coordinate p[i]: a scalar atom for the normal coordinate, zero for
+/// the normal coordinate of a boundary point, and for a projection x∥ the
+/// parallel part of x.
+fn coordinate(ctx: &Context, p: &Point, i: &Index) -> Result<Vec<Mono>> {
+    if p.par {
+        let x = Point {
+            par: false,
+            ..p.clone()
+        };
+        return match i {
+            Index::N => Ok(vec![]),
+            Index::Named(name) if ctx.parallel.contains(name) => coordinate(ctx, &x, i),
+            // x∥[i] = x[i] - n[i] x[n].
+            Index::Named(_) => expand(
+                ctx,
+                &Term::Add(vec![
+                    Term::Comp(x.clone(), i.clone()),
+                    Term::Mul(vec![
+                        Term::int(-1),
+                        Term::Normal(i.clone()),
+                        Term::Comp(x, Index::N),
+                    ]),
+                ]),
+            ),
+        };
     }
-    out
+    Ok(match i {
+        Index::N if ctx.is_boundary_point(p) => vec![],
+        Index::N => vec![Mono::atom(
+            Term::Comp(p.clone(), Index::N),
+            BigRational::one(),
+        )],
+        Index::Named(_) => vec![Mono::factor(Term::Comp(p.clone(), i.clone()))],
+    })
 }
 
 /// Wraps a factor in a derivative, keeping chains of commuting derivatives
@@ -127,9 +222,13 @@ fn power(ctx: &Context, b: &Term, e: &Term) -> Result<Vec<Mono>> {
     let e = normalize(ctx, e)?;
     let base = expand(ctx, b)?;
     let Term::Num(q) = &e else {
-        // A symbolic exponent: keep the power whole, as a scalar atom.
+        // A symbolic exponent: a monomial's atoms each get their own power;
+        // anything else stays whole, as a scalar atom.
         if base.iter().any(|m| !m.factors.is_empty()) {
             return Err(unsupported_power());
+        }
+        if let [single] = &base[..] {
+            return symbolic_power(ctx, single, &e).map(|m| vec![m]);
         }
         return Ok(vec![Mono::atom(
             Term::Pow(Box::new(collect(base)), Box::new(e)),
@@ -172,6 +271,55 @@ fn power(ctx: &Context, b: &Term, e: &Term) -> Result<Vec<Mono>> {
         Term::Pow(Box::new(collect(base)), Box::new(Term::Num(q.clone()))),
         BigRational::one(),
     )])
+}
+
+/// `m^E` for a scalar monomial and a symbolic exponent E: each atom a^r
+/// becomes a^k · (a^(rE - k)) with k the rational part of rE, so that
+/// powers differing by a number share one symbolic atom.
+fn symbolic_power(ctx: &Context, m: &Mono, e: &Term) -> Result<Mono> {
+    let mut out = Mono::scalar(BigRational::one());
+    let mut factors: Vec<(Term, BigRational)> = m
+        .atoms
+        .iter()
+        .map(|(a, r)| (a.clone(), r.clone()))
+        .collect();
+    if !m.coef.is_one() {
+        factors.push((Term::Num(m.coef.clone()), BigRational::one()));
+    }
+    for (a, r) in factors {
+        let (k, rest) = split_constant(expand(ctx, &Term::Mul(vec![Term::Num(r), e.clone()]))?);
+        if !k.is_zero() {
+            out = match &a {
+                // A number to a whole power folds into the coefficient.
+                Term::Num(c) if k.is_integer() => {
+                    out.mul(&Mono::scalar(c.clone()).scalar_power(&k)?)
+                }
+                _ => out.mul(&Mono::atom(a.clone(), k)),
+            };
+        }
+        if !rest.is_zero() {
+            out = out.mul(&Mono::atom(
+                Term::Pow(Box::new(a), Box::new(rest)),
+                BigRational::one(),
+            ));
+        }
+    }
+    Ok(out)
+}
+
+/// Splits the constant part off a scalar: `Delta + 2` → (2, Delta), the
+/// rest in normal form.
+fn split_constant(monos: Vec<Mono>) -> (BigRational, Term) {
+    let mut constant = BigRational::zero();
+    let mut rest = Vec::new();
+    for m in monos {
+        if m.atoms.is_empty() && m.factors.is_empty() {
+            constant += m.coef;
+        } else {
+            rest.push(m);
+        }
+    }
+    (constant, collect(rest))
 }
 
 fn unsupported_power() -> Error {

@@ -255,6 +255,15 @@ impl Lowering<'_> {
                 }
                 Pat::Corr { items: ops, splice }
             }
+            ExprKind::Distance(..)
+            | ExprKind::Component { .. }
+            | ExprKind::Call { .. }
+            | ExprKind::Integral { .. } => {
+                return Err(self.err(
+                    e.span,
+                    "explicit functions and integrals are not part of rule patterns; normalisation handles them",
+                ))
+            }
             ExprKind::Op(op) => {
                 return Err(self.err(op.span, "an operator stands outside a correlator"))
             }
@@ -477,6 +486,10 @@ fn var_span(e: &Expr, v: &str) -> Option<Span> {
                 _ => None,
             })
             .or_else(|| var_span(body, v)),
+        ExprKind::Component { indices, .. } => indices.iter().find_map(name),
+        ExprKind::Distance(p, q) => point(p).or_else(|| point(q)),
+        ExprKind::Call { args, .. } => args.iter().find_map(|a| var_span(a, v)),
+        ExprKind::Integral { var: p, body, .. } => point(p).or_else(|| var_span(body, v)),
         ExprKind::Num(_) | ExprKind::Name(_) => None,
     }
 }

@@ -109,6 +109,28 @@ pub enum ExprKind {
         coord: Name,
         point: PointRef,
     },
+    /// Distance `|p - q|`.
+    Distance(PointRef, PointRef),
+    /// A component `x1[mu]` of a point, or of a parameter vector or tensor
+    /// (`b[mu]`, `omega[mu,nu]`), or the outward normal `N[mu]`.
+    Component {
+        name: Name,
+        indices: Vec<Name>,
+    },
+    /// A function call `F(u)`, `F'(u)` (primes count derivatives), or the
+    /// built-in `xi(x1, x2)`.
+    Call {
+        name: Name,
+        primes: u32,
+        args: Vec<Expr>,
+    },
+    /// `∫[x in REGION] { body }`, or with `surface`, `∮[x on REGION] { body }`.
+    Integral {
+        var: PointRef,
+        region: RegionRef,
+        surface: bool,
+        body: Box<Expr>,
+    },
     /// Rule template: `sum ?o(?p) in ?rest if COND { body }`.
     Sum {
         op: Name,
@@ -117,6 +139,56 @@ pub enum ExprKind {
         filter: Option<Condition>,
         body: Box<Expr>,
     },
+}
+
+/// A region of integration.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct RegionRef {
+    pub kind: RegionKind,
+    pub span: Span,
+}
+
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum RegionKind {
+    /// All of R^d.
+    Space,
+    /// The half-space y >= 0.
+    Halfspace,
+    /// The boundary plane y = 0.
+    Boundary,
+    /// The ball around a point with a radius.
+    Ball(PointRef, Box<Expr>),
+}
+
+/// The parameter of a translation or special conformal generator: a vector
+/// parameter (possibly declared parallel to the boundary) or the normal `n`.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum VectorParam {
+    Normal(Span),
+    Named { name: Name, parallel: bool },
+}
+
+/// Where a `place` statement puts a point.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum PlaceKind {
+    Inside,
+    Outside,
+    On,
+}
+
+/// A family of conformal Killing vectors.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum Generator {
+    /// ε_μ = a_μ.
+    Translation(VectorParam),
+    /// ε_μ = ω_{μν} x_ν, ω antisymmetric (parallel: ω_{nμ} = 0).
+    Rotation { omega: Name, parallel: bool },
+    /// ε_μ = n_μ (e·x) - e_μ (n·x), e parallel: the rotation mixing n with e.
+    Mixing(Name),
+    /// ε_μ = λ x_μ.
+    Dilatation(Name),
+    /// ε_μ = 2 (b·x) x_μ - x² b_μ.
+    Special(VectorParam),
 }
 
 /// Kinds of operator a file may declare.
@@ -157,6 +229,31 @@ pub enum Stmt {
     Claim {
         lhs: Expr,
         rhs: Expr,
+        span: Span,
+    },
+    /// `function F G`: unknown functions of one variable.
+    Functions(Vec<Name>),
+    /// `let NAME = EXPR`: a named expression, substituted where it is used.
+    Let {
+        name: Name,
+        expr: Expr,
+    },
+    /// `killing eps GENERATOR`.
+    Killing {
+        name: Name,
+        generator: Generator,
+        span: Span,
+    },
+    /// `classify eps`: is the generator preserved by the boundary?
+    Classify {
+        name: Name,
+        span: Span,
+    },
+    /// `place x2 outside ball(x1, r)`.
+    Place {
+        point: PointRef,
+        kind: PlaceKind,
+        region: RegionRef,
         span: Span,
     },
 }

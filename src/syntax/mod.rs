@@ -175,7 +175,8 @@ fn found_at(text: &str, offset: usize) -> (String, usize) {
 
 /// Tokens that can start a primary expression.
 const OPERAND_STARTS: &[&str] = &[
-    "(", "<", "⟨", "∂", "del", "δ", "delta", "n", "sum", "?", "a name", "a number",
+    "(", "<", "⟨", "∂", "del", "δ", "delta", "n", "sum", "?", "a name", "a number", "|", "∫",
+    "int", "∮", "oint",
 ];
 /// Keywords that start a statement of a `.ward` file.
 const STATEMENT_STARTS: &[&str] = &[
@@ -190,6 +191,11 @@ const STATEMENT_STARTS: &[&str] = &[
     "rules",
     "simplify",
     "claim",
+    "function",
+    "let",
+    "killing",
+    "classify",
+    "place",
 ];
 /// Infix operators.
 const INFIX: &[&str] = &["+", "-", "*", "/", "^"];
@@ -377,6 +383,40 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
             };
             Stmt::Simplify { expr, expect, span }
         }
+        Rule::function_decl => Stmt::Functions(inner.map(parse_name).collect()),
+        Rule::let_stmt => {
+            let name = parse_name(next(&mut inner));
+            let expr = parse_expr_pair(source, next(&mut inner))?;
+            Stmt::Let { name, expr }
+        }
+        Rule::classify_stmt => Stmt::Classify {
+            name: parse_name(next(&mut inner)),
+            span,
+        },
+        Rule::place_stmt => {
+            let point = parse_point(next(&mut inner));
+            let kind = match next(&mut inner).as_str() {
+                "inside" => PlaceKind::Inside,
+                "outside" => PlaceKind::Outside,
+                _ => PlaceKind::On,
+            };
+            let region = parse_region(next(&mut inner));
+            Stmt::Place {
+                point,
+                kind,
+                region,
+                span,
+            }
+        }
+        Rule::killing_decl => {
+            let name = parse_name(next(&mut inner));
+            let generator = parse_generator(next(&mut inner));
+            Stmt::Killing {
+                name,
+                generator,
+                span,
+            }
+        }
         Rule::claim_stmt => {
             let lhs = parse_expr_pair(source, next(&mut inner))?;
             let rhs = parse_expr_pair(source, next(&mut inner))?;
@@ -524,6 +564,45 @@ fn parse_primary(pair: Pair<Rule>) -> Expr {
                 .collect(),
         ),
         Rule::op => ExprKind::Op(parse_op(pair)),
+        Rule::distance => {
+            let mut inner = pair.into_inner();
+            ExprKind::Distance(parse_point(next(&mut inner)), parse_point(next(&mut inner)))
+        }
+        Rule::component => {
+            let mut inner = pair.into_inner();
+            let name = parse_name(next(&mut inner));
+            ExprKind::Component {
+                name,
+                indices: inner.map(parse_name).collect(),
+            }
+        }
+        Rule::call => {
+            let mut inner = pair.into_inner().peekable();
+            let name = parse_name(next(&mut inner));
+            let mut primes = 0;
+            while inner.peek().map(|p| p.as_rule()) == Some(Rule::prime) {
+                inner.next();
+                primes += 1;
+            }
+            ExprKind::Call {
+                name,
+                primes,
+                args: inner.map(build_expr).collect(),
+            }
+        }
+        Rule::integral | Rule::surface => {
+            let surface = which == Rule::surface;
+            let mut inner = pair.into_inner();
+            let var = parse_point(next(&mut inner));
+            let region = parse_region(next(&mut inner));
+            let body = build_expr(next(&mut inner).into_inner().next().expect("integral body"));
+            ExprKind::Integral {
+                var,
+                region,
+                surface,
+                body: Box::new(body),
+            }
+        }
         Rule::deriv => {
             let mut inner = pair.into_inner();
             let index = parse_name(next(&mut inner));
@@ -572,6 +651,67 @@ fn parse_primary(pair: Pair<Rule>) -> Expr {
         other => unreachable_rule(other),
     };
     Expr { kind, span }
+}
+
+fn parse_region(pair: Pair<Rule>) -> RegionRef {
+    let span = span_of(&pair);
+    let inner = pair
+        .into_inner()
+        .next()
+        .expect("region has one alternative");
+    let kind = match inner.as_rule() {
+        Rule::region_space => RegionKind::Space,
+        Rule::region_halfspace => RegionKind::Halfspace,
+        Rule::region_boundary => RegionKind::Boundary,
+        _ => {
+            let mut parts = inner.into_inner();
+            let center = parse_point(next(&mut parts));
+            let radius = build_expr(next(&mut parts));
+            RegionKind::Ball(center, Box::new(radius))
+        }
+    };
+    RegionRef { kind, span }
+}
+
+fn parse_generator(pair: Pair<Rule>) -> Generator {
+    let inner = pair
+        .into_inner()
+        .next()
+        .expect("generator has one alternative");
+    let which = inner.as_rule();
+    let mut parts = inner.into_inner().peekable();
+    match which {
+        Rule::gen_translation => Generator::Translation(parse_vector_param(next(&mut parts))),
+        Rule::gen_special => Generator::Special(parse_vector_param(next(&mut parts))),
+        Rule::gen_dilatation => Generator::Dilatation(parse_name(next(&mut parts))),
+        _ => {
+            let first = next(&mut parts);
+            if first.as_rule() == Rule::gen_mixing {
+                let mut mixing = first.into_inner();
+                next(&mut mixing);
+                Generator::Mixing(parse_name(next(&mut mixing)))
+            } else {
+                Generator::Rotation {
+                    omega: parse_name(first),
+                    parallel: parts.next().is_some(),
+                }
+            }
+        }
+    }
+}
+
+fn parse_vector_param(pair: Pair<Rule>) -> VectorParam {
+    let mut parts = pair.into_inner();
+    let first = next(&mut parts);
+    let parallel = parts.next().is_some();
+    if first.as_rule() == Rule::normal_kw {
+        VectorParam::Normal(span_of(&first))
+    } else {
+        VectorParam::Named {
+            name: parse_name(first),
+            parallel,
+        }
+    }
 }
 
 fn parse_op(pair: Pair<Rule>) -> OpRef {

@@ -68,7 +68,8 @@ pub struct Op {
 /// An expression.
 ///
 /// Variant order is the order factors appear in a printed product:
-/// coefficients, then δ-functions, then tensors, then derivatives and
+/// coefficients and explicit functions, then coordinates and parameter
+/// components, δ-functions, tensors, integrals, and last derivatives and
 /// correlators.
 #[derive(Clone, Debug, PartialEq, Eq, PartialOrd, Ord, Hash)]
 pub enum Term {
@@ -78,6 +79,14 @@ pub enum Term {
     Pow(Box<Term>, Box<Term>),
     Mul(Vec<Term>),
     Add(Vec<Term>),
+    /// The distance |p - q| (p before q).
+    Dist(Point, Point),
+    /// An unknown function, differentiated `order` times, at its arguments.
+    Fun(String, u32, Vec<Term>),
+    /// The coordinate p[i] of a point (p[n] is its normal coordinate y).
+    Comp(Point, Index),
+    /// A component of a declared parameter vector or tensor: a[i], ω[i,j].
+    Param(String, Vec<Index>),
     /// Bulk delta function δ(p - q).
     DeltaFn(Point, Point),
     /// Boundary delta function δ(y(p)) in the normal coordinate of p.
@@ -86,10 +95,38 @@ pub enum Term {
     Normal(Index),
     /// Kronecker delta δ[i,j].
     Kron(Index, Index),
+    /// The outward unit normal N[i] of the surface of a surface integral.
+    OutNormal(Index),
+    /// An integral over a region or over its surface.
+    Integral(Box<Integral>),
     /// ∂[i](p) applied to the body.
     Der(Index, Point, Box<Term>),
     /// A correlator ⟨…⟩.
     Corr(Vec<Op>),
+}
+
+/// `∫[var in region] { body }`, or `∮[var on region] { body }` over the
+/// region's surface when `surface` is set.
+#[derive(Clone, Debug, PartialEq, Eq, PartialOrd, Ord, Hash)]
+pub struct Integral {
+    pub var: Point,
+    pub region: Region,
+    pub surface: bool,
+    pub body: Term,
+}
+
+/// A region of integration.
+#[derive(Clone, Debug, PartialEq, Eq, PartialOrd, Ord, Hash)]
+pub enum Region {
+    /// All of R^d.
+    Space,
+    /// The closed half-space y >= 0 (T is extended by zero below it, so a
+    /// δ-function on the wall carries its full weight).
+    Halfspace,
+    /// The boundary plane y = 0.
+    Boundary,
+    /// The ball around a point.
+    Ball(Point, Term),
 }
 
 impl Term {
@@ -113,16 +150,29 @@ impl Term {
         Term::Mul(vec![Term::int(-1), self])
     }
 
-    /// Every point this term mentions (δ-functions, derivatives, insertions).
+    /// True if the term depends on point `p` (δ-functions, derivatives,
+    /// insertions, coordinates, distances; not on a point an integral binds).
     pub fn mentions_point(&self, p: &Point) -> bool {
         match self {
             Term::Num(_) | Term::Sym(_) | Term::Normal(_) | Term::Kron(..) => false,
+            Term::Param(..) | Term::OutNormal(_) => false,
             Term::Pow(a, b) => a.mentions_point(p) || b.mentions_point(p),
             Term::Mul(ts) | Term::Add(ts) => ts.iter().any(|t| t.mentions_point(p)),
-            Term::DeltaFn(a, b) => a.depends_on(p) || b.depends_on(p),
-            Term::DeltaY(a) => a.depends_on(p),
+            Term::Fun(_, _, args) => args.iter().any(|t| t.mentions_point(p)),
+            Term::Dist(a, b) | Term::DeltaFn(a, b) => a.depends_on(p) || b.depends_on(p),
+            Term::Comp(a, _) | Term::DeltaY(a) => a.depends_on(p),
             Term::Der(_, q, body) => q.depends_on(p) || body.mentions_point(p),
             Term::Corr(ops) => ops.iter().any(|o| o.point.depends_on(p)),
+            Term::Integral(i) => {
+                if i.var.name == p.name {
+                    return false;
+                }
+                let region = match &i.region {
+                    Region::Ball(c, r) => c.depends_on(p) || r.mentions_point(p),
+                    _ => false,
+                };
+                region || i.body.mentions_point(p)
+            }
         }
     }
 }

@@ -7,7 +7,7 @@
 use num_rational::BigRational;
 use num_traits::{One, Signed, Zero};
 
-use super::{Index, Op, Point, Term};
+use super::{Index, Integral, Op, Point, Region, Term};
 use crate::context::Context;
 
 /// Which characters the printer uses.
@@ -102,9 +102,15 @@ impl<'a> Printer<'a> {
                         Term::Pow(b.clone(), Box::new(Term::Num(q)))
                     });
                 }
-                Term::Num(_) | Term::Sym(_) | Term::Pow(..) | Term::Add(_) | Term::Mul(_) => {
-                    numer.push(f.clone())
-                }
+                Term::Num(_)
+                | Term::Sym(_)
+                | Term::Pow(..)
+                | Term::Add(_)
+                | Term::Mul(_)
+                | Term::Dist(..)
+                | Term::Fun(..)
+                | Term::Comp(..)
+                | Term::Param(..) => numer.push(f.clone()),
                 _ => rest.push(f),
             }
         }
@@ -175,7 +181,11 @@ impl<'a> Printer<'a> {
             Term::Sym(s) => out.push_str(s),
             Term::Pow(b, e) => {
                 match **b {
-                    Term::Sym(_) => self.atom(b, out),
+                    Term::Sym(_)
+                    | Term::Dist(..)
+                    | Term::Fun(..)
+                    | Term::Comp(..)
+                    | Term::Param(..) => self.atom(b, out),
                     Term::Num(ref c) if !c.is_negative() && c.is_integer() => self.atom(b, out),
                     _ => {
                         out.push('(');
@@ -199,6 +209,46 @@ impl<'a> Printer<'a> {
                 }
             }
             Term::Add(_) | Term::Mul(_) => self.factor(t, out),
+            Term::Dist(p, q) => {
+                out.push('|');
+                self.point(p, out);
+                out.push_str(" - ");
+                self.point(q, out);
+                out.push('|');
+            }
+            Term::Fun(name, order, args) => {
+                out.push_str(name);
+                for _ in 0..*order {
+                    out.push('\'');
+                }
+                out.push('(');
+                for (k, a) in args.iter().enumerate() {
+                    if k > 0 {
+                        out.push_str(", ");
+                    }
+                    self.sum(a, out);
+                }
+                out.push(')');
+            }
+            Term::Comp(p, i) => {
+                self.point(p, out);
+                out.push('[');
+                out.push_str(&index(i));
+                out.push(']');
+            }
+            Term::Param(name, indices) => {
+                out.push_str(name);
+                out.push('[');
+                let names: Vec<String> = indices.iter().map(index).collect();
+                out.push_str(&names.join(","));
+                out.push(']');
+            }
+            Term::OutNormal(i) => {
+                out.push_str("N[");
+                out.push_str(&index(i));
+                out.push(']');
+            }
+            Term::Integral(integral) => self.integral(integral, out),
             Term::DeltaFn(p, q) => {
                 out.push_str(if self.unicode() { "δ(" } else { "delta(" });
                 self.point(p, out);
@@ -251,6 +301,32 @@ impl<'a> Printer<'a> {
                 out.push_str(if self.unicode() { "⟩" } else { ">" });
             }
         }
+    }
+
+    fn integral(&self, i: &Integral, out: &mut String) {
+        out.push_str(match (i.surface, self.style) {
+            (false, Style::Unicode) => "∫[",
+            (false, Style::Ascii) => "int[",
+            (true, Style::Unicode) => "∮[",
+            (true, Style::Ascii) => "oint[",
+        });
+        self.point(&i.var, out);
+        out.push_str(if i.surface { " on " } else { " in " });
+        match &i.region {
+            Region::Space => out.push_str("space"),
+            Region::Halfspace => out.push_str("halfspace"),
+            Region::Boundary => out.push_str("boundary"),
+            Region::Ball(c, r) => {
+                out.push_str("ball(");
+                self.point(c, out);
+                out.push_str(", ");
+                self.sum(r, out);
+                out.push(')');
+            }
+        }
+        out.push_str("] { ");
+        self.sum(&i.body, out);
+        out.push_str(" }");
     }
 
     fn op(&self, op: &Op, out: &mut String) {

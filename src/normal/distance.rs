@@ -1,0 +1,93 @@
+//! Powers of one distance put over a common power, so that identities
+//! between them cancel.
+//!
+//! In a sum, |p - q|^a and |p - q|^(a+2k) are written as |p - q|^a times
+//! (|p - q|²)^k with |p - q|² = p·p - 2 p·q + q·q in coordinates. After
+//! this every monomial carries the lowest power of each distance, and a sum
+//! that vanishes by the algebra of distances collects to zero.
+
+use std::collections::BTreeSet;
+
+use num_rational::BigRational;
+use num_traits::{Signed, ToPrimitive, Zero};
+
+use super::{expand, Mono};
+use crate::context::Context;
+use crate::diagnostic::Result;
+use crate::term::{Index, Point, Term};
+
+/// Largest power of |p - q|² expanded into coordinates.
+const MAX_EXPANDED: u32 = 6;
+
+pub fn common_powers(ctx: &Context, mut monos: Vec<Mono>) -> Result<Vec<Mono>> {
+    if monos.len() < 2 {
+        return Ok(monos);
+    }
+    let distances: BTreeSet<Term> = monos
+        .iter()
+        .flat_map(|m| m.atoms.keys())
+        .filter(|a| matches!(a, Term::Dist(..)))
+        .cloned()
+        .collect();
+    let mut fresh = 0u32;
+    for dist in distances {
+        let Term::Dist(p, q) = &dist else { continue };
+        let exponent = |m: &Mono| {
+            m.atoms
+                .get(&dist)
+                .cloned()
+                .unwrap_or_else(BigRational::zero)
+        };
+        let Some(lowest) = monos.iter().map(exponent).min() else {
+            continue;
+        };
+        // Only shifts by even whole numbers can be expanded.
+        let shift = |m: &Mono| -> Option<u32> {
+            let d = exponent(m) - &lowest;
+            let twice = (d / BigRational::from_integer(2.into())).to_integer();
+            (BigRational::from_integer(twice.clone()) * BigRational::from_integer(2.into())
+                == exponent(m) - &lowest)
+                .then(|| twice.to_u32())
+                .flatten()
+                .filter(|k| *k <= MAX_EXPANDED)
+        };
+        if monos.iter().any(|m| shift(m).is_none()) || monos.iter().all(|m| exponent(m) == lowest) {
+            continue;
+        }
+        let mut next = Vec::with_capacity(monos.len());
+        for m in monos {
+            let k = shift(&m).unwrap_or(0);
+            let mut base = m.clone();
+            if lowest.is_zero() {
+                base.atoms.remove(&dist);
+            } else {
+                base.atoms.insert(dist.clone(), lowest.clone());
+            }
+            let mut acc = vec![base];
+            for _ in 0..k {
+                fresh += 1;
+                let square = squared(p, q, &Index::Named(format!("κd{fresh}")));
+                let terms = expand(ctx, &square)?;
+                acc = acc
+                    .iter()
+                    .flat_map(|a| terms.iter().map(move |t| a.mul(t)))
+                    .collect();
+            }
+            next.extend(acc);
+        }
+        monos = next;
+        let _ = lowest.is_negative();
+    }
+    Ok(monos)
+}
+
+/// |p - q|² = (p - q)_k (p - q)_k.
+fn squared(p: &Point, q: &Point, k: &Index) -> Term {
+    let difference = || {
+        Term::Add(vec![
+            Term::Comp(p.clone(), k.clone()),
+            Term::Mul(vec![Term::int(-1), Term::Comp(q.clone(), k.clone())]),
+        ])
+    };
+    Term::Mul(vec![difference(), difference()])
+}

@@ -1,0 +1,258 @@
+//! Integrals on trees: the divergence theorem for surface integrals, δ
+//! sifting for bulk δ(x - p) and boundary δ(y(x)), and linearity.
+//!
+//! ∮_{∂B} N_i F_i becomes ∫_B ∂_i F_i (divergence theorem, outward N), so a
+//! surface integral of T against a Killing vector turns into the local Ward
+//! identities. ∫_B δ(x - p) f(x) = f(p) when p is inside B and 0 when it is
+//! outside; a point on the surface of B, or one whose position the file
+//! does not state, is an error. ∫ over the half-space of δ(y(x)) g(x) is the
+//! integral of g over the boundary plane, with x replaced by its projection
+//! x∥ (the half-space is closed: T is extended by zero below the wall).
+
+use num_traits::One;
+
+use super::{collect, expand, monomial::Atoms, normalize, Mono};
+use crate::context::{Context, Placement};
+use crate::diagnostic::{Error, ErrorKind, Result};
+use crate::term::{Integral, Op, Point, Region, Term};
+
+/// Expands an integral into monomials.
+pub fn integral(ctx: &Context, i: &Integral) -> Result<Vec<Mono>> {
+    let region = match &i.region {
+        Region::Ball(c, r) => Region::Ball(c.clone(), normalize(ctx, r)?),
+        r => r.clone(),
+    };
+    let mut out = Vec::new();
+    for m in expand(ctx, &i.body)? {
+        if i.surface {
+            out.extend(surface(ctx, &i.var, &region, m)?);
+        } else {
+            out.extend(volume(ctx, &i.var, &region, m)?);
+        }
+    }
+    Ok(out)
+}
+
+/// One monomial of a surface integral: N[i] F → ∫ ∂[i] F.
+fn surface(ctx: &Context, var: &Point, region: &Region, m: Mono) -> Result<Vec<Mono>> {
+    let normals: Vec<usize> = (0..m.factors.len())
+        .filter(|k| matches!(m.factors[*k], Term::OutNormal(_)))
+        .collect();
+    let [k] = normals[..] else {
+        // Not a flux: keep the surface integral as it is.
+        let (outside, inside) = split(var, m);
+        return Ok(vec![outside.mul(&Mono::factor(Term::Integral(Box::new(
+            Integral {
+                var: var.clone(),
+                region: region.clone(),
+                surface: true,
+                body: collect(vec![inside]),
+            },
+        ))))]);
+    };
+    let mut rest = m;
+    let Term::OutNormal(index) = rest.factors.remove(k) else {
+        return Ok(vec![]);
+    };
+    let flux = Term::Der(index, var.clone(), Box::new(collect(vec![rest])));
+    let mut out = Vec::new();
+    for d in expand(ctx, &flux)? {
+        out.extend(volume(ctx, var, region, d)?);
+    }
+    Ok(out)
+}
+
+/// One monomial of a volume (or boundary-plane) integral.
+fn volume(ctx: &Context, var: &Point, region: &Region, m: Mono) -> Result<Vec<Mono>> {
+    let (outside, inside) = split(var, m);
+    // δ(x - p): sift.
+    let delta = inside.factors.iter().position(|f| match f {
+        Term::DeltaFn(a, b) => is_var(a, var) || is_var(b, var),
+        _ => false,
+    });
+    if let Some(k) = delta {
+        let mut rest = inside.clone();
+        let Term::DeltaFn(a, b) = rest.factors.remove(k) else {
+            return Ok(vec![]);
+        };
+        let target = if is_var(&a, var) { b } else { a };
+        return match membership(ctx, &target, region) {
+            None => Err(undecided(&target, region)),
+            Some(Placement::Inside) => {
+                let sifted = substitute(ctx, &collect(vec![rest]), var, &target);
+                Ok(expand(ctx, &sifted)?.iter().map(|m| outside.mul(m)).collect())
+            }
+            Some(Placement::Outside) => Ok(vec![]),
+            Some(Placement::OnSurface) => Err(Error::new(
+                ErrorKind::Placement,
+                format!(
+                    "`{}` lies on the surface of the region of integration, where the weight of δ({} - {}) is not defined",
+                    target.name, var.name, target.name
+                ),
+            )
+            .with_note("move the point off the surface, or integrate over a slightly larger or smaller region")),
+        };
+    }
+    // δ(y(x)) over the half-space: an integral over the boundary plane.
+    let wall = inside
+        .factors
+        .iter()
+        .position(|f| matches!(f, Term::DeltaY(a) if is_var(a, var)));
+    if let (Some(k), Region::Halfspace | Region::Space) = (wall, region) {
+        let mut rest = inside.clone();
+        rest.factors.remove(k);
+        let projected = Point {
+            par: true,
+            ..var.clone()
+        };
+        let body = substitute(ctx, &collect(vec![rest]), var, &projected);
+        let mut out = Vec::new();
+        for m in expand(ctx, &body)? {
+            for r in volume(ctx, &projected, &Region::Boundary, m)? {
+                out.push(outside.mul(&r));
+            }
+        }
+        return Ok(out);
+    }
+    Ok(vec![outside.mul(&Mono::factor(Term::Integral(Box::new(
+        Integral {
+            var: var.clone(),
+            region: region.clone(),
+            surface: false,
+            body: collect(vec![inside]),
+        },
+    ))))])
+}
+
+/// Splits a monomial into the part that does not depend on the integration
+/// point (with the coefficient) and the part that does.
+fn split(var: &Point, m: Mono) -> (Mono, Mono) {
+    let mut outside = Mono::scalar(m.coef);
+    let mut inside = Mono::scalar(num_rational::BigRational::one());
+    let (mut out_atoms, mut in_atoms) = (Atoms::new(), Atoms::new());
+    for (a, e) in m.atoms {
+        if a.mentions_point(var) {
+            in_atoms.insert(a, e);
+        } else {
+            out_atoms.insert(a, e);
+        }
+    }
+    outside.atoms = out_atoms;
+    inside.atoms = in_atoms;
+    for f in m.factors {
+        if f.mentions_point(var) {
+            inside.factors.push(f);
+        } else {
+            outside.factors.push(f);
+        }
+    }
+    (outside, inside)
+}
+
+fn is_var(p: &Point, var: &Point) -> bool {
+    p.name == var.name && p.par == var.par
+}
+
+/// Where a point lies with respect to a region, if the file says so.
+fn membership(ctx: &Context, p: &Point, region: &Region) -> Option<Placement> {
+    match region {
+        Region::Space | Region::Halfspace => Some(Placement::Inside),
+        Region::Boundary => Some(if ctx.is_boundary_point(p) {
+            Placement::Inside
+        } else {
+            Placement::Outside
+        }),
+        Region::Ball(center, _) if center.name == p.name && !p.par => Some(Placement::Inside),
+        Region::Ball(..) => placement(ctx, p, region),
+    }
+}
+
+/// The declared placement of `p` in a ball, comparing radii in normal form.
+fn placement(ctx: &Context, p: &Point, region: &Region) -> Option<Placement> {
+    let Region::Ball(center, radius) = region else {
+        return None;
+    };
+    ctx.placements.iter().find_map(|(name, r, place)| match r {
+        Region::Ball(c, rr)
+            if *name == p.name
+                && c.name == center.name
+                && normalize(ctx, rr).ok().as_ref() == Some(radius) =>
+        {
+            Some(*place)
+        }
+        _ => None,
+    })
+}
+
+fn undecided(point: &Point, region: &Region) -> Error {
+    let center = match region {
+        Region::Ball(c, _) => c.name.as_str(),
+        _ => "?",
+    };
+    let name = &point.name;
+    Error::new(
+        ErrorKind::Placement,
+        format!("cannot tell whether `{name}` lies inside the ball around `{center}`"),
+    )
+    .with_note(format!(
+        "state it: `place {name} inside ball({center}, r)` or `place {name} outside ball({center}, r)`"
+    ))
+}
+
+/// Replaces the integration point `var` by `to` everywhere in `t`.
+pub fn substitute(ctx: &Context, t: &Term, var: &Point, to: &Point) -> Term {
+    let point = |p: &Point| -> Point {
+        if p.name != var.name {
+            return p.clone();
+        }
+        if p.par && !ctx.is_boundary_point(to) {
+            // The projection of the new point (itself if it is on the wall).
+            Point {
+                par: true,
+                ..to.clone()
+            }
+        } else {
+            to.clone()
+        }
+    };
+    let sub = |t: &Term| substitute(ctx, t, var, to);
+    match t {
+        Term::Num(_)
+        | Term::Sym(_)
+        | Term::Param(..)
+        | Term::Normal(_)
+        | Term::Kron(..)
+        | Term::OutNormal(_) => t.clone(),
+        Term::Pow(a, b) => Term::Pow(Box::new(sub(a)), Box::new(sub(b))),
+        Term::Mul(ts) => Term::Mul(ts.iter().map(sub).collect()),
+        Term::Add(ts) => Term::Add(ts.iter().map(sub).collect()),
+        Term::Dist(a, b) => Term::Dist(point(a), point(b)),
+        Term::Fun(n, k, args) => Term::Fun(n.clone(), *k, args.iter().map(sub).collect()),
+        Term::Comp(p, i) => Term::Comp(point(p), i.clone()),
+        Term::DeltaFn(a, b) => Term::DeltaFn(point(a), point(b)),
+        Term::DeltaY(a) => Term::DeltaY(point(a)),
+        Term::Der(i, p, body) => Term::Der(i.clone(), point(p), Box::new(sub(body))),
+        Term::Corr(ops) => Term::Corr(
+            ops.iter()
+                .map(|o| Op {
+                    point: point(&o.point),
+                    name: o.name.clone(),
+                    indices: o.indices.clone(),
+                })
+                .collect(),
+        ),
+        Term::Integral(i) => Term::Integral(Box::new(Integral {
+            var: i.var.clone(),
+            region: match &i.region {
+                Region::Ball(c, r) => Region::Ball(point(c), sub(r)),
+                r => r.clone(),
+            },
+            surface: i.surface,
+            body: if i.var.name == var.name {
+                i.body.clone()
+            } else {
+                sub(&i.body)
+            },
+        })),
+    }
+}
