@@ -197,7 +197,26 @@ impl Lowerer {
         })
     }
 
-    pub(super) fn component(&self, name: &Name, indices: &[Name]) -> Result<Term> {
+    pub(super) fn component(
+        &self,
+        name: &Name,
+        par: bool,
+        indices: &[Name],
+        span: Span,
+    ) -> Result<Term> {
+        if par {
+            let p = self.point(&PointRef {
+                name: name.clone(),
+                par: true,
+                span,
+            })?;
+            if indices.len() != 1 {
+                return Err(self
+                    .err(ErrorKind::Index, span, "a coordinate takes one index")
+                    .with_label("wrong number of indices"));
+            }
+            return Ok(Term::Comp(p, self.index(&indices[0])?));
+        }
         let idx = indices
             .iter()
             .map(|i| self.index(i))

@@ -542,7 +542,9 @@ impl Lowerer {
             }
             ExprKind::Sum { op, .. } => return Err(self.rule_syntax(op.span.to(e.span))),
             ExprKind::Distance(p, q) => self.distance(p, q, e.span)?,
-            ExprKind::Component { name, indices } => self.component(name, indices)?,
+            ExprKind::Component { name, par, indices } => {
+                self.component(name, *par, indices, e.span)?
+            }
             ExprKind::Call { name, primes, args } => self.call(name, *primes, args, e.span)?,
             ExprKind::Integral {
                 var,

@@ -284,6 +284,21 @@ fn canonical_factor(ctx: &Context, f: Term, negate: &mut bool) -> Term {
             Term::Corr(ops)
         }
         Term::Der(i, p, body) => derivative(&i, &p, canonical_factor(ctx, *body, negate)),
+        // An integral's body is one monomial: canonicalise its factors.
+        Term::Integral(mut i) => {
+            i.body = match i.body {
+                Term::Mul(fs) => {
+                    let mut fs: Vec<Term> = fs
+                        .into_iter()
+                        .map(|f| canonical_factor(ctx, f, negate))
+                        .collect();
+                    fs.sort();
+                    Term::Mul(fs)
+                }
+                body => canonical_factor(ctx, body, negate),
+            };
+            Term::Integral(i)
+        }
         other => other,
     }
 }

@@ -171,31 +171,9 @@ fn expand(ctx: &Context, t: &Term) -> Result<Vec<Mono>> {
 }
 
 /// The coordinate p[i]: a scalar atom for the normal coordinate, zero for
-/// the normal coordinate of a boundary point, and for a projection x∥ the
-/// parallel part of x.
+/// the normal coordinate of a point on the boundary (a boundary point or a
+/// projection x∥), a factor otherwise.
 fn coordinate(ctx: &Context, p: &Point, i: &Index) -> Result<Vec<Mono>> {
-    if p.par {
-        let x = Point {
-            par: false,
-            ..p.clone()
-        };
-        return match i {
-            Index::N => Ok(vec![]),
-            Index::Named(name) if ctx.parallel.contains(name) => coordinate(ctx, &x, i),
-            // x∥[i] = x[i] - n[i] x[n].
-            Index::Named(_) => expand(
-                ctx,
-                &Term::Add(vec![
-                    Term::Comp(x.clone(), i.clone()),
-                    Term::Mul(vec![
-                        Term::int(-1),
-                        Term::Normal(i.clone()),
-                        Term::Comp(x, Index::N),
-                    ]),
-                ]),
-            ),
-        };
-    }
     Ok(match i {
         Index::N if ctx.is_boundary_point(p) => vec![],
         Index::N => vec![Mono::atom(

@@ -115,6 +115,8 @@ pub enum ExprKind {
     /// (`b[mu]`, `omega[mu,nu]`), or the outward normal `N[mu]`.
     Component {
         name: Name,
+        /// `x∥[a]`: a component of the projection of x.
+        par: bool,
         indices: Vec<Name>,
     },
     /// A function call `F(u)`, `F'(u)` (primes count derivatives), or the

@@ -319,7 +319,10 @@ fn statement_span(pair: &Pair<Rule>) -> Span {
         .map(|p| p.as_span().end())
         .max()
         .unwrap_or(span.end);
-    Span::new(span.start, end)
+    // Inner pairs may end after trailing white space; stop at the last
+    // visible character.
+    let text = &pair.get_input()[span.start..end];
+    Span::new(span.start, span.start + text.trim_end().len())
 }
 
 fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
@@ -570,9 +573,15 @@ fn parse_primary(pair: Pair<Rule>) -> Expr {
         }
         Rule::component => {
             let mut inner = pair.into_inner();
-            let name = parse_name(next(&mut inner));
+            let first = next(&mut inner);
+            let (name, par) = if first.as_rule() == Rule::par_point {
+                (parse_name(next(&mut first.into_inner())), true)
+            } else {
+                (parse_name(first), false)
+            };
             ExprKind::Component {
                 name,
+                par,
                 indices: inner.map(parse_name).collect(),
             }
         }

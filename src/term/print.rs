@@ -123,6 +123,10 @@ impl<'a> Printer<'a> {
                     denom.insert(0, Term::Num(BigRational::from_integer(d)));
                 }
             }
+            // `|x|^2/4`, not `1 |x|^2/4`.
+            if numer.len() > 1 && matches!(numer.first(), Some(Term::Num(c)) if c.is_one()) {
+                numer.remove(0);
+            }
             if numer.is_empty() {
                 numer.push(Term::one());
             }
