@@ -310,6 +310,13 @@ fn canonical_factor(ctx: &Context, f: Term, negate: &mut bool) -> Term {
 /// contracted with a symmetric one) is zero.
 pub fn canonical_dummies(ctx: &Context, m: Mono) -> Mono {
     let m = rename_canonically(ctx, m);
+    let antisymmetric = m
+        .factors
+        .iter()
+        .any(|f| matches!(f, Term::Param(name, _) if is_antisymmetric(ctx, name)));
+    if !antisymmetric {
+        return m;
+    }
     let counts = occurrences(&m.factors);
     let dummies: Vec<&String> = counts
         .iter()
@@ -370,7 +377,7 @@ fn rename_canonically(ctx: &Context, mut m: Mono) -> Mono {
         // x[k] x[k] x[m] b[m] and x[k] x[m] x[m] b[k] agree. Ties keep the
         // order of first appearance.
         let dummies: BTreeSet<String> = order.iter().cloned().collect();
-        let signatures: BTreeMap<String, Vec<String>> = order
+        let signatures: BTreeMap<String, Vec<Term>> = order
             .iter()
             .map(|d| (d.clone(), signature(&m.factors, d, &dummies)))
             .collect();
@@ -398,6 +405,12 @@ fn rename_canonically(ctx: &Context, mut m: Mono) -> Mono {
             map.insert(name.clone(), Index::Named(pool[*k].clone()));
             *k += 1;
         }
+        if map
+            .iter()
+            .all(|(from, to)| matches!(to, Index::Named(t) if t == from))
+        {
+            return m;
+        }
         let renamed = finish(
             ctx,
             Mono {
@@ -414,9 +427,9 @@ fn rename_canonically(ctx: &Context, mut m: Mono) -> Mono {
     m
 }
 
-/// Where a summed index occurs: each factor holding it, written with the
-/// index as `#` and every other summed index as `_`, sorted.
-fn signature(factors: &[Term], dummy: &str, dummies: &BTreeSet<String>) -> Vec<String> {
+/// Where a summed index occurs: each factor holding it, with the index
+/// written `#` and every other summed index `_`, sorted.
+fn signature(factors: &[Term], dummy: &str, dummies: &BTreeSet<String>) -> Vec<Term> {
     let map: BTreeMap<String, Index> = dummies
         .iter()
         .map(|d| {
@@ -424,7 +437,7 @@ fn signature(factors: &[Term], dummy: &str, dummies: &BTreeSet<String>) -> Vec<S
             (d.clone(), Index::Named(mark.to_string()))
         })
         .collect();
-    let mut out: Vec<String> = factors
+    let mut out: Vec<Term> = factors
         .iter()
         .filter(|f| {
             let mut found = false;
@@ -433,7 +446,7 @@ fn signature(factors: &[Term], dummy: &str, dummies: &BTreeSet<String>) -> Vec<S
             });
             found
         })
-        .map(|f| format!("{:?}", rename_in(f, &map)))
+        .map(|f| rename_in(f, &map))
         .collect();
     out.sort();
     out

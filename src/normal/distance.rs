@@ -81,13 +81,17 @@ pub fn common_powers(ctx: &Context, mut monos: Vec<Mono>) -> Result<Vec<Mono>> {
     Ok(monos)
 }
 
-/// |p - q|² = (p - q)_k (p - q)_k.
+/// |p - q|² = p_k p_k - 2 p_k q_k + q_k q_k.
 fn squared(p: &Point, q: &Point, k: &Index) -> Term {
-    let difference = || {
-        Term::Add(vec![
-            Term::Comp(p.clone(), k.clone()),
-            Term::Mul(vec![Term::int(-1), Term::Comp(q.clone(), k.clone())]),
+    let dot = |a: &Point, b: &Point| {
+        Term::Mul(vec![
+            Term::Comp(a.clone(), k.clone()),
+            Term::Comp(b.clone(), k.clone()),
         ])
     };
-    Term::Mul(vec![difference(), difference()])
+    Term::Add(vec![
+        dot(p, p),
+        Term::Mul(vec![Term::int(-2), dot(p, q)]),
+        dot(q, q),
+    ])
 }

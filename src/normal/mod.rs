@@ -31,7 +31,7 @@ pub use monomial::{Atoms, Mono};
 
 /// Puts `t` in contact-term normal form.
 pub fn normalize(ctx: &Context, t: &Term) -> Result<Term> {
-    let monos = canonical(ctx, expand(ctx, t)?);
+    let monos = merge(canonical(ctx, expand(ctx, t)?));
     let has_distance = monos
         .iter()
         .any(|m| m.atoms.keys().any(|a| matches!(a, Term::Dist(..))));
@@ -58,6 +58,24 @@ fn canonical(ctx: &Context, monos: Vec<Mono>) -> Vec<Mono> {
         }
     }
     out
+}
+
+/// Adds up monomials that differ only in their coefficient.
+fn merge(monos: Vec<Mono>) -> Vec<Mono> {
+    let mut sums: BTreeMap<(Atoms, Vec<Term>), BigRational> = BTreeMap::new();
+    for m in monos {
+        *sums
+            .entry((m.atoms, m.factors))
+            .or_insert_with(BigRational::zero) += m.coef;
+    }
+    sums.into_iter()
+        .filter(|(_, c)| !c.is_zero())
+        .map(|((atoms, factors), coef)| Mono {
+            coef,
+            atoms,
+            factors,
+        })
+        .collect()
 }
 
 fn term_count(t: &Term) -> usize {

@@ -176,7 +176,7 @@ fn found_at(text: &str, offset: usize) -> (String, usize) {
 /// Tokens that can start a primary expression.
 const OPERAND_STARTS: &[&str] = &[
     "(", "<", "⟨", "∂", "del", "δ", "delta", "n", "sum", "?", "a name", "a number", "|", "∫",
-    "int", "∮", "oint",
+    "int", "∮", "oint", "par",
 ];
 /// Keywords that start a statement of a `.ward` file.
 const STATEMENT_STARTS: &[&str] = &[
