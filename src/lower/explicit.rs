@@ -337,6 +337,16 @@ impl Lowerer {
                 ),
             ]));
         }
+        // `g (a + b)` is a product, not a call, when g is a number.
+        let is_number = name.text == crate::context::DIMENSION
+            || matches!(
+                self.declared.get(&name.text),
+                Some((Declared::Parameter | Declared::Let, _))
+            );
+        if is_number && primes == 0 && args.len() == 1 {
+            let factor = self.scalar_name(name)?;
+            return Ok(Term::Mul(vec![factor, self.expr(&args[0])?]));
+        }
         if !self.ctx.functions.contains(&name.text) {
             return Err(match self.declared_kind(&name.text) {
                 Some(kind) => self

@@ -1,0 +1,189 @@
+//! Integrated Ward identities: regions, conformal Killing vectors, broken
+//! generators and symbolic calculus, end to end from `.ward` text.
+//!
+//! Every file under `tests/cases/integrated/` must check clean (each claim
+//! and `expect` there is a published identity typed out by hand, with its
+//! source in the file), and its simplified output is snapshot-tested. The
+//! tests below make sure the same checks fail when the physics is wrong, so
+//! the clean runs are not vacuous.
+
+use std::path::{Path, PathBuf};
+
+use wardsmith::diagnostic::Source;
+use wardsmith::run::{run_path, run_source, Mode, Options};
+
+fn relative(path: &Path) -> PathBuf {
+    let root = Path::new(env!("CARGO_MANIFEST_DIR"));
+    path.strip_prefix(root).unwrap_or(path).to_path_buf()
+}
+
+#[test]
+fn integrated_cases_check_clean() {
+    insta::glob!("cases/integrated/*.ward", |path| {
+        let rel = relative(path);
+        let check = run_path(&rel, Mode::Check, &Options::default())
+            .unwrap_or_else(|e| panic!("{}", e.render()));
+        assert_eq!(check.code, 0, "{}:\n{}", rel.display(), check.report);
+        assert!(!check.report.contains("NOT PROVED") && !check.report.contains("UNKNOWN"));
+        let simplified = run_path(&rel, Mode::Simplify, &Options::default())
+            .unwrap_or_else(|e| panic!("{}", e.render()));
+        insta::assert_snapshot!(simplified.report);
+    });
+}
+
+/// Runs `text` after the declarations in `header`, in check mode.
+fn check(header: &str, body: &str) -> (String, i32) {
+    let source = Source::new("test.ward", format!("{header}\n{body}\n"));
+    let out = run_source(&source, Path::new("."), Mode::Check, &Options::default())
+        .unwrap_or_else(|e| panic!("{}", e.render()));
+    (out.report, out.code)
+}
+
+const THREE_POINT: &str = "dimension 4
+parameters Delta1 Delta2 Delta3
+points x1 x2 x3
+killing sct special b";
+
+/// The special conformal operator on a candidate three-point function.
+fn special_on(g: &str) -> String {
+    format!(
+        "let G = {g}
+claim sct[mu](x1) ∂[mu](x1) {{ G }} + Delta1/4 ∂[k](x1) {{ sct[k](x1) }} G
+    + sct[mu](x2) ∂[mu](x2) {{ G }} + Delta2/4 ∂[k](x2) {{ sct[k](x2) }} G
+    + sct[mu](x3) ∂[mu](x3) {{ G }} + Delta3/4 ∂[k](x3) {{ sct[k](x3) }} G
+    = 0"
+    )
+}
+
+#[test]
+fn special_conformal_identity_fails_for_a_wrong_exponent() {
+    // Osborn & Petkou 1994, hep-th/9307010: the exponents are fixed; one
+    // changed by 1 leaves a non-zero remainder.
+    let right = "|x1 - x2|^(Delta3 - Delta1 - Delta2) |x1 - x3|^(Delta2 - Delta1 - Delta3) |x2 - x3|^(Delta1 - Delta2 - Delta3)";
+    let wrong = "|x1 - x2|^(Delta3 - Delta1 - Delta2) |x1 - x3|^(Delta2 - Delta1 - Delta3 + 1) |x2 - x3|^(Delta1 - Delta2 - Delta3)";
+    let (report, code) = check(THREE_POINT, &special_on(right));
+    assert_eq!(code, 0, "{report}");
+    let (report, code) = check(THREE_POINT, &special_on(wrong));
+    assert_eq!(code, 1, "{report}");
+    assert!(report.contains("NOT PROVED"), "{report}");
+    assert!(
+        report.contains("left side minus right side simplifies to:"),
+        "{report}"
+    );
+    // The remainder is shown, and it is not zero.
+    let remainder = report
+        .split("simplifies to:")
+        .nth(1)
+        .and_then(|r| r.split("stop reason").next())
+        .unwrap_or("");
+    assert!(
+        remainder.contains("b[") && remainder.trim() != "0",
+        "{report}"
+    );
+}
+
+const WALL: &str = "dimension d
+halfspace y >= 0
+parameters Delta1 Delta2
+points x1 x2
+function F
+killing ntr translation n
+killing mix rotation n f
+killing nsct special n
+let G = F(xi(x1, x2)) (2 x1[n])^(-Delta1) (2 x2[n])^(-Delta2)";
+
+#[test]
+fn broken_generators_do_not_annihilate_the_wall_two_point_function() {
+    for (name, extra) in [
+        ("ntr", ""),
+        ("mix", ""),
+        (
+            "nsct",
+            " + Delta1/d ∂[k](x1) { nsct[k](x1) } G + Delta2/d ∂[k](x2) { nsct[k](x2) } G",
+        ),
+    ] {
+        let claim = format!(
+            "claim {name}[mu](x1) ∂[mu](x1) {{ G }} + {name}[mu](x2) ∂[mu](x2) {{ G }}{extra} = 0"
+        );
+        let (report, code) = check(WALL, &claim);
+        assert_eq!(code, 1, "{name} should be broken:\n{report}");
+        assert!(
+            report.contains("F'("),
+            "{name}: the remainder involves F':\n{report}"
+        );
+    }
+}
+
+#[test]
+fn a_wrong_coefficient_in_a_global_identity_is_caught() {
+    // W4 with B = R^d (PHYSICS.md §1): the dilatation term is Δ λ, not Δ λ/2.
+    let header = "dimension d\nscalar A dim Delta1\npoints x x1\nkilling dil dilatation lambda";
+    let body = "simplify ∫[x in space] { ∂[mu](x) { dil[nu](x) <T[mu,nu](x) A(x1)> } }
+  expect - lambda x1[mu] ∂[mu](x1) <A(x1)> - Delta1/2 lambda <A(x1)>";
+    let (report, code) = check(header, body);
+    assert_eq!(code, 1, "{report}");
+    assert!(report.contains("- 1/2 Delta1 lambda ⟨A(x1)⟩"), "{report}");
+}
+
+#[test]
+fn the_displacement_term_is_needed_for_the_normal_translation() {
+    // PHYSICS.md §4 (derived): ∫ <D(s) X> = Σ_i ∂<X>/∂y_i; without the
+    // boundary integral the identity does not hold.
+    let header =
+        "dimension d\nhalfspace y >= 0\nscalar O dim Delta\npoints x x1\nkilling ntr translation n";
+    let body = "simplify ∫[x in halfspace] { ∂[mu](x) { ntr[nu](x) <T[mu,nu](x) O(x1)> } }
+  expect - ∂[n](x1) <O(x1)>";
+    let (report, code) = check(header, body);
+    assert_eq!(code, 1, "{report}");
+    assert!(
+        report.contains("∫[x∥ in boundary] { ⟨D(x∥) O(x1)⟩ }"),
+        "{report}"
+    );
+}
+
+#[test]
+fn generators_are_classified_preserved_or_broken() {
+    // Common practice (PHYSICS.md §4): ε_n = 0 on y = 0 is preserved.
+    let text = "dimension d\nhalfspace y >= 0\npoints x\n\
+        killing a1 translation e parallel\nkilling a2 translation n\n\
+        killing a3 rotation omega parallel\nkilling a4 rotation n f\n\
+        killing a5 dilatation lambda\nkilling a6 special b parallel\nkilling a7 special n\n\
+        classify a1\nclassify a2\nclassify a3\nclassify a4\nclassify a5\nclassify a6\nclassify a7\n";
+    let source = Source::new("classify.ward", text);
+    let out =
+        run_source(&source, Path::new("."), Mode::Simplify, &Options::default()).expect("runs");
+    let verdicts: Vec<bool> = out
+        .report
+        .lines()
+        .map(|l| l.contains("is preserved"))
+        .collect();
+    assert_eq!(
+        verdicts,
+        [true, false, true, false, true, true, false],
+        "{}",
+        out.report
+    );
+}
+
+#[test]
+fn a_delta_on_the_surface_or_in_an_unknown_place_is_an_error() {
+    let header =
+        "dimension 3\nscalar O dim Delta\nparameters r\npoints x x1 x2 x3\nplace x2 on ball(x1, r)";
+    for (body, message) in [
+        (
+            "simplify ∫[x in ball(x1, r)] { δ(x - x2) <O(x2)> }",
+            "lies on the surface",
+        ),
+        (
+            "simplify ∫[x in ball(x1, r)] { δ(x - x3) <O(x3)> }",
+            "place x3 inside ball(x1, r)",
+        ),
+    ] {
+        let source = Source::new("regions.ward", format!("{header}\n{body}\n"));
+        let err = run_source(&source, Path::new("."), Mode::Simplify, &Options::default())
+            .expect_err("must be rejected");
+        let rendered = err.render();
+        assert!(rendered.contains(message), "{rendered}");
+        assert!(rendered.contains("regions.ward:6:1"), "{rendered}");
+    }
+}
