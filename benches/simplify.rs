@@ -59,3 +59,56 @@ fn simplify_divergence(bencher: divan::Bencher, n: usize) {
         run_source(&source, Path::new("."), Mode::Simplify, &Options::default()).expect("valid")
     });
 }
+
+/// The special conformal Ward identity on the scalar three-point function
+/// with symbolic dimensions in d = 4 (tests/cases/integrated/three-point-special.ward).
+const SPECIAL: &str = "dimension 4
+parameters Delta1 Delta2 Delta3
+points x1 x2 x3
+killing sct special b
+let G = |x1 - x2|^(Delta3 - Delta1 - Delta2) |x1 - x3|^(Delta2 - Delta1 - Delta3) |x2 - x3|^(Delta1 - Delta2 - Delta3)
+claim sct[mu](x1) ∂[mu](x1) { G } + Delta1/4 ∂[k](x1) { sct[k](x1) } G
+    + sct[mu](x2) ∂[mu](x2) { G } + Delta2/4 ∂[k](x2) { sct[k](x2) } G
+    + sct[mu](x3) ∂[mu](x3) { G } + Delta3/4 ∂[k](x3) { sct[k](x3) } G
+    = 0
+";
+
+/// Whole file: parse, lower, load rules, prove the claim.
+#[divan::bench]
+fn verify_special_conformal_file(bencher: divan::Bencher) {
+    let source = Source::new("special.ward", SPECIAL);
+    bencher.bench(|| {
+        let out =
+            run_source(&source, Path::new("."), Mode::Check, &Options::default()).expect("valid");
+        assert_eq!(out.code, 0);
+        out
+    });
+}
+
+/// The proof alone: the engine on the lowered claim.
+#[divan::bench]
+fn verify_special_conformal_engine(bencher: divan::Bencher) {
+    use std::sync::Arc;
+    use wardsmith::engine::{Engine, Verdict};
+    use wardsmith::lower::{lower, ItemKind};
+    let source = Source::new("special.ward", SPECIAL);
+    let program = lower(
+        &source,
+        &wardsmith::syntax::parse_file(&source).expect("parses"),
+    )
+    .expect("lowers");
+    let engine = Engine::new(
+        program.ctx.clone(),
+        Arc::new(wardsmith::rules::RuleBook::shipped().expect("rules")),
+        wardsmith::egraph::Limits::default(),
+    )
+    .expect("engine");
+    let Some(ItemKind::Claim { lhs, rhs }) = program.items.last().map(|i| &i.kind) else {
+        panic!("the benchmark file ends with a claim");
+    };
+    bencher.bench(|| {
+        let v = engine.check(lhs, rhs).expect("checks");
+        assert!(matches!(v, Verdict::Proved(_)));
+        v
+    });
+}
