@@ -8,6 +8,19 @@ use crate::context::Context;
 use crate::engine::{Simplified, Verdict};
 use crate::term::print::{Printer, Style};
 
+/// Longest statement text echoed in a verdict line.
+const INPUT_WIDTH: usize = 110;
+
+/// `text` cut to `width` characters, with `…` where it was cut.
+fn abbreviate(text: &str, width: usize) -> String {
+    if text.chars().count() <= width {
+        text.to_string()
+    } else {
+        let cut: String = text.chars().take(width.saturating_sub(1)).collect();
+        format!("{}…", cut.trim_end())
+    }
+}
+
 /// Longest normal form printed on a single line.
 const LINE_WIDTH: usize = 100;
 
@@ -60,6 +73,8 @@ impl<'a> Reporter<'a> {
 
     /// The verdict on a claim or an expected result.
     pub fn verdict(&mut self, line: usize, what: &str, input: &str, v: &Verdict) -> bool {
+        let input = abbreviate(input, INPUT_WIDTH);
+        let input = input.as_str();
         match v {
             Verdict::Proved(s) => {
                 let _ = writeln!(self.out, "line {line}: {what} proved: {input}");

@@ -9,7 +9,7 @@ use std::sync::Arc;
 
 use crate::diagnostic::{Error, ErrorKind, Result, Source};
 use crate::egraph::Limits;
-use crate::engine::{Engine, Verdict};
+use crate::engine::Engine;
 use crate::lower::{self, ItemKind, Program};
 use crate::report::Reporter;
 use crate::rules::RuleBook;
@@ -122,11 +122,6 @@ pub fn run_source(
         report: reporter.finish(),
         code: i32::from(failed > 0),
     })
-}
-
-/// Whether a verdict holds (for callers outside this module).
-pub fn holds(v: &Verdict) -> bool {
-    matches!(v, Verdict::Proved(_))
 }
 
 fn read_source(path: &Path) -> Result<Arc<Source>> {

@@ -8,6 +8,8 @@
 //! does not state, is an error. ∫ over the half-space of δ(y(x)) g(x) is the
 //! integral of g over the boundary plane, with x replaced by its projection
 //! x∥ (the half-space is closed: T is extended by zero below the wall).
+//! A derivative of δ at the integration point is moved onto the rest of
+//! the integrand by parts; its surface term vanishes with the δ.
 
 use num_traits::One;
 
@@ -65,6 +67,31 @@ fn surface(ctx: &Context, var: &Point, region: &Region, m: Mono) -> Result<Vec<M
 /// One monomial of a volume (or boundary-plane) integral.
 fn volume(ctx: &Context, var: &Point, region: &Region, m: Mono) -> Result<Vec<Mono>> {
     let (outside, inside) = split(var, m);
+    // f ∂_i δ(x - p): integrate by parts. The surface term f δ N_i vanishes
+    // because δ does on the surface (a δ on the surface is refused below),
+    // leaving -(∂_i f) δ(x - p).
+    let moved = inside.factors.iter().position(|f| match f {
+        Term::Der(_, p, body) => is_var(p, var) && matches!(**body, Term::DeltaFn(..)),
+        _ => false,
+    });
+    if let Some(k) = moved {
+        let mut rest = inside.clone();
+        let Term::Der(i, _, delta) = rest.factors.remove(k) else {
+            return Ok(vec![]);
+        };
+        let by_parts = Term::Mul(vec![
+            Term::int(-1),
+            Term::Der(i, var.clone(), Box::new(collect(vec![rest]))),
+            *delta,
+        ]);
+        let mut out = Vec::new();
+        for m in expand(ctx, &by_parts)? {
+            for r in volume(ctx, var, region, m)? {
+                out.push(outside.mul(&r));
+            }
+        }
+        return Ok(out);
+    }
     // δ(x - p): sift.
     let delta = inside.factors.iter().position(|f| match f {
         Term::DeltaFn(a, b) => is_var(a, var) || is_var(b, var),
