@@ -1,6 +1,8 @@
 //! Printed output parses back to the same expression: every normal form
-//! the shipped examples produce, printed in both styles and read again
-//! after the file's own declarations, normalises to the same term.
+//! the shipped examples and the integrated cases produce, and a list of
+//! hand-written expressions with explicit functions and integrals, printed
+//! in both styles and read again after the file's own declarations,
+//! normalises to the same term.
 
 use std::sync::Arc;
 
@@ -27,6 +29,29 @@ fn last_expr(p: &Program) -> Term {
     }
 }
 
+/// Prints `simplified` in both styles, reads each form back after `text`
+/// (the declarations) and checks it normalises to the same term.
+fn reads_back(text: &str, p: &Program, simplified: &Term, what: &str) {
+    for style in [Style::Unicode, Style::Ascii] {
+        let printed = Printer::new(&p.ctx, style).term(simplified);
+        let again_text = format!("{text}\nsimplify {printed}\n");
+        let source = Source::new("roundtrip.ward", again_text.as_str());
+        let again = parse_file(&source)
+            .and_then(|file| lower(&source, &file))
+            .unwrap_or_else(|e| {
+                panic!(
+                    "{what}: printed `{printed}` does not read back:\n{}",
+                    e.render()
+                )
+            });
+        let reread = normalize(&again.ctx, &last_expr(&again)).expect("normalises");
+        assert_eq!(
+            &reread, simplified,
+            "{what}: `{printed}` read back as a different term"
+        );
+    }
+}
+
 fn check_file(path: &str) {
     let text = std::fs::read_to_string(path).expect("example exists");
     // Files that load their own rules are covered by the shipped rules
@@ -49,13 +74,13 @@ fn check_file(path: &str) {
         };
         for expr in exprs {
             let simplified = engine.simplify(expr).expect("simplifies").term;
-            for style in [Style::Unicode, Style::Ascii] {
-                let printed = Printer::new(&p.ctx, style).term(&simplified);
-                let again = program(&format!("{text}\nsimplify {printed}\n"));
-                let reread = normalize(&again.ctx, &last_expr(&again)).expect("normalises");
-                assert_eq!(reread, simplified, "{path}: `{printed}` did not read back");
-                checked += 1;
-            }
+            reads_back(
+                &text,
+                &p,
+                &simplified,
+                &format!("{path}, line {}", item.line),
+            );
+            checked += 1;
         }
     }
     assert!(checked > 0, "{path} has no statements");
@@ -91,4 +116,170 @@ fn coefficients_and_powers_round_trip() {
             "{printed}"
         );
     }
+}
+
+#[test]
+fn integrated_cases_round_trip() {
+    let mut paths: Vec<_> = std::fs::read_dir("tests/cases/integrated")
+        .expect("the integrated cases exist")
+        .map(|entry| entry.expect("a directory entry").path())
+        .filter(|path| path.extension().is_some_and(|e| e == "ward"))
+        .collect();
+    paths.sort();
+    assert!(!paths.is_empty(), "no integrated cases found");
+    for path in paths {
+        check_file(&path.to_string_lossy());
+    }
+}
+
+/// Declarations for the hand-written expressions below. The `parallel`
+/// statement right after `killing ntr translation n` is not read as that
+/// generator's `parallel`. The claim only makes the file mention enough
+/// index names for every dummy of the Killing vectors (see
+/// `dummy_names_do_not_depend_on_the_names_a_file_mentions`).
+const EXPLICIT: &str = "dimension d
+halfspace y >= 0
+scalar O dim Delta
+scalar P dim Delta2
+boundary scalar psi dim 3
+function F G
+parameters r g
+points x z x1 x2 x3
+boundary points s s1
+killing ntr translation n
+parallel a c
+killing prot rotation omega parallel
+killing sct special b
+killing mix rotation n f
+killing dil dilatation lambda
+place x2 outside ball(x1, r)
+place x3 inside ball(x1, r)
+claim x1[nu] x1[nu] x2[rho] x2[rho] x3[sigma] x3[sigma] = x1[nu] x1[nu] x2[rho] x2[rho] x3[sigma] x3[sigma]
+";
+
+/// Simplifies each expression after [`EXPLICIT`] and checks that its
+/// printed forms, read after the same text, give the same normal form.
+fn explicit_round_trips(exprs: &[&str]) {
+    let book = Arc::new(RuleBook::shipped().expect("shipped rules"));
+    for expr in exprs {
+        let text = format!("{EXPLICIT}simplify {expr}\n");
+        let source = Source::new("roundtrip.ward", text.as_str());
+        let p = parse_file(&source)
+            .and_then(|file| lower(&source, &file))
+            .unwrap_or_else(|e| panic!("`{expr}` is not valid input:\n{}", e.render()));
+        let engine = Engine::new(p.ctx.clone(), book.clone(), Limits::default()).expect("engine");
+        let simplified = engine.simplify(&last_expr(&p)).expect("simplifies").term;
+        reads_back(&text, &p, &simplified, expr);
+    }
+}
+
+#[test]
+fn distances_and_functions_round_trip() {
+    explicit_round_trips(&[
+        "|x1 - x2|^(-2)",
+        "|x2 - x1|^(-2 Delta) |x1 - x3|^(1/2)",
+        "|x1 - x2|^(Delta - 2 Delta2) - 3/4 g^2 |x1 - x3|^(-Delta/2)",
+        "|x1 - x2|^(3/2) |x1 - x3|^(-Delta) / (|x1 - x3| + |x2 - x3|)",
+        "g * (g + 1)^(1/2) |x1 - x2| + d * (d - 1)^(-Delta)",
+        "F(|x1 - x2|^2) + F'(|x1 - x2|^2) - 2 F''(xi(x1, x2)) G(g)",
+        "F'(0)/F(|x1 - x2|^2)",
+        "F(g) G(d - 1) + F(|x1 - x2|)^2/G'(g)",
+        "F(xi(x1, x2)) (2 x1[n])^(-Delta) (2 x2[n])^(-Delta2)",
+        "∂[mu](x1) { F(xi(x1, x2)) }",
+        "∂[mu](x1) { ∂[mu](x2) { F(xi(x1, x2)) |x1 - x2|^(-Delta) } }",
+        "x1[mu] x2[mu] + x1[n] x2[n] - x1∥[a] x2∥[a] + s[a] x1∥[a]",
+        "par(x1)[a] par(x1)[a] - x1[n]^2 + g x1∥[c] s1[c]",
+        "b[mu] x1[mu] omega[a,c] x1∥[a] x2∥[c] - f[a] x1[a] lambda",
+        "omega[a,c] b[c] f[a] + b[n] x1[n]",
+        "sct[mu](x1) ∂[mu](x1) { |x1 - x2|^(-2 Delta) }",
+        "mix[mu](x1) ∂[mu](x1) { F(xi(x1, x2)) } + prot[mu](x2) ∂[mu](x2) { F(xi(x1, x2)) }",
+        "dil[mu](x1) ∂[mu](x1) { |x1 - x2|^(-Delta) } + ntr[mu](x2) x2[mu]",
+        "δ(x - x1) |x - x2|^(-2) + δ(y(x)) x∥[a] x∥[a] <D(x∥) O(x1)>",
+    ]);
+}
+
+#[test]
+fn unevaluated_integrals_round_trip() {
+    explicit_round_trips(&[
+        "∫[x in ball(x1, r)] { |x - x1|^(-2) }",
+        "∫[x in ball(x1, r/2)] { F(|x - x2|^2) <O(x) O(x2)> }",
+        "∫[x in ball(x1, |x1 - x2| + r)] { x[mu] |x - x3|^(-4) } - x1[mu]",
+        "∫[x in space] { |x - x1|^(-2) |x - x2|^(-2) }",
+        "g ∫[x in space] { (|x - x1|^2 + x[n])^(-Delta) }",
+        "∫[x in halfspace] { x[n]^(-Delta) <O(x) O(x1)> }",
+        "∫[x in halfspace] { F(xi(x, x1)) x[n]^(-d) }",
+        "∫[x∥ in boundary] { x∥[a] <D(x∥) O(x1)> }",
+        "∫[x∥ in boundary] { |x∥ - x1|^(-2 Delta) <psi(s1) D(x∥)> }",
+        "∫[s in boundary] { s[a] s[a] <psi(s) O(x1)> }",
+        "∫[x∥ in boundary] { |x∥ - x1|^(-2) } ∫[z in ball(x1, r)] { |z - x2|^(-2) }",
+        "∫[x in ball(x1, r)] { ∫[z in ball(x2, g)] { |x - z|^(-2) } }",
+        "∫[x in halfspace] { ∂[mu](x) { ntr[nu](x) <T[mu,nu](x) O(x1) P(x2)> } }",
+        "∫[x in halfspace] { ∂[mu](x) { mix[nu](x) <T[mu,nu](x) O(x1)> } }",
+        "∫[x in ball(x1, r)] { δ(x - x3) |x - x2|^(-2) } + ∫[x in ball(x1, r)] { δ(x - x2) }",
+        "∮[x on ball(x1, r)] { N[mu] x[mu] |x - x2|^(-2) }",
+    ]);
+}
+
+#[test]
+fn surface_integrals_that_are_not_a_flux_round_trip() {
+    explicit_round_trips(&[
+        "∮[x on ball(x1, r)] { |x - x1|^(-2) }",
+        "∮[x on ball(x1, r)] { F(|x - x2|) <O(x) O(x2)> }",
+        "g ∮[x on ball(x1, r)] { x[mu] x[mu] } - ∫[x in ball(x1, r)] { 1 }",
+        "∮[x on ball(x1, 2 r)] { x[n] |x - x3|^(-Delta) } x1[mu]",
+        "∮[z on ball(x1, r)] { |z - x2|^(-2) } + F'(∮[z on ball(x2, r)] { z[n] })",
+    ]);
+}
+
+// Known failures, kept as reproductions until the printer or the
+// normaliser is fixed; run them with `cargo test -- --ignored`.
+
+#[test]
+#[ignore = "printer: several denominators are merged into one `/(A B)`, which reads back as a power of the expanded product"]
+fn merged_denominators_with_a_sum_round_trip() {
+    explicit_round_trips(&[
+        // Printed `1/((g - 1) (g + 1))`, read back as `(g^2 - 1)^(-1)`.
+        "1/(g + 1)/(g - 1)",
+        // Printed `1/((g + 1) |x1 - x2|)`, read back as one atom.
+        "(g + 1)^(-1) |x1 - x2|^(-1)",
+    ]);
+}
+
+#[test]
+#[ignore = "printer: `(A)^(-2)` of a sum A in a product is printed `/(A)^2`, and `(A)^2` is expanded on reading"]
+fn negative_power_of_a_sum_in_a_product_round_trips() {
+    // Printed `|x1 - x2|^2/(x1[n] + x2[n])^2`, read back as
+    // `|x1 - x2|^2/(2 x1[n] x2[n] + x1[n]^2 + x2[n]^2)`.
+    explicit_round_trips(&["(x1[n] + x2[n])^(-2) |x1 - x2|^2"]);
+}
+
+#[test]
+#[ignore = "normaliser: `(A)^(-1/2)` and `((A)^(1/2))^(-1)` of a sum A have different normal forms"]
+fn fractional_negative_power_of_a_sum_round_trips() {
+    // Printed `g/(g + 1)^(3/2)`, which normalises to a term that prints the
+    // same but holds Pow(Pow(g + 1, 3/2), -1) instead of Pow(g + 1, -3/2).
+    explicit_round_trips(&["g (g + 1)^(-3/2)"]);
+}
+
+#[test]
+#[ignore = "normaliser: dummy names depend on the index names the file mentions, and a generated name (`k1`) changes them when read back"]
+fn dummy_names_do_not_depend_on_the_names_a_file_mentions() {
+    // The file mentions only `mu`; the expansion of `sct` needs two more
+    // dummies, one named `k1`. Printed with `k1` and read back, the file
+    // mentions `k1` too and the dummies are assigned differently.
+    let book = Arc::new(RuleBook::shipped().expect("shipped rules"));
+    let text = "dimension d\nparameters Delta\npoints x1 x2\nkilling sct special b\n\
+                simplify sct[mu](x1) ∂[mu](x1) { |x1 - x2|^(-2 Delta) }\n";
+    let p = program(text);
+    let engine = Engine::new(p.ctx.clone(), book, Limits::default()).expect("engine");
+    let simplified = engine.simplify(&last_expr(&p)).expect("simplifies").term;
+    reads_back(text, &p, &simplified, "sct");
+}
+
+#[test]
+#[ignore = "normaliser: N[mu] is moved out of a surface integral that is not a flux"]
+fn outward_normals_stay_inside_their_surface_integral() {
+    // Normal form `N[mu] N[nu] ∮[x on ball(x1, r)] { |x - x2|^(-2) }`: N
+    // outside any surface integral, rejected on reading.
+    explicit_round_trips(&["∮[x on ball(x1, r)] { N[mu] N[nu] |x - x2|^(-2) }"]);
 }

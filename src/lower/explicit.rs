@@ -3,12 +3,17 @@
 //! Killing vectors (expanded into coordinates at lowering), regions,
 //! `place` facts and `classify`.
 
-use super::{Declared, Lowerer};
-use crate::context::{Killing, ParamDecl, Placement};
-use crate::diagnostic::{ErrorKind, Result};
+use std::cell::{Cell, RefCell};
+use std::collections::BTreeMap;
+
+use num_traits::{Signed, Zero};
+
+use super::{constant_value, count_indices, indices, Declared, Lowerer};
+use crate::context::{Killing, ParamDecl, Placement, DIMENSION};
+use crate::diagnostic::{Error, ErrorKind, Result};
 use crate::syntax::ast::{
-    Expr, ExprKind, Generator, Name, OpRef, PlaceKind, PointRef, RegionKind, RegionRef, Span,
-    VectorParam,
+    self, Expr, ExprKind, Generator, Name, OpRef, PlaceKind, PointRef, RegionKind, RegionRef, Span,
+    Stmt, VectorParam,
 };
 use crate::term::{Index, Integral, Point, Region, Term};
 
@@ -17,14 +22,44 @@ pub const CROSS_RATIO: &str = "xi";
 /// Name of the outward normal of a surface integral.
 pub const OUTWARD_NORMAL: &str = "N";
 
+/// What lowering knows about the place of the expression at hand: the
+/// `let` statements of the whole file (so that a use before the definition
+/// is told apart from an undeclared name), the `let` being defined, and how
+/// many surface integrals enclose the expression (the outward normal `N`
+/// exists only inside one).
+#[derive(Debug, Default)]
+pub(super) struct Scope {
+    /// Each name defined by `let`, with the span of its first definition.
+    lets: BTreeMap<String, Span>,
+    /// The name of the `let` whose expression is being lowered.
+    defining: RefCell<Option<String>>,
+    /// The number of enclosing surface integrals.
+    surfaces: Cell<u32>,
+}
+
+impl Scope {
+    pub(super) fn new(file: &ast::File) -> Scope {
+        let mut lets = BTreeMap::new();
+        for stmt in &file.stmts {
+            if let Stmt::Let { name, .. } = stmt {
+                lets.entry(name.text.clone()).or_insert(name.span);
+            }
+        }
+        Scope {
+            lets,
+            ..Scope::default()
+        }
+    }
+}
+
 impl Lowerer {
     // ───────────────────────── declarations ─────────────────────────
 
     pub(super) fn declare_killing(&mut self, name: &Name, generator: &Generator) -> Result<()> {
         self.new_name(name, Declared::Killing)?;
         let killing = match generator {
-            Generator::Translation(v) => Killing::Translation(self.vector_param(v)?),
-            Generator::Special(v) => Killing::Special(self.vector_param(v)?),
+            Generator::Translation(v) => Killing::Translation(self.vector_param(v, "translation")?),
+            Generator::Special(v) => Killing::Special(self.vector_param(v, "special")?),
             Generator::Dilatation(lambda) => {
                 self.declare_param(lambda, 0, false, false)?;
                 Killing::Dilatation(lambda.text.clone())
@@ -46,10 +81,27 @@ impl Lowerer {
         Ok(())
     }
 
-    fn vector_param(&mut self, v: &VectorParam) -> Result<Option<String>> {
+    /// The vector of a `translation` or `special` generator (`family`).
+    fn vector_param(&mut self, v: &VectorParam, family: &str) -> Result<Option<String>> {
         match v {
-            VectorParam::Normal(span) => {
-                self.need_halfspace(*span, "the normal n")?;
+            VectorParam::Normal { span, parallel } => {
+                let what = match family {
+                    "translation" => "a translation along the normal n",
+                    _ => "a special conformal transformation along the normal n",
+                };
+                self.need_halfspace(*span, what)?;
+                if let Some(parallel) = parallel {
+                    return Err(self
+                        .err(
+                            ErrorKind::Placement,
+                            *parallel,
+                            "the normal n is not parallel to the boundary",
+                        )
+                        .with_label("contradicts `n`")
+                        .with_note(format!(
+                            "write `{family} n` for the normal direction, or name a parallel vector: `{family} a parallel`"
+                        )));
+                }
                 Ok(None)
             }
             VectorParam::Named { name, parallel } => {
@@ -91,9 +143,15 @@ impl Lowerer {
                     .err(
                         ErrorKind::Name,
                         name.span,
-                        format!("`{}` is already a parameter of another kind", name.text),
+                        format!(
+                            "`{}` is already {}, and cannot also be {}",
+                            name.text,
+                            describe_param(old),
+                            describe_param(&decl)
+                        ),
                     )
-                    .with_label("declared again differently"));
+                    .with_label("declared again differently")
+                    .with_note("give the parameter of this generator another name"));
             }
             return Ok(());
         }
@@ -109,23 +167,72 @@ impl Lowerer {
         region: &RegionRef,
     ) -> Result<()> {
         let p = self.point(point)?;
+        if p.par {
+            return Err(self
+                .err(
+                    ErrorKind::Placement,
+                    point.span,
+                    "`place` takes a declared point, not a projection",
+                )
+                .with_label("a projection")
+                .with_note(format!(
+                    "place the point itself, e.g. `place {} outside ball(x1, r)`",
+                    p.name
+                )));
+        }
+        let region_span = region.span;
         let region = self.region(region)?;
-        if let Region::Ball(center, _) = &region {
-            if center.name == p.name {
-                return Err(self
-                    .err(
-                        ErrorKind::Placement,
-                        point.span,
-                        "the center of a ball is always inside it",
-                    )
-                    .with_label("the center"));
-            }
+        let Region::Ball(center, _) = &region else {
+            return Err(self
+                .err(
+                    ErrorKind::Placement,
+                    region_span,
+                    "`place` states where a point lies relative to a ball",
+                )
+                .with_label("not a ball")
+                .with_note("every point lies in `space`, bulk points in `halfspace` and boundary points on `boundary`; only balls need a `place`, e.g. `place x2 outside ball(x1, r)`"));
+        };
+        if center.name == p.name {
+            return Err(self
+                .err(
+                    ErrorKind::Placement,
+                    point.span,
+                    "the center of a ball is always inside it",
+                )
+                .with_label("the center")
+                .with_note(
+                    "`place` is for the other points, e.g. `place x2 outside ball(x1, r)`",
+                ));
         }
         let placement = match kind {
             PlaceKind::Inside => Placement::Inside,
             PlaceKind::Outside => Placement::Outside,
             PlaceKind::On => Placement::OnSurface,
         };
+        let earlier = self
+            .ctx
+            .placements
+            .iter()
+            .find(|(name, r, _)| *name == p.name && *r == region);
+        if let Some((_, _, before)) = earlier {
+            if *before != placement {
+                return Err(self
+                    .err(
+                        ErrorKind::Placement,
+                        point.span,
+                        format!(
+                            "`{}` is already placed {} this ball",
+                            p.name,
+                            describe_placement(*before)
+                        ),
+                    )
+                    .with_label(format!("now placed {}", describe_placement(placement)))
+                    .with_note(
+                        "a point has one position; keep one of the two `place` statements",
+                    ));
+            }
+            return Ok(());
+        }
         self.ctx.placements.push((p.name, region, placement));
         Ok(())
     }
@@ -188,7 +295,8 @@ impl Lowerer {
                     span,
                     format!("|{0} - {0}| is zero", a.name),
                 )
-                .with_label("the same point twice"));
+                .with_label("the same point twice")
+                .with_note("a distance is taken between two different points"));
         }
         Ok(if a < b {
             Term::Dist(a, b)
@@ -204,6 +312,19 @@ impl Lowerer {
         indices: &[Name],
         span: Span,
     ) -> Result<Term> {
+        let wrong_count = |what: String, rank: usize, example: String| {
+            self.err(
+                ErrorKind::Index,
+                span,
+                format!(
+                    "{what} takes {}, found {}",
+                    count_indices(rank),
+                    indices.len()
+                ),
+            )
+            .with_label("wrong number of indices")
+            .with_note(format!("write e.g. `{example}`"))
+        };
         if par {
             let p = self.point(&PointRef {
                 name: name.clone(),
@@ -211,9 +332,11 @@ impl Lowerer {
                 span,
             })?;
             if indices.len() != 1 {
-                return Err(self
-                    .err(ErrorKind::Index, span, "a coordinate takes one index")
-                    .with_label("wrong number of indices"));
+                return Err(wrong_count(
+                    format!("the coordinate `{}∥[…]`", name.text),
+                    1,
+                    format!("{}∥[a]", name.text),
+                ));
             }
             return Ok(Term::Comp(p, self.index(&indices[0])?));
         }
@@ -221,32 +344,52 @@ impl Lowerer {
             .iter()
             .map(|i| self.index(i))
             .collect::<Result<Vec<_>>>()?;
-        let want = |rank: usize, what: &str| -> Result<()> {
-            if idx.len() == rank {
-                Ok(())
-            } else {
-                Err(self
+        // `N` is the outward normal inside a surface integral; elsewhere it
+        // may be a name the file declares.
+        let in_surface = self.scope.surfaces.get() > 0;
+        if name.text == OUTWARD_NORMAL && (in_surface || !self.declared.contains_key(&name.text)) {
+            if !in_surface {
+                return Err(self
                     .err(
-                        ErrorKind::Index,
-                        name.span,
-                        format!("{what} takes {rank} index(es), found {}", idx.len()),
+                        ErrorKind::Placement,
+                        span,
+                        "the outward normal N exists only inside a surface integral",
                     )
-                    .with_label("wrong number of indices"))
+                    .with_label("outside any `∮`")
+                    .with_note(
+                        "write it inside a surface integral, e.g. `∮[x on ball(x1, r)] { N[mu] … }`",
+                    ));
             }
-        };
-        if name.text == OUTWARD_NORMAL {
-            want(1, "the outward normal N")?;
+            if idx.len() != 1 {
+                return Err(wrong_count(
+                    "the outward normal N".into(),
+                    1,
+                    "N[mu]".into(),
+                ));
+            }
             return Ok(Term::OutNormal(idx[0].clone()));
         }
         if let Some((rank, _)) = self.ctx.point(&name.text) {
-            want(1, "a coordinate")?;
+            if idx.len() != 1 {
+                return Err(wrong_count(
+                    format!("the coordinate `{}[…]`", name.text),
+                    1,
+                    format!("{}[mu]", name.text),
+                ));
+            }
             return Ok(Term::Comp(
                 Point::named(rank, name.text.clone()),
                 idx[0].clone(),
             ));
         }
         if let Some(decl) = self.ctx.params.get(&name.text) {
-            want(decl.rank, &format!("`{}`", name.text))?;
+            if idx.len() != decl.rank {
+                let example = match decl.rank {
+                    1 => format!("{}[mu]", name.text),
+                    _ => format!("{}[mu,nu]", name.text),
+                };
+                return Err(wrong_count(format!("`{}`", name.text), decl.rank, example));
+            }
             return Ok(Term::Param(name.text.clone(), idx));
         }
         if self.ctx.killing.contains_key(&name.text) {
@@ -274,71 +417,26 @@ impl Lowerer {
                     ),
                 )
                 .with_label("takes no components"),
-            None => self.undeclared(
-                name,
-                "vector",
-                &format!("killing eps translation {}", name.text),
-            ),
+            None => self
+                .err(
+                    ErrorKind::Name,
+                    name.span,
+                    format!("undeclared point or vector `{}`", name.text),
+                )
+                .with_label("not declared")
+                .with_note(format!(
+                    "declare a point (`points {0}`), or a vector parameter with the Killing vector it belongs to (`killing eps translation {0}`)",
+                    name.text
+                )),
         })
     }
 
     pub(super) fn call(&self, name: &Name, primes: u32, args: &[Expr], span: Span) -> Result<Term> {
-        if name.text == CROSS_RATIO {
-            self.need_halfspace(span, "the cross-ratio xi")?;
-            let points: Vec<Point> = args
-                .iter()
-                .map(|a| match &a.kind {
-                    ExprKind::Name(n) => self.point(&PointRef {
-                        name: n.clone(),
-                        par: false,
-                        span: n.span,
-                    }),
-                    _ => Err(self
-                        .err(ErrorKind::Syntax, a.span, "xi takes two bulk points")
-                        .with_label("not a point")),
-                })
-                .collect::<Result<_>>()?;
-            let [p, q] = &points[..] else {
-                return Err(self
-                    .err(
-                        ErrorKind::Syntax,
-                        span,
-                        "xi takes two bulk points: xi(x1, x2)",
-                    )
-                    .with_label("wrong number of arguments"));
-            };
-            if primes > 0
-                || p == q
-                || self.ctx.is_boundary_point(p)
-                || self.ctx.is_boundary_point(q)
-            {
-                return Err(self
-                    .err(
-                        ErrorKind::Placement,
-                        span,
-                        "xi takes two different bulk points: xi(x1, x2)",
-                    )
-                    .with_label("not a cross-ratio"));
-            }
-            // ξ = |p - q|² / (4 y_p y_q).
-            let (a, b) = if p < q { (p, q) } else { (q, p) };
-            return Ok(Term::Mul(vec![
-                Term::Pow(
-                    Box::new(Term::Dist(a.clone(), b.clone())),
-                    Box::new(Term::int(2)),
-                ),
-                Term::Pow(
-                    Box::new(Term::Mul(vec![
-                        Term::int(4),
-                        Term::Comp(p.clone(), Index::N),
-                        Term::Comp(q.clone(), Index::N),
-                    ])),
-                    Box::new(Term::int(-1)),
-                ),
-            ]));
+        if name.text == CROSS_RATIO && self.ctx.operator(&name.text).is_none() {
+            return self.cross_ratio(name, primes, args, span);
         }
-        // `g (a + b)` is a product, not a call, when g is a number.
-        let is_number = name.text == crate::context::DIMENSION
+        // `g(a + b)` is a product, not a call, when g is a number.
+        let is_number = name.text == DIMENSION
             || matches!(
                 self.declared.get(&name.text),
                 Some((Declared::Parameter | Declared::Let, _))
@@ -348,14 +446,27 @@ impl Lowerer {
             return Ok(Term::Mul(vec![factor, self.expr(&args[0])?]));
         }
         if !self.ctx.functions.contains(&name.text) {
+            if let Some(err) = self.let_out_of_order(name) {
+                return Err(err);
+            }
             return Err(match self.declared_kind(&name.text) {
-                Some(kind) => self
-                    .err(
-                        ErrorKind::Name,
-                        name.span,
-                        format!("`{}` is {kind}, not a function", name.text),
-                    )
-                    .with_label("called like a function"),
+                Some(kind) => {
+                    let error = self
+                        .err(
+                            ErrorKind::Name,
+                            name.span,
+                            format!("`{}` is {kind}, not a function", name.text),
+                        )
+                        .with_label("called like a function");
+                    if is_number {
+                        error.with_note(format!(
+                            "`{0}(u)` with one argument is the product of `{0}` and u; an unknown function is declared with `function F` and called as `F(u)`",
+                            name.text
+                        ))
+                    } else {
+                        error
+                    }
+                }
                 None => self.undeclared(name, "function", &format!("function {}", name.text)),
             });
         }
@@ -364,12 +475,224 @@ impl Lowerer {
                 .err(
                     ErrorKind::Syntax,
                     span,
-                    format!("`{}` is a function of one variable", name.text),
+                    format!(
+                        "`{}` is a function of one variable, found {} arguments",
+                        name.text,
+                        args.len()
+                    ),
                 )
-                .with_label("wrong number of arguments"));
+                .with_label("wrong number of arguments")
+                .with_note(format!(
+                    "declared functions take one argument, e.g. `{}(|x1 - x2|^2)`",
+                    name.text
+                )));
         }
         let arg = self.expr(&args[0])?;
         Ok(Term::Fun(name.text.clone(), primes, vec![arg]))
+    }
+
+    /// The cross-ratio `xi(p, q)` = |p - q|² / (4 y_p y_q) of two bulk points.
+    fn cross_ratio(&self, name: &Name, primes: u32, args: &[Expr], span: Span) -> Result<Term> {
+        const FORM: &str = "ξ = |x1 - x2|²/(4 y1 y2), written `xi(x1, x2)`";
+        self.need_halfspace(span, "the cross-ratio xi")?;
+        if primes > 0 {
+            // Up to the opening bracket: the name and its primes.
+            let text = &self.source.text[name.span.start..span.end];
+            let end = name.span.start + text.find('(').unwrap_or(name.span.end - name.span.start);
+            return Err(self
+                .err(
+                    ErrorKind::Syntax,
+                    Span::new(name.span.start, end).to(name.span),
+                    "the cross-ratio xi cannot carry primes",
+                )
+                .with_label("primes on `xi`")
+                .with_note("primes differentiate declared functions: declare `function F` and write `F'(xi(x1, x2))`"));
+        }
+        if args.len() != 2 {
+            return Err(self
+                .err(
+                    ErrorKind::Syntax,
+                    span,
+                    format!(
+                        "the cross-ratio xi takes two bulk points, found {} argument{}",
+                        args.len(),
+                        if args.len() == 1 { "" } else { "s" }
+                    ),
+                )
+                .with_label("wrong number of arguments")
+                .with_note(FORM));
+        }
+        let mut points = Vec::new();
+        for arg in args {
+            let ExprKind::Name(n) = &arg.kind else {
+                return Err(self
+                    .err(
+                        ErrorKind::Syntax,
+                        arg.span,
+                        "the cross-ratio xi takes points, not expressions",
+                    )
+                    .with_label("not a point")
+                    .with_note(FORM));
+            };
+            let p = self.point(&PointRef {
+                name: n.clone(),
+                par: false,
+                span: n.span,
+            })?;
+            if self.ctx.is_boundary_point(&p) {
+                return Err(self
+                    .err(
+                        ErrorKind::Placement,
+                        arg.span,
+                        format!(
+                            "the cross-ratio xi takes bulk points, and `{}` is a boundary point",
+                            n.text
+                        ),
+                    )
+                    .with_label("a boundary point")
+                    .with_note(format!(
+                        "{FORM}, is infinite when a point lies on the boundary {} = 0",
+                        self.ctx.normal_coord()
+                    )));
+            }
+            points.push(p);
+        }
+        let [p, q] = &points[..] else {
+            return Err(self.err(ErrorKind::Syntax, span, "xi takes two points"));
+        };
+        if p == q {
+            return Err(self
+                .err(
+                    ErrorKind::Placement,
+                    args[1].span,
+                    format!("`xi({0}, {0})` takes the same point twice", p.name),
+                )
+                .with_label("the same point as the first argument")
+                .with_note(format!("{FORM}, relates two different bulk points")));
+        }
+        // ξ = |p - q|² / (4 y_p y_q).
+        let (a, b) = if p < q { (p, q) } else { (q, p) };
+        Ok(Term::Mul(vec![
+            Term::Pow(
+                Box::new(Term::Dist(a.clone(), b.clone())),
+                Box::new(Term::int(2)),
+            ),
+            Term::Pow(
+                Box::new(Term::Mul(vec![
+                    Term::int(4),
+                    Term::Comp(p.clone(), Index::N),
+                    Term::Comp(q.clone(), Index::N),
+                ])),
+                Box::new(Term::int(-1)),
+            ),
+        ]))
+    }
+
+    /// True for `F(u)` with a bare name as argument and no indices, where
+    /// `F` is a function, `xi`, a parameter, a named expression or `d`: the
+    /// grammar reads it as an operator insertion, but it is a call.
+    pub(super) fn is_call(&self, op: &OpRef) -> bool {
+        let name = &op.name.text;
+        !op.name.is_var
+            && !op.point.name.is_var
+            && !op.point.par
+            && op.indices.is_empty()
+            && self.ctx.operator(name).is_none()
+            && (name == CROSS_RATIO
+                || name == DIMENSION
+                || self.ctx.functions.contains(name)
+                || self.scope.lets.contains_key(name)
+                || matches!(
+                    self.declared.get(name),
+                    Some((Declared::Parameter | Declared::Let, _))
+                ))
+    }
+
+    /// Lowers an insertion-shaped `F(u)` (see [`Lowerer::is_call`]) as a call.
+    pub(super) fn op_call(&self, op: &OpRef) -> Result<Term> {
+        let arg = Expr {
+            kind: ExprKind::Name(op.point.name.clone()),
+            span: op.point.span,
+        };
+        self.call(&op.name, 0, &[arg], op.span)
+    }
+
+    /// A declared function written without its argument, or with a space
+    /// before the bracket (`F (u)` is F times u).
+    pub(super) fn function_without_argument(&self, n: &Name) -> Error {
+        self.err(
+            ErrorKind::Name,
+            n.span,
+            format!("the function `{}` is used without its argument", n.text),
+        )
+        .with_label("no argument")
+        .with_note(format!(
+            "the bracket follows the name without a space: `{0}(u)`, `{0}'(u)`",
+            n.text
+        ))
+    }
+
+    /// A name used as a number but never declared.
+    pub(super) fn undeclared_scalar(&self, n: &Name) -> Error {
+        self.let_out_of_order(n)
+            .unwrap_or_else(|| self.undeclared(n, "parameter", &format!("parameters {}", n.text)))
+    }
+
+    /// The error for a named expression used inside its own definition or
+    /// before it, if `n` is one.
+    fn let_out_of_order(&self, n: &Name) -> Option<Error> {
+        if self.scope.defining.borrow().as_deref() == Some(n.text.as_str()) {
+            return Some(
+                self.err(
+                    ErrorKind::Name,
+                    n.span,
+                    format!("`{}` is used inside its own definition", n.text),
+                )
+                .with_label("refers to itself")
+                .with_note("a named expression is substituted where it is used, so it cannot refer to itself"),
+            );
+        }
+        let defined = self.scope.lets.get(&n.text)?;
+        let line = self.source.line_col(defined.start).0;
+        Some(
+            self.err(
+                ErrorKind::Name,
+                n.span,
+                format!("`{}` is used before its definition", n.text),
+            )
+            .with_label("not defined yet")
+            .with_note(format!(
+                "`let {} = …` comes later, on line {line}; move it above this use",
+                n.text
+            )),
+        )
+    }
+
+    /// `let NAME = EXPR`: checks the expression once, and keeps it to be
+    /// lowered again where the name is used.
+    pub(super) fn declare_let(&mut self, name: &Name, expr: &Expr) -> Result<()> {
+        let free = self.free_indices(expr)?;
+        if let Some(index) = free.iter().next() {
+            let span = indices::free_spans(expr)
+                .ok()
+                .and_then(|spans| spans.get(index).copied())
+                .unwrap_or(expr.span);
+            return Err(self
+                .err(
+                    ErrorKind::Index,
+                    span,
+                    format!("a named expression cannot carry the free index `{index}`"),
+                )
+                .with_label(format!("`{index}` is free"))
+                .with_note("a `let` names an expression without free indices; contract the index (e.g. `x1[mu] x1[mu]`) or write the tensor out where it is used"));
+        }
+        *self.scope.defining.borrow_mut() = Some(name.text.clone());
+        let lowered = self.expr(expr);
+        *self.scope.defining.borrow_mut() = None;
+        lowered?;
+        self.new_name(name, Declared::Let)?;
+        self.lets.insert(name.text.clone(), expr.clone());
+        Ok(())
     }
 
     pub(super) fn integral(
@@ -380,39 +703,54 @@ impl Lowerer {
         body: &Expr,
     ) -> Result<Term> {
         let v = self.point(var)?;
-        let region = self.region(region)?;
+        let lowered = self.region(region)?;
+        let written = &self.source.text[var.span.start..var.span.end];
         let on_boundary = self.ctx.is_boundary_point(&v);
-        match (&region, on_boundary) {
+        match (&lowered, on_boundary) {
             (Region::Boundary, false) => {
                 return Err(self
                     .err(
                         ErrorKind::Placement,
                         var.span,
-                        "a boundary integral runs over a boundary point or a projection x∥",
+                        format!("a boundary integral runs over a boundary point or a projection, not the bulk point `{written}`"),
                     )
-                    .with_label("a bulk point"))
+                    .with_label("a bulk point")
+                    .with_note(format!(
+                        "integrate over the projection, `∫[{}∥ in boundary] {{ … }}`, or over a boundary point",
+                        v.name
+                    )))
             }
             (Region::Boundary, true) if surface => {
                 return Err(self
                     .err(
                         ErrorKind::Placement,
-                        var.span,
+                        region.span,
                         "the boundary plane has no surface to integrate over",
                     )
-                    .with_label("here"))
+                    .with_label("a plane")
+                    .with_note(format!(
+                        "integrate over the plane itself: `∫[{written} in boundary] {{ … }}`"
+                    )))
             }
             (Region::Space | Region::Halfspace | Region::Ball(..), true) => {
+                let what = if v.par { "the projection" } else { "the boundary point" };
                 return Err(self
                     .err(
                         ErrorKind::Placement,
                         var.span,
-                        "a bulk region is integrated over a bulk point",
+                        format!(
+                            "an integral over `{}` runs over a bulk point, not {what} `{written}`",
+                            &self.source.text[region.span.start..region.span.end]
+                        ),
                     )
-                    .with_label("a boundary point"))
+                    .with_label("on the boundary")
+                    .with_note("integrate over a bulk point, e.g. `∫[x in space] { … }`, or over the boundary with `∫[s in boundary] { … }`"))
             }
             _ => {}
         }
-        if let Region::Ball(center, _) = &region {
+        if let (Region::Ball(center, radius), RegionKind::Ball(_, radius_expr)) =
+            (&lowered, &region.kind)
+        {
             if center.name == v.name {
                 return Err(self
                     .err(
@@ -420,14 +758,37 @@ impl Lowerer {
                         var.span,
                         "the integration point cannot be the center of its own ball",
                     )
-                    .with_label("bound here"));
+                    .with_label("bound here")
+                    .with_note(
+                        "center the ball at a point other than the one integrated over, e.g. `∫[x in ball(x1, r)] { … }`",
+                    ));
             }
+            if radius.mentions_point(&v) {
+                return Err(self
+                    .err(
+                        ErrorKind::Placement,
+                        radius_expr.span,
+                        format!(
+                            "the radius of the ball depends on the integration point `{}`",
+                            v.name
+                        ),
+                    )
+                    .with_label("mentions the integration point")
+                    .with_note("the region is fixed before integrating: its radius is a parameter or depends on other points"));
+            }
+        }
+        if surface {
+            self.scope.surfaces.set(self.scope.surfaces.get() + 1);
+        }
+        let body = self.expr(body);
+        if surface {
+            self.scope.surfaces.set(self.scope.surfaces.get() - 1);
         }
         Ok(Term::Integral(Box::new(Integral {
             var: v,
-            region,
+            region: lowered,
             surface,
-            body: self.expr(body)?,
+            body: body?,
         })))
     }
 
@@ -449,13 +810,48 @@ impl Lowerer {
                         .err(
                             ErrorKind::Placement,
                             center.span,
-                            "a ball is centered at a bulk point",
+                            format!(
+                                "a ball is centered at a bulk point, not at the boundary point `{}`",
+                                &self.source.text[center.span.start..center.span.end]
+                            ),
                         )
-                        .with_label("a boundary point"));
+                        .with_label("on the boundary")
+                        .with_note("center the ball at a bulk point, e.g. `ball(x1, r)`"));
                 }
-                Region::Ball(c, self.expr(radius)?)
+                Region::Ball(c, self.radius(radius)?)
             }
         })
+    }
+
+    /// The radius of a ball: a scalar, positive when it is a number.
+    fn radius(&self, radius: &Expr) -> Result<Term> {
+        if let Some(index) = self.free_indices(radius)?.iter().next() {
+            let span = indices::free_spans(radius)
+                .ok()
+                .and_then(|spans| spans.get(index).copied())
+                .unwrap_or(radius.span);
+            return Err(self
+                .err(
+                    ErrorKind::Index,
+                    span,
+                    format!("the radius of a ball cannot carry the free index `{index}`"),
+                )
+                .with_label(format!("`{index}` is free"))
+                .with_note("a radius is a length, e.g. `ball(x1, r)` or `ball(x1, |x1 - x2|/2)`"));
+        }
+        if let Some(value) = constant_value(radius) {
+            if value.is_zero() || value.is_negative() {
+                return Err(self
+                    .err(
+                        ErrorKind::Arithmetic,
+                        radius.span,
+                        "the radius of a ball must be positive",
+                    )
+                    .with_label(if value.is_zero() { "zero" } else { "negative" })
+                    .with_note("a radius is a length, e.g. `ball(x1, r)` or `ball(x1, 1/2)`"));
+            }
+        }
+        self.expr(radius)
     }
 
     /// `eps[nu](x)`: the Killing vector's component at a point, expanded.
@@ -466,9 +862,14 @@ impl Lowerer {
                 .err(
                     ErrorKind::Index,
                     op.span,
-                    format!("the Killing vector `{}` takes one index", op.name.text),
+                    format!(
+                        "the Killing vector `{}` takes 1 index, found {}",
+                        op.name.text,
+                        op.indices.len()
+                    ),
                 )
-                .with_label("wrong number of indices"));
+                .with_label("wrong number of indices")
+                .with_note(format!("write e.g. `{}[mu](x)`", op.name.text)));
         }
         let index = self.index(&op.indices[0])?;
         let point = self.point(&op.point)?;
@@ -527,5 +928,25 @@ impl Lowerer {
 
     fn declared_kind(&self, name: &str) -> Option<&'static str> {
         self.declared.get(name).map(|(kind, _)| kind.describe())
+    }
+}
+
+/// "a vector", "a parallel antisymmetric tensor", … for a parameter.
+fn describe_param(decl: &ParamDecl) -> String {
+    let parallel = if decl.parallel { "parallel " } else { "" };
+    match (decl.rank, decl.antisymmetric) {
+        (1, _) => format!("a {parallel}vector"),
+        (_, true) if decl.parallel => "a parallel antisymmetric tensor".to_string(),
+        (_, true) => "an antisymmetric tensor".to_string(),
+        _ => format!("a {parallel}tensor"),
+    }
+}
+
+/// `inside`, `outside` or `on the surface of`, as in "placed inside this ball".
+fn describe_placement(p: Placement) -> &'static str {
+    match p {
+        Placement::Inside => "inside",
+        Placement::Outside => "outside",
+        Placement::OnSurface => "on the surface of",
     }
 }

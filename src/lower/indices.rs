@@ -43,6 +43,12 @@ pub fn profile(e: &Expr) -> Result<Profile, Violation> {
     Ok(walk(e)?.free.into_keys().collect())
 }
 
+/// Free indices of `e` with the place each is first written, or the first
+/// violation.
+pub fn free_spans(e: &Expr) -> Result<BTreeMap<String, Span>, Violation> {
+    Ok(walk(e)?.free)
+}
+
 /// `{mu, nu}` or `none`.
 pub fn describe(set: &BTreeSet<&String>) -> String {
     if set.is_empty() {
@@ -113,7 +119,8 @@ fn walk(e: &Expr) -> Result<Usage, Violation> {
                         span,
                         format!("index `{name}` is free inside a function argument"),
                         "free index",
-                    ));
+                    )
+                    .with_note("a function takes a scalar argument; contract the index, e.g. `F(x1[mu] x1[mu])`"));
                 }
             }
             Ok(Usage::default())
@@ -151,7 +158,13 @@ fn walk(e: &Expr) -> Result<Usage, Violation> {
                 }
                 BinOp::Mul => product(vec![l, r]),
                 BinOp::Div | BinOp::Pow => {
-                    for usage in [&r, &l] {
+                    // A numerator may carry free indices (`x1[mu]/|x1 - x2|^2`);
+                    // a denominator, a base or an exponent may not.
+                    let scalars: &[&Usage] = match op {
+                        BinOp::Div => &[&r],
+                        _ => &[&r, &l],
+                    };
+                    for usage in scalars {
                         if let Some((name, span)) = usage.free.iter().next() {
                             return Err(Violation::new(
                                 *span,
@@ -166,6 +179,11 @@ fn walk(e: &Expr) -> Result<Usage, Violation> {
                             "a power of a contracted expression is ambiguous; write the product out".into(),
                             "contains a summed index",
                         ));
+                    }
+                    if matches!(op, BinOp::Div) {
+                        // A numerator's free index may not be summed in the
+                        // denominator too.
+                        return product(vec![l, r]);
                     }
                     let mut usage = l;
                     usage.dummies.extend(r.dummies);

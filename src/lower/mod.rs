@@ -66,6 +66,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
         declared: BTreeMap::new(),
         lets: BTreeMap::new(),
         fresh: std::cell::Cell::new(0),
+        scope: explicit::Scope::new(file),
     };
     lowerer.ctx.add_builtins();
     lowerer.collect_indices(file);
@@ -189,6 +190,8 @@ struct Lowerer {
     lets: BTreeMap<String, Expr>,
     /// Counter for fresh summation indices inside Killing vectors.
     fresh: std::cell::Cell<u32>,
+    /// Where the expression being lowered stands (see [`explicit::Scope`]).
+    scope: explicit::Scope,
 }
 
 impl Lowerer {
@@ -350,25 +353,7 @@ impl Lowerer {
                     self.ctx.functions.insert(name.text.clone());
                 }
             }
-            Stmt::Let { name, expr } => {
-                if let Some((index, span)) = self
-                    .free_indices(expr)?
-                    .iter()
-                    .next()
-                    .map(|i| (i.clone(), expr.span))
-                {
-                    return Err(self
-                        .err(
-                            ErrorKind::Index,
-                            span,
-                            format!("a named expression cannot carry the free index `{index}`"),
-                        )
-                        .with_label("has a free index"));
-                }
-                self.expr(expr)?;
-                self.new_name(name, Declared::Let)?;
-                self.lets.insert(name.text.clone(), expr.clone());
-            }
+            Stmt::Let { name, expr } => self.declare_let(name, expr)?,
             Stmt::Killing {
                 name, generator, ..
             } => self.declare_killing(name, generator)?,
@@ -596,6 +581,7 @@ impl Lowerer {
                 }
                 Term::Corr(ops)
             }
+            ExprKind::Op(op) if self.is_call(op) => self.op_call(op)?,
             ExprKind::Op(op) if !op.name.is_var && self.ctx.killing.contains_key(&op.name.text) => {
                 self.killing_vector(op)?
             }
@@ -698,6 +684,7 @@ impl Lowerer {
         }
         match self.declared.get(&n.text) {
             Some((Declared::Parameter, _)) => Ok(Term::Sym(n.text.clone())),
+            Some((Declared::Function, _)) => Err(self.function_without_argument(n)),
             Some((Declared::Let, _)) => match self.lets.get(&n.text) {
                 Some(e) => self.expr(e),
                 None => Err(self.err(
@@ -713,7 +700,7 @@ impl Lowerer {
                     format!("`{}` is {}, not a parameter", n.text, kind.describe()),
                 )
                 .with_label("used as a number")),
-            None => Err(self.undeclared(n, "parameter", &format!("parameters {}", n.text))),
+            None => Err(self.undeclared_scalar(n)),
         }
     }
 

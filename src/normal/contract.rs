@@ -382,6 +382,11 @@ fn rename_canonically(ctx: &Context, mut m: Mono) -> Mono {
             .map(|d| (d.clone(), signature(&m.factors, d, &dummies)))
             .collect();
         order.sort_by(|a, b| signatures[a].cmp(&signatures[b]));
+        // With no two signatures alike the order depends on structure
+        // alone, and one renaming is final.
+        let distinct = order
+            .windows(2)
+            .all(|w| signatures[&w[0]] != signatures[&w[1]]);
         let mut used: BTreeMap<IndexKind, usize> = BTreeMap::new();
         let mut map = BTreeMap::new();
         for name in &order {
@@ -419,8 +424,8 @@ fn rename_canonically(ctx: &Context, mut m: Mono) -> Mono {
                 factors: m.factors.iter().map(|f| rename_in(f, &map)).collect(),
             },
         );
-        if renamed == m {
-            return m;
+        if distinct || renamed == m {
+            return renamed;
         }
         m = renamed;
     }

@@ -166,8 +166,16 @@ pub enum RegionKind {
 /// parameter (possibly declared parallel to the boundary) or the normal `n`.
 #[derive(Clone, Debug, PartialEq, Eq)]
 pub enum VectorParam {
-    Normal(Span),
-    Named { name: Name, parallel: bool },
+    /// The normal `n`; `parallel` holds the span of a (wrong) `parallel`
+    /// written after it.
+    Normal {
+        span: Span,
+        parallel: Option<Span>,
+    },
+    Named {
+        name: Name,
+        parallel: bool,
+    },
 }
 
 /// Where a `place` statement puts a point.

@@ -118,11 +118,16 @@ fn syntax_error(source: &Arc<Source>, e: pest::error::Error<Rule>) -> Error {
             .filter_map(|r| describe(*r))
             .map(String::from)
             .collect();
+        if at_statement_start(&positives) {
+            expected.push("a new statement".into());
+        }
         expected.sort();
         expected.dedup();
         (classic, expected, positives.clone())
     });
     let (found, end) = found_at(text, offset);
+    let stray_expression =
+        at_statement_start(&rules) && EXPRESSION_WORDS.contains(&&text[offset..end]);
     let message = if expected.is_empty() {
         format!("unexpected {found}")
     } else {
@@ -133,7 +138,41 @@ fn syntax_error(source: &Arc<Source>, e: pest::error::Error<Rule>) -> Error {
     for note in hints(&rules) {
         error = error.with_note(note);
     }
+    if stray_expression {
+        error = error.with_note(
+            "an expression is written after `simplify`, `claim` or `let NAME =`, e.g. `simplify ∫[x in space] { … }`",
+        );
+    }
     error
+}
+
+/// Rules that are whole statements of a `.ward` file.
+const STATEMENT_RULES: &[Rule] = &[
+    Rule::dimension_decl,
+    Rule::halfspace_decl,
+    Rule::operator_decl,
+    Rule::points_decl,
+    Rule::parameters_decl,
+    Rule::parallel_decl,
+    Rule::rules_decl,
+    Rule::simplify_stmt,
+    Rule::claim_stmt,
+    Rule::function_decl,
+    Rule::killing_decl,
+    Rule::let_stmt,
+    Rule::classify_stmt,
+    Rule::place_stmt,
+];
+
+/// Tokens that start an expression but never a statement.
+const EXPRESSION_WORDS: &[&str] = &[
+    "∫", "int", "∮", "oint", "∂", "del", "<", "⟨", "δ", "delta", "|", "(",
+];
+
+/// True when the parser was between statements: it tried several kinds of
+/// statement at once.
+fn at_statement_start(rules: &[Rule]) -> bool {
+    rules.iter().filter(|r| STATEMENT_RULES.contains(r)).count() >= 2
 }
 
 /// A quoted path whose closing quote is missing on its line.
@@ -257,7 +296,13 @@ fn describe_tokens(tokens: &[String], after_word: bool) -> Vec<String> {
 /// A note on the correct form of the construct the parser was inside.
 fn hints(rules: &[Rule]) -> Vec<&'static str> {
     let mut out = Vec::new();
+    // Between statements every kind of statement was tried: no single one
+    // is meant.
+    let between = at_statement_start(rules);
     for r in rules {
+        if between && STATEMENT_RULES.contains(r) {
+            continue;
+        }
         let hint = match r {
             Rule::deriv => "a derivative takes a bracketed body: `∂[mu](x) <…>`, `∂[mu](x) { … }`, `∂[mu](x) ( … )` or another `∂`",
             Rule::halfspace_decl => "a half-space is declared as `halfspace y >= 0`, naming the normal coordinate",
@@ -265,6 +310,30 @@ fn hints(rules: &[Rule]) -> Vec<&'static str> {
                 "an operator is declared with its attributes, e.g. `scalar O dim Delta`"
             }
             Rule::corr_close => "a correlator `<…>` must be closed with `>` before the next statement",
+            Rule::brace_close => "a body `{ … }` must be closed with `}` before the next statement",
+            Rule::brace if !rules.contains(&Rule::deriv) => {
+                "the body of an integral is written in braces: `∫[x in space] { … }`"
+            }
+            Rule::integral => "an integral reads `∫[x in REGION] { … }` (ASCII `int`), with REGION one of `space`, `halfspace`, `boundary` or `ball(x1, r)`",
+            Rule::surface | Rule::surface_on => "a surface integral reads `∮[x on ball(x1, r)] { N[mu] … }` (ASCII `oint`)",
+            Rule::region | Rule::region_ball | Rule::place_kind => {
+                "a region is `space`, `halfspace`, `boundary` or `ball(x1, r)` (centre and radius)"
+            }
+            Rule::distance => "a distance is written `|x1 - x2|`, between two points",
+            Rule::call => "a function is called with its argument in parentheses: `F(u)`, `F'(u)`, `xi(x1, x2)`",
+            Rule::killing_decl
+            | Rule::generator
+            | Rule::gen_translation
+            | Rule::gen_rotation
+            | Rule::gen_mixing
+            | Rule::gen_dilatation
+            | Rule::gen_special
+            | Rule::gen_vector => {
+                "a Killing vector is declared as `killing eps translation a`, `rotation omega`, `rotation n e`, `dilatation lambda` or `special b`; add `parallel` for a vector or tensor along the boundary, or use `n` for the normal"
+            }
+            Rule::mixing_dir => "the rotation mixing n with a direction along the boundary names that direction: `killing eps rotation n e`",
+            Rule::place_stmt => "a placement reads `place x2 inside ball(x1, r)` (or `outside`, `on`)",
+            Rule::let_stmt => "a named expression reads `let G = EXPRESSION`",
             Rule::rule | Rule::conditions => "a rule reads `rule NAME [when CONDITIONS] from PATTERN to TEMPLATE`",
             _ => continue,
         };
@@ -289,6 +358,10 @@ fn describe(r: Rule) -> Option<&'static str> {
         Rule::index => "an index",
         Rule::op => "an insertion like `O(x)`",
         Rule::corr_close => "`>`",
+        Rule::brace_close => "`}`",
+        Rule::mixing_dir => "a name",
+        Rule::surface_on => "`on`",
+        Rule::region => "a region (`space`, `halfspace`, `boundary`, `ball(x1, r)`)",
         Rule::statement => "a statement (`dimension`, `points`, `simplify`, `claim`, …)",
         Rule::EOI => "end of file",
         _ => return None,
@@ -593,15 +666,14 @@ fn parse_primary(pair: Pair<Rule>) -> Expr {
                 inner.next();
                 primes += 1;
             }
-            ExprKind::Call {
-                name,
-                primes,
-                args: inner.map(build_expr).collect(),
-            }
+            let args = inner.flat_map(|p| p.into_inner()).map(build_expr).collect();
+            ExprKind::Call { name, primes, args }
         }
         Rule::integral | Rule::surface => {
             let surface = which == Rule::surface;
-            let mut inner = pair.into_inner();
+            let mut inner = pair
+                .into_inner()
+                .filter(|p| p.as_rule() != Rule::surface_on);
             let var = parse_point(next(&mut inner));
             let region = parse_region(next(&mut inner));
             let body = build_expr(next(&mut inner).into_inner().next().expect("integral body"));
@@ -712,9 +784,16 @@ fn parse_generator(pair: Pair<Rule>) -> Generator {
 fn parse_vector_param(pair: Pair<Rule>) -> VectorParam {
     let mut parts = pair.into_inner();
     let first = next(&mut parts);
-    let parallel = parts.next().is_some();
+    // The word itself: the `parallel_kw` pair may end after white space.
+    let parallel_kw = parts
+        .next()
+        .map(|p| span_of(&p.clone().into_inner().next().unwrap_or(p)));
+    let parallel = parallel_kw.is_some();
     if first.as_rule() == Rule::normal_kw {
-        VectorParam::Normal(span_of(&first))
+        VectorParam::Normal {
+            span: span_of(&first),
+            parallel: parallel_kw,
+        }
     } else {
         VectorParam::Named {
             name: parse_name(first),
@@ -725,7 +804,14 @@ fn parse_vector_param(pair: Pair<Rule>) -> VectorParam {
 
 fn parse_op(pair: Pair<Rule>) -> OpRef {
     let span = span_of(&pair);
-    let mut inner = pair.into_inner().peekable();
+    // The name, then the children of `op_tail`.
+    let mut inner = pair
+        .into_inner()
+        .flat_map(|p| match p.as_rule() {
+            Rule::op_tail => p.into_inner().collect::<Vec<_>>(),
+            _ => vec![p],
+        })
+        .peekable();
     let name = parse_name(next(&mut inner));
     let mut indices = Vec::new();
     if inner.peek().map(|p| p.as_rule()) == Some(Rule::indices) {
