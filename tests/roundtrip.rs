@@ -231,11 +231,10 @@ fn surface_integrals_that_are_not_a_flux_round_trip() {
     ]);
 }
 
-// Known failures, kept as reproductions until the printer or the
-// normaliser is fixed; run them with `cargo test -- --ignored`.
+// Regressions: printed forms that once did not read back (denominators,
+// powers of sums, generated dummy names, outward normals).
 
 #[test]
-#[ignore = "printer: several denominators are merged into one `/(A B)`, which reads back as a power of the expanded product"]
 fn merged_denominators_with_a_sum_round_trip() {
     explicit_round_trips(&[
         // Printed `1/((g - 1) (g + 1))`, read back as `(g^2 - 1)^(-1)`.
@@ -246,7 +245,6 @@ fn merged_denominators_with_a_sum_round_trip() {
 }
 
 #[test]
-#[ignore = "printer: `(A)^(-2)` of a sum A in a product is printed `/(A)^2`, and `(A)^2` is expanded on reading"]
 fn negative_power_of_a_sum_in_a_product_round_trips() {
     // Printed `|x1 - x2|^2/(x1[n] + x2[n])^2`, read back as
     // `|x1 - x2|^2/(2 x1[n] x2[n] + x1[n]^2 + x2[n]^2)`.
@@ -254,7 +252,6 @@ fn negative_power_of_a_sum_in_a_product_round_trips() {
 }
 
 #[test]
-#[ignore = "normaliser: `(A)^(-1/2)` and `((A)^(1/2))^(-1)` of a sum A have different normal forms"]
 fn fractional_negative_power_of_a_sum_round_trips() {
     // Printed `g/(g + 1)^(3/2)`, which normalises to a term that prints the
     // same but holds Pow(Pow(g + 1, 3/2), -1) instead of Pow(g + 1, -3/2).
@@ -262,7 +259,6 @@ fn fractional_negative_power_of_a_sum_round_trips() {
 }
 
 #[test]
-#[ignore = "normaliser: dummy names depend on the index names the file mentions, and a generated name (`k1`) changes them when read back"]
 fn dummy_names_do_not_depend_on_the_names_a_file_mentions() {
     // The file mentions only `mu`; the expansion of `sct` needs two more
     // dummies, one named `k1`. Printed with `k1` and read back, the file
@@ -277,7 +273,6 @@ fn dummy_names_do_not_depend_on_the_names_a_file_mentions() {
 }
 
 #[test]
-#[ignore = "normaliser: N[mu] is moved out of a surface integral that is not a flux"]
 fn outward_normals_stay_inside_their_surface_integral() {
     // Normal form `N[mu] N[nu] ∮[x on ball(x1, r)] { |x - x2|^(-2) }`: N
     // outside any surface integral, rejected on reading.

@@ -467,6 +467,11 @@ impl Lowerer {
             } else {
                 IndexKind::Bulk
             };
+            // Generated names (k1, k2, …) come after the file's own in
+            // every pool, so printed output reads back with the same names.
+            if kind == IndexKind::Bulk && crate::normal::is_generated_index(&name) {
+                continue;
+            }
             self.ctx.index_pool.entry(kind).or_default().insert(name);
         }
         for name in parallel {

@@ -111,6 +111,8 @@ fn atom_derivative(ctx: &Context, i: &Index, p: &Point, atom: &Term) -> Result<V
             Term::Pow(base.clone(), Box::new(Term::int(-1))),
             Term::Der(i.clone(), p.clone(), base.clone()),
         ]),
+        // A sum carrying a power: differentiate the sum.
+        Term::Add(_) | Term::Mul(_) => Term::Der(i.clone(), p.clone(), Box::new(atom.clone())),
         _ => Term::zero(),
     };
     expand(ctx, &term)

@@ -167,7 +167,8 @@ fn split(var: &Point, m: Mono) -> (Mono, Mono) {
     outside.atoms = out_atoms;
     inside.atoms = in_atoms;
     for f in m.factors {
-        if f.mentions_point(var) {
+        // The outward normal belongs to the surface being integrated over.
+        if f.mentions_point(var) || matches!(f, Term::OutNormal(_)) {
             inside.factors.push(f);
         } else {
             outside.factors.push(f);

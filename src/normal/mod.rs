@@ -261,12 +261,15 @@ fn power(ctx: &Context, b: &Term, e: &Term) -> Result<Vec<Mono>> {
             return Ok(repeat_product(&base, n));
         }
     }
-    // A non-integer or negative power of a sum stays a scalar atom, with
-    // its base in normal form.
-    Ok(vec![Mono::atom(
-        Term::Pow(Box::new(collect(base)), Box::new(Term::Num(q.clone()))),
-        BigRational::one(),
-    )])
+    // A non-integer or negative power of a sum: the sum, in normal form, is
+    // a scalar atom carrying the exponent, so (A)^(3/2) (A)^(-1) = (A)^(1/2).
+    Ok(vec![Mono::atom(collect(base), q.clone())])
+}
+
+/// True for the summation-index names normalisation generates (`k1`, …).
+pub fn is_generated_index(name: &str) -> bool {
+    name.strip_prefix('k')
+        .is_some_and(|digits| !digits.is_empty() && digits.chars().all(|c| c.is_ascii_digit()))
 }
 
 /// `m^E` for a scalar monomial and a symbolic exponent E: each atom a^r

@@ -93,7 +93,13 @@ impl<'a> Printer<'a> {
         let mut rest: Vec<&Term> = Vec::new();
         for f in fs {
             match f {
-                Term::Pow(b, e) if matches!(**e, Term::Num(ref q) if q.is_negative()) => {
+                // A negative power goes below the line, one `/` each; a sum
+                // only with power -1, since `/(a + b)^2` reads back as the
+                // inverse of the expanded square.
+                Term::Pow(b, e)
+                    if matches!(**e, Term::Num(ref q) if q.is_negative()
+                        && (!matches!(**b, Term::Add(_) | Term::Mul(_)) || *q == -BigRational::one())) =>
+                {
                     let Term::Num(q) = &**e else { continue };
                     let q = -q;
                     denom.push(if q.is_one() {
@@ -115,14 +121,6 @@ impl<'a> Printer<'a> {
             }
         }
         if !denom.is_empty() {
-            // Fold a rational coefficient's denominator into the fraction.
-            if let Some(Term::Num(c)) = numer.first() {
-                if !c.is_integer() {
-                    let (n, d) = (c.numer().clone(), c.denom().clone());
-                    numer[0] = Term::Num(BigRational::from_integer(n));
-                    denom.insert(0, Term::Num(BigRational::from_integer(d)));
-                }
-            }
             // `|x|^2/4`, not `1 |x|^2/4`.
             if numer.len() > 1 && matches!(numer.first(), Some(Term::Num(c)) if c.is_one()) {
                 numer.remove(0);
@@ -141,20 +139,9 @@ impl<'a> Printer<'a> {
             sep(out);
             self.factor(f, out);
         }
-        if !denom.is_empty() {
+        for f in &denom {
             out.push('/');
-            if denom.len() == 1 {
-                self.factor(&denom[0], out);
-            } else {
-                out.push('(');
-                for (i, f) in denom.iter().enumerate() {
-                    if i > 0 {
-                        out.push(' ');
-                    }
-                    self.factor(f, out);
-                }
-                out.push(')');
-            }
+            self.factor(f, out);
         }
         for f in rest {
             sep(out);
