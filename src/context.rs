@@ -115,6 +115,8 @@ pub struct Context {
     pub killing: BTreeMap<String, Killing>,
     /// Declared positions of points relative to regions.
     pub placements: Vec<(String, Region, Placement)>,
+    /// Numeric coordinates of points (`place x at (…)`), the normal one last.
+    pub positions: BTreeMap<String, Vec<num_rational::BigRational>>,
 }
 
 impl Context {

@@ -71,7 +71,10 @@ pub fn run_source(
                 let input = input.split(" expect ").next().unwrap_or(input);
                 reporter.simplified(item.line, input, &s);
             }
-            (ItemKind::Simplify { expect: None, .. }, Mode::Check) => {}
+            // Nothing to prove, but an input error must still be reported.
+            (ItemKind::Simplify { expr, expect: None }, Mode::Check) => {
+                engine.simplify(expr).map_err(at_item)?;
+            }
             (
                 ItemKind::Simplify {
                     expr,

@@ -6,6 +6,7 @@
 use std::cell::{Cell, RefCell};
 use std::collections::BTreeMap;
 
+use num_rational::BigRational;
 use num_traits::{Signed, Zero};
 
 use super::{constant_value, count_indices, indices, Declared, Lowerer};
@@ -157,6 +158,78 @@ impl Lowerer {
         }
         self.new_name(name, Declared::Vector)?;
         self.ctx.params.insert(name.text.clone(), decl);
+        Ok(())
+    }
+
+    /// `place x at (c1, …, cd)`: exact coordinates, the normal one last.
+    pub(super) fn declare_position(
+        &mut self,
+        point: &PointRef,
+        coords: &[Expr],
+        span: Span,
+    ) -> Result<()> {
+        let p = self.point(point)?;
+        if p.par {
+            return Err(self
+                .err(
+                    ErrorKind::Placement,
+                    point.span,
+                    "`place … at` takes a declared point, not a projection",
+                )
+                .with_label("a projection"));
+        }
+        let mut values = Vec::with_capacity(coords.len());
+        for c in coords {
+            let Some(v) = constant_value(c) else {
+                return Err(self
+                    .err(ErrorKind::Syntax, c.span, "a coordinate is a number")
+                    .with_label("not a number")
+                    .with_note("write numbers, e.g. `place x2 at (0, 1/2, 3)`"));
+            };
+            values.push(v);
+        }
+        if let Some(Term::Num(d)) = &self.ctx.dimension {
+            if BigRational::from_integer(values.len().into()) != *d {
+                return Err(self
+                    .err(
+                        ErrorKind::Syntax,
+                        span,
+                        format!(
+                            "a point in dimension {d} has {d} coordinates, found {}",
+                            values.len()
+                        ),
+                    )
+                    .with_label("wrong number of coordinates"));
+            }
+        }
+        if self.ctx.has_halfspace() {
+            let y = values.last().cloned().unwrap_or_default();
+            let on_wall = self.ctx.is_boundary_point(&p);
+            if on_wall != y.is_zero() || y.is_negative() {
+                let want = if on_wall {
+                    "0 (a boundary point)"
+                } else {
+                    "positive (a bulk point)"
+                };
+                return Err(self
+                    .err(
+                        ErrorKind::Placement,
+                        span,
+                        format!("the normal coordinate of `{}` must be {want}", p.name),
+                    )
+                    .with_label("the last coordinate is the distance to the wall"));
+            }
+        }
+        if self.ctx.positions.contains_key(&p.name) {
+            return Err(self
+                .err(
+                    ErrorKind::Name,
+                    point.span,
+                    format!("`{}` already has a position", p.name),
+                )
+                .with_label("placed twice"));
+        }
+        self.ctx.positions.insert(p.name, values);
         Ok(())
     }
 

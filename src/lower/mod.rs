@@ -363,6 +363,11 @@ impl Lowerer {
                 region,
                 ..
             } => self.declare_place(point, *kind, region)?,
+            Stmt::Position {
+                point,
+                coords,
+                span,
+            } => self.declare_position(point, coords, *span)?,
             Stmt::Simplify { .. }
             | Stmt::Claim { .. }
             | Stmt::Rules { .. }

@@ -11,6 +11,7 @@
 //! A derivative of δ at the integration point is moved onto the rest of
 //! the integrand by parts; its surface term vanishes with the δ.
 
+use num_rational::BigRational;
 use num_traits::One;
 
 use super::{collect, expand, monomial::Atoms, normalize, Mono};
@@ -195,8 +196,29 @@ fn membership(ctx: &Context, p: &Point, region: &Region) -> Option<Placement> {
     }
 }
 
-/// The declared placement of `p` in a ball, comparing radii in normal form.
+/// The declared placement of `p` in a ball, comparing radii in normal form;
+/// failing that, the placement from numeric positions and a numeric radius,
+/// decided exactly.
 fn placement(ctx: &Context, p: &Point, region: &Region) -> Option<Placement> {
+    declared(ctx, p, region).or_else(|| measured(ctx, p, region))
+}
+
+fn measured(ctx: &Context, p: &Point, region: &Region) -> Option<Placement> {
+    let Region::Ball(center, Term::Num(radius)) = region else {
+        return None;
+    };
+    let a = ctx.positions.get(&p.name)?;
+    let b = ctx.positions.get(&center.name)?;
+    let squared: BigRational = a.iter().zip(b).map(|(u, v)| (u - v) * (u - v)).sum();
+    let r2 = radius * radius;
+    Some(match squared.cmp(&r2) {
+        std::cmp::Ordering::Less => Placement::Inside,
+        std::cmp::Ordering::Equal => Placement::OnSurface,
+        std::cmp::Ordering::Greater => Placement::Outside,
+    })
+}
+
+fn declared(ctx: &Context, p: &Point, region: &Region) -> Option<Placement> {
     let Region::Ball(center, radius) = region else {
         return None;
     };
@@ -223,7 +245,8 @@ fn undecided(point: &Point, region: &Region) -> Error {
         format!("cannot tell whether `{name}` lies inside the ball around `{center}`"),
     )
     .with_note(format!(
-        "state it: `place {name} inside ball({center}, r)` or `place {name} outside ball({center}, r)`"
+        "state it: `place {name} inside ball({center}, r)` or `place {name} outside ball({center}, r)`, \
+         or give numeric positions (`place {name} at (…)`, `place {center} at (…)`) and a numeric radius"
     ))
 }
 

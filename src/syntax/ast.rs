@@ -266,6 +266,12 @@ pub enum Stmt {
         region: RegionRef,
         span: Span,
     },
+    /// `place x2 at (0, 0, 3)`: numeric coordinates, the normal one last.
+    Position {
+        point: PointRef,
+        coords: Vec<Expr>,
+        span: Span,
+    },
 }
 
 /// A parsed `.ward` file.

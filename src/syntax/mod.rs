@@ -471,7 +471,15 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
         },
         Rule::place_stmt => {
             let point = parse_point(next(&mut inner));
-            let kind = match next(&mut inner).as_str() {
+            let what = next(&mut inner);
+            if what.as_rule() == Rule::place_at {
+                return Ok(Stmt::Position {
+                    point,
+                    coords: what.into_inner().map(build_expr).collect(),
+                    span,
+                });
+            }
+            let kind = match what.as_str() {
                 "inside" => PlaceKind::Inside,
                 "outside" => PlaceKind::Outside,
                 _ => PlaceKind::On,
