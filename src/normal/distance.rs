@@ -9,7 +9,7 @@
 use std::collections::BTreeSet;
 
 use num_rational::BigRational;
-use num_traits::{Signed, ToPrimitive, Zero};
+use num_traits::{ToPrimitive, Zero};
 
 use super::{expand, Mono};
 use crate::context::Context;
@@ -29,8 +29,7 @@ pub fn common_powers(ctx: &Context, mut monos: Vec<Mono>) -> Result<Vec<Mono>> {
         .filter(|a| matches!(a, Term::Dist(..)))
         .cloned()
         .collect();
-    let mut fresh = 0u32;
-    for dist in distances {
+    for (di, dist) in distances.into_iter().enumerate() {
         let Term::Dist(p, q) = &dist else { continue };
         let exponent = |m: &Mono| {
             m.atoms
@@ -54,6 +53,9 @@ pub fn common_powers(ctx: &Context, mut monos: Vec<Mono>) -> Result<Vec<Mono>> {
         if monos.iter().any(|m| shift(m).is_none()) || monos.iter().all(|m| exponent(m) == lowest) {
             continue;
         }
+        // The j-th factor |p - q|² of a monomial sums over its own index;
+        // the same names in every monomial let equal products merge.
+        let mut squares: Vec<Vec<Mono>> = Vec::new();
         let mut next = Vec::with_capacity(monos.len());
         for m in monos {
             let k = shift(&m).unwrap_or(0);
@@ -64,10 +66,12 @@ pub fn common_powers(ctx: &Context, mut monos: Vec<Mono>) -> Result<Vec<Mono>> {
                 base.atoms.insert(dist.clone(), lowest.clone());
             }
             let mut acc = vec![base];
-            for _ in 0..k {
-                fresh += 1;
-                let square = squared(p, q, &Index::Named(format!("κd{fresh}")));
-                let terms = expand(ctx, &square)?;
+            for j in 0..k as usize {
+                while squares.len() <= j {
+                    let name = Index::Named(format!("κd{di}_{}", squares.len()));
+                    squares.push(expand(ctx, &squared(p, q, &name))?);
+                }
+                let terms = &squares[j];
                 acc = acc
                     .iter()
                     .flat_map(|a| terms.iter().map(move |t| a.mul(t)))
@@ -75,8 +79,7 @@ pub fn common_powers(ctx: &Context, mut monos: Vec<Mono>) -> Result<Vec<Mono>> {
             }
             next.extend(acc);
         }
-        monos = next;
-        let _ = lowest.is_negative();
+        monos = super::merge(next);
     }
     Ok(monos)
 }

@@ -61,7 +61,7 @@ fn canonical(ctx: &Context, monos: Vec<Mono>) -> Vec<Mono> {
 }
 
 /// Adds up monomials that differ only in their coefficient.
-fn merge(monos: Vec<Mono>) -> Vec<Mono> {
+pub(super) fn merge(monos: Vec<Mono>) -> Vec<Mono> {
     let mut sums: BTreeMap<(Atoms, Vec<Term>), BigRational> = BTreeMap::new();
     for m in monos {
         *sums
