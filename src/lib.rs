@@ -14,6 +14,7 @@ pub mod egraph;
 pub mod engine;
 pub mod lower;
 pub mod normal;
+pub mod numeric;
 pub mod report;
 pub mod rules;
 pub mod run;

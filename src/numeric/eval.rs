@@ -1,0 +1,1 @@
+//! Compiling explicit terms to flat programs and evaluating them.

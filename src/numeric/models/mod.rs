@@ -1,0 +1,1 @@
+//! Models: correlators as explicit terms.

@@ -1,0 +1,1 @@
+//! Quadrature rules with error estimates.
