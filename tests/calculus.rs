@@ -21,6 +21,7 @@
 //!   the oracle is accurate, and the comparison is not vacuous.
 
 mod calculus_support;
+mod support;
 
 use std::sync::Arc;
 

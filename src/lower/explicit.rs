@@ -741,24 +741,35 @@ impl Lowerer {
         )
     }
 
+    /// An error under the first free index of `e`, if it has one: `what`
+    /// must be a scalar.
+    fn index_free(&self, e: &Expr, what: &str, note: &str) -> Result<()> {
+        let free = self.free_indices(e)?;
+        let Some(index) = free.iter().next() else {
+            return Ok(());
+        };
+        let span = indices::free_spans(e)
+            .ok()
+            .and_then(|spans| spans.get(index).copied())
+            .unwrap_or(e.span);
+        Err(self
+            .err(
+                ErrorKind::Index,
+                span,
+                format!("{what} cannot carry the free index `{index}`"),
+            )
+            .with_label(format!("`{index}` is free"))
+            .with_note(note.to_string()))
+    }
+
     /// `let NAME = EXPR`: checks the expression once, and keeps it to be
     /// lowered again where the name is used.
     pub(super) fn declare_let(&mut self, name: &Name, expr: &Expr) -> Result<()> {
-        let free = self.free_indices(expr)?;
-        if let Some(index) = free.iter().next() {
-            let span = indices::free_spans(expr)
-                .ok()
-                .and_then(|spans| spans.get(index).copied())
-                .unwrap_or(expr.span);
-            return Err(self
-                .err(
-                    ErrorKind::Index,
-                    span,
-                    format!("a named expression cannot carry the free index `{index}`"),
-                )
-                .with_label(format!("`{index}` is free"))
-                .with_note("a `let` names an expression without free indices; contract the index (e.g. `x1[mu] x1[mu]`) or write the tensor out where it is used"));
-        }
+        self.index_free(
+            expr,
+            "a named expression",
+            "a `let` names an expression without free indices; contract the index (e.g. `x1[mu] x1[mu]`) or write the tensor out where it is used",
+        )?;
         *self.scope.defining.borrow_mut() = Some(name.text.clone());
         let lowered = self.expr(expr);
         *self.scope.defining.borrow_mut() = None;
@@ -898,20 +909,11 @@ impl Lowerer {
 
     /// The radius of a ball: a scalar, positive when it is a number.
     fn radius(&self, radius: &Expr) -> Result<Term> {
-        if let Some(index) = self.free_indices(radius)?.iter().next() {
-            let span = indices::free_spans(radius)
-                .ok()
-                .and_then(|spans| spans.get(index).copied())
-                .unwrap_or(radius.span);
-            return Err(self
-                .err(
-                    ErrorKind::Index,
-                    span,
-                    format!("the radius of a ball cannot carry the free index `{index}`"),
-                )
-                .with_label(format!("`{index}` is free"))
-                .with_note("a radius is a length, e.g. `ball(x1, r)` or `ball(x1, |x1 - x2|/2)`"));
-        }
+        self.index_free(
+            radius,
+            "the radius of a ball",
+            "a radius is a length, e.g. `ball(x1, r)` or `ball(x1, |x1 - x2|/2)`",
+        )?;
         if let Some(value) = constant_value(radius) {
             if value.is_zero() || value.is_negative() {
                 return Err(self

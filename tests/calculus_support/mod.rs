@@ -16,30 +16,8 @@ use num_traits::ToPrimitive;
 use wardsmith::context::{Context, IndexKind};
 use wardsmith::term::{Index, Integral, Point, Region, Term};
 
-// ───────────────────────── PRNG ─────────────────────────
-
-/// splitmix64 (Steele, Lea & Flood 2014): a tiny, seeded, portable PRNG.
-pub struct SplitMix64(u64);
-
-impl SplitMix64 {
-    pub fn new(seed: u64) -> SplitMix64 {
-        SplitMix64(seed)
-    }
-
-    pub fn next_u64(&mut self) -> u64 {
-        self.0 = self.0.wrapping_add(0x9e37_79b9_7f4a_7c15);
-        let mut z = self.0;
-        z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
-        z ^ (z >> 31)
-    }
-
-    /// Uniform in [lo, hi).
-    pub fn uniform(&mut self, lo: f64, hi: f64) -> f64 {
-        let unit = (self.next_u64() >> 11) as f64 / (1u64 << 53) as f64;
-        lo + (hi - lo) * unit
-    }
-}
+// The seeded PRNG is shared with the soundness tests.
+pub use crate::support::SplitMix64;
 
 // ───────────────────────── jets ─────────────────────────
 
