@@ -60,6 +60,10 @@ pub enum ErrorKind {
     /// An expression is outside what the engine handles (a power of a
     /// correlator, …).
     Unsupported,
+    /// A term cannot be evaluated numerically: something is left
+    /// unevaluated, a value is missing, or the arithmetic has no real value
+    /// (division by zero, a non-integer power of a negative number).
+    Numeric,
 }
 
 impl ErrorKind {
@@ -73,6 +77,7 @@ impl ErrorKind {
             ErrorKind::Rule => "rule",
             ErrorKind::Io => "io",
             ErrorKind::Unsupported => "unsupported",
+            ErrorKind::Numeric => "numeric",
         }
     }
 }
