@@ -1,1 +1,0 @@
-//! Quadrature rules with error estimates.
