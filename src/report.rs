@@ -6,7 +6,35 @@ use std::fmt::Write as _;
 
 use crate::context::Context;
 use crate::engine::{Simplified, Verdict};
+use crate::numeric::session::{Evaluation, Value};
 use crate::term::print::{Printer, Style};
+
+/// Relative tolerance of `compare`, on top of quadrature error estimates.
+const COMPARE_TOLERANCE: f64 = 1e-9;
+
+/// `nu = 0, mu = 2: ` for a component, nothing for a scalar.
+fn components(assignment: &[(String, usize)]) -> String {
+    if assignment.is_empty() {
+        return String::new();
+    }
+    let parts: Vec<String> = assignment
+        .iter()
+        .map(|(n, k)| format!("{n} = {k}"))
+        .collect();
+    format!("{}: ", parts.join(", "))
+}
+
+/// `0.123456789012` or `0.1234567 ± 3.0e-12 (quadrature, 1234 evaluations)`.
+fn number(v: &Value) -> String {
+    if v.nodes == 0 {
+        format!("{:.12e}", v.value)
+    } else {
+        format!(
+            "{:.12e} ± {:.1e} ({} evaluations)",
+            v.value, v.error, v.nodes
+        )
+    }
+}
 
 /// Longest statement text echoed in a verdict line.
 const INPUT_WIDTH: usize = 110;
@@ -115,6 +143,60 @@ impl<'a> Reporter<'a> {
             return one_line;
         }
         self.printer.terms(t).join(&format!("\n{indent}"))
+    }
+
+    /// The model numeric statements use.
+    pub fn model(&mut self, description: &str) {
+        let _ = writeln!(self.out, "model: {description}");
+    }
+
+    /// `line N: evaluate` with one value per component.
+    pub fn evaluated(&mut self, line: usize, input: &str, e: &Evaluation) {
+        let _ = writeln!(
+            self.out,
+            "line {line}: evaluate {}",
+            abbreviate(input, INPUT_WIDTH)
+        );
+        for (assignment, v) in &e.components {
+            let _ = writeln!(self.out, "  {}{}", components(assignment), number(v));
+        }
+    }
+
+    /// `line N: compare` with both sides per component; true if they agree
+    /// within the relative tolerance (and the quadrature error estimates).
+    pub fn compared(
+        &mut self,
+        line: usize,
+        input: &str,
+        left: &Evaluation,
+        right: &Evaluation,
+    ) -> bool {
+        let mut all = true;
+        let mut rows = String::new();
+        for ((assignment, l), (_, r)) in left.components.iter().zip(&right.components) {
+            let scale = l.value.abs().max(r.value.abs()).max(f64::MIN_POSITIVE);
+            let difference = (l.value - r.value).abs();
+            let allowed = COMPARE_TOLERANCE * scale + 10.0 * (l.error + r.error);
+            let ok = difference <= allowed;
+            all &= ok;
+            let _ = writeln!(
+                rows,
+                "  {}left {}, right {}, relative difference {:.1e}{}",
+                components(assignment),
+                number(l),
+                number(r),
+                difference / scale,
+                if ok { "" } else { "  ← disagree" }
+            );
+        }
+        let verdict = if all { "agree" } else { "DISAGREE" };
+        let _ = writeln!(
+            self.out,
+            "line {line}: compare {verdict}: {}",
+            abbreviate(input, INPUT_WIDTH)
+        );
+        self.out.push_str(&rows);
+        all
     }
 
     /// The closing count of a check.

@@ -11,6 +11,7 @@ use crate::diagnostic::{Error, ErrorKind, Result, Source};
 use crate::egraph::Limits;
 use crate::engine::Engine;
 use crate::lower::{self, ItemKind, Program};
+use crate::numeric::session::Session;
 use crate::report::Reporter;
 use crate::rules::RuleBook;
 use crate::syntax;
@@ -41,6 +42,23 @@ pub struct Outcome {
     pub code: i32,
 }
 
+/// The file's numeric session, built (and announced) on first use.
+fn numeric_session<'s, 'a>(
+    session: &'s mut Option<Session<'a>>,
+    program: &'a Program,
+    engine: &'a Engine,
+    reporter: &mut Reporter,
+) -> Result<&'s Session<'a>> {
+    if session.is_none() {
+        let s = Session::new(&program.ctx, engine, &program.numeric)?;
+        reporter.model(&s.describe());
+        *session = Some(s);
+    }
+    session
+        .as_ref()
+        .ok_or_else(|| Error::new(ErrorKind::Numeric, "no numeric session"))
+}
+
 /// Reads a file from disk and runs it.
 pub fn run_path(path: &Path, mode: Mode, opts: &Options) -> Result<Outcome> {
     let source = read_source(path)?;
@@ -60,6 +78,8 @@ pub fn run_source(
     let book = load_rules(&program, base, opts)?;
     let engine = Engine::new(program.ctx.clone(), Arc::new(book), opts.limits)?;
     let mut reporter = Reporter::new(&program.ctx, opts.style);
+    // Built on the first numeric statement, so files without one need no model.
+    let mut session: Option<Session> = None;
     let (mut proved, mut failed) = (0, 0);
     for item in &program.items {
         let text = collapse(&source.text[item.span.start..item.span.end]);
@@ -105,6 +125,28 @@ pub fn run_source(
                 }
             }
             (ItemKind::Claim { .. }, Mode::Simplify) => {}
+            (ItemKind::Evaluate { expr, free }, _) => {
+                let s = numeric_session(&mut session, &program, &engine, &mut reporter)
+                    .map_err(at_item)?;
+                let values = s.evaluate(expr, free).map_err(at_item)?;
+                let input = text.strip_prefix("evaluate ").unwrap_or(&text);
+                reporter.evaluated(item.line, input, &values);
+            }
+            (ItemKind::Compare { lhs, rhs, free }, _) => {
+                let s = numeric_session(&mut session, &program, &engine, &mut reporter)
+                    .map_err(at_item)?;
+                let left = s.evaluate(lhs, free).map_err(at_item)?;
+                let right = s.evaluate(rhs, free).map_err(at_item)?;
+                let input = text.strip_prefix("compare ").unwrap_or(&text);
+                let ok = reporter.compared(item.line, input, &left, &right);
+                if mode == Mode::Check {
+                    if ok {
+                        proved += 1
+                    } else {
+                        failed += 1
+                    }
+                }
+            }
             (
                 ItemKind::Classify {
                     name,

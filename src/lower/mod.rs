@@ -9,6 +9,9 @@
 
 mod explicit;
 mod indices;
+mod numeric;
+
+pub use numeric::{ModelChoice, NumericSpec, ValueSpec};
 
 use std::collections::{BTreeMap, BTreeSet};
 use std::sync::Arc;
@@ -33,6 +36,8 @@ pub struct Program {
     pub items: Vec<Item>,
     /// Rule files named by `rules "…"` statements, as written, with spans.
     pub rule_files: Vec<(String, Span)>,
+    /// The model, coefficients and values for numeric statements.
+    pub numeric: NumericSpec,
 }
 
 /// One statement that asks for work.
@@ -50,6 +55,15 @@ pub enum ItemKind {
     Simplify { expr: Term, expect: Option<Term> },
     /// `claim L = R`.
     Claim { lhs: Term, rhs: Term },
+    /// `evaluate E`: numeric values in the file's model, one per value of
+    /// the free indices.
+    Evaluate { expr: Term, free: Vec<String> },
+    /// `compare L = R`: both sides numerically.
+    Compare {
+        lhs: Term,
+        rhs: Term,
+        free: Vec<String>,
+    },
     /// `classify eps`: ε[n] on the boundary, zero for a preserved generator.
     Classify {
         name: String,
@@ -66,6 +80,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
         declared: BTreeMap::new(),
         lets: BTreeMap::new(),
         fresh: std::cell::Cell::new(0),
+        numeric: NumericSpec::default(),
         scope: explicit::Scope::new(file),
     };
     lowerer.ctx.add_builtins();
@@ -112,6 +127,32 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                 });
             }
             Stmt::Rules { path, span } => rule_files.push((path.clone(), *span)),
+            Stmt::Evaluate { expr, span } => {
+                seen_expression = true;
+                let free = lowerer.free_indices(expr)?.into_iter().collect();
+                items.push(Item {
+                    kind: ItemKind::Evaluate {
+                        expr: lowerer.expr(expr)?,
+                        free,
+                    },
+                    span: *span,
+                    line: source.line_col(span.start).0,
+                });
+            }
+            Stmt::Compare { lhs, rhs, span } => {
+                seen_expression = true;
+                let profile = lowerer.free_indices(lhs)?;
+                lowerer.same_free_indices(&profile, rhs, "the right side")?;
+                items.push(Item {
+                    kind: ItemKind::Compare {
+                        lhs: lowerer.expr(lhs)?,
+                        rhs: lowerer.expr(rhs)?,
+                        free: profile.into_iter().collect(),
+                    },
+                    span: *span,
+                    line: source.line_col(span.start).0,
+                });
+            }
             Stmt::Classify { name, span } => {
                 seen_expression = true;
                 let (family, normal_component) = lowerer.classify(name)?;
@@ -151,6 +192,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
         ctx: Arc::new(lowerer.ctx),
         items,
         rule_files,
+        numeric: lowerer.numeric,
     })
 }
 
@@ -192,6 +234,8 @@ struct Lowerer {
     fresh: std::cell::Cell<u32>,
     /// Where the expression being lowered stands (see [`explicit::Scope`]).
     scope: explicit::Scope,
+    /// Numeric set-up gathered from `model`, `coefficient` and `values`.
+    numeric: NumericSpec,
 }
 
 impl Lowerer {
@@ -368,10 +412,17 @@ impl Lowerer {
                 coords,
                 span,
             } => self.declare_position(point, coords, *span)?,
+            Stmt::Model { spec, span } => self.declare_model(spec, *span)?,
+            Stmt::Coefficient { names, value, span } => {
+                self.declare_coefficient(names, value, *span)?
+            }
+            Stmt::Values(items) => self.declare_values(items)?,
             Stmt::Simplify { .. }
             | Stmt::Claim { .. }
             | Stmt::Rules { .. }
-            | Stmt::Classify { .. } => {}
+            | Stmt::Classify { .. }
+            | Stmt::Evaluate { .. }
+            | Stmt::Compare { .. } => {}
         }
         Ok(())
     }

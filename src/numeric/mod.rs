@@ -11,6 +11,7 @@
 pub mod eval;
 pub mod models;
 pub mod quadrature;
+pub mod session;
 
 use std::collections::BTreeMap;
 

@@ -178,6 +178,20 @@ pub enum VectorParam {
     },
 }
 
+/// A model for numeric work, as written.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum ModelSpec {
+    /// Fixed conformal forms; `y_convention` for ⟨O⟩ = a/y^Δ instead of a/(2y)^Δ.
+    Conformal { y_convention: bool },
+    /// The free scalar: wall (`dirichlet`/`neumann`, none without a
+    /// half-space), improved T unless `unimproved`, operator names → composites.
+    FreeScalar {
+        wall: Option<String>,
+        unimproved: bool,
+        fields: Vec<(Name, String)>,
+    },
+}
+
 /// Where a `place` statement puts a point.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum PlaceKind {
@@ -264,6 +278,30 @@ pub enum Stmt {
         point: PointRef,
         kind: PlaceKind,
         region: RegionRef,
+        span: Span,
+    },
+    /// `model …`: which model numeric statements use.
+    Model {
+        spec: ModelSpec,
+        span: Span,
+    },
+    /// `coefficient <O O> = 1`: a coefficient of the conformal model.
+    Coefficient {
+        names: Vec<Name>,
+        value: Expr,
+        span: Span,
+    },
+    /// `values Delta = 1.3, b = (1, 0, 0)`.
+    Values(Vec<(Name, Vec<Expr>)>),
+    /// `evaluate EXPR`: its numeric value(s) in the model.
+    Evaluate {
+        expr: Expr,
+        span: Span,
+    },
+    /// `compare L = R`: both sides numerically in the model.
+    Compare {
+        lhs: Expr,
+        rhs: Expr,
         span: Span,
     },
     /// `place x2 at (0, 0, 3)`: numeric coordinates, the normal one last.

@@ -235,6 +235,11 @@ const STATEMENT_STARTS: &[&str] = &[
     "killing",
     "classify",
     "place",
+    "model",
+    "coefficient",
+    "values",
+    "evaluate",
+    "compare",
 ];
 /// Infix operators.
 const INFIX: &[&str] = &["+", "-", "*", "/", "^"];
@@ -491,6 +496,72 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                 region,
                 span,
             }
+        }
+        Rule::model_stmt => {
+            let model = next(&mut inner);
+            let spec = if model.as_rule() == Rule::model_conformal {
+                ModelSpec::Conformal {
+                    y_convention: model.into_inner().next().is_some_and(|c| c.as_str() == "y"),
+                }
+            } else {
+                let mut wall = None;
+                let mut unimproved = false;
+                let mut fields = Vec::new();
+                for part in model.into_inner() {
+                    match part.as_rule() {
+                        Rule::wall_kind => wall = Some(part.as_str().to_string()),
+                        Rule::unimproved => unimproved = true,
+                        _ => {
+                            let mut kv = part.into_inner();
+                            let name = parse_name(next(&mut kv));
+                            fields.push((name, next(&mut kv).as_str().to_string()));
+                        }
+                    }
+                }
+                ModelSpec::FreeScalar {
+                    wall,
+                    unimproved,
+                    fields,
+                }
+            };
+            Stmt::Model { spec, span }
+        }
+        Rule::coefficient_stmt => {
+            let mut names = Vec::new();
+            let mut value = None;
+            for part in inner {
+                match part.as_rule() {
+                    Rule::ident => names.push(parse_name(part)),
+                    Rule::expr => value = Some(build_expr(part)),
+                    _ => {}
+                }
+            }
+            let value = value.expect("the grammar requires a value");
+            Stmt::Coefficient { names, value, span }
+        }
+        Rule::values_stmt => Stmt::Values(
+            inner
+                .map(|item| {
+                    let mut kv = item.into_inner();
+                    let name = parse_name(next(&mut kv));
+                    let value = next(&mut kv);
+                    let exprs = if value.as_rule() == Rule::value_tuple {
+                        value.into_inner().map(build_expr).collect()
+                    } else {
+                        vec![build_expr(value)]
+                    };
+                    (name, exprs)
+                })
+                .collect(),
+        ),
+        Rule::evaluate_stmt => Stmt::Evaluate {
+            expr: parse_expr_pair(source, next(&mut inner))?,
+            span,
+        },
+        Rule::compare_stmt => {
+            let lhs = parse_expr_pair(source, next(&mut inner))?;
+            let rhs = parse_expr_pair(source, next(&mut inner))?;
+            Stmt::Compare { lhs, rhs, span }
         }
         Rule::killing_decl => {
             let name = parse_name(next(&mut inner));

@@ -1,0 +1,172 @@
+//! Lowering of the numeric set-up: `model`, `coefficient` and `values`.
+//!
+//! Nothing here computes a number; it checks the statements against the
+//! declarations and records them for `numeric::session`.
+
+use std::collections::BTreeMap;
+
+use num_rational::BigRational;
+
+use super::{constant_value, Lowerer};
+use crate::context::{DISPLACEMENT, STRESS_TENSOR};
+use crate::diagnostic::{ErrorKind, Result};
+use crate::syntax::ast::{Expr, ModelSpec, Name, Span};
+use crate::term::Term;
+
+/// The numeric set-up of a file.
+#[derive(Clone, Debug, Default)]
+pub struct NumericSpec {
+    /// The model and where it was declared.
+    pub model: Option<(ModelChoice, Span)>,
+    /// Coefficients of the conformal model: operator names → value.
+    pub coefficients: Vec<(Vec<String>, Term)>,
+    /// Numeric values of parameters (one entry for scalars, d or d² for
+    /// vectors and tensors, row-major).
+    pub values: BTreeMap<String, ValueSpec>,
+}
+
+/// A checked model choice.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum ModelChoice {
+    Conformal {
+        y_convention: bool,
+    },
+    FreeScalar {
+        /// `Some(true)` Dirichlet, `Some(false)` Neumann, `None` no wall.
+        dirichlet: Option<bool>,
+        unimproved: bool,
+        /// Operator name → composite name (`phi`, `phi2`, `boundary-phi`, …).
+        fields: Vec<(String, String)>,
+    },
+}
+
+/// Exact numeric components of a parameter's value.
+pub type ValueSpec = Vec<BigRational>;
+
+impl Lowerer {
+    pub(super) fn declare_model(&mut self, spec: &ModelSpec, span: Span) -> Result<()> {
+        if self.numeric.model.is_some() {
+            return Err(self
+                .err(ErrorKind::Name, span, "a file has one model")
+                .with_label("a second `model`"));
+        }
+        let choice = match spec {
+            ModelSpec::Conformal { y_convention } => ModelChoice::Conformal {
+                y_convention: *y_convention,
+            },
+            ModelSpec::FreeScalar {
+                wall,
+                unimproved,
+                fields,
+            } => {
+                let dirichlet = wall.as_deref().map(|w| w == "dirichlet");
+                if dirichlet.is_some() != self.ctx.has_halfspace() {
+                    let message = if dirichlet.is_some() {
+                        "a wall needs `halfspace y >= 0`"
+                    } else {
+                        "with a half-space, say which wall: `model free-scalar dirichlet` or `neumann`"
+                    };
+                    return Err(self
+                        .err(ErrorKind::Placement, span, message)
+                        .with_label("model"));
+                }
+                let mut out = Vec::new();
+                for (name, composite) in fields {
+                    self.need_operator(name)?;
+                    out.push((name.text.clone(), composite.clone()));
+                }
+                ModelChoice::FreeScalar {
+                    dirichlet,
+                    unimproved: *unimproved,
+                    fields: out,
+                }
+            }
+        };
+        self.numeric.model = Some((choice, span));
+        Ok(())
+    }
+
+    pub(super) fn declare_coefficient(
+        &mut self,
+        names: &[Name],
+        value: &Expr,
+        span: Span,
+    ) -> Result<()> {
+        for name in names {
+            self.need_operator(name)?;
+        }
+        if !(1..=3).contains(&names.len()) {
+            return Err(self
+                .err(
+                    ErrorKind::Syntax,
+                    span,
+                    "a coefficient names one, two or three operators",
+                )
+                .with_label("e.g. `coefficient <O O> = 1`"));
+        }
+        let value = self.expr(value)?;
+        self.numeric
+            .coefficients
+            .push((names.iter().map(|n| n.text.clone()).collect(), value));
+        Ok(())
+    }
+
+    pub(super) fn declare_values(&mut self, items: &[(Name, Vec<Expr>)]) -> Result<()> {
+        for (name, exprs) in items {
+            let known = self.ctx.parameters.contains(&name.text)
+                || self.ctx.params.contains_key(&name.text)
+                || name.text == crate::context::DIMENSION;
+            if !known {
+                return Err(self
+                    .err(
+                        ErrorKind::Name,
+                        name.span,
+                        format!("`{}` is not a parameter", name.text),
+                    )
+                    .with_label("no such parameter")
+                    .with_note("values are given to parameters, e.g. `values Delta = 1.3`"));
+            }
+            let mut components = Vec::with_capacity(exprs.len());
+            for e in exprs {
+                let Some(v) = constant_value(e) else {
+                    return Err(self
+                        .err(ErrorKind::Syntax, e.span, "a value is a number")
+                        .with_label("not a number"));
+                };
+                components.push(v);
+            }
+            if self
+                .numeric
+                .values
+                .insert(name.text.clone(), components)
+                .is_some()
+            {
+                return Err(self
+                    .err(
+                        ErrorKind::Name,
+                        name.span,
+                        format!("`{}` has two values", name.text),
+                    )
+                    .with_label("given again"));
+            }
+        }
+        Ok(())
+    }
+
+    fn need_operator(&self, name: &Name) -> Result<()> {
+        if self.ctx.operator(&name.text).is_some()
+            || name.text == STRESS_TENSOR
+            || name.text == DISPLACEMENT
+        {
+            Ok(())
+        } else {
+            Err(self
+                .err(
+                    ErrorKind::Name,
+                    name.span,
+                    format!("`{}` is not a declared operator", name.text),
+                )
+                .with_label("not an operator"))
+        }
+    }
+}

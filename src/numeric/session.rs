@@ -1,0 +1,405 @@
+//! Numeric work for one file: the model built from its `model` and
+//! `coefficient` statements, numeric values from `values` and `place … at`,
+//! and the evaluation of terms.
+//!
+//! A term is evaluated the symbolic way first: Ward rules and normalisation,
+//! then the model's explicit correlators, normalisation again (derivatives
+//! of the model are symbolic), then a compiled program. An integral over a
+//! sphere `∮[x on ball(c, r)]` or over the boundary plane `∫[x∥ in
+//! boundary]` is not worked out symbolically here but by quadrature, with
+//! the error estimate reported: that is what makes a flux an independent
+//! check of the local identities (PHYSICS.md §5).
+
+use std::cell::RefCell;
+
+use num_traits::ToPrimitive;
+
+use super::eval::compile;
+use super::models::conformal::{Conformal, Convention};
+use super::models::free_scalar::{Composite, FreeScalar, Mapping, Wall};
+use super::models::{apply, sphere_area, Model, SPHERE_AREA};
+use super::quadrature::{integrate, Surface, Tolerance};
+use super::Values;
+use crate::context::{Context, IndexKind, DIMENSION, STRESS_TENSOR};
+use crate::diagnostic::{Error, ErrorKind, Result};
+use crate::engine::Engine;
+use crate::lower::{ModelChoice, NumericSpec};
+use crate::normal::normalize;
+use crate::term::{Index, Integral, Point, Region, Term};
+
+/// Relative accuracy asked of quadrature.
+const QUADRATURE_TOLERANCE: f64 = 1e-11;
+/// Absolute accuracy asked of quadrature, for integrals that vanish.
+const QUADRATURE_FLOOR: f64 = 1e-14;
+/// Largest number of integrand evaluations for one integral.
+const QUADRATURE_BUDGET: usize = 400_000;
+
+/// The numeric set-up of one file.
+pub struct Session<'a> {
+    ctx: &'a Context,
+    engine: &'a Engine,
+    model: Box<dyn Model>,
+    values: Values,
+}
+
+/// One numeric value with its error estimate (0 when no quadrature was
+/// involved) and the number of integrand evaluations.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Value {
+    pub value: f64,
+    pub error: f64,
+    pub nodes: usize,
+}
+
+/// The values of a term, one per assignment of its free indices.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Evaluation {
+    pub components: Vec<(Vec<(String, usize)>, Value)>,
+}
+
+impl<'a> Session<'a> {
+    pub fn new(ctx: &'a Context, engine: &'a Engine, spec: &NumericSpec) -> Result<Session<'a>> {
+        let Some((choice, _)) = &spec.model else {
+            return Err(Error::new(
+                ErrorKind::Numeric,
+                "numeric work needs a model: `model conformal` or `model free-scalar …`",
+            ));
+        };
+        let model = build_model(ctx, choice, spec)?;
+        let values = values(ctx, spec)?;
+        Ok(Session {
+            ctx,
+            engine,
+            model,
+            values,
+        })
+    }
+
+    /// One line saying which model is in force.
+    pub fn describe(&self) -> String {
+        self.model.describe()
+    }
+
+    /// The values of `t` for every assignment of its free indices.
+    pub fn evaluate(&self, t: &Term, free: &[String]) -> Result<Evaluation> {
+        let mut components = Vec::new();
+        for assignment in assignments(self.ctx, free, self.values.dim) {
+            components.push((assignment.clone(), self.value(t, &assignment)?));
+        }
+        Ok(Evaluation { components })
+    }
+
+    fn value(&self, t: &Term, free: &[(String, usize)]) -> Result<Value> {
+        match t {
+            Term::Add(ts) => {
+                let mut total = Value {
+                    value: 0.0,
+                    error: 0.0,
+                    nodes: 0,
+                };
+                for t in ts {
+                    let v = self.value(t, free)?;
+                    total.value += v.value;
+                    total.error += v.error;
+                    total.nodes += v.nodes;
+                }
+                Ok(total)
+            }
+            Term::Integral(i) => self.integral(i, free),
+            Term::Mul(fs) if fs.iter().any(|f| matches!(f, Term::Integral(_))) => {
+                let mut total = Value {
+                    value: 1.0,
+                    error: 0.0,
+                    nodes: 0,
+                };
+                for f in fs {
+                    let v = self.value(f, free)?;
+                    total.error = (total.error * v.value).abs() + (v.error * total.value).abs();
+                    total.value *= v.value;
+                    total.nodes += v.nodes;
+                }
+                Ok(total)
+            }
+            _ => Ok(Value {
+                value: self.explicit(t, free, None)?.eval(&self.values)?,
+                error: 0.0,
+                nodes: 0,
+            }),
+        }
+    }
+
+    /// Rules, normalisation, the model, normalisation, compilation.
+    fn explicit(
+        &self,
+        t: &Term,
+        free: &[(String, usize)],
+        _moving: Option<&Point>,
+    ) -> Result<super::eval::Program> {
+        let simplified = self.engine.simplify(t)?.term;
+        let modelled = apply(self.model.as_ref(), self.ctx, &simplified)?;
+        let explicit = normalize(self.ctx, &modelled)?;
+        compile(self.ctx, &explicit, free, self.values.dim)
+    }
+
+    fn integral(&self, i: &Integral, free: &[(String, usize)]) -> Result<Value> {
+        let (surface, body) = match (&i.region, i.surface) {
+            (Region::Ball(center, radius), true) => {
+                let c = self.position(center)?;
+                let r = self.value(radius, &[])?.value;
+                let surface = Surface::sphere(&c, r).map_err(quadrature_error)?;
+                // On the sphere the outward normal is (x - c)/r.
+                let body = replace_normal(&i.body, &|k: &Index| {
+                    Term::Mul(vec![
+                        Term::Add(vec![
+                            Term::Comp(i.var.clone(), k.clone()),
+                            Term::Mul(vec![Term::int(-1), Term::Comp(center.clone(), k.clone())]),
+                        ]),
+                        Term::Pow(Box::new(radius.clone()), Box::new(Term::int(-1))),
+                    ])
+                });
+                (surface, body)
+            }
+            (Region::Boundary, false) => {
+                let (centre, scale) = self.plane_centre(&i.body)?;
+                (Surface::plane(&centre, scale).map_err(quadrature_error)?, i.body.clone())
+            }
+            _ => {
+                return Err(Error::new(
+                    ErrorKind::Numeric,
+                    "numerically, integrals run over spheres `∮[x on ball(c, r)]` and the boundary plane `∫[x∥ in boundary]`",
+                ))
+            }
+        };
+        let avoid: Vec<(String, Vec<f64>)> = self
+            .values
+            .points
+            .iter()
+            .filter(|(name, _)| **name != i.var.name)
+            .map(|(n, p)| (n.clone(), p.clone()))
+            .collect();
+        let avoid_refs: Vec<(&str, &[f64])> = avoid
+            .iter()
+            .map(|(n, p)| (n.as_str(), p.as_slice()))
+            .collect();
+        if let Region::Ball(..) = i.region {
+            surface
+                .check_clear(&avoid_refs, 1e-6)
+                .map_err(quadrature_error)?;
+        }
+        let program = self.explicit(&body, free, Some(&i.var))?;
+        let values = RefCell::new(self.values.clone());
+        let failure = RefCell::new(None);
+        let estimate = integrate(
+            &surface,
+            |x, _normal| {
+                let mut v = values.borrow_mut();
+                v.points.insert(i.var.name.clone(), x.to_vec());
+                match program.eval(&v) {
+                    Ok(f) => f,
+                    Err(e) => {
+                        failure.borrow_mut().get_or_insert(e);
+                        f64::NAN
+                    }
+                }
+            },
+            Tolerance::relative(QUADRATURE_TOLERANCE)
+                .with_abs(QUADRATURE_FLOOR)
+                .with_max_nodes(QUADRATURE_BUDGET),
+        );
+        if let Some(e) = failure.into_inner() {
+            return Err(e);
+        }
+        if !estimate.converged {
+            return Err(Error::new(
+                ErrorKind::Numeric,
+                format!(
+                    "quadrature did not converge: {} ± {:.1e} after {} evaluations",
+                    estimate.value, estimate.error, estimate.nodes
+                ),
+            )
+            .with_note("move the surface away from the insertions, or change its size"));
+        }
+        Ok(Value {
+            value: estimate.value,
+            error: estimate.error,
+            nodes: estimate.nodes,
+        })
+    }
+
+    /// Centre and width of the boundary-plane rule: below the bulk point
+    /// nearest to the wall among those the integrand involves.
+    fn plane_centre(&self, body: &Term) -> Result<(Vec<f64>, f64)> {
+        let mut best: Option<(Vec<f64>, f64)> = None;
+        for (name, p) in &self.values.points {
+            let bulk = self.ctx.point(name).is_some_and(|(_, d)| !d.boundary);
+            let rank = self.ctx.point(name).map_or(0, |(r, _)| r);
+            if !bulk || !body.mentions_point(&Point::named(rank, name.clone())) {
+                continue;
+            }
+            let y = p.last().copied().unwrap_or(0.0);
+            if best.as_ref().map_or(true, |(_, s)| y < *s) {
+                let mut c = p.clone();
+                if let Some(last) = c.last_mut() {
+                    *last = 0.0;
+                }
+                best = Some((c, y));
+            }
+        }
+        best.ok_or_else(|| {
+            Error::new(
+                ErrorKind::Numeric,
+                "an integral over the boundary plane needs a bulk insertion with a position (`place x1 at (…)`)",
+            )
+        })
+    }
+
+    fn position(&self, p: &Point) -> Result<Vec<f64>> {
+        self.values.points.get(&p.name).cloned().ok_or_else(|| {
+            Error::new(ErrorKind::Numeric, format!("`{}` has no position", p.name))
+                .with_note(format!("give one: `place {} at (…)`", p.name))
+        })
+    }
+}
+
+/// The model a file asked for.
+fn build_model(ctx: &Context, choice: &ModelChoice, spec: &NumericSpec) -> Result<Box<dyn Model>> {
+    Ok(match choice {
+        ModelChoice::Conformal { y_convention } => {
+            let convention = if *y_convention {
+                Convention::Y
+            } else {
+                Convention::TwoY
+            };
+            let mut model = Conformal::new(convention);
+            let boundary = |name: &str| ctx.operator(name).is_some_and(|o| o.boundary);
+            for (names, value) in &spec.coefficients {
+                let v = value.clone();
+                model = match &names[..] {
+                    [o] => model.one_point(o, v),
+                    [t, o] if t == STRESS_TENSOR && o != STRESS_TENSOR => {
+                        model.stress_one_point(o, v)
+                    }
+                    [a, b] if boundary(a) && boundary(b) => model.boundary_two_point(a, b, v),
+                    [a, b] if boundary(b) => model.bulk_to_boundary(a, b, v),
+                    [a, b] if boundary(a) => model.bulk_to_boundary(b, a, v),
+                    [a, b] => model.two_point(a, b, v),
+                    [t, a, b] if t == STRESS_TENSOR => model.stress_coupling(a, b, v),
+                    [a, b, c] => model.three_point([a, b, c], v),
+                    _ => model,
+                };
+            }
+            Box::new(model)
+        }
+        ModelChoice::FreeScalar {
+            dirichlet,
+            unimproved,
+            fields,
+        } => {
+            let mut mapping = Mapping::new();
+            for (name, composite) in fields {
+                let c = match composite.as_str() {
+                    "phi" => Composite::Field,
+                    "phi2" => Composite::FieldSquared,
+                    "boundary-phi" => Composite::BoundaryField,
+                    "boundary-dphi" => Composite::BoundaryNormalDerivative,
+                    _ => Composite::BoundaryFieldSquared,
+                };
+                mapping = mapping.with(name, c);
+            }
+            let wall = dirichlet.map(|d| if d { Wall::Dirichlet } else { Wall::Neumann });
+            let mut model = FreeScalar::new(wall, mapping);
+            if *unimproved {
+                model = model.unimproved();
+            }
+            Box::new(model)
+        }
+    })
+}
+
+/// Numeric values: parameters, S_d, d, and point positions.
+fn values(ctx: &Context, spec: &NumericSpec) -> Result<Values> {
+    let dim = match &ctx.dimension {
+        Some(Term::Num(d)) => d.to_usize(),
+        _ => spec
+            .values
+            .get(DIMENSION)
+            .and_then(|v| v.first())
+            .and_then(|d| d.to_usize()),
+    }
+    .ok_or_else(|| {
+        Error::new(ErrorKind::Numeric, "numeric work needs a numeric dimension")
+            .with_note("declare `dimension 4`, or give `values d = 4`")
+    })?;
+    let mut out = Values {
+        dim,
+        ..Values::default()
+    };
+    for (name, components) in &spec.values {
+        let floats: Vec<f64> = components
+            .iter()
+            .map(|c| c.to_f64().unwrap_or(f64::NAN))
+            .collect();
+        if ctx.params.contains_key(name) {
+            out.tensors.insert(name.clone(), floats);
+        } else if let [v] = floats[..] {
+            out.scalars.insert(name.clone(), v);
+        } else {
+            return Err(Error::new(
+                ErrorKind::Numeric,
+                format!("`{name}` is a scalar and takes one value"),
+            ));
+        }
+    }
+    out.scalars
+        .insert(SPHERE_AREA.to_string(), sphere_area(dim));
+    out.scalars.insert(DIMENSION.to_string(), dim as f64);
+    for (name, coords) in &ctx.positions {
+        out.points.insert(
+            name.clone(),
+            coords
+                .iter()
+                .map(|c| c.to_f64().unwrap_or(f64::NAN))
+                .collect(),
+        );
+    }
+    Ok(out)
+}
+
+/// Every assignment of numeric values to the free indices.
+fn assignments(ctx: &Context, free: &[String], dim: usize) -> Vec<Vec<(String, usize)>> {
+    let mut out = vec![Vec::new()];
+    for name in free {
+        let range = match ctx.index_kind(name) {
+            IndexKind::Bulk => dim,
+            IndexKind::Parallel => dim.saturating_sub(1),
+        };
+        out = out
+            .into_iter()
+            .flat_map(|a: Vec<(String, usize)>| {
+                (0..range).map(move |k| {
+                    let mut next = a.clone();
+                    next.push((name.clone(), k));
+                    next
+                })
+            })
+            .collect();
+    }
+    out
+}
+
+/// Replaces the outward normal N[k] by an explicit vector.
+fn replace_normal(t: &Term, normal: &dyn Fn(&Index) -> Term) -> Term {
+    let sub = |t: &Term| replace_normal(t, normal);
+    match t {
+        Term::OutNormal(k) => normal(k),
+        Term::Mul(ts) => Term::Mul(ts.iter().map(sub).collect()),
+        Term::Add(ts) => Term::Add(ts.iter().map(sub).collect()),
+        Term::Pow(a, b) => Term::Pow(Box::new(sub(a)), Box::new(sub(b))),
+        Term::Der(i, p, body) => Term::Der(i.clone(), p.clone(), Box::new(sub(body))),
+        other => other.clone(),
+    }
+}
+
+fn quadrature_error(e: super::quadrature::QuadratureError) -> Error {
+    Error::new(ErrorKind::Numeric, e.to_string())
+}

@@ -1,0 +1,91 @@
+//! Numeric checks from `.ward` text: fluxes through spheres and integrals
+//! over the boundary plane by quadrature, in a model, against the contact
+//! terms the local rules give (PHYSICS.md §5). Every file under
+//! `tests/cases/numeric/` names its published source and must check clean;
+//! the tests below make sure a wrong coefficient is caught.
+
+use std::path::{Path, PathBuf};
+
+use wardsmith::diagnostic::Source;
+use wardsmith::run::{run_path, run_source, Mode, Options};
+
+fn relative(path: &Path) -> PathBuf {
+    let root = Path::new(env!("CARGO_MANIFEST_DIR"));
+    path.strip_prefix(root).unwrap_or(path).to_path_buf()
+}
+
+#[test]
+fn numeric_cases_check_clean() {
+    let mut files: Vec<PathBuf> = std::fs::read_dir("tests/cases/numeric")
+        .expect("the folder exists")
+        .filter_map(|e| e.ok().map(|e| e.path()))
+        .filter(|p| p.extension().is_some_and(|x| x == "ward"))
+        .collect();
+    files.sort();
+    assert!(files.len() >= 3);
+    for path in files {
+        let rel = relative(&path);
+        let out = run_path(&rel, Mode::Check, &Options::default())
+            .unwrap_or_else(|e| panic!("{}", e.render()));
+        assert_eq!(out.code, 0, "{}:\n{}", rel.display(), out.report);
+        assert!(out.report.contains("compare agree"), "{}", out.report);
+        assert!(!out.report.contains("DISAGREE"), "{}", out.report);
+    }
+}
+
+const TOO: &str = "dimension 3
+scalar O dim Delta
+points x x1 x2
+place x1 at (3/10, -1/5, 1/10)
+place x2 at (1, 1/2, 1/4)
+model conformal
+coefficient <O O> = 1
+killing dil dilatation lambda
+values Delta = 1.37, lambda = 1/2";
+
+fn check(text: &str) -> (String, i32) {
+    let source = Source::new("numeric.ward", text);
+    let out = run_source(&source, Path::new("."), Mode::Check, &Options::default())
+        .unwrap_or_else(|e| panic!("{}", e.render()));
+    (out.report, out.code)
+}
+
+#[test]
+fn a_wrong_contact_coefficient_fails_the_flux_check() {
+    // W4 (PHYSICS.md §1): the dilatation contact term is Δ λ, not 2 Δ λ.
+    let right = "compare ∮[x on ball(x1, 1/4)] { N[mu] dil[nu](x) <T[mu,nu](x) O(x1) O(x2)> }
+        = - lambda x1[mu] ∂[mu](x1) <O(x1) O(x2)> - Delta lambda <O(x1) O(x2)>";
+    let wrong = right.replace("- Delta lambda", "- 2 Delta lambda");
+    let (report, code) = check(&format!("{TOO}\n{right}\n"));
+    assert_eq!(code, 0, "{report}");
+    let (report, code) = check(&format!("{TOO}\n{wrong}\n"));
+    assert_eq!(code, 1, "{report}");
+    assert!(
+        report.contains("compare DISAGREE") && report.contains("← disagree"),
+        "{report}"
+    );
+}
+
+#[test]
+fn the_flux_around_the_other_insertion_sees_only_its_terms() {
+    // The sphere around x2 encloses x2 alone (W4, PHYSICS.md §1).
+    let text = format!(
+        "{TOO}\ncompare ∮[x on ball(x2, 1/4)] {{ N[mu] dil[nu](x) <T[mu,nu](x) O(x1) O(x2)> }}
+        = - lambda x2[mu] ∂[mu](x2) <O(x1) O(x2)> - Delta lambda <O(x1) O(x2)>\n"
+    );
+    let (report, code) = check(&text);
+    assert_eq!(code, 0, "{report}");
+}
+
+#[test]
+fn a_sphere_through_an_insertion_is_refused() {
+    // x3 sits at distance exactly 1 from x1 (3-4-5), on the unit sphere.
+    let text = TOO.replace("points x x1 x2", "points x x1 x2 x3")
+        + "\nplace x3 at (9/10, 3/5, 1/10)\n\
+           evaluate ∮[x on ball(x1, 1)] { N[mu] dil[nu](x) <T[mu,nu](x) O(x1) O(x2) O(x3)> }\n";
+    let source = Source::new("numeric.ward", text);
+    let err = run_source(&source, Path::new("."), Mode::Check, &Options::default())
+        .expect_err("a sphere through an insertion must be refused");
+    let rendered = err.render();
+    assert!(rendered.contains("x3"), "{rendered}");
+}
