@@ -15,6 +15,8 @@ pub const STRESS_TENSOR: &str = "T";
 pub const DISPLACEMENT: &str = "D";
 /// Name of the dimension symbol.
 pub const DIMENSION: &str = "d";
+/// Name of the area of the unit sphere S^{d-1}.
+pub const SPHERE_AREA: &str = "S_d";
 /// Name of the normal index.
 pub const NORMAL: &str = "n";
 

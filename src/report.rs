@@ -6,7 +6,7 @@ use std::fmt::Write as _;
 
 use crate::context::Context;
 use crate::engine::{Simplified, Verdict};
-use crate::numeric::session::{Evaluation, Value};
+use crate::numeric::session::{Evaluation, Solution, Value};
 use crate::term::print::{Printer, Style};
 
 /// Relative tolerance of `compare`, on top of quadrature error estimates.
@@ -160,6 +160,28 @@ impl<'a> Reporter<'a> {
         for (assignment, v) in &e.components {
             let _ = writeln!(self.out, "  {}{}", components(assignment), number(v));
         }
+    }
+
+    /// `line N: solve` with the value found.
+    pub fn solved(&mut self, line: usize, input: &str, unknown: &str, s: &Solution) {
+        let _ = writeln!(
+            self.out,
+            "line {line}: solve {}",
+            abbreviate(input, INPUT_WIDTH)
+        );
+        let from = if s.component.is_empty() {
+            String::new()
+        } else {
+            format!(
+                "from the component {}",
+                components(&s.component).trim_end_matches(": ")
+            ) + "; "
+        };
+        let _ = writeln!(
+            self.out,
+            "  {unknown} = {:.12e}  ({from}largest residual at the solution {:.1e})",
+            s.value, s.residual
+        );
     }
 
     /// `line N: compare` with both sides per component; true if they agree

@@ -132,6 +132,21 @@ pub fn run_source(
                 let input = text.strip_prefix("evaluate ").unwrap_or(&text);
                 reporter.evaluated(item.line, input, &values);
             }
+            (
+                ItemKind::Solve {
+                    unknown,
+                    lhs,
+                    rhs,
+                    free,
+                },
+                _,
+            ) => {
+                let s = numeric_session(&mut session, &program, &engine, &mut reporter)
+                    .map_err(at_item)?;
+                let solution = s.solve(unknown, lhs, rhs, free).map_err(at_item)?;
+                let input = text.strip_prefix("solve ").unwrap_or(&text);
+                reporter.solved(item.line, input, unknown, &solution);
+            }
             (ItemKind::Compare { lhs, rhs, free }, _) => {
                 let s = numeric_session(&mut session, &program, &engine, &mut reporter)
                     .map_err(at_item)?;

@@ -69,7 +69,9 @@ fn check_file(path: &str) {
     for item in &p.items {
         let exprs: Vec<&Term> = match &item.kind {
             ItemKind::Simplify { expr, expect } => std::iter::once(expr).chain(expect).collect(),
-            ItemKind::Claim { lhs, rhs } | ItemKind::Compare { lhs, rhs, .. } => vec![lhs, rhs],
+            ItemKind::Claim { lhs, rhs }
+            | ItemKind::Compare { lhs, rhs, .. }
+            | ItemKind::Solve { lhs, rhs, .. } => vec![lhs, rhs],
             ItemKind::Evaluate { expr, .. } => vec![expr],
             ItemKind::Classify { .. } => vec![],
         };

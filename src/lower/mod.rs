@@ -64,6 +64,13 @@ pub enum ItemKind {
         rhs: Term,
         free: Vec<String>,
     },
+    /// `solve a from L = R`.
+    Solve {
+        unknown: String,
+        lhs: Term,
+        rhs: Term,
+        free: Vec<String>,
+    },
     /// `classify eps`: ε[n] on the boundary, zero for a preserved generator.
     Classify {
         name: String,
@@ -134,6 +141,32 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                     kind: ItemKind::Evaluate {
                         expr: lowerer.expr(expr)?,
                         free,
+                    },
+                    span: *span,
+                    line: source.line_col(span.start).0,
+                });
+            }
+            Stmt::Solve {
+                unknown,
+                lhs,
+                rhs,
+                span,
+            } => {
+                seen_expression = true;
+                if !lowerer.ctx.parameters.contains(&unknown.text) {
+                    return Err(lowerer
+                        .err(ErrorKind::Name, unknown.span, format!("`{}` is not a parameter", unknown.text))
+                        .with_label("cannot be solved for")
+                        .with_note("solve for a scalar parameter, e.g. `parameters a` and `coefficient <T O O> = a`"));
+                }
+                let profile = lowerer.free_indices(lhs)?;
+                lowerer.same_free_indices(&profile, rhs, "the right side")?;
+                items.push(Item {
+                    kind: ItemKind::Solve {
+                        unknown: unknown.text.clone(),
+                        lhs: lowerer.expr(lhs)?,
+                        rhs: lowerer.expr(rhs)?,
+                        free: profile.into_iter().collect(),
                     },
                     span: *span,
                     line: source.line_col(span.start).0,
@@ -422,6 +455,7 @@ impl Lowerer {
             | Stmt::Rules { .. }
             | Stmt::Classify { .. }
             | Stmt::Evaluate { .. }
+            | Stmt::Solve { .. }
             | Stmt::Compare { .. } => {}
         }
         Ok(())
@@ -430,6 +464,7 @@ impl Lowerer {
     fn reserve(&self, name: &Name, what: &str) -> Result<()> {
         let builtin = [
             (DIMENSION, "the dimension"),
+            (crate::context::SPHERE_AREA, "the area of the unit sphere"),
             (NORMAL, "the unit normal"),
             (STRESS_TENSOR, "the stress tensor"),
             (DISPLACEMENT, "the displacement operator"),
@@ -742,6 +777,11 @@ impl Lowerer {
     fn scalar_name(&self, n: &Name) -> Result<Term> {
         if n.text == DIMENSION {
             return Ok(self.ctx.dim());
+        }
+        // S_d = 2 π^{d/2}/Γ(d/2), the area of the unit sphere: a symbol in
+        // exact work, a number in numeric work.
+        if n.text == crate::context::SPHERE_AREA {
+            return Ok(Term::Sym(n.text.clone()));
         }
         match self.declared.get(&n.text) {
             Some((Declared::Parameter, _)) => Ok(Term::Sym(n.text.clone())),

@@ -51,6 +51,16 @@ pub struct Value {
     pub nodes: usize,
 }
 
+/// The solution of a linear equation for one parameter.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Solution {
+    pub value: f64,
+    /// The component of the equation that fixed it.
+    pub component: Vec<(String, usize)>,
+    /// Largest |left - right| over all components at the solution.
+    pub residual: f64,
+}
+
 /// The values of a term, one per assignment of its free indices.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Evaluation {
@@ -82,14 +92,77 @@ impl<'a> Session<'a> {
 
     /// The values of `t` for every assignment of its free indices.
     pub fn evaluate(&self, t: &Term, free: &[String]) -> Result<Evaluation> {
+        self.evaluate_with(t, free, &self.values)
+    }
+
+    fn evaluate_with(&self, t: &Term, free: &[String], values: &Values) -> Result<Evaluation> {
         let mut components = Vec::new();
-        for assignment in assignments(self.ctx, free, self.values.dim) {
-            components.push((assignment.clone(), self.value(t, &assignment)?));
+        for assignment in assignments(self.ctx, free, values.dim) {
+            components.push((assignment.clone(), self.value(t, &assignment, values)?));
         }
         Ok(Evaluation { components })
     }
 
-    fn value(&self, t: &Term, free: &[(String, usize)]) -> Result<Value> {
+    /// Solves `lhs = rhs` for the parameter `unknown`, on which both sides
+    /// depend linearly (a coefficient of the model, say): two evaluations
+    /// fix the line, a third checks that it is one. Uses the component
+    /// most sensitive to the unknown.
+    pub fn solve(
+        &self,
+        unknown: &str,
+        lhs: &Term,
+        rhs: &Term,
+        free: &[String],
+    ) -> Result<Solution> {
+        let residual = |a: f64| -> Result<Vec<f64>> {
+            let mut values = self.values.clone();
+            values.scalars.insert(unknown.to_string(), a);
+            let l = self.evaluate_with(lhs, free, &values)?;
+            let r = self.evaluate_with(rhs, free, &values)?;
+            Ok(l.components
+                .iter()
+                .zip(&r.components)
+                .map(|((_, x), (_, y))| x.value - y.value)
+                .collect())
+        };
+        let f0 = residual(0.0)?;
+        let f1 = residual(1.0)?;
+        let Some(k) =
+            (0..f0.len()).max_by(|&i, &j| (f1[i] - f0[i]).abs().total_cmp(&(f1[j] - f0[j]).abs()))
+        else {
+            return Err(Error::new(ErrorKind::Numeric, "nothing to solve"));
+        };
+        let slope = f1[k] - f0[k];
+        if slope == 0.0 || !slope.is_finite() {
+            return Err(Error::new(
+                ErrorKind::Numeric,
+                format!("neither side depends on `{unknown}`"),
+            ));
+        }
+        let solution = -f0[k] / slope;
+        // A line through f(0) and f(1) must also pass through f(2).
+        let f2 = residual(2.0)?;
+        let predicted = f0[k] + 2.0 * slope;
+        let scale = f0[k].abs().max(slope.abs());
+        if (f2[k] - predicted).abs() > 1e-8 * scale {
+            return Err(Error::new(
+                ErrorKind::Numeric,
+                format!("the equation is not linear in `{unknown}`; solve only finds coefficients that enter linearly"),
+            ));
+        }
+        let check = residual(solution)?;
+        let component = assignments(self.ctx, free, self.values.dim)
+            .into_iter()
+            .nth(k)
+            .unwrap_or_default();
+        Ok(Solution {
+            value: solution,
+            component,
+            residual: check.iter().fold(0.0f64, |m, x| m.max(x.abs())),
+        })
+    }
+
+    fn value(&self, t: &Term, free: &[(String, usize)], values: &Values) -> Result<Value> {
         match t {
             Term::Add(ts) => {
                 let mut total = Value {
@@ -98,14 +171,14 @@ impl<'a> Session<'a> {
                     nodes: 0,
                 };
                 for t in ts {
-                    let v = self.value(t, free)?;
+                    let v = self.value(t, free, values)?;
                     total.value += v.value;
                     total.error += v.error;
                     total.nodes += v.nodes;
                 }
                 Ok(total)
             }
-            Term::Integral(i) => self.integral(i, free),
+            Term::Integral(i) => self.integral(i, free, values),
             Term::Mul(fs) if fs.iter().any(|f| matches!(f, Term::Integral(_))) => {
                 let mut total = Value {
                     value: 1.0,
@@ -113,7 +186,7 @@ impl<'a> Session<'a> {
                     nodes: 0,
                 };
                 for f in fs {
-                    let v = self.value(f, free)?;
+                    let v = self.value(f, free, values)?;
                     total.error = (total.error * v.value).abs() + (v.error * total.value).abs();
                     total.value *= v.value;
                     total.nodes += v.nodes;
@@ -121,7 +194,7 @@ impl<'a> Session<'a> {
                 Ok(total)
             }
             _ => Ok(Value {
-                value: self.explicit(t, free, None)?.eval(&self.values)?,
+                value: self.explicit(t, free)?.eval(values)?,
                 error: 0.0,
                 nodes: 0,
             }),
@@ -129,24 +202,33 @@ impl<'a> Session<'a> {
     }
 
     /// Rules, normalisation, the model, normalisation, compilation.
-    fn explicit(
-        &self,
-        t: &Term,
-        free: &[(String, usize)],
-        _moving: Option<&Point>,
-    ) -> Result<super::eval::Program> {
+    fn explicit(&self, t: &Term, free: &[(String, usize)]) -> Result<super::eval::Program> {
         let simplified = self.engine.simplify(t)?.term;
         let modelled = apply(self.model.as_ref(), self.ctx, &simplified)?;
         let explicit = normalize(self.ctx, &modelled)?;
         compile(self.ctx, &explicit, free, self.values.dim)
     }
 
-    fn integral(&self, i: &Integral, free: &[(String, usize)]) -> Result<Value> {
+    fn integral(&self, i: &Integral, free: &[(String, usize)], values: &Values) -> Result<Value> {
         let (surface, body) = match (&i.region, i.surface) {
             (Region::Ball(center, radius), true) => {
                 let c = self.position(center)?;
-                let r = self.value(radius, &[])?.value;
-                let surface = Surface::sphere(&c, r).map_err(quadrature_error)?;
+                let r = self.value(radius, &[], values)?.value;
+                // Poles towards the nearest other insertion: the integrand
+                // then varies mostly with one variable.
+                let nearest = self
+                    .values
+                    .points
+                    .iter()
+                    .filter(|(name, _)| **name != i.var.name && **name != center.name)
+                    .map(|(_, p)| p.iter().zip(&c).map(|(a, b)| a - b).collect::<Vec<f64>>())
+                    .filter(|v| v.iter().any(|a| *a != 0.0))
+                    .min_by(|a, b| norm(a).total_cmp(&norm(b)));
+                let surface = match nearest {
+                    Some(axis) => Surface::sphere_along(&c, r, &axis),
+                    None => Surface::sphere(&c, r),
+                }
+                .map_err(quadrature_error)?;
                 // On the sphere the outward normal is (x - c)/r.
                 let body = replace_normal(&i.body, &|k: &Index| {
                     Term::Mul(vec![
@@ -186,8 +268,8 @@ impl<'a> Session<'a> {
                 .check_clear(&avoid_refs, 1e-6)
                 .map_err(quadrature_error)?;
         }
-        let program = self.explicit(&body, free, Some(&i.var))?;
-        let values = RefCell::new(self.values.clone());
+        let program = self.explicit(&body, free)?;
+        let values = RefCell::new(values.clone());
         let failure = RefCell::new(None);
         let estimate = integrate(
             &surface,
@@ -398,6 +480,10 @@ fn replace_normal(t: &Term, normal: &dyn Fn(&Index) -> Term) -> Term {
         Term::Der(i, p, body) => Term::Der(i.clone(), p.clone(), Box::new(sub(body))),
         other => other.clone(),
     }
+}
+
+fn norm(v: &[f64]) -> f64 {
+    v.iter().map(|a| a * a).sum::<f64>().sqrt()
 }
 
 fn quadrature_error(e: super::quadrature::QuadratureError) -> Error {

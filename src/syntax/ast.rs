@@ -298,6 +298,14 @@ pub enum Stmt {
         expr: Expr,
         span: Span,
     },
+    /// `solve a from L = R`: the value of a parameter that makes both sides
+    /// agree numerically.
+    Solve {
+        unknown: Name,
+        lhs: Expr,
+        rhs: Expr,
+        span: Span,
+    },
     /// `compare L = R`: both sides numerically in the model.
     Compare {
         lhs: Expr,

@@ -240,6 +240,7 @@ const STATEMENT_STARTS: &[&str] = &[
     "values",
     "evaluate",
     "compare",
+    "solve",
 ];
 /// Infix operators.
 const INFIX: &[&str] = &["+", "-", "*", "/", "^"];
@@ -558,6 +559,17 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
             expr: parse_expr_pair(source, next(&mut inner))?,
             span,
         },
+        Rule::solve_stmt => {
+            let unknown = parse_name(next(&mut inner));
+            let lhs = parse_expr_pair(source, next(&mut inner))?;
+            let rhs = parse_expr_pair(source, next(&mut inner))?;
+            Stmt::Solve {
+                unknown,
+                lhs,
+                rhs,
+                span,
+            }
+        }
         Rule::compare_stmt => {
             let lhs = parse_expr_pair(source, next(&mut inner))?;
             let rhs = parse_expr_pair(source, next(&mut inner))?;

@@ -36,7 +36,7 @@ use crate::diagnostic::{Error, ErrorKind, Result};
 use crate::term::{Index, Integral, Op, Point, Region, Term};
 
 /// Name of the symbol standing for S_d, the area of the unit sphere S^{d-1}.
-pub const SPHERE_AREA: &str = "S_d";
+pub use crate::context::SPHERE_AREA;
 
 /// S_d = 2 π^{d/2} / Γ(d/2) for a whole dimension d ≥ 1, by the recursion
 /// S_{d+2} = 2π S_d / d from S_1 = 2, S_2 = 2π (common practice).
