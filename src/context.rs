@@ -151,7 +151,7 @@ impl Context {
         self.point(name).map(|(rank, _)| Point {
             rank,
             par,
-            name: name.to_string(),
+            name: name.into(),
         })
     }
 

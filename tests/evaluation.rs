@@ -333,9 +333,9 @@ impl DualEval<'_> {
         if k == dim - 1 && self.ctx.is_boundary_point(p) {
             return Dual::constant(0.0);
         }
-        let mut x = Dual::constant(self.v.points[&p.name][k]);
+        let mut x = Dual::constant(self.v.points[&*p.name][k]);
         for (name, axis, seed) in &self.seeds {
-            if *name == p.name && *axis == k {
+            if **name == *p.name && *axis == k {
                 match seed {
                     1 => x.b += 1.0,
                     _ => x.c += 1.0,
@@ -552,7 +552,7 @@ fn derivative_error(ctx: &Context, case: &Case, v: &Values) -> f64 {
                         Index::N => v.dim - 1,
                         Index::Named(s) => env[s],
                     };
-                    (p.name.clone(), k, g + 1)
+                    (p.name.to_string(), k, g + 1)
                 })
                 .collect();
             let boundary_normal = ders

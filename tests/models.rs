@@ -149,7 +149,7 @@ impl<'a> Evaluator<'a> {
     fn point_id(&self, p: &Point) -> usize {
         self.points
             .iter()
-            .position(|(k, _)| k.0 == p.name && k.1 == p.par)
+            .position(|(k, _)| *k.0 == *p.name && k.1 == p.par)
             .unwrap_or_else(|| panic!("no value for the point {p:?}"))
     }
 

@@ -152,7 +152,7 @@ impl Eval<'_> {
         let mut v = self
             .points
             .iter()
-            .find(|(n, _)| *n == p.name)
+            .find(|(n, _)| **n == *p.name)
             .unwrap_or_else(|| panic!("no value for {p:?}"))
             .1;
         if p.par {

@@ -122,7 +122,7 @@ pub fn add_op(eg: &mut EGraph, op: &Op) -> Id {
 }
 
 pub fn add_point(eg: &mut EGraph, p: &Point) -> Id {
-    let name = eg.add(Ward::Name(Symbol::from(p.name.as_str())));
+    let name = eg.add(Ward::Name(Symbol::from(&*p.name)));
     if p.par {
         eg.add(Ward::Par(name))
     } else {

@@ -220,7 +220,7 @@ impl Lowerer {
                     .with_label("the last coordinate is the distance to the wall"));
             }
         }
-        if self.ctx.positions.contains_key(&p.name) {
+        if self.ctx.positions.contains_key(&*p.name) {
             return Err(self
                 .err(
                     ErrorKind::Name,
@@ -229,7 +229,7 @@ impl Lowerer {
                 )
                 .with_label("placed twice"));
         }
-        self.ctx.positions.insert(p.name, values);
+        self.ctx.positions.insert(p.name.to_string(), values);
         Ok(())
     }
 
@@ -286,7 +286,7 @@ impl Lowerer {
             .ctx
             .placements
             .iter()
-            .find(|(name, r, _)| *name == p.name && *r == region);
+            .find(|(name, r, _)| **name == *p.name && *r == region);
         if let Some((_, _, before)) = earlier {
             if *before != placement {
                 return Err(self
@@ -306,7 +306,9 @@ impl Lowerer {
             }
             return Ok(());
         }
-        self.ctx.placements.push((p.name, region, placement));
+        self.ctx
+            .placements
+            .push((p.name.to_string(), region, placement));
         Ok(())
     }
 
@@ -339,7 +341,7 @@ impl Lowerer {
                     .map(|(rank, p)| Point {
                         rank: rank as u32,
                         par: true,
-                        name: p.name.clone(),
+                        name: p.name.as_str().into(),
                     })
             })
             .ok_or_else(|| {

@@ -868,7 +868,7 @@ impl Lowerer {
         Ok(Point {
             rank,
             par: p.par,
-            name: p.name.text.clone(),
+            name: p.name.text.as_str().into(),
         })
     }
 

@@ -207,8 +207,8 @@ fn measured(ctx: &Context, p: &Point, region: &Region) -> Option<Placement> {
     let Region::Ball(center, Term::Num(radius)) = region else {
         return None;
     };
-    let a = ctx.positions.get(&p.name)?;
-    let b = ctx.positions.get(&center.name)?;
+    let a = ctx.positions.get(&*p.name)?;
+    let b = ctx.positions.get(&*center.name)?;
     let squared: BigRational = a.iter().zip(b).map(|(u, v)| (u - v) * (u - v)).sum();
     let r2 = radius * radius;
     Some(match squared.cmp(&r2) {
@@ -224,7 +224,7 @@ fn declared(ctx: &Context, p: &Point, region: &Region) -> Option<Placement> {
     };
     ctx.placements.iter().find_map(|(name, r, place)| match r {
         Region::Ball(c, rr)
-            if *name == p.name
+            if **name == *p.name
                 && c.name == center.name
                 && normalize(ctx, rr).ok().as_ref() == Some(radius) =>
         {
@@ -236,7 +236,7 @@ fn declared(ctx: &Context, p: &Point, region: &Region) -> Option<Placement> {
 
 fn undecided(point: &Point, region: &Region) -> Error {
     let center = match region {
-        Region::Ball(c, _) => c.name.as_str(),
+        Region::Ball(c, _) => &*c.name,
         _ => "?",
     };
     let name = &point.name;

@@ -220,7 +220,7 @@ impl<'a> Session<'a> {
                     .values
                     .points
                     .iter()
-                    .filter(|(name, _)| **name != i.var.name && **name != center.name)
+                    .filter(|(name, _)| **name != *i.var.name && **name != *center.name)
                     .map(|(_, p)| p.iter().zip(&c).map(|(a, b)| a - b).collect::<Vec<f64>>())
                     .filter(|v| v.iter().any(|a| *a != 0.0))
                     .min_by(|a, b| norm(a).total_cmp(&norm(b)));
@@ -256,7 +256,7 @@ impl<'a> Session<'a> {
             .values
             .points
             .iter()
-            .filter(|(name, _)| **name != i.var.name)
+            .filter(|(name, _)| **name != *i.var.name)
             .map(|(n, p)| (n.clone(), p.clone()))
             .collect();
         let avoid_refs: Vec<(&str, &[f64])> = avoid
@@ -275,7 +275,7 @@ impl<'a> Session<'a> {
             &surface,
             |x, _normal| {
                 let mut v = values.borrow_mut();
-                v.points.insert(i.var.name.clone(), x.to_vec());
+                v.points.insert(i.var.name.to_string(), x.to_vec());
                 match program.eval(&v) {
                     Ok(f) => f,
                     Err(e) => {
@@ -336,7 +336,7 @@ impl<'a> Session<'a> {
     }
 
     fn position(&self, p: &Point) -> Result<Vec<f64>> {
-        self.values.points.get(&p.name).cloned().ok_or_else(|| {
+        self.values.points.get(&*p.name).cloned().ok_or_else(|| {
             Error::new(ErrorKind::Numeric, format!("`{}` has no position", p.name))
                 .with_note(format!("give one: `place {} at (…)`", p.name))
         })

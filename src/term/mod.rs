@@ -19,11 +19,15 @@ use num_traits::{One, Zero};
 pub struct Point {
     pub rank: u32,
     pub par: bool,
-    pub name: String,
+    /// Shared, so that cloning a term does not copy names.
+    pub name: Name,
 }
 
+/// A name inside terms: cheap to clone, compared as a string.
+pub type Name = std::sync::Arc<str>;
+
 impl Point {
-    pub fn named(rank: u32, name: impl Into<String>) -> Point {
+    pub fn named(rank: u32, name: impl Into<Name>) -> Point {
         Point {
             rank,
             par: false,

@@ -435,7 +435,7 @@ impl<'a> Model<'a> {
             return Jet::zero();
         }
         env.coords
-            .get(&p.name)
+            .get(&*p.name)
             .unwrap_or_else(|| panic!("point {} has no value", p.name))[k]
     }
 
@@ -577,14 +577,14 @@ impl<'a> Model<'a> {
                 assert!(g < GENS, "derivatives nested deeper than {GENS}");
                 let mut inner = env.clone();
                 inner.depth += 1;
-                let x = &mut inner.coords.get_mut(&p.name).expect("point has a value")[k];
+                let x = &mut inner.coords.get_mut(&*p.name).expect("point has a value")[k];
                 *x = x.seeded(g);
                 self.term(body, &inner).along(g)
             }
             Differentiate::Differences(h) => {
                 let shifted = |s: f64| {
                     let mut inner = env.clone();
-                    let x = &mut inner.coords.get_mut(&p.name).expect("point has a value")[k];
+                    let x = &mut inner.coords.get_mut(&*p.name).expect("point has a value")[k];
                     *x = x.add(&Jet::constant(s * h));
                     self.term(body, &inner)
                 };
@@ -663,7 +663,7 @@ impl<'a> Model<'a> {
             .map(|(_, f)| (*f).clone())
             .collect();
         let mut inner = env.clone();
-        inner.coords.insert(i.var.name.clone(), q);
+        inner.coords.insert(i.var.name.to_string(), q);
         self.term(&Term::Mul(rest), &inner)
     }
 }

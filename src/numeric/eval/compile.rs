@@ -439,13 +439,13 @@ impl<'c> Builder<'c> {
     }
 
     fn point(&mut self, p: &Point) -> Result<Reg> {
-        if let Some(r) = self.points.get(&p.name) {
+        if let Some(r) = self.points.get(&*p.name) {
             return Ok(*r);
         }
         let base = self.alloc(self.dim, self.bit(p))?;
-        self.points.insert(p.name.clone(), base);
+        self.points.insert(p.name.to_string(), base);
         self.inputs.push(Input::Point {
-            name: p.name.clone(),
+            name: p.name.to_string(),
             base,
         });
         Ok(base)

@@ -511,10 +511,10 @@ impl Model for FreeScalar {
         let aux = |k: usize, slot: usize| Point {
             rank: ops[k].point.rank,
             par: false,
-            name: format!("{}#{k}_{slot}", ops[k].point.name),
+            name: format!("{}#{k}_{slot}", ops[k].point.name).into(),
         };
         // Contractions by (field, field, derivatives): many products share them.
-        type Key = (String, String, Vec<Index>, Vec<Index>);
+        type Key = (crate::term::Name, crate::term::Name, Vec<Index>, Vec<Index>);
         let mut cache: BTreeMap<Key, Option<(Term, BTreeSet<String>)>> = BTreeMap::new();
         let mut sum = Vec::new();
         // Every choice of one product per insertion.

@@ -244,7 +244,7 @@ pub(crate) fn rename_indices(t: &Term, map: &BTreeMap<String, Index>) -> Term {
 
 /// Replaces points by name, anywhere in a term (the replacement keeps its
 /// own `par` flag and rank).
-pub(crate) fn substitute_points(t: &Term, map: &BTreeMap<String, Point>) -> Term {
+pub(crate) fn substitute_points(t: &Term, map: &BTreeMap<crate::term::Name, Point>) -> Term {
     let p = |q: &Point| map.get(&q.name).cloned().unwrap_or_else(|| q.clone());
     let sub = |t: &Term| substitute_points(t, map);
     match t {
@@ -358,7 +358,7 @@ pub(crate) fn describe_op(op: &Op) -> String {
     let point = if op.point.par {
         format!("{}∥", op.point.name)
     } else {
-        op.point.name.clone()
+        op.point.name.to_string()
     };
     if op.indices.is_empty() {
         format!("{}({point})", op.name)
