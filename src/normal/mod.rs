@@ -61,8 +61,10 @@ fn canonical(ctx: &Context, monos: Vec<Mono>) -> Vec<Mono> {
 }
 
 /// Adds up monomials that differ only in their coefficient.
+/// The order of the result is unspecified; `collect` sorts.
 pub(super) fn merge(monos: Vec<Mono>) -> Vec<Mono> {
-    let mut sums: BTreeMap<(Atoms, Vec<Term>), BigRational> = BTreeMap::new();
+    let mut sums: std::collections::HashMap<(Atoms, Vec<Term>), BigRational> =
+        std::collections::HashMap::with_capacity(monos.len());
     for m in monos {
         *sums
             .entry((m.atoms, m.factors))
