@@ -16,7 +16,7 @@ use num_traits::One;
 
 use super::{derivative, expand, Mono};
 use crate::context::{Context, IndexKind};
-use crate::term::{Index, Integral, Op, Term};
+use crate::term::{Index, Term};
 
 /// Applies the index algebra until nothing changes.
 pub fn contract(ctx: &Context, m: Mono) -> Vec<Mono> {
@@ -207,43 +207,11 @@ fn rename(m: &Mono, from: &str, to: &Index) -> Mono {
 
 /// Renames indices simultaneously, anywhere inside a factor.
 fn rename_in(f: &Term, map: &BTreeMap<String, Index>) -> Term {
-    let r = |i: &Index| match i {
+    let index = |i: &Index| match i {
         Index::Named(n) => map.get(n).cloned().unwrap_or_else(|| i.clone()),
         Index::N => Index::N,
     };
-    let sub = |t: &Term| rename_in(t, map);
-    match f {
-        Term::Kron(i, j) => Term::Kron(r(i), r(j)),
-        Term::Normal(i) => Term::Normal(r(i)),
-        Term::OutNormal(i) => Term::OutNormal(r(i)),
-        Term::Comp(p, i) => Term::Comp(p.clone(), r(i)),
-        Term::Param(name, indices) => Term::Param(name.clone(), indices.iter().map(r).collect()),
-        Term::Der(i, p, body) => Term::Der(r(i), p.clone(), Box::new(sub(body))),
-        Term::Corr(ops) => Term::Corr(
-            ops.iter()
-                .map(|o| Op {
-                    point: o.point.clone(),
-                    name: o.name.clone(),
-                    indices: o.indices.iter().map(r).collect(),
-                })
-                .collect(),
-        ),
-        Term::Mul(ts) => Term::Mul(ts.iter().map(sub).collect()),
-        Term::Add(ts) => Term::Add(ts.iter().map(sub).collect()),
-        Term::Pow(a, b) => Term::Pow(Box::new(sub(a)), Box::new(sub(b))),
-        Term::Integral(i) => Term::Integral(Box::new(Integral {
-            var: i.var.clone(),
-            region: i.region.clone(),
-            surface: i.surface,
-            body: sub(&i.body),
-        })),
-        Term::Num(_)
-        | Term::Sym(_)
-        | Term::Dist(..)
-        | Term::Fun(..)
-        | Term::DeltaFn(..)
-        | Term::DeltaY(_) => f.clone(),
-    }
+    f.map(&|p| p.clone(), &index, None)
 }
 
 /// Puts each factor in canonical shape (symmetric and antisymmetric index

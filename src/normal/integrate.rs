@@ -17,7 +17,7 @@ use num_traits::One;
 use super::{collect, expand, monomial::Atoms, normalize, Mono};
 use crate::context::{Context, Placement};
 use crate::diagnostic::{Error, ErrorKind, Result};
-use crate::term::{Integral, Op, Point, Region, Term};
+use crate::term::{Integral, Point, Region, Term};
 
 /// Expands an integral into monomials.
 pub fn integral(ctx: &Context, i: &Integral) -> Result<Vec<Mono>> {
@@ -266,44 +266,5 @@ pub fn substitute(ctx: &Context, t: &Term, var: &Point, to: &Point) -> Term {
             to.clone()
         }
     };
-    let sub = |t: &Term| substitute(ctx, t, var, to);
-    match t {
-        Term::Num(_)
-        | Term::Sym(_)
-        | Term::Param(..)
-        | Term::Normal(_)
-        | Term::Kron(..)
-        | Term::OutNormal(_) => t.clone(),
-        Term::Pow(a, b) => Term::Pow(Box::new(sub(a)), Box::new(sub(b))),
-        Term::Mul(ts) => Term::Mul(ts.iter().map(sub).collect()),
-        Term::Add(ts) => Term::Add(ts.iter().map(sub).collect()),
-        Term::Dist(a, b) => Term::Dist(point(a), point(b)),
-        Term::Fun(n, k, args) => Term::Fun(n.clone(), *k, args.iter().map(sub).collect()),
-        Term::Comp(p, i) => Term::Comp(point(p), i.clone()),
-        Term::DeltaFn(a, b) => Term::DeltaFn(point(a), point(b)),
-        Term::DeltaY(a) => Term::DeltaY(point(a)),
-        Term::Der(i, p, body) => Term::Der(i.clone(), point(p), Box::new(sub(body))),
-        Term::Corr(ops) => Term::Corr(
-            ops.iter()
-                .map(|o| Op {
-                    point: point(&o.point),
-                    name: o.name.clone(),
-                    indices: o.indices.clone(),
-                })
-                .collect(),
-        ),
-        Term::Integral(i) => Term::Integral(Box::new(Integral {
-            var: i.var.clone(),
-            region: match &i.region {
-                Region::Ball(c, r) => Region::Ball(point(c), sub(r)),
-                r => r.clone(),
-            },
-            surface: i.surface,
-            body: if i.var.name == var.name {
-                i.body.clone()
-            } else {
-                sub(&i.body)
-            },
-        })),
-    }
+    t.map(&point, &|i| i.clone(), Some(&var.name))
 }

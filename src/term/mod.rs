@@ -180,3 +180,59 @@ impl Term {
         }
     }
 }
+
+impl Term {
+    /// A copy with every point passed through `point` and every index
+    /// through `index`, everywhere inside, except the body of an integral
+    /// that binds a point named `shadowed` (its points are not the outer
+    /// ones).
+    pub fn map(
+        &self,
+        point: &dyn Fn(&Point) -> Point,
+        index: &dyn Fn(&Index) -> Index,
+        shadowed: Option<&str>,
+    ) -> Term {
+        let sub = |t: &Term| t.map(point, index, shadowed);
+        match self {
+            Term::Num(_) | Term::Sym(_) => self.clone(),
+            Term::Pow(a, b) => Term::Pow(Box::new(sub(a)), Box::new(sub(b))),
+            Term::Mul(ts) => Term::Mul(ts.iter().map(sub).collect()),
+            Term::Add(ts) => Term::Add(ts.iter().map(sub).collect()),
+            Term::Dist(a, b) => Term::Dist(point(a), point(b)),
+            Term::Fun(name, order, args) => {
+                Term::Fun(name.clone(), *order, args.iter().map(sub).collect())
+            }
+            Term::Comp(p, i) => Term::Comp(point(p), index(i)),
+            Term::Param(name, indices) => {
+                Term::Param(name.clone(), indices.iter().map(index).collect())
+            }
+            Term::DeltaFn(a, b) => Term::DeltaFn(point(a), point(b)),
+            Term::DeltaY(a) => Term::DeltaY(point(a)),
+            Term::Normal(i) => Term::Normal(index(i)),
+            Term::Kron(i, j) => Term::Kron(index(i), index(j)),
+            Term::OutNormal(i) => Term::OutNormal(index(i)),
+            Term::Der(i, p, body) => Term::Der(index(i), point(p), Box::new(sub(body))),
+            Term::Corr(ops) => Term::Corr(
+                ops.iter()
+                    .map(|o| Op {
+                        point: point(&o.point),
+                        name: o.name.clone(),
+                        indices: o.indices.iter().map(index).collect(),
+                    })
+                    .collect(),
+            ),
+            Term::Integral(i) => {
+                let bound = shadowed.is_some_and(|s| *i.var.name == *s);
+                Term::Integral(Box::new(Integral {
+                    var: if bound { i.var.clone() } else { point(&i.var) },
+                    region: match &i.region {
+                        Region::Ball(c, r) => Region::Ball(point(c), sub(r)),
+                        r => r.clone(),
+                    },
+                    surface: i.surface,
+                    body: if bound { i.body.clone() } else { sub(&i.body) },
+                }))
+            }
+        }
+    }
+}

@@ -204,86 +204,14 @@ pub(crate) fn rename_indices(t: &Term, map: &BTreeMap<String, Index>) -> Term {
         Index::Named(n) => map.get(n).cloned().unwrap_or_else(|| i.clone()),
         Index::N => Index::N,
     };
-    let sub = |t: &Term| rename_indices(t, map);
-    match t {
-        Term::Comp(p, i) => Term::Comp(p.clone(), r(i)),
-        Term::Normal(i) => Term::Normal(r(i)),
-        Term::OutNormal(i) => Term::OutNormal(r(i)),
-        Term::Kron(i, j) => Term::Kron(r(i), r(j)),
-        Term::Param(name, indices) => Term::Param(name.clone(), indices.iter().map(r).collect()),
-        Term::Corr(ops) => Term::Corr(
-            ops.iter()
-                .map(|o| Op {
-                    point: o.point.clone(),
-                    name: o.name.clone(),
-                    indices: o.indices.iter().map(r).collect(),
-                })
-                .collect(),
-        ),
-        Term::Der(i, p, body) => Term::Der(r(i), p.clone(), Box::new(sub(body))),
-        Term::Pow(a, b) => Term::Pow(Box::new(sub(a)), Box::new(sub(b))),
-        Term::Mul(ts) => Term::Mul(ts.iter().map(sub).collect()),
-        Term::Add(ts) => Term::Add(ts.iter().map(sub).collect()),
-        Term::Fun(name, order, args) => {
-            Term::Fun(name.clone(), *order, args.iter().map(sub).collect())
-        }
-        Term::Integral(i) => Term::Integral(Box::new(Integral {
-            var: i.var.clone(),
-            region: match &i.region {
-                Region::Ball(c, rad) => Region::Ball(c.clone(), sub(rad)),
-                other => other.clone(),
-            },
-            surface: i.surface,
-            body: sub(&i.body),
-        })),
-        Term::Num(_) | Term::Sym(_) | Term::Dist(..) | Term::DeltaFn(..) | Term::DeltaY(_) => {
-            t.clone()
-        }
-    }
+    t.map(&|p| p.clone(), &r, None)
 }
 
 /// Replaces points by name, anywhere in a term (the replacement keeps its
 /// own `par` flag and rank).
 pub(crate) fn substitute_points(t: &Term, map: &BTreeMap<crate::term::Name, Point>) -> Term {
     let p = |q: &Point| map.get(&q.name).cloned().unwrap_or_else(|| q.clone());
-    let sub = |t: &Term| substitute_points(t, map);
-    match t {
-        Term::Dist(a, b) => Term::Dist(p(a), p(b)),
-        Term::Comp(a, i) => Term::Comp(p(a), i.clone()),
-        Term::DeltaFn(a, b) => Term::DeltaFn(p(a), p(b)),
-        Term::DeltaY(a) => Term::DeltaY(p(a)),
-        Term::Der(i, a, body) => Term::Der(i.clone(), p(a), Box::new(sub(body))),
-        Term::Corr(ops) => Term::Corr(
-            ops.iter()
-                .map(|o| Op {
-                    point: p(&o.point),
-                    name: o.name.clone(),
-                    indices: o.indices.clone(),
-                })
-                .collect(),
-        ),
-        Term::Pow(a, b) => Term::Pow(Box::new(sub(a)), Box::new(sub(b))),
-        Term::Mul(ts) => Term::Mul(ts.iter().map(sub).collect()),
-        Term::Add(ts) => Term::Add(ts.iter().map(sub).collect()),
-        Term::Fun(name, order, args) => {
-            Term::Fun(name.clone(), *order, args.iter().map(sub).collect())
-        }
-        Term::Integral(i) => Term::Integral(Box::new(Integral {
-            var: p(&i.var),
-            region: match &i.region {
-                Region::Ball(c, rad) => Region::Ball(p(c), sub(rad)),
-                other => other.clone(),
-            },
-            surface: i.surface,
-            body: sub(&i.body),
-        })),
-        Term::Num(_)
-        | Term::Sym(_)
-        | Term::Param(..)
-        | Term::Normal(_)
-        | Term::Kron(..)
-        | Term::OutNormal(_) => t.clone(),
-    }
+    t.map(&p, &|i| i.clone(), None)
 }
 
 // ───────────────────────── building terms ─────────────────────────
