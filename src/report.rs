@@ -6,11 +6,23 @@ use std::fmt::Write as _;
 
 use crate::context::Context;
 use crate::engine::{Simplified, Verdict};
-use crate::numeric::session::{Evaluation, Solution, Value};
+use crate::numeric::session::{Evaluation, FluxReport, Solution, Value};
 use crate::term::print::{Printer, Style};
 
 /// Relative tolerance of `compare`, on top of quadrature error estimates.
 const COMPARE_TOLERANCE: f64 = 1e-9;
+
+/// True if two evaluations agree component by component within the
+/// relative tolerance plus the quadrature error estimates.
+fn agree(left: &Evaluation, right: &Evaluation) -> bool {
+    left.components
+        .iter()
+        .zip(&right.components)
+        .all(|((_, l), (_, r))| {
+            let scale = l.value.abs().max(r.value.abs()).max(f64::MIN_POSITIVE);
+            (l.value - r.value).abs() <= COMPARE_TOLERANCE * scale + 10.0 * (l.error + r.error)
+        })
+}
 
 /// `nu = 0, mu = 2: ` for a component, nothing for a scalar.
 fn components(assignment: &[(String, usize)]) -> String {
@@ -182,6 +194,59 @@ impl<'a> Reporter<'a> {
             "  {unknown} = {:.12e}  ({from}largest residual at the solution {:.1e})",
             s.value, s.residual
         );
+    }
+
+    /// `line N: flux` insertion by insertion; true if every flux matches its
+    /// contact terms and the current is conserved away from insertions.
+    pub fn flux(&mut self, line: usize, input: &str, r: &FluxReport) -> bool {
+        let mut rows = String::new();
+        let mut all = true;
+        for check in &r.around {
+            let ok = agree(&check.flux, &check.contact);
+            all &= ok;
+            let _ = writeln!(
+                rows,
+                "  around {}: {}",
+                check.point,
+                if ok {
+                    "flux = contact terms"
+                } else {
+                    "flux ≠ contact terms  ← disagree"
+                }
+            );
+            for ((assignment, f), (_, c)) in
+                check.flux.components.iter().zip(&check.contact.components)
+            {
+                let _ = writeln!(
+                    rows,
+                    "    {}flux {}, contact {}",
+                    components(assignment),
+                    number(f),
+                    number(c)
+                );
+            }
+        }
+        for c in &r.away {
+            let ok = c.largest <= 1e-8 * c.scale.max(f64::MIN_POSITIVE);
+            all &= ok;
+            let at: Vec<String> = c.at.iter().map(|x| format!("{x:.3}")).collect();
+            let _ = writeln!(
+                rows,
+                "  away from insertions, at ({}): |divergence| {:.1e} against |current|/r {:.1e}{}",
+                at.join(", "),
+                c.largest,
+                c.scale,
+                if ok { "" } else { "  ← not conserved" }
+            );
+        }
+        let verdict = if all { "holds" } else { "FAILS" };
+        let _ = writeln!(
+            self.out,
+            "line {line}: flux {verdict}: {}",
+            abbreviate(input, INPUT_WIDTH)
+        );
+        self.out.push_str(&rows);
+        all
     }
 
     /// `line N: compare` with both sides per component; true if they agree

@@ -147,6 +147,32 @@ pub fn run_source(
                 let input = text.strip_prefix("solve ").unwrap_or(&text);
                 reporter.solved(item.line, input, unknown, &solution);
             }
+            (
+                ItemKind::Flux {
+                    index,
+                    var,
+                    body,
+                    rhs,
+                    radius,
+                    free,
+                },
+                _,
+            ) => {
+                let s = numeric_session(&mut session, &program, &engine, &mut reporter)
+                    .map_err(at_item)?;
+                let report = s
+                    .flux(index, var, body, rhs, radius, free)
+                    .map_err(at_item)?;
+                let input = text.strip_prefix("flux ").unwrap_or(&text);
+                let ok = reporter.flux(item.line, input, &report);
+                if mode == Mode::Check {
+                    if ok {
+                        proved += 1
+                    } else {
+                        failed += 1
+                    }
+                }
+            }
             (ItemKind::Compare { lhs, rhs, free }, _) => {
                 let s = numeric_session(&mut session, &program, &engine, &mut reporter)
                     .map_err(at_item)?;

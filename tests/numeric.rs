@@ -114,3 +114,32 @@ fn solving_the_ward_identity_gives_the_published_coupling() {
         );
     }
 }
+
+#[test]
+fn the_flux_check_names_the_insertion_whose_contact_term_is_wrong() {
+    // Di Francesco et al. (1997), eq. 4.66: the sign of x2's contact term
+    // flipped must fail around x2 and only there.
+    let text = "dimension 3
+scalar O dim Delta
+points x x1 x2
+place x1 at (3/10, -1/5, 1/10)
+place x2 at (1, 1/2, 1/4)
+model conformal
+coefficient <O O> = 1
+values Delta = 1.37
+flux ∂[mu](x) <T[mu,nu](x) O(x1) O(x2)>
+   = - δ(x - x1) ∂[nu](x1) <O(x1) O(x2)> + δ(x - x2) ∂[nu](x2) <O(x1) O(x2)>
+   radius 1/5
+";
+    let (report, code) = check(text);
+    assert_eq!(code, 1, "{report}");
+    assert!(report.contains("flux FAILS"), "{report}");
+    assert!(
+        report.contains("around x1: flux = contact terms"),
+        "{report}"
+    );
+    assert!(
+        report.contains("around x2: flux ≠ contact terms  ← disagree"),
+        "{report}"
+    );
+}

@@ -73,6 +73,7 @@ fn check_file(path: &str) {
             | ItemKind::Compare { lhs, rhs, .. }
             | ItemKind::Solve { lhs, rhs, .. } => vec![lhs, rhs],
             ItemKind::Evaluate { expr, .. } => vec![expr],
+            ItemKind::Flux { body, rhs, .. } => vec![body, rhs],
             ItemKind::Classify { .. } => vec![],
         };
         for expr in exprs {

@@ -64,6 +64,15 @@ pub enum ItemKind {
         rhs: Term,
         free: Vec<String>,
     },
+    /// `flux ∂[i](x) { F } = R radius r`.
+    Flux {
+        index: Index,
+        var: Point,
+        body: Term,
+        rhs: Term,
+        radius: Term,
+        free: Vec<String>,
+    },
     /// `solve a from L = R`.
     Solve {
         unknown: String,
@@ -166,6 +175,46 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         unknown: unknown.text.clone(),
                         lhs: lowerer.expr(lhs)?,
                         rhs: lowerer.expr(rhs)?,
+                        free: profile.into_iter().collect(),
+                    },
+                    span: *span,
+                    line: source.line_col(span.start).0,
+                });
+            }
+            Stmt::Flux {
+                lhs,
+                rhs,
+                radius,
+                span,
+            } => {
+                seen_expression = true;
+                let profile = lowerer.free_indices(lhs)?;
+                lowerer.same_free_indices(&profile, rhs, "the right side")?;
+                let Term::Der(index, var, body) = lowerer.expr(lhs)? else {
+                    return Err(lowerer
+                        .err(
+                            ErrorKind::Syntax,
+                            lhs.span,
+                            "`flux` checks a divergence: the left side is `∂[mu](x) { … }`",
+                        )
+                        .with_label("not a derivative"));
+                };
+                if lowerer.ctx.is_boundary_point(&var) {
+                    return Err(lowerer
+                        .err(
+                            ErrorKind::Placement,
+                            lhs.span,
+                            "the divergence is taken at a bulk point",
+                        )
+                        .with_label("a boundary point"));
+                }
+                items.push(Item {
+                    kind: ItemKind::Flux {
+                        index,
+                        var,
+                        body: *body,
+                        rhs: lowerer.expr(rhs)?,
+                        radius: lowerer.expr(radius)?,
                         free: profile.into_iter().collect(),
                     },
                     span: *span,
@@ -456,6 +505,7 @@ impl Lowerer {
             | Stmt::Classify { .. }
             | Stmt::Evaluate { .. }
             | Stmt::Solve { .. }
+            | Stmt::Flux { .. }
             | Stmt::Compare { .. } => {}
         }
         Ok(())

@@ -61,6 +61,31 @@ pub struct Solution {
     pub residual: f64,
 }
 
+/// A local identity checked insertion by insertion.
+#[derive(Clone, Debug, PartialEq)]
+pub struct FluxReport {
+    pub around: Vec<FluxCheck>,
+    pub away: Vec<Conservation>,
+}
+
+/// The flux through the sphere around one insertion and the contact terms
+/// the right side puts inside it.
+#[derive(Clone, Debug, PartialEq)]
+pub struct FluxCheck {
+    pub point: String,
+    pub flux: Evaluation,
+    pub contact: Evaluation,
+}
+
+/// The divergence of the model's current at a point away from insertions,
+/// with the size of the current there (over the radius) for scale.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Conservation {
+    pub at: Vec<f64>,
+    pub largest: f64,
+    pub scale: f64,
+}
+
 /// The values of a term, one per assignment of its free indices.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Evaluation {
@@ -162,6 +187,103 @@ impl<'a> Session<'a> {
         })
     }
 
+    /// Checks a local identity ∂[index](var) { body } = rhs the way
+    /// PHYSICS.md §5 says: the flux of `body` through a sphere of `radius`
+    /// around each insertion against the integral of `rhs` over the ball,
+    /// and the divergence of the model's `body` away from the insertions.
+    pub fn flux(
+        &self,
+        index: &Index,
+        var: &Point,
+        body: &Term,
+        rhs: &Term,
+        radius: &Term,
+        free: &[String],
+    ) -> Result<FluxReport> {
+        let r = self.value(radius, &[], &self.values)?.value;
+        let mut around = Vec::new();
+        for (rank, decl) in self.ctx.points.iter().enumerate() {
+            let p = Point::named(rank as u32, decl.name.clone());
+            if decl.boundary || p.name == var.name || !body.mentions_point(&p) {
+                continue;
+            }
+            if !self.values.points.contains_key(&decl.name) {
+                return Err(Error::new(
+                    ErrorKind::Numeric,
+                    format!("`{}` has no position", decl.name),
+                )
+                .with_note(format!("give one: `place {} at (…)`", decl.name)));
+            }
+            let ball = Region::Ball(p.clone(), radius.clone());
+            let surface = Term::Integral(Box::new(Integral {
+                var: var.clone(),
+                region: ball.clone(),
+                surface: true,
+                body: Term::Mul(vec![Term::OutNormal(index.clone()), body.clone()]),
+            }));
+            let volume = Term::Integral(Box::new(Integral {
+                var: var.clone(),
+                region: ball,
+                surface: false,
+                body: rhs.clone(),
+            }));
+            around.push(FluxCheck {
+                point: decl.name.to_string(),
+                flux: self.evaluate(&surface, free)?,
+                contact: self.evaluate(&volume, free)?,
+            });
+        }
+        // Away from the insertions: 2r from each along the first axis.
+        let modelled = apply(self.model.as_ref(), self.ctx, body)?;
+        let divergence = normalize(
+            self.ctx,
+            &Term::Der(index.clone(), var.clone(), Box::new(modelled.clone())),
+        )?;
+        let field = normalize(self.ctx, &modelled)?;
+        let mut away = Vec::new();
+        for check in &around {
+            let mut at = self.values.points[&check.point].clone();
+            at[0] += 2.0 * r;
+            let clear = self.values.points.iter().all(|(n, q)| {
+                **n == *var.name
+                    || q.iter()
+                        .zip(&at)
+                        .map(|(a, b)| (a - b) * (a - b))
+                        .sum::<f64>()
+                        .sqrt()
+                        > r
+            });
+            if !clear {
+                continue;
+            }
+            let mut values = self.values.clone();
+            values.points.insert(var.name.to_string(), at.clone());
+            let mut largest: f64 = 0.0;
+            let mut scale: f64 = 0.0;
+            for assignment in assignments(self.ctx, free, values.dim) {
+                largest = largest.max(
+                    compile(self.ctx, &divergence, &assignment, values.dim)?
+                        .eval(&values)?
+                        .abs(),
+                );
+                for k in 0..values.dim {
+                    let mut with_index = assignment.clone();
+                    if let Index::Named(name) = index {
+                        with_index.push((name.to_string(), k));
+                    }
+                    scale = scale.max(
+                        compile(self.ctx, &field, &with_index, values.dim)?
+                            .eval(&values)?
+                            .abs()
+                            / r,
+                    );
+                }
+            }
+            away.push(Conservation { at, largest, scale });
+        }
+        Ok(FluxReport { around, away })
+    }
+
     fn value(&self, t: &Term, free: &[(String, usize)], values: &Values) -> Result<Value> {
         match t {
             Term::Add(ts) => {
@@ -178,8 +300,16 @@ impl<'a> Session<'a> {
                 }
                 Ok(total)
             }
-            Term::Integral(i) => self.integral(i, free, values),
-            Term::Mul(fs) if fs.iter().any(|f| matches!(f, Term::Integral(_))) => {
+            // Fluxes and boundary-plane integrals by quadrature; volume
+            // integrals through the local rules (δ sifting).
+            Term::Integral(i) if i.surface || i.region == Region::Boundary => {
+                self.integral(i, free, values)
+            }
+            Term::Mul(fs)
+                if fs.iter().any(
+                    |f| matches!(f, Term::Integral(i) if i.surface || i.region == Region::Boundary),
+                ) =>
+            {
                 let mut total = Value {
                     value: 1.0,
                     error: 0.0,

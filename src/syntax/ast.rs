@@ -224,6 +224,9 @@ pub enum OpKind {
 
 /// One statement of a `.ward` file.
 #[derive(Clone, Debug, PartialEq, Eq)]
+// Statements are built once per file and matched once; their size does not
+// matter, and boxing would only obscure the matches.
+#[allow(clippy::large_enum_variant)]
 pub enum Stmt {
     Dimension(Expr),
     Halfspace {
@@ -304,6 +307,14 @@ pub enum Stmt {
         unknown: Name,
         lhs: Expr,
         rhs: Expr,
+        span: Span,
+    },
+    /// `flux ∂[mu](x) { F } = R radius r`: the local identity checked by
+    /// flux through a sphere around each insertion.
+    Flux {
+        lhs: Expr,
+        rhs: Expr,
+        radius: Expr,
         span: Span,
     },
     /// `compare L = R`: both sides numerically in the model.

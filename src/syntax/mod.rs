@@ -241,6 +241,7 @@ const STATEMENT_STARTS: &[&str] = &[
     "evaluate",
     "compare",
     "solve",
+    "flux",
 ];
 /// Infix operators.
 const INFIX: &[&str] = &["+", "-", "*", "/", "^"];
@@ -567,6 +568,17 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                 unknown,
                 lhs,
                 rhs,
+                span,
+            }
+        }
+        Rule::flux_stmt => {
+            let lhs = parse_expr_pair(source, next(&mut inner))?;
+            let rhs = parse_expr_pair(source, next(&mut inner))?;
+            let radius = parse_expr_pair(source, next(&mut inner))?;
+            Stmt::Flux {
+                lhs,
+                rhs,
+                radius,
                 span,
             }
         }
