@@ -157,6 +157,18 @@ impl<'a> Reporter<'a> {
         self.printer.terms(t).join(&format!("\n{indent}"))
     }
 
+    /// Which sample the following numeric lines are for, and its points.
+    pub fn sample(&mut self, k: usize, points: &[(String, Vec<f64>)]) {
+        let listed: Vec<String> = points
+            .iter()
+            .map(|(n, p)| {
+                let coords: Vec<String> = p.iter().map(|x| format!("{x:.4}")).collect();
+                format!("{n} = ({})", coords.join(", "))
+            })
+            .collect();
+        let _ = writeln!(self.out, "sample {k}: {}", listed.join(", "));
+    }
+
     /// The model numeric statements use.
     pub fn model(&mut self, description: &str) {
         let _ = writeln!(self.out, "model: {description}");

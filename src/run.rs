@@ -42,6 +42,52 @@ pub struct Outcome {
     pub code: i32,
 }
 
+/// Runs one numeric statement on the current sample; `Some(verdict)` for
+/// statements that check something.
+fn numeric_item(
+    s: &Session,
+    kind: &ItemKind,
+    line: usize,
+    text: &str,
+    reporter: &mut Reporter,
+) -> Result<Option<bool>> {
+    let input = |keyword: &str| text.strip_prefix(keyword).unwrap_or(text).to_string();
+    Ok(match kind {
+        ItemKind::Evaluate { expr, free } => {
+            let values = s.evaluate(expr, free)?;
+            reporter.evaluated(line, &input("evaluate "), &values);
+            None
+        }
+        ItemKind::Solve {
+            unknown,
+            lhs,
+            rhs,
+            free,
+        } => {
+            let solution = s.solve(unknown, lhs, rhs, free)?;
+            reporter.solved(line, &input("solve "), unknown, &solution);
+            None
+        }
+        ItemKind::Flux {
+            index,
+            var,
+            body,
+            rhs,
+            radius,
+            free,
+        } => {
+            let report = s.flux(index, var, body, rhs, radius, free)?;
+            Some(reporter.flux(line, &input("flux "), &report))
+        }
+        ItemKind::Compare { lhs, rhs, free } => {
+            let left = s.evaluate(lhs, free)?;
+            let right = s.evaluate(rhs, free)?;
+            Some(reporter.compared(line, &input("compare "), &left, &right))
+        }
+        _ => None,
+    })
+}
+
 /// The file's numeric session, built (and announced) on first use.
 fn numeric_session<'s, 'a>(
     session: &'s mut Option<Session<'a>>,
@@ -125,66 +171,26 @@ pub fn run_source(
                 }
             }
             (ItemKind::Claim { .. }, Mode::Simplify) => {}
-            (ItemKind::Evaluate { expr, free }, _) => {
-                let s = numeric_session(&mut session, &program, &engine, &mut reporter)
-                    .map_err(at_item)?;
-                let values = s.evaluate(expr, free).map_err(at_item)?;
-                let input = text.strip_prefix("evaluate ").unwrap_or(&text);
-                reporter.evaluated(item.line, input, &values);
-            }
             (
-                ItemKind::Solve {
-                    unknown,
-                    lhs,
-                    rhs,
-                    free,
-                },
+                ItemKind::Evaluate { .. }
+                | ItemKind::Solve { .. }
+                | ItemKind::Flux { .. }
+                | ItemKind::Compare { .. },
                 _,
             ) => {
                 let s = numeric_session(&mut session, &program, &engine, &mut reporter)
                     .map_err(at_item)?;
-                let solution = s.solve(unknown, lhs, rhs, free).map_err(at_item)?;
-                let input = text.strip_prefix("solve ").unwrap_or(&text);
-                reporter.solved(item.line, input, unknown, &solution);
-            }
-            (
-                ItemKind::Flux {
-                    index,
-                    var,
-                    body,
-                    rhs,
-                    radius,
-                    free,
-                },
-                _,
-            ) => {
-                let s = numeric_session(&mut session, &program, &engine, &mut reporter)
-                    .map_err(at_item)?;
-                let report = s
-                    .flux(index, var, body, rhs, radius, free)
-                    .map_err(at_item)?;
-                let input = text.strip_prefix("flux ").unwrap_or(&text);
-                let ok = reporter.flux(item.line, input, &report);
-                if mode == Mode::Check {
-                    if ok {
-                        proved += 1
-                    } else {
-                        failed += 1
+                for k in 0..s.sample_count() {
+                    let points = s.select(k);
+                    if s.sample_count() > 1 {
+                        reporter.sample(k + 1, &points);
                     }
-                }
-            }
-            (ItemKind::Compare { lhs, rhs, free }, _) => {
-                let s = numeric_session(&mut session, &program, &engine, &mut reporter)
-                    .map_err(at_item)?;
-                let left = s.evaluate(lhs, free).map_err(at_item)?;
-                let right = s.evaluate(rhs, free).map_err(at_item)?;
-                let input = text.strip_prefix("compare ").unwrap_or(&text);
-                let ok = reporter.compared(item.line, input, &left, &right);
-                if mode == Mode::Check {
-                    if ok {
-                        proved += 1
-                    } else {
-                        failed += 1
+                    match numeric_item(s, &item.kind, item.line, &text, &mut reporter)
+                        .map_err(at_item)?
+                    {
+                        Some(true) if mode == Mode::Check => proved += 1,
+                        Some(false) if mode == Mode::Check => failed += 1,
+                        _ => {}
                     }
                 }
             }

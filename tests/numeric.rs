@@ -143,3 +143,28 @@ flux ∂[mu](x) <T[mu,nu](x) O(x1) O(x2)>
         "{report}"
     );
 }
+
+#[test]
+fn seeded_samples_are_reported_and_reproducible() {
+    let path = Path::new("tests/cases/numeric/sampled-flux-d3.ward");
+    let first = run_path(path, Mode::Check, &Options::default())
+        .unwrap_or_else(|e| panic!("{}", e.render()));
+    let again = run_path(path, Mode::Check, &Options::default())
+        .unwrap_or_else(|e| panic!("{}", e.render()));
+    assert_eq!(
+        first.report, again.report,
+        "the same seed gives the same points"
+    );
+    for k in 1..=3 {
+        assert!(
+            first.report.contains(&format!("sample {k}: ")),
+            "{}",
+            first.report
+        );
+    }
+    assert!(
+        first.report.ends_with("3 proved, 0 not proved\n"),
+        "{}",
+        first.report
+    );
+}

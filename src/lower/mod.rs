@@ -499,6 +499,7 @@ impl Lowerer {
                 self.declare_coefficient(names, value, *span)?
             }
             Stmt::Values(items) => self.declare_values(items)?,
+            Stmt::Sample { count, seed, span } => self.declare_sample(count, seed, *span)?,
             Stmt::Simplify { .. }
             | Stmt::Claim { .. }
             | Stmt::Rules { .. }

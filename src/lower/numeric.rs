@@ -23,6 +23,8 @@ pub struct NumericSpec {
     /// Numeric values of parameters (one entry for scalars, d or d² for
     /// vectors and tensors, row-major).
     pub values: BTreeMap<String, ValueSpec>,
+    /// `sample N seed S`: N sets of seeded random positions.
+    pub sample: Option<(usize, u64)>,
 }
 
 /// A checked model choice.
@@ -150,6 +152,36 @@ impl Lowerer {
                     .with_label("given again"));
             }
         }
+        Ok(())
+    }
+
+    pub(super) fn declare_sample(&mut self, count: &Expr, seed: &Expr, span: Span) -> Result<()> {
+        let whole = |e: &Expr, max: u64| {
+            constant_value(e)
+                .filter(|v| v.is_integer())
+                .and_then(|v| num_traits::ToPrimitive::to_u64(&v.to_integer()))
+                .filter(|v| *v <= max)
+        };
+        let Some(n) = whole(count, 1000).filter(|n| *n > 0) else {
+            return Err(self
+                .err(
+                    ErrorKind::Syntax,
+                    count.span,
+                    "the number of samples is a whole number from 1 to 1000",
+                )
+                .with_label("not a sample count"));
+        };
+        let Some(s) = whole(seed, u64::MAX) else {
+            return Err(self
+                .err(ErrorKind::Syntax, seed.span, "a seed is a whole number")
+                .with_label("not a seed"));
+        };
+        if self.numeric.sample.is_some() {
+            return Err(self
+                .err(ErrorKind::Name, span, "a file samples once")
+                .with_label("a second `sample`"));
+        }
+        self.numeric.sample = Some((n as usize, s));
         Ok(())
     }
 

@@ -30,7 +30,7 @@ use crate::term::{Index, Integral, Point, Region, Term};
 /// Relative accuracy asked of quadrature.
 const QUADRATURE_TOLERANCE: f64 = 1e-11;
 /// Absolute accuracy asked of quadrature, for integrals that vanish.
-const QUADRATURE_FLOOR: f64 = 1e-14;
+const QUADRATURE_FLOOR: f64 = 1e-12;
 /// Largest number of integrand evaluations for one integral.
 const QUADRATURE_BUDGET: usize = 400_000;
 
@@ -39,7 +39,10 @@ pub struct Session<'a> {
     ctx: &'a Context,
     engine: &'a Engine,
     model: Box<dyn Model>,
-    values: Values,
+    /// One set of values per sample (declared positions, plus seeded random
+    /// ones for points without a position); statements run on each.
+    samples: Vec<Values>,
+    current: std::cell::Cell<usize>,
 }
 
 /// One numeric value with its error estimate (0 when no quadrature was
@@ -101,13 +104,38 @@ impl<'a> Session<'a> {
             ));
         };
         let model = build_model(ctx, choice, spec)?;
-        let values = values(ctx, spec)?;
+        let base = values(ctx, spec)?;
+        let samples = match spec.sample {
+            Some((count, seed)) => random_samples(ctx, &base, count, seed)?,
+            None => vec![base],
+        };
         Ok(Session {
             ctx,
             engine,
             model,
-            values,
+            samples,
+            current: std::cell::Cell::new(0),
         })
+    }
+
+    /// How many sets of values statements run on.
+    pub fn sample_count(&self) -> usize {
+        self.samples.len()
+    }
+
+    /// Makes sample `k` the current one; returns its point positions.
+    pub fn select(&self, k: usize) -> Vec<(String, Vec<f64>)> {
+        self.current
+            .set(k.min(self.samples.len().saturating_sub(1)));
+        self.values()
+            .points
+            .iter()
+            .map(|(n, p)| (n.clone(), p.clone()))
+            .collect()
+    }
+
+    fn values(&self) -> &Values {
+        &self.samples[self.current.get()]
     }
 
     /// One line saying which model is in force.
@@ -117,7 +145,7 @@ impl<'a> Session<'a> {
 
     /// The values of `t` for every assignment of its free indices.
     pub fn evaluate(&self, t: &Term, free: &[String]) -> Result<Evaluation> {
-        self.evaluate_with(t, free, &self.values)
+        self.evaluate_with(t, free, self.values())
     }
 
     fn evaluate_with(&self, t: &Term, free: &[String], values: &Values) -> Result<Evaluation> {
@@ -140,7 +168,7 @@ impl<'a> Session<'a> {
         free: &[String],
     ) -> Result<Solution> {
         let residual = |a: f64| -> Result<Vec<f64>> {
-            let mut values = self.values.clone();
+            let mut values = self.values().clone();
             values.scalars.insert(unknown.to_string(), a);
             let l = self.evaluate_with(lhs, free, &values)?;
             let r = self.evaluate_with(rhs, free, &values)?;
@@ -176,7 +204,7 @@ impl<'a> Session<'a> {
             ));
         }
         let check = residual(solution)?;
-        let component = assignments(self.ctx, free, self.values.dim)
+        let component = assignments(self.ctx, free, self.values().dim)
             .into_iter()
             .nth(k)
             .unwrap_or_default();
@@ -200,14 +228,14 @@ impl<'a> Session<'a> {
         radius: &Term,
         free: &[String],
     ) -> Result<FluxReport> {
-        let r = self.value(radius, &[], &self.values)?.value;
+        let r = self.value(radius, &[], self.values())?.value;
         let mut around = Vec::new();
         for (rank, decl) in self.ctx.points.iter().enumerate() {
             let p = Point::named(rank as u32, decl.name.clone());
             if decl.boundary || p.name == var.name || !body.mentions_point(&p) {
                 continue;
             }
-            if !self.values.points.contains_key(&decl.name) {
+            if !self.values().points.contains_key(&decl.name) {
                 return Err(Error::new(
                     ErrorKind::Numeric,
                     format!("`{}` has no position", decl.name),
@@ -221,11 +249,22 @@ impl<'a> Session<'a> {
                 surface: true,
                 body: Term::Mul(vec![Term::OutNormal(index.clone()), body.clone()]),
             }));
+            // The contact terms at p: the terms of the right side with a δ
+            // at p (the sphere avoids every other insertion).
+            let simplified = self.engine.simplify(rhs)?.term;
+            let summands: Vec<Term> = match simplified {
+                Term::Add(ts) => ts,
+                t => vec![t],
+            };
+            let at_p: Vec<Term> = summands
+                .into_iter()
+                .filter(|t| has_delta_at(t, var, &p))
+                .collect();
             let volume = Term::Integral(Box::new(Integral {
                 var: var.clone(),
                 region: ball,
                 surface: false,
-                body: rhs.clone(),
+                body: Term::Add(at_p),
             }));
             around.push(FluxCheck {
                 point: decl.name.to_string(),
@@ -242,9 +281,9 @@ impl<'a> Session<'a> {
         let field = normalize(self.ctx, &modelled)?;
         let mut away = Vec::new();
         for check in &around {
-            let mut at = self.values.points[&check.point].clone();
+            let mut at = self.values().points[&check.point].clone();
             at[0] += 2.0 * r;
-            let clear = self.values.points.iter().all(|(n, q)| {
+            let clear = self.values().points.iter().all(|(n, q)| {
                 **n == *var.name
                     || q.iter()
                         .zip(&at)
@@ -256,7 +295,7 @@ impl<'a> Session<'a> {
             if !clear {
                 continue;
             }
-            let mut values = self.values.clone();
+            let mut values = self.values().clone();
             values.points.insert(var.name.to_string(), at.clone());
             let mut largest: f64 = 0.0;
             let mut scale: f64 = 0.0;
@@ -336,7 +375,7 @@ impl<'a> Session<'a> {
         let simplified = self.engine.simplify(t)?.term;
         let modelled = apply(self.model.as_ref(), self.ctx, &simplified)?;
         let explicit = normalize(self.ctx, &modelled)?;
-        compile(self.ctx, &explicit, free, self.values.dim)
+        compile(self.ctx, &explicit, free, self.values().dim)
     }
 
     fn integral(&self, i: &Integral, free: &[(String, usize)], values: &Values) -> Result<Value> {
@@ -346,8 +385,7 @@ impl<'a> Session<'a> {
                 let r = self.value(radius, &[], values)?.value;
                 // Poles towards the nearest other insertion: the integrand
                 // then varies mostly with one variable.
-                let nearest = self
-                    .values
+                let nearest = values
                     .points
                     .iter()
                     .filter(|(name, _)| **name != *i.var.name && **name != *center.name)
@@ -382,8 +420,7 @@ impl<'a> Session<'a> {
                 ))
             }
         };
-        let avoid: Vec<(String, Vec<f64>)> = self
-            .values
+        let avoid: Vec<(String, Vec<f64>)> = values
             .points
             .iter()
             .filter(|(name, _)| **name != *i.var.name)
@@ -442,7 +479,7 @@ impl<'a> Session<'a> {
     /// nearest to the wall among those the integrand involves.
     fn plane_centre(&self, body: &Term) -> Result<(Vec<f64>, f64)> {
         let mut best: Option<(Vec<f64>, f64)> = None;
-        for (name, p) in &self.values.points {
+        for (name, p) in &self.values().points {
             let bulk = self.ctx.point(name).is_some_and(|(_, d)| !d.boundary);
             let rank = self.ctx.point(name).map_or(0, |(r, _)| r);
             if !bulk || !body.mentions_point(&Point::named(rank, name.clone())) {
@@ -466,7 +503,7 @@ impl<'a> Session<'a> {
     }
 
     fn position(&self, p: &Point) -> Result<Vec<f64>> {
-        self.values.points.get(&*p.name).cloned().ok_or_else(|| {
+        self.values().points.get(&*p.name).cloned().ok_or_else(|| {
             Error::new(ErrorKind::Numeric, format!("`{}` has no position", p.name))
                 .with_note(format!("give one: `place {} at (…)`", p.name))
         })
@@ -577,6 +614,60 @@ fn values(ctx: &Context, spec: &NumericSpec) -> Result<Values> {
     Ok(out)
 }
 
+/// `count` sets of values: declared positions kept, the other points at
+/// seeded random positions (bulk points at heights 1/4 to 5/4 above a
+/// wall, boundary points on it), at least 1/4 apart.
+fn random_samples(ctx: &Context, base: &Values, count: usize, seed: u64) -> Result<Vec<Values>> {
+    let mut state = seed;
+    let mut next = move || {
+        // splitmix64 (Steele, Lea & Flood 2014).
+        state = state.wrapping_add(0x9e37_79b9_7f4a_7c15);
+        let mut z = state;
+        z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
+        z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
+        ((z ^ (z >> 31)) >> 11) as f64 / (1u64 << 53) as f64
+    };
+    let mut out = Vec::with_capacity(count);
+    for _ in 0..count {
+        let mut values = base.clone();
+        for decl in &ctx.points {
+            if values.points.contains_key(&*decl.name) {
+                continue;
+            }
+            let mut tries = 0;
+            let p = loop {
+                let mut p: Vec<f64> = (0..base.dim).map(|_| 2.0 * next() - 1.0).collect();
+                if ctx.has_halfspace() {
+                    let y = if decl.boundary { 0.0 } else { 0.25 + next() };
+                    if let Some(last) = p.last_mut() {
+                        *last = y;
+                    }
+                }
+                let clear = values.points.values().all(|q| {
+                    q.iter()
+                        .zip(&p)
+                        .map(|(a, b)| (a - b) * (a - b))
+                        .sum::<f64>()
+                        > 1.0 / 16.0
+                });
+                tries += 1;
+                if clear || tries > 1000 {
+                    break p;
+                }
+            };
+            values.points.insert(decl.name.to_string(), p);
+        }
+        out.push(values);
+    }
+    if out.is_empty() {
+        return Err(Error::new(
+            ErrorKind::Numeric,
+            "`sample` needs at least one sample",
+        ));
+    }
+    Ok(out)
+}
+
 /// Every assignment of numeric values to the free indices.
 fn assignments(ctx: &Context, free: &[String], dim: usize) -> Vec<Vec<(String, usize)>> {
     let mut out = vec![Vec::new()];
@@ -597,6 +688,18 @@ fn assignments(ctx: &Context, free: &[String], dim: usize) -> Vec<Vec<(String, u
             .collect();
     }
     out
+}
+
+/// True if `t` holds δ(var - p) (possibly differentiated).
+fn has_delta_at(t: &Term, var: &Point, p: &Point) -> bool {
+    match t {
+        Term::DeltaFn(a, b) => {
+            (a.name == var.name && b.name == p.name) || (b.name == var.name && a.name == p.name)
+        }
+        Term::Mul(ts) | Term::Add(ts) => ts.iter().any(|t| has_delta_at(t, var, p)),
+        Term::Der(_, _, body) => has_delta_at(body, var, p),
+        _ => false,
+    }
 }
 
 /// Replaces the outward normal N[k] by an explicit vector.

@@ -317,6 +317,12 @@ pub enum Stmt {
         radius: Expr,
         span: Span,
     },
+    /// `sample N seed S`: N sets of seeded random positions.
+    Sample {
+        count: Expr,
+        seed: Expr,
+        span: Span,
+    },
     /// `compare L = R`: both sides numerically in the model.
     Compare {
         lhs: Expr,

@@ -242,6 +242,7 @@ const STATEMENT_STARTS: &[&str] = &[
     "compare",
     "solve",
     "flux",
+    "sample",
 ];
 /// Infix operators.
 const INFIX: &[&str] = &["+", "-", "*", "/", "^"];
@@ -570,6 +571,11 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                 rhs,
                 span,
             }
+        }
+        Rule::sample_stmt => {
+            let count = parse_primary(next(&mut inner));
+            let seed = parse_primary(next(&mut inner));
+            Stmt::Sample { count, seed, span }
         }
         Rule::flux_stmt => {
             let lhs = parse_expr_pair(source, next(&mut inner))?;
