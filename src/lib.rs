@@ -15,6 +15,7 @@ pub mod engine;
 pub mod lower;
 pub mod normal;
 pub mod numeric;
+pub mod plot;
 pub mod report;
 pub mod rules;
 pub mod run;

@@ -75,6 +75,8 @@ fn main() -> ExitCode {
             iterations: args.iter_limit,
             ..Limits::default()
         },
+        // Long numeric work reports progress on a terminal, nowhere else.
+        progress: std::io::stderr().is_terminal(),
     };
     match run_path(&args.file, mode, &opts) {
         Ok(outcome) => {

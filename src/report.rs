@@ -6,7 +6,7 @@ use std::fmt::Write as _;
 
 use crate::context::Context;
 use crate::engine::{Simplified, Verdict};
-use crate::numeric::session::{Evaluation, FluxReport, Solution, Value};
+use crate::numeric::session::{Evaluation, FluxReport, Scan, Solution, Value};
 use crate::term::print::{Printer, Style};
 
 /// Relative tolerance of `compare`, on top of quadrature error estimates.
@@ -155,6 +155,42 @@ impl<'a> Reporter<'a> {
             return one_line;
         }
         self.printer.terms(t).join(&format!("\n{indent}"))
+    }
+
+    /// `line N: scan` with its table (every row up to 21, else 21 evenly
+    /// spaced rows) and where the files went.
+    pub fn scanned(&mut self, line: usize, input: &str, scan: &Scan, written: Option<&str>) {
+        let _ = writeln!(
+            self.out,
+            "line {line}: scan {}",
+            abbreviate(input, INPUT_WIDTH)
+        );
+        let n = scan.rows.len();
+        let shown: Vec<usize> = if n <= 21 {
+            (0..n).collect()
+        } else {
+            (0..21).map(|k| k * (n - 1) / 20).collect()
+        };
+        for k in shown {
+            let (x, left, right) = &scan.rows[k];
+            let pairs: Vec<String> = left
+                .iter()
+                .zip(right)
+                .zip(&scan.labels)
+                .map(|((l, r), label)| {
+                    let label = if label.is_empty() {
+                        String::new()
+                    } else {
+                        format!("{label}: ")
+                    };
+                    format!("{label}{l:.10e} | {r:.10e}")
+                })
+                .collect();
+            let _ = writeln!(self.out, "  {} = {x:.6}: {}", scan.param, pairs.join(";  "));
+        }
+        if let Some(files) = written {
+            let _ = writeln!(self.out, "  written: {files}");
+        }
     }
 
     /// Which sample the following numeric lines are for, and its points.

@@ -33,6 +33,8 @@ pub struct Options {
     pub rules: Vec<PathBuf>,
     pub style: Style,
     pub limits: Limits,
+    /// Show a progress line on standard error during long numeric work.
+    pub progress: bool,
 }
 
 /// The printed report and the exit code (0: all claims hold, 1: some do not).
@@ -86,6 +88,33 @@ fn numeric_item(
         }
         _ => None,
     })
+}
+
+/// Writes `stem.csv` and `stem.svg` beside the file, each through a
+/// temporary file and a rename, so a failure never leaves half a file.
+fn write_scan(
+    scan: &crate::numeric::session::Scan,
+    base: &Path,
+    stem: &str,
+    title: &str,
+) -> Result<String> {
+    let csv = base.join(format!("{stem}.csv"));
+    let svg = base.join(format!("{stem}.svg"));
+    for (path, text) in [
+        (&csv, crate::plot::csv(scan)),
+        (&svg, crate::plot::svg(scan, title)),
+    ] {
+        let temporary = path.with_extension("partial");
+        let io = |e: std::io::Error| {
+            Error::new(
+                ErrorKind::Io,
+                format!("cannot write `{}`: {e}", path.display()),
+            )
+        };
+        std::fs::write(&temporary, text).map_err(io)?;
+        std::fs::rename(&temporary, path).map_err(io)?;
+    }
+    Ok(format!("{}, {}", csv.display(), svg.display()))
 }
 
 /// The file's numeric session, built (and announced) on first use.
@@ -171,6 +200,48 @@ pub fn run_source(
                 }
             }
             (ItemKind::Claim { .. }, Mode::Simplify) => {}
+            (
+                ItemKind::Scan {
+                    param,
+                    from,
+                    to,
+                    steps,
+                    lhs,
+                    rhs,
+                    free,
+                    output,
+                },
+                _,
+            ) => {
+                let s = numeric_session(&mut session, &program, &engine, &mut reporter)
+                    .map_err(at_item)?;
+                let mut progress = |done: usize, total: usize| {
+                    if opts.progress {
+                        eprint!("\rline {}: scan {done}/{total}", item.line);
+                        if done == total {
+                            eprintln!();
+                        }
+                    }
+                };
+                let scan = s
+                    .scan(param, *from, *to, *steps, lhs, rhs, free, &mut progress)
+                    .map_err(at_item)?;
+                let input = text.strip_prefix("scan ").unwrap_or(&text);
+                let title: String = {
+                    let body = input.split(" into ").next().unwrap_or(input);
+                    let cut: String = body.chars().take(90).collect();
+                    if cut.len() < body.len() {
+                        format!("{cut}…")
+                    } else {
+                        cut
+                    }
+                };
+                let written = match output {
+                    Some(stem) => Some(write_scan(&scan, base, stem, &title).map_err(at_item)?),
+                    None => None,
+                };
+                reporter.scanned(item.line, input, &scan, written.as_deref());
+            }
             (
                 ItemKind::Evaluate { .. }
                 | ItemKind::Solve { .. }

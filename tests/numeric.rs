@@ -168,3 +168,33 @@ fn seeded_samples_are_reported_and_reproducible() {
         first.report
     );
 }
+
+#[test]
+fn a_scan_writes_a_table_and_a_plot_whole() {
+    // Both sides of W4 for the dilatation (PHYSICS.md §1) as Δ runs.
+    let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("scan");
+    std::fs::create_dir_all(&dir).expect("scratch dir");
+    let text = format!(
+        "{TOO}\nscan Delta from 1/2 to 5/2 steps 9: ∮[x on ball(x1, 1/4)] {{ N[mu] dil[nu](x) <T[mu,nu](x) O(x1) O(x2)> }}
+           = - lambda x1[mu] ∂[mu](x1) <O(x1) O(x2)> - Delta lambda <O(x1) O(x2)> into \"dilatation\"\n"
+    );
+    let source = Source::new("scan.ward", text);
+    let out = run_source(&source, &dir, Mode::Simplify, &Options::default())
+        .unwrap_or_else(|e| panic!("{}", e.render()));
+    assert!(out.report.contains("Delta = 2.500000"), "{}", out.report);
+    let csv = std::fs::read_to_string(dir.join("dilatation.csv")).expect("csv written");
+    let rows: Vec<&str> = csv.lines().collect();
+    assert_eq!(rows[0], "Delta,left,right");
+    assert_eq!(rows.len(), 10);
+    for row in &rows[1..] {
+        let v: Vec<f64> = row
+            .split(',')
+            .map(|x| x.parse().expect("a number"))
+            .collect();
+        assert!((v[1] - v[2]).abs() <= 1e-9 * v[2].abs(), "{row}");
+    }
+    let svg = std::fs::read_to_string(dir.join("dilatation.svg")).expect("svg written");
+    assert!(svg.starts_with("<svg") && svg.trim_end().ends_with("</svg>"));
+    assert_eq!(svg.matches("<polyline").count(), 2);
+    assert!(!dir.join("dilatation.partial").exists());
+}

@@ -73,6 +73,18 @@ pub enum ItemKind {
         radius: Term,
         free: Vec<String>,
     },
+    /// `scan p from a to b steps n: L = R [into "name"]`.
+    Scan {
+        param: String,
+        from: f64,
+        to: f64,
+        steps: usize,
+        lhs: Term,
+        rhs: Term,
+        free: Vec<String>,
+        /// File stem for the CSV and SVG output, as written.
+        output: Option<String>,
+    },
     /// `solve a from L = R`.
     Solve {
         unknown: String,
@@ -216,6 +228,85 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         rhs: lowerer.expr(rhs)?,
                         radius: lowerer.expr(radius)?,
                         free: profile.into_iter().collect(),
+                    },
+                    span: *span,
+                    line: source.line_col(span.start).0,
+                });
+            }
+            Stmt::Scan {
+                param,
+                from,
+                to,
+                steps,
+                lhs,
+                rhs,
+                output,
+                span,
+            } => {
+                seen_expression = true;
+                if !lowerer.ctx.parameters.contains(&param.text) {
+                    return Err(lowerer
+                        .err(
+                            ErrorKind::Name,
+                            param.span,
+                            format!("`{}` is not a parameter", param.text),
+                        )
+                        .with_label("cannot be scanned")
+                        .with_note(
+                            "scan a scalar parameter, e.g. `scan Delta from 1 to 2 steps 11: …`",
+                        ));
+                }
+                let number = |e: &Expr| -> Result<f64> {
+                    constant_value(e)
+                        .and_then(|v| num_traits::ToPrimitive::to_f64(&v))
+                        .ok_or_else(|| {
+                            lowerer
+                                .err(
+                                    ErrorKind::Syntax,
+                                    e.span,
+                                    "a scan range is given by numbers",
+                                )
+                                .with_label("not a number")
+                        })
+                };
+                let (a, b) = (number(from)?, number(to)?);
+                let n = constant_value(steps)
+                    .filter(|v| v.is_integer())
+                    .and_then(|v| num_traits::ToPrimitive::to_usize(&v.to_integer()))
+                    .filter(|n| (2..=10_000).contains(n))
+                    .ok_or_else(|| {
+                        lowerer
+                            .err(
+                                ErrorKind::Syntax,
+                                steps.span,
+                                "the number of steps is a whole number from 2 to 10000",
+                            )
+                            .with_label("not a step count")
+                    })?;
+                if let Some((name, span)) = output {
+                    let plain = !name.is_empty()
+                        && name.chars().all(|c| {
+                            c.is_alphanumeric() || c == '-' || c == '_' || c == '/' || c == '.'
+                        })
+                        && !name.contains("..");
+                    if !plain {
+                        return Err(lowerer
+                            .err(ErrorKind::Syntax, *span, "an output name is a relative path of letters, digits, `-`, `_`, `/` and `.`")
+                            .with_label("not a plain name"));
+                    }
+                }
+                let profile = lowerer.free_indices(lhs)?;
+                lowerer.same_free_indices(&profile, rhs, "the right side")?;
+                items.push(Item {
+                    kind: ItemKind::Scan {
+                        param: param.text.clone(),
+                        from: a,
+                        to: b,
+                        steps: n,
+                        lhs: lowerer.expr(lhs)?,
+                        rhs: lowerer.expr(rhs)?,
+                        free: profile.into_iter().collect(),
+                        output: output.as_ref().map(|(n, _)| n.clone()),
                     },
                     span: *span,
                     line: source.line_col(span.start).0,
@@ -507,6 +598,7 @@ impl Lowerer {
             | Stmt::Evaluate { .. }
             | Stmt::Solve { .. }
             | Stmt::Flux { .. }
+            | Stmt::Scan { .. }
             | Stmt::Compare { .. } => {}
         }
         Ok(())

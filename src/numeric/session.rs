@@ -64,6 +64,16 @@ pub struct Solution {
     pub residual: f64,
 }
 
+/// A scan: for each value of the parameter, every component of both sides.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Scan {
+    pub param: String,
+    /// One label per component (`nu=0`, or empty for a scalar).
+    pub labels: Vec<String>,
+    /// (parameter, left components, right components).
+    pub rows: Vec<(f64, Vec<f64>, Vec<f64>)>,
+}
+
 /// A local identity checked insertion by insertion.
 #[derive(Clone, Debug, PartialEq)]
 pub struct FluxReport {
@@ -321,6 +331,54 @@ impl<'a> Session<'a> {
             away.push(Conservation { at, largest, scale });
         }
         Ok(FluxReport { around, away })
+    }
+
+    /// Both sides of `lhs = rhs` as `param` runs from `from` to `to` in
+    /// `steps` equal steps; `progress(done, total)` after each step.
+    #[allow(clippy::too_many_arguments)]
+    pub fn scan(
+        &self,
+        param: &str,
+        from: f64,
+        to: f64,
+        steps: usize,
+        lhs: &Term,
+        rhs: &Term,
+        free: &[String],
+        progress: &mut dyn FnMut(usize, usize),
+    ) -> Result<Scan> {
+        let mut rows = Vec::with_capacity(steps);
+        let mut labels = Vec::new();
+        for k in 0..steps {
+            let x = from + (to - from) * k as f64 / (steps - 1).max(1) as f64;
+            let mut values = self.values().clone();
+            values.scalars.insert(param.to_string(), x);
+            let l = self.evaluate_with(lhs, free, &values)?;
+            let r = self.evaluate_with(rhs, free, &values)?;
+            if labels.is_empty() {
+                labels = l
+                    .components
+                    .iter()
+                    .map(|(a, _)| {
+                        a.iter()
+                            .map(|(n, v)| format!("{n}={v}"))
+                            .collect::<Vec<_>>()
+                            .join(" ")
+                    })
+                    .collect();
+            }
+            rows.push((
+                x,
+                l.components.iter().map(|(_, v)| v.value).collect(),
+                r.components.iter().map(|(_, v)| v.value).collect(),
+            ));
+            progress(k + 1, steps);
+        }
+        Ok(Scan {
+            param: param.to_string(),
+            labels,
+            rows,
+        })
     }
 
     fn value(&self, t: &Term, free: &[(String, usize)], values: &Values) -> Result<Value> {

@@ -317,6 +317,17 @@ pub enum Stmt {
         radius: Expr,
         span: Span,
     },
+    /// `scan p from a to b steps n: L = R [into "name"]`.
+    Scan {
+        param: Name,
+        from: Expr,
+        to: Expr,
+        steps: Expr,
+        lhs: Expr,
+        rhs: Expr,
+        output: Option<(String, Span)>,
+        span: Span,
+    },
     /// `sample N seed S`: N sets of seeded random positions.
     Sample {
         count: Expr,

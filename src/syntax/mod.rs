@@ -243,6 +243,7 @@ const STATEMENT_STARTS: &[&str] = &[
     "solve",
     "flux",
     "sample",
+    "scan",
 ];
 /// Infix operators.
 const INFIX: &[&str] = &["+", "-", "*", "/", "^"];
@@ -569,6 +570,29 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                 unknown,
                 lhs,
                 rhs,
+                span,
+            }
+        }
+        Rule::scan_stmt => {
+            let param = parse_name(next(&mut inner));
+            let from = parse_expr_pair(source, next(&mut inner))?;
+            let to = parse_expr_pair(source, next(&mut inner))?;
+            let steps = parse_primary(next(&mut inner));
+            let lhs = parse_expr_pair(source, next(&mut inner))?;
+            let rhs = parse_expr_pair(source, next(&mut inner))?;
+            let output = inner.next().map(|string| {
+                let span = span_of(&string);
+                let body = string.into_inner().next().map_or("", |p| p.as_str());
+                (body.to_string(), span)
+            });
+            Stmt::Scan {
+                param,
+                from,
+                to,
+                steps,
+                lhs,
+                rhs,
+                output,
                 span,
             }
         }
