@@ -309,7 +309,13 @@ impl<'a> Reporter<'a> {
         let mut all = true;
         let mut rows = String::new();
         for ((assignment, l), (_, r)) in left.components.iter().zip(&right.components) {
-            let scale = l.value.abs().max(r.value.abs()).max(f64::MIN_POSITIVE);
+            let scale = l
+                .value
+                .abs()
+                .max(r.value.abs())
+                .max(l.scale)
+                .max(r.scale)
+                .max(f64::MIN_POSITIVE);
             let difference = (l.value - r.value).abs();
             let allowed = COMPARE_TOLERANCE * scale + 10.0 * (l.error + r.error);
             let ok = difference <= allowed;

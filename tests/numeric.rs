@@ -198,3 +198,27 @@ fn a_scan_writes_a_table_and_a_plot_whole() {
     assert_eq!(svg.matches("<polyline").count(), 2);
     assert!(!dir.join("dilatation.partial").exists());
 }
+
+#[test]
+fn broken_generators_and_wrong_weights_fail_on_generalised_free_fields() {
+    // PHYSICS.md §4 (common practice): the normal translation is broken by
+    // the wall; and the dilatation weight of a two-point function is 2Δ.
+    let header = "dimension 3
+halfspace y >= 0
+scalar O dim Delta
+points x1 x2
+place x1 at (0, 0, 1/2)
+place x2 at (1, -1/3, 3/4)
+model gff neumann
+killing ntr translation n
+killing dil dilatation lambda
+values Delta = 1.3, lambda = 1";
+    for body in [
+        "compare ntr[mu](x1) ∂[mu](x1) <O(x1) O(x2)> + ntr[mu](x2) ∂[mu](x2) <O(x1) O(x2)> = 0",
+        "compare dil[mu](x1) ∂[mu](x1) <O(x1) O(x2)> + dil[mu](x2) ∂[mu](x2) <O(x1) O(x2)> + Delta lambda <O(x1) O(x2)> = 0",
+    ] {
+        let (report, code) = check(&format!("{header}\n{body}\n"));
+        assert_eq!(code, 1, "{report}");
+        assert!(report.contains("compare DISAGREE"), "{report}");
+    }
+}

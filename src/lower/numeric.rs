@@ -40,6 +40,10 @@ pub enum ModelChoice {
         /// Operator name → composite name (`phi`, `phi2`, `boundary-phi`, …).
         fields: Vec<(String, String)>,
     },
+    /// Generalised free fields; `Some(true)` Dirichlet-like image sign.
+    Gff {
+        dirichlet: Option<bool>,
+    },
 }
 
 /// Exact numeric components of a parameter's value.
@@ -55,6 +59,9 @@ impl Lowerer {
         let choice = match spec {
             ModelSpec::Conformal { y_convention } => ModelChoice::Conformal {
                 y_convention: *y_convention,
+            },
+            ModelSpec::Gff { wall } => ModelChoice::Gff {
+                dirichlet: wall.as_deref().map(|w| w == "dirichlet"),
             },
             ModelSpec::FreeScalar {
                 wall,
@@ -84,6 +91,18 @@ impl Lowerer {
                 }
             }
         };
+        if let ModelChoice::Gff { dirichlet } = &choice {
+            if dirichlet.is_some() != self.ctx.has_halfspace() {
+                let message = if dirichlet.is_some() {
+                    "a wall needs `halfspace y >= 0`"
+                } else {
+                    "with a half-space, say which image sign: `model gff dirichlet` or `neumann`"
+                };
+                return Err(self
+                    .err(ErrorKind::Placement, span, message)
+                    .with_label("model"));
+            }
+        }
         self.numeric.model = Some((choice, span));
         Ok(())
     }

@@ -52,6 +52,9 @@ pub struct Value {
     pub value: f64,
     pub error: f64,
     pub nodes: usize,
+    /// The size of the parts the value was summed from (Σ|part|), for
+    /// judging a value that should vanish.
+    pub scale: f64,
 }
 
 /// The solution of a linear equation for one parameter.
@@ -388,12 +391,14 @@ impl<'a> Session<'a> {
                     value: 0.0,
                     error: 0.0,
                     nodes: 0,
+                    scale: 0.0,
                 };
                 for t in ts {
                     let v = self.value(t, free, values)?;
                     total.value += v.value;
                     total.error += v.error;
                     total.nodes += v.nodes;
+                    total.scale += v.scale;
                 }
                 Ok(total)
             }
@@ -411,6 +416,7 @@ impl<'a> Session<'a> {
                     value: 1.0,
                     error: 0.0,
                     nodes: 0,
+                    scale: 0.0,
                 };
                 for f in fs {
                     let v = self.value(f, free, values)?;
@@ -418,13 +424,18 @@ impl<'a> Session<'a> {
                     total.value *= v.value;
                     total.nodes += v.nodes;
                 }
+                total.scale = total.value.abs();
                 Ok(total)
             }
-            _ => Ok(Value {
-                value: self.explicit(t, free)?.eval(values)?,
-                error: 0.0,
-                nodes: 0,
-            }),
+            _ => {
+                let value = self.explicit(t, free)?.eval(values)?;
+                Ok(Value {
+                    value,
+                    error: 0.0,
+                    nodes: 0,
+                    scale: value.abs(),
+                })
+            }
         }
     }
 
@@ -530,6 +541,7 @@ impl<'a> Session<'a> {
             value: estimate.value,
             error: estimate.error,
             nodes: estimate.nodes,
+            scale: estimate.value.abs(),
         })
     }
 
@@ -596,6 +608,15 @@ fn build_model(ctx: &Context, choice: &ModelChoice, spec: &NumericSpec) -> Resul
                 };
             }
             Box::new(model)
+        }
+        ModelChoice::Gff { dirichlet } => {
+            Box::new(super::models::gff::Gff::new(dirichlet.map(|d| {
+                if d {
+                    -1
+                } else {
+                    1
+                }
+            })))
         }
         ModelChoice::FreeScalar {
             dirichlet,

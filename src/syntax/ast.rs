@@ -190,6 +190,9 @@ pub enum ModelSpec {
         unimproved: bool,
         fields: Vec<(Name, String)>,
     },
+    /// Generalised free fields, with a wall (`dirichlet`/`neumann` image
+    /// sign) or without.
+    Gff { wall: Option<String> },
 }
 
 /// Where a `place` statement puts a point.

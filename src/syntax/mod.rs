@@ -503,7 +503,11 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
         }
         Rule::model_stmt => {
             let model = next(&mut inner);
-            let spec = if model.as_rule() == Rule::model_conformal {
+            let spec = if model.as_rule() == Rule::model_gff {
+                ModelSpec::Gff {
+                    wall: model.into_inner().next().map(|w| w.as_str().to_string()),
+                }
+            } else if model.as_rule() == Rule::model_conformal {
                 ModelSpec::Conformal {
                     y_convention: model.into_inner().next().is_some_and(|c| c.as_str() == "y"),
                 }

@@ -28,6 +28,7 @@
 
 pub mod conformal;
 pub mod free_scalar;
+pub mod gff;
 
 use std::collections::{BTreeMap, BTreeSet};
 
