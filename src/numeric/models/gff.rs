@@ -31,7 +31,7 @@ impl Gff {
         let dim = ctx.attribute(&a.name, "dim").cloned().ok_or_else(|| {
             unknown(
                 "generalised free field",
-                &[a.clone()],
+                std::slice::from_ref(a),
                 "an operator without a dimension",
             )
         })?;
