@@ -43,6 +43,8 @@ pub struct Session<'a> {
     /// ones for points without a position); statements run on each.
     samples: Vec<Values>,
     current: std::cell::Cell<usize>,
+    /// Explicit normal forms already worked out, by input term.
+    explicit_cache: RefCell<std::collections::HashMap<Term, Term>>,
 }
 
 /// One numeric value with its error estimate (0 when no quadrature was
@@ -128,6 +130,7 @@ impl<'a> Session<'a> {
             model,
             samples,
             current: std::cell::Cell::new(0),
+            explicit_cache: RefCell::new(std::collections::HashMap::new()),
         })
     }
 
@@ -441,9 +444,20 @@ impl<'a> Session<'a> {
 
     /// Rules, normalisation, the model, normalisation, compilation.
     fn explicit(&self, t: &Term, free: &[(String, usize)]) -> Result<super::eval::Program> {
-        let simplified = self.engine.simplify(t)?.term;
-        let modelled = apply(self.model.as_ref(), self.ctx, &simplified)?;
-        let explicit = normalize(self.ctx, &modelled)?;
+        // The symbolic work is the same for every component and sample.
+        let cached = self.explicit_cache.borrow().get(t).cloned();
+        let explicit = match cached {
+            Some(e) => e,
+            None => {
+                let simplified = self.engine.simplify(t)?.term;
+                let modelled = apply(self.model.as_ref(), self.ctx, &simplified)?;
+                let e = normalize(self.ctx, &modelled)?;
+                self.explicit_cache
+                    .borrow_mut()
+                    .insert(t.clone(), e.clone());
+                e
+            }
+        };
         compile(self.ctx, &explicit, free, self.values().dim)
     }
 
