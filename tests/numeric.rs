@@ -222,3 +222,18 @@ values Delta = 1.3, lambda = 1";
         assert!(report.contains("compare DISAGREE"), "{report}");
     }
 }
+
+#[test]
+fn the_unimproved_stress_tensor_has_a_one_point_function_near_a_wall() {
+    // PHYSICS.md §3 (derived): <T_μν> = 0 next to a wall only with the
+    // improvement term.
+    for wall in ["dirichlet", "neumann"] {
+        let text = format!(
+            "dimension 3\nhalfspace y >= 0\npoints x\nplace x at (1/5, -1/3, 7/10)\n\
+             model free-scalar {wall} unimproved\ncompare <T[mu,nu](x)> = 0\n"
+        );
+        let (report, code) = check(&text);
+        assert_eq!(code, 1, "{report}");
+        assert!(report.contains("compare DISAGREE"), "{report}");
+    }
+}
