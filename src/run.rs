@@ -255,6 +255,17 @@ pub fn run_source(
                     let points = s.select(k);
                     if s.sample_count() > 1 {
                         reporter.sample(k + 1, &points);
+                        if opts.progress {
+                            eprint!(
+                                "\rline {}: sample {}/{}",
+                                item.line,
+                                k + 1,
+                                s.sample_count()
+                            );
+                            if k + 1 == s.sample_count() {
+                                eprintln!();
+                            }
+                        }
                     }
                     match numeric_item(s, &item.kind, item.line, &text, &mut reporter)
                         .map_err(at_item)?

@@ -475,6 +475,18 @@ impl<'a> Session<'a> {
                     .map(|(_, p)| p.iter().zip(&c).map(|(a, b)| a - b).collect::<Vec<f64>>())
                     .filter(|v| v.iter().any(|a| *a != 0.0))
                     .min_by(|a, b| norm(a).total_cmp(&norm(b)));
+                // Next to a wall the sphere must stay in the bulk.
+                let height = c.last().copied().unwrap_or(0.0);
+                if self.ctx.has_halfspace() && height - r <= 1e-6 * r {
+                    return Err(Error::new(
+                        ErrorKind::Numeric,
+                        format!(
+                            "the sphere of radius {r} around `{}` reaches the wall: `{}` is only {height} from it",
+                            center.name, center.name
+                        ),
+                    )
+                    .with_note("use a radius smaller than the distance to the wall"));
+                }
                 let surface = match nearest {
                     Some(axis) => Surface::sphere_along(&c, r, &axis),
                     None => Surface::sphere(&c, r),
