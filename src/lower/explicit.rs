@@ -891,18 +891,13 @@ impl Lowerer {
             }
             RegionKind::Ball(center, radius) => {
                 let c = self.point(center)?;
-                if self.ctx.is_boundary_point(&c) {
+                // Around a boundary point the ball is a half-ball: its
+                // surface is a hemisphere and the disc on the wall.
+                if c.par {
                     return Err(self
-                        .err(
-                            ErrorKind::Placement,
-                            center.span,
-                            format!(
-                                "a ball is centered at a bulk point, not at the boundary point `{}`",
-                                &self.source.text[center.span.start..center.span.end]
-                            ),
-                        )
-                        .with_label("on the boundary")
-                        .with_note("center the ball at a bulk point, e.g. `ball(x1, r)`"));
+                        .err(ErrorKind::Placement, center.span, "a ball is centered at a declared point, not at a projection")
+                        .with_label("a projection")
+                        .with_note("declare a boundary point (`boundary points s1`) and center the ball there"));
                 }
                 Region::Ball(c, self.radius(radius)?)
             }

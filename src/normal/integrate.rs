@@ -25,6 +25,19 @@ pub fn integral(ctx: &Context, i: &Integral) -> Result<Vec<Mono>> {
         Region::Ball(c, r) => Region::Ball(c.clone(), normalize(ctx, r)?),
         r => r.clone(),
     };
+    // Around a boundary point the surface is a hemisphere plus the disc on
+    // the wall, where T meets its boundary value: such a flux is left to
+    // numeric work, not turned into a volume integral.
+    if let (true, Region::Ball(center, _)) = (i.surface, &region) {
+        if ctx.is_boundary_point(center) {
+            return Ok(vec![Mono::factor(Term::Integral(Box::new(Integral {
+                var: i.var.clone(),
+                region,
+                surface: true,
+                body: super::normalize(ctx, &i.body)?,
+            })))]);
+        }
+    }
     let mut out = Vec::new();
     for m in expand(ctx, &i.body)? {
         if i.surface {

@@ -27,6 +27,8 @@ use crate::lower::{ModelChoice, NumericSpec};
 use crate::normal::normalize;
 use crate::term::{Index, Integral, Point, Region, Term};
 
+/// The parameter that carries the outward normal at each quadrature node.
+const NORMAL_VALUE: &str = "N#";
 /// Relative accuracy asked of quadrature.
 const QUADRATURE_TOLERANCE: f64 = 1e-11;
 /// Absolute accuracy asked of quadrature, for integrals that vanish.
@@ -466,18 +468,16 @@ impl<'a> Session<'a> {
             (Region::Ball(center, radius), true) => {
                 let c = self.position(center)?;
                 let r = self.value(radius, &[], values)?.value;
-                // Poles towards the nearest other insertion: the integrand
-                // then varies mostly with one variable.
-                let nearest = values
-                    .points
-                    .iter()
-                    .filter(|(name, _)| **name != *i.var.name && **name != *center.name)
-                    .map(|(_, p)| p.iter().zip(&c).map(|(a, b)| a - b).collect::<Vec<f64>>())
-                    .filter(|v| v.iter().any(|a| *a != 0.0))
-                    .min_by(|a, b| norm(a).total_cmp(&norm(b)));
-                // Next to a wall the sphere must stay in the bulk.
+                let on_wall = self.ctx.is_boundary_point(center);
+                // Next to a wall a sphere around a bulk point must stay in
+                // the bulk. Around a boundary point the surface is the
+                // hemisphere: the disc on the wall that would close it
+                // carries T_nν there, which vanishes for parallel ν (no flow
+                // across a conformal boundary, T_na = 0 on the wall; common
+                // practice) and is the displacement operator for ν = n,
+                // whose term the local identity states separately.
                 let height = c.last().copied().unwrap_or(0.0);
-                if self.ctx.has_halfspace() && height - r <= 1e-6 * r {
+                if self.ctx.has_halfspace() && !on_wall && height - r <= 1e-6 * r {
                     return Err(Error::new(
                         ErrorKind::Numeric,
                         format!(
@@ -487,21 +487,26 @@ impl<'a> Session<'a> {
                     )
                     .with_note("use a radius smaller than the distance to the wall"));
                 }
-                let surface = match nearest {
-                    Some(axis) => Surface::sphere_along(&c, r, &axis),
-                    None => Surface::sphere(&c, r),
+                // Poles towards the nearest other insertion: the integrand
+                // then varies mostly with one variable.
+                let nearest = values
+                    .points
+                    .iter()
+                    .filter(|(name, _)| **name != *i.var.name && **name != *center.name)
+                    .map(|(_, p)| p.iter().zip(&c).map(|(a, b)| a - b).collect::<Vec<f64>>())
+                    .filter(|v| v.iter().any(|a| *a != 0.0))
+                    .min_by(|a, b| norm(a).total_cmp(&norm(b)));
+                let surface = if on_wall {
+                    Surface::hemisphere(&c, r)
+                } else {
+                    match nearest {
+                        Some(axis) => Surface::sphere_along(&c, r, &axis),
+                        None => Surface::sphere(&c, r),
+                    }
                 }
                 .map_err(quadrature_error)?;
-                // On the sphere the outward normal is (x - c)/r.
-                let body = replace_normal(&i.body, &|k: &Index| {
-                    Term::Mul(vec![
-                        Term::Add(vec![
-                            Term::Comp(i.var.clone(), k.clone()),
-                            Term::Mul(vec![Term::int(-1), Term::Comp(center.clone(), k.clone())]),
-                        ]),
-                        Term::Pow(Box::new(radius.clone()), Box::new(Term::int(-1))),
-                    ])
-                });
+                // The outward normal comes with each node.
+                let body = replace_normal(&i.body, &|k: &Index| Term::Param(NORMAL_VALUE.to_string(), vec![k.clone()]));
                 (surface, body)
             }
             (Region::Boundary, false) => {
@@ -535,9 +540,10 @@ impl<'a> Session<'a> {
         let failure = RefCell::new(None);
         let estimate = integrate(
             &surface,
-            |x, _normal| {
+            |x, normal| {
                 let mut v = values.borrow_mut();
                 v.points.insert(i.var.name.to_string(), x.to_vec());
+                v.tensors.insert(NORMAL_VALUE.to_string(), normal.to_vec());
                 match program.eval(&v) {
                     Ok(f) => f,
                     Err(e) => {
