@@ -207,6 +207,12 @@ impl Model for Conformal {
                 (1, 1, 0) => {
                     self.stress_one_point_fn(ctx, ops, of(Kind::Stress)[0], of(Kind::BulkScalar)[0])
                 }
+                // Boundary operators form a CFT in d - 1 dimensions: the
+                // scalar three-point function has the same form.
+                (0, 0, 3) => {
+                    let b = of(Kind::BoundaryScalar);
+                    self.three_point_fn(ctx, ops, [b[0], b[1], b[2]])
+                }
                 (0, 2, 0) => Err(unknown(
                     NAME,
                     ops,
@@ -217,7 +223,7 @@ impl Model for Conformal {
                     NAME,
                     ops,
                     "next to a wall the fixed forms are ⟨O⟩, ⟨O Ô⟩ (Ô may be D), \
-                     ⟨Ô Ô⟩ and ⟨T O⟩",
+                     ⟨Ô Ô⟩, ⟨Ô Ô Ô⟩ and ⟨T O⟩",
                 )),
             }
         } else {
