@@ -9,7 +9,7 @@ use std::process::ExitCode;
 
 use clap::{Args, Parser, Subcommand};
 use wardsmith::egraph::Limits;
-use wardsmith::run::{run_path, Mode, Options};
+use wardsmith::run::{run_folder, run_path, Mode, Options};
 use wardsmith::term::print::Style;
 
 const CONVENTIONS: &str = "\
@@ -37,6 +37,10 @@ enum Command {
     /// Prove or fail every `claim` and every `simplify … expect …` in FILE.
     #[command(after_help = CONVENTIONS)]
     Check(FileArgs),
+    /// Check every .ward file below FILE (a folder): one line per file, then
+    /// `N passed, M failed`.
+    #[command(after_help = CONVENTIONS)]
+    Test(FileArgs),
 }
 
 #[derive(Args, Debug)]
@@ -59,9 +63,10 @@ struct FileArgs {
 
 fn main() -> ExitCode {
     let cli = Cli::parse();
-    let (mode, args) = match cli.command {
-        Command::Simplify(a) => (Mode::Simplify, a),
-        Command::Check(a) => (Mode::Check, a),
+    let (mode, args, folder) = match cli.command {
+        Command::Simplify(a) => (Mode::Simplify, a, false),
+        Command::Check(a) => (Mode::Check, a, false),
+        Command::Test(a) => (Mode::Check, a, true),
     };
     let opts = Options {
         rules: args.rules,
@@ -78,7 +83,12 @@ fn main() -> ExitCode {
         // Long numeric work reports progress on a terminal, nowhere else.
         progress: std::io::stderr().is_terminal(),
     };
-    match run_path(&args.file, mode, &opts) {
+    let result = if folder {
+        run_folder(&args.file, &opts)
+    } else {
+        run_path(&args.file, mode, &opts)
+    };
+    match result {
         Ok(outcome) => {
             print!("{}", outcome.report);
             ExitCode::from(outcome.code as u8)

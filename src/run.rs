@@ -134,6 +134,60 @@ fn numeric_session<'s, 'a>(
         .ok_or_else(|| Error::new(ErrorKind::Numeric, "no numeric session"))
 }
 
+/// Checks every `.ward` file below `dir` (sorted by path): one line per
+/// file, then `N passed, M failed`. A file passes when all its claims hold;
+/// an input error fails it with the diagnostic's first line.
+pub fn run_folder(dir: &Path, opts: &Options) -> Result<Outcome> {
+    let mut files = Vec::new();
+    collect_ward_files(dir, &mut files)?;
+    files.sort();
+    let (mut passed, mut failed) = (0, 0);
+    let mut report = String::new();
+    for path in &files {
+        let line = match run_path(path, Mode::Check, opts) {
+            Ok(out) if out.code == 0 => {
+                passed += 1;
+                let summary = out.report.lines().last().unwrap_or("").to_string();
+                format!("pass  {}  ({summary})", path.display())
+            }
+            Ok(out) => {
+                failed += 1;
+                let summary = out.report.lines().last().unwrap_or("").to_string();
+                format!("FAIL  {}  ({summary})", path.display())
+            }
+            Err(e) => {
+                failed += 1;
+                format!("FAIL  {}  ({})", path.display(), e)
+            }
+        };
+        report.push_str(&line);
+        report.push('\n');
+    }
+    report.push_str(&format!("{passed} passed, {failed} failed\n"));
+    Ok(Outcome {
+        report,
+        code: i32::from(failed > 0),
+    })
+}
+
+fn collect_ward_files(dir: &Path, out: &mut Vec<PathBuf>) -> Result<()> {
+    let entries = std::fs::read_dir(dir).map_err(|e| {
+        Error::new(
+            ErrorKind::Io,
+            format!("cannot read the folder `{}`: {e}", dir.display()),
+        )
+    })?;
+    for entry in entries.flatten() {
+        let path = entry.path();
+        if path.is_dir() {
+            collect_ward_files(&path, out)?;
+        } else if path.extension().is_some_and(|x| x == "ward") {
+            out.push(path);
+        }
+    }
+    Ok(())
+}
+
 /// Reads a file from disk and runs it.
 pub fn run_path(path: &Path, mode: Mode, opts: &Options) -> Result<Outcome> {
     let source = read_source(path)?;

@@ -98,3 +98,38 @@ fn ascii_output_is_plain() {
         );
     }
 }
+
+#[test]
+fn test_runs_every_file_of_a_folder() {
+    let (code, stdout, _) = wardsmith(&["test", "examples"]);
+    assert_eq!(code, 0, "{stdout}");
+    let files = std::fs::read_dir("examples")
+        .expect("examples/")
+        .filter(|e| {
+            e.as_ref()
+                .is_ok_and(|e| e.path().extension().is_some_and(|x| x == "ward"))
+        })
+        .count();
+    assert!(
+        stdout.ends_with(&format!("{files} passed, 0 failed\n")),
+        "{stdout}"
+    );
+
+    let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("cli-folder");
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(dir.join("nested")).expect("scratch dir");
+    std::fs::write(dir.join("good.ward"), "dimension 3\nscalar O dim 1\npoints x x1\nclaim <T[mu,mu](x) O(x1)> = - δ(x - x1) <O(x1)>\n")
+        .expect("write");
+    std::fs::write(
+        dir.join("nested/bad.ward"),
+        "dimension 3\nscalar O dim 1\npoints x x1\nclaim <T[mu,mu](x) O(x1)> = δ(x - x1) <O(x1)>\n",
+    )
+    .expect("write");
+    let (code, stdout, _) = wardsmith(&["test", dir.to_str().expect("utf-8 path")]);
+    assert_eq!(code, 1, "{stdout}");
+    assert!(
+        stdout.contains("pass  ") && stdout.contains("FAIL  "),
+        "{stdout}"
+    );
+    assert!(stdout.ends_with("1 passed, 1 failed\n"), "{stdout}");
+}
