@@ -51,8 +51,11 @@ struct FileArgs {
     #[arg(long = "rules", value_name = "FILE")]
     rules: Vec<PathBuf>,
     /// Print with ASCII names (del, delta, <>, par(x)) instead of ∂, δ, ⟨⟩, x∥.
-    #[arg(long)]
+    #[arg(long, conflicts_with = "latex")]
     ascii: bool,
+    /// Print results as LaTeX, for pasting into a paper.
+    #[arg(long)]
+    latex: bool,
     /// Stop the e-graph at this many e-nodes.
     #[arg(long, value_name = "N", default_value_t = Limits::default().nodes)]
     node_limit: usize,
@@ -72,6 +75,8 @@ fn main() -> ExitCode {
         rules: args.rules,
         style: if args.ascii {
             Style::Ascii
+        } else if args.latex {
+            Style::Latex
         } else {
             Style::Unicode
         },

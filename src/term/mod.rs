@@ -6,6 +6,7 @@
 //! The derived order is structural and deterministic: names compare as
 //! strings, points by declaration rank, never by interned ids.
 
+pub mod latex;
 pub mod print;
 
 use num_rational::BigRational;

@@ -16,6 +16,8 @@ pub enum Style {
     #[default]
     Unicode,
     Ascii,
+    /// LaTeX for papers (output only; see `term::latex`).
+    Latex,
 }
 
 /// Prints terms in one style, with the file's declarations at hand (for the
@@ -31,6 +33,9 @@ impl<'a> Printer<'a> {
     }
 
     pub fn term(&self, t: &Term) -> String {
+        if self.style == Style::Latex {
+            return super::latex::latex(self.ctx, t);
+        }
         let mut out = String::new();
         self.sum(t, &mut out);
         out
@@ -39,6 +44,9 @@ impl<'a> Printer<'a> {
     /// The terms of a top-level sum, each with its sign (`- X`, `+ X`; the
     /// first without `+`), for printing one term per line.
     pub fn terms(&self, t: &Term) -> Vec<String> {
+        if self.style == Style::Latex {
+            return vec![super::latex::latex(self.ctx, t)];
+        }
         let terms: Vec<&Term> = match t {
             Term::Add(ts) if !ts.is_empty() => ts.iter().collect(),
             _ => vec![t],
@@ -297,9 +305,9 @@ impl<'a> Printer<'a> {
     fn integral(&self, i: &Integral, out: &mut String) {
         out.push_str(match (i.surface, self.style) {
             (false, Style::Unicode) => "∫[",
-            (false, Style::Ascii) => "int[",
+            (false, Style::Ascii | Style::Latex) => "int[",
             (true, Style::Unicode) => "∮[",
-            (true, Style::Ascii) => "oint[",
+            (true, Style::Ascii | Style::Latex) => "oint[",
         });
         self.point(&i.var, out);
         out.push_str(if i.surface { " on " } else { " in " });
@@ -340,7 +348,7 @@ impl<'a> Printer<'a> {
                 out.push_str(&p.name);
                 out.push('∥');
             }
-            (true, Style::Ascii) => {
+            (true, Style::Ascii | Style::Latex) => {
                 out.push_str("par(");
                 out.push_str(&p.name);
                 out.push(')');

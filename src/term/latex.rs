@@ -1,0 +1,273 @@
+//! Terms as LaTeX, for pasting into a paper: ∂^{(x)}_\mu, δ^{(d)}(x - x_1),
+//! ⟨…⟩, fractions for negative powers, Greek names as Greek letters and
+//! trailing digits as subscripts. Output only; it is not read back.
+
+use num_rational::BigRational;
+use num_traits::{One, Signed};
+
+use super::{Index, Integral, Op, Point, Region, Term};
+use crate::context::Context;
+
+/// A term in LaTeX.
+pub fn latex(ctx: &Context, t: &Term) -> String {
+    let mut out = String::new();
+    sum(ctx, t, &mut out);
+    out
+}
+
+fn sum(ctx: &Context, t: &Term, out: &mut String) {
+    let terms: Vec<&Term> = match t {
+        Term::Add(ts) if !ts.is_empty() => ts.iter().collect(),
+        _ => vec![t],
+    };
+    for (i, term) in terms.iter().enumerate() {
+        let (negative, magnitude) = split_sign(term);
+        match (i, negative) {
+            (0, true) => out.push('-'),
+            (0, false) => {}
+            (_, true) => out.push_str(" - "),
+            (_, false) => out.push_str(" + "),
+        }
+        product(ctx, &magnitude, out);
+    }
+}
+
+fn product(ctx: &Context, t: &Term, out: &mut String) {
+    let factors: Vec<Term> = match t {
+        Term::Mul(fs) => fs.clone(),
+        other => vec![other.clone()],
+    };
+    let mut coefficient: Option<BigRational> = None;
+    let mut numer: Vec<Term> = Vec::new();
+    let mut denom: Vec<Term> = Vec::new();
+    for f in factors {
+        match f {
+            Term::Pow(b, e) if matches!(*e, Term::Num(ref q) if q.is_negative()) => {
+                let Term::Num(q) = *e else { continue };
+                let q = -q;
+                denom.push(if q.is_one() {
+                    *b
+                } else {
+                    Term::Pow(b, Box::new(Term::Num(q)))
+                });
+            }
+            Term::Num(c) if coefficient.is_none() => coefficient = Some(c),
+            other => numer.push(other),
+        }
+    }
+    let mut parts: Vec<String> = Vec::new();
+    if let Some(c) = coefficient.filter(|c| !c.is_one() || (numer.is_empty() && denom.is_empty())) {
+        parts.push(number(&c));
+    }
+    let join = |fs: &[Term]| -> String {
+        fs.iter()
+            .map(|f| {
+                let mut s = String::new();
+                factor(ctx, f, &mut s);
+                s
+            })
+            .collect::<Vec<_>>()
+            .join(" \\, ")
+    };
+    match (numer.is_empty(), denom.is_empty()) {
+        (_, true) => parts.push(join(&numer)),
+        (true, false) => parts.push(format!("\\frac{{1}}{{{}}}", join(&denom))),
+        (false, false) => parts.push(format!("\\frac{{{}}}{{{}}}", join(&numer), join(&denom))),
+    }
+    let parts: Vec<String> = parts.into_iter().filter(|p| !p.is_empty()).collect();
+    out.push_str(&parts.join(" \\, "));
+}
+
+fn factor(ctx: &Context, t: &Term, out: &mut String) {
+    match t {
+        Term::Add(_) | Term::Mul(_) => {
+            out.push_str("\\left(");
+            sum(ctx, t, out);
+            out.push_str("\\right)");
+        }
+        _ => atom(ctx, t, out),
+    }
+}
+
+fn atom(ctx: &Context, t: &Term, out: &mut String) {
+    match t {
+        Term::Num(c) => out.push_str(&number(c)),
+        Term::Sym(s) if s == crate::context::SPHERE_AREA => out.push_str("S_d"),
+        Term::Sym(s) => out.push_str(&name(s)),
+        Term::Pow(b, e) => {
+            match **b {
+                Term::Add(_) | Term::Mul(_) => {
+                    out.push_str("\\left(");
+                    sum(ctx, b, out);
+                    out.push_str("\\right)");
+                }
+                _ => atom(ctx, b, out),
+            }
+            out.push_str("^{");
+            sum(ctx, e, out);
+            out.push('}');
+        }
+        Term::Add(_) | Term::Mul(_) => factor(ctx, t, out),
+        Term::Dist(p, q) => out.push_str(&format!("|{} - {}|", point(p), point(q))),
+        Term::Fun(f, order, args) => {
+            out.push_str(&name(f));
+            out.push_str(&"'".repeat(*order as usize));
+            out.push_str("\\left(");
+            for (k, a) in args.iter().enumerate() {
+                if k > 0 {
+                    out.push_str(", ");
+                }
+                sum(ctx, a, out);
+            }
+            out.push_str("\\right)");
+        }
+        Term::Comp(p, i) => out.push_str(&format!("{}_{{{}}}", wrap(&point(p)), index(i))),
+        Term::Param(n, indices) => out.push_str(&format!(
+            "{}_{{{}}}",
+            name(n),
+            indices.iter().map(index).collect::<String>()
+        )),
+        Term::DeltaFn(p, q) => {
+            out.push_str(&format!("\\delta^{{(d)}}({} - {})", point(p), point(q)))
+        }
+        Term::DeltaY(p) => out.push_str(&format!(
+            "\\delta({}_{{{}}})",
+            name(ctx.normal_coord()),
+            point(p)
+        )),
+        Term::Normal(i) => out.push_str(&format!("n_{{{}}}", index(i))),
+        Term::Kron(i, j) => out.push_str(&format!("\\delta_{{{}{}}}", index(i), index(j))),
+        Term::OutNormal(i) => out.push_str(&format!("N_{{{}}}", index(i))),
+        Term::Integral(i) => integral(ctx, i, out),
+        Term::Der(i, p, body) => {
+            out.push_str(&format!("\\partial^{{({})}}_{{{}}}", point(p), index(i)));
+            match **body {
+                Term::Corr(_) | Term::Der(..) => atom(ctx, body, out),
+                _ => {
+                    out.push_str("\\left[");
+                    sum(ctx, body, out);
+                    out.push_str("\\right]");
+                }
+            }
+        }
+        Term::Corr(ops) => {
+            out.push_str("\\langle ");
+            let parts: Vec<String> = ops.iter().map(op).collect();
+            out.push_str(&parts.join("\\, "));
+            out.push_str(" \\rangle");
+        }
+    }
+}
+
+fn integral(ctx: &Context, i: &Integral, out: &mut String) {
+    let var = point(&i.var);
+    let (sign, domain, measure) = match (&i.region, i.surface) {
+        (Region::Space, _) => ("\\int", "\\mathbb{R}^d".to_string(), format!("d^d{var}")),
+        (Region::Halfspace, _) => (
+            "\\int",
+            format!("{} > 0", name(ctx.normal_coord())),
+            format!("d^d{var}"),
+        ),
+        (Region::Boundary, _) => (
+            "\\int",
+            format!("{} = 0", name(ctx.normal_coord())),
+            format!("d^{{d-1}}{var}"),
+        ),
+        (Region::Ball(c, r), surface) => {
+            let mut radius = String::new();
+            sum(ctx, r, &mut radius);
+            let ball = format!("B({}, {radius})", point(c));
+            if surface {
+                ("\\oint", format!("\\partial {ball}"), format!("dS_{var}"))
+            } else {
+                ("\\int", ball, format!("d^d{var}"))
+            }
+        }
+    };
+    out.push_str(&format!("{sign}_{{{domain}}} {measure}\\, "));
+    factor(ctx, &i.body, out);
+}
+
+fn op(o: &Op) -> String {
+    let mut s = name(&o.name);
+    if !o.indices.is_empty() {
+        s.push_str(&format!(
+            "_{{{}}}",
+            o.indices.iter().map(index).collect::<String>()
+        ));
+    }
+    format!("{s}({})", point(&o.point))
+}
+
+fn index(i: &Index) -> String {
+    match i {
+        Index::N => "n".into(),
+        Index::Named(n) => name(n),
+    }
+}
+
+fn point(p: &Point) -> String {
+    let base = name(&p.name);
+    if p.par {
+        format!("{base}_\\parallel")
+    } else {
+        base
+    }
+}
+
+/// A compound subscript needs braces: `x_{1}` then `_{\mu}` reads badly.
+fn wrap(s: &str) -> String {
+    if s.contains('_') {
+        format!("{{{s}}}")
+    } else {
+        s.to_string()
+    }
+}
+
+const GREEK: &[&str] = &[
+    "alpha", "beta", "gamma", "delta", "epsilon", "zeta", "eta", "theta", "iota", "kappa",
+    "lambda", "mu", "nu", "xi", "pi", "rho", "sigma", "tau", "upsilon", "phi", "chi", "psi",
+    "omega", "Gamma", "Delta", "Theta", "Lambda", "Xi", "Pi", "Sigma", "Upsilon", "Phi", "Psi",
+    "Omega",
+];
+
+/// `Delta1` → `\Delta_{1}`, `x2` → `x_{2}`, `omega` → `\omega`.
+fn name(n: &str) -> String {
+    let stem = n.trim_end_matches(|c: char| c.is_ascii_digit());
+    let digits = &n[stem.len()..];
+    let base = if GREEK.contains(&stem) {
+        format!("\\{stem}")
+    } else if stem.chars().count() > 1 && stem.is_ascii() {
+        format!("\\mathrm{{{stem}}}")
+    } else {
+        stem.to_string()
+    };
+    if digits.is_empty() {
+        base
+    } else {
+        format!("{base}_{{{digits}}}")
+    }
+}
+
+fn number(c: &BigRational) -> String {
+    if c.is_integer() {
+        c.numer().to_string()
+    } else {
+        format!("\\frac{{{}}}{{{}}}", c.numer(), c.denom())
+    }
+}
+
+fn split_sign(t: &Term) -> (bool, Term) {
+    match t {
+        Term::Num(c) if c.is_negative() => (true, Term::Num(-c)),
+        Term::Mul(fs) => match fs.first() {
+            Some(Term::Num(c)) if c.is_negative() => {
+                let mut rest = fs.clone();
+                rest[0] = Term::Num(-c);
+                (true, Term::Mul(rest))
+            }
+            _ => (false, t.clone()),
+        },
+        _ => (false, t.clone()),
+    }
+}
