@@ -54,8 +54,11 @@ struct FileArgs {
     #[arg(long, conflicts_with = "latex")]
     ascii: bool,
     /// Print results as LaTeX, for pasting into a paper.
-    #[arg(long)]
+    #[arg(long, conflicts_with = "json")]
     latex: bool,
+    /// Print one JSON document, for scripts.
+    #[arg(long, conflicts_with = "ascii")]
+    json: bool,
     /// Stop the e-graph at this many e-nodes.
     #[arg(long, value_name = "N", default_value_t = Limits::default().nodes)]
     node_limit: usize,
@@ -87,6 +90,7 @@ fn main() -> ExitCode {
         },
         // Long numeric work reports progress on a terminal, nowhere else.
         progress: std::io::stderr().is_terminal(),
+        json: args.json,
     };
     let result = if folder {
         run_folder(&args.file, &opts)

@@ -9,6 +9,33 @@ use crate::engine::{Simplified, Verdict};
 use crate::numeric::session::{Evaluation, FluxReport, Scan, Solution, Value};
 use crate::term::print::{Printer, Style};
 
+/// A JSON string literal.
+fn js(s: &str) -> String {
+    let mut out = String::with_capacity(s.len() + 2);
+    out.push('"');
+    for c in s.chars() {
+        match c {
+            '"' => out.push_str("\\\""),
+            '\\' => out.push_str("\\\\"),
+            '\n' => out.push_str("\\n"),
+            '\t' => out.push_str("\\t"),
+            c if (c as u32) < 0x20 => out.push_str(&format!("\\u{:04x}", c as u32)),
+            c => out.push(c),
+        }
+    }
+    out.push('"');
+    out
+}
+
+/// A JSON number (null for NaN or infinity, which JSON cannot hold).
+fn json_number(v: f64) -> String {
+    if v.is_finite() {
+        format!("{v:e}")
+    } else {
+        "null".into()
+    }
+}
+
 /// Relative tolerance of `compare`, on top of quadrature error estimates.
 const COMPARE_TOLERANCE: f64 = 1e-9;
 
@@ -66,6 +93,10 @@ const LINE_WIDTH: usize = 100;
 
 /// Writes report lines for one file.
 pub struct Reporter<'a> {
+    /// JSON objects, one per statement, when the output is JSON.
+    json: Option<Vec<String>>,
+    latex: Printer<'a>,
+    counts: (usize, usize),
     printer: Printer<'a>,
     out: String,
 }
@@ -73,13 +104,43 @@ pub struct Reporter<'a> {
 impl<'a> Reporter<'a> {
     pub fn new(ctx: &'a Context, style: Style) -> Reporter<'a> {
         Reporter {
+            json: None,
+            latex: Printer::new(ctx, Style::Latex),
+            counts: (0, 0),
             printer: Printer::new(ctx, style),
             out: String::new(),
         }
     }
 
+    /// A reporter whose `finish` gives one JSON document for scripts.
+    pub fn json(ctx: &'a Context) -> Reporter<'a> {
+        Reporter {
+            json: Some(Vec::new()),
+            ..Reporter::new(ctx, Style::Unicode)
+        }
+    }
+
     pub fn finish(self) -> String {
-        self.out
+        match self.json {
+            None => self.out,
+            Some(entries) => format!(
+                "{{\"items\": [\n{}\n], \"proved\": {}, \"not_proved\": {}}}\n",
+                entries.join(",\n"),
+                self.counts.0,
+                self.counts.1
+            ),
+        }
+    }
+
+    /// Records a JSON object for one statement (no-op for text output).
+    fn entry(&mut self, fields: &[(&str, String)]) {
+        if let Some(entries) = &mut self.json {
+            let body: Vec<String> = fields
+                .iter()
+                .map(|(k, v)| format!("{}: {v}", js(k)))
+                .collect();
+            entries.push(format!("{{{}}}", body.join(", ")));
+        }
     }
 
     /// `line N: simplify` with the input and its normal form.
@@ -87,6 +148,22 @@ impl<'a> Reporter<'a> {
         let _ = writeln!(self.out, "line {line}: simplify {input}");
         let _ = writeln!(self.out, "  = {}", self.layout(&s.term, "    "));
         let _ = writeln!(self.out, "  [{}]", stats(s));
+        let rules: Vec<String> = s
+            .applied
+            .iter()
+            .map(|(n, k)| format!("{}: {k}", js(n)))
+            .collect();
+        let fields = [
+            ("line", line.to_string()),
+            ("kind", js("simplify")),
+            ("input", js(input)),
+            ("result", js(&self.printer.term(&s.term))),
+            ("latex", js(&self.latex.term(&s.term))),
+            ("stop", js(&s.stop.describe())),
+            ("e_nodes", s.nodes.to_string()),
+            ("rules", format!("{{{}}}", rules.join(", "))),
+        ];
+        self.entry(&fields);
     }
 
     /// Whether a conformal Killing vector is preserved by the boundary.
@@ -97,6 +174,15 @@ impl<'a> Reporter<'a> {
         family: &str,
         normal: &crate::term::Term,
     ) {
+        let fields = [
+            ("line", line.to_string()),
+            ("kind", js("classify")),
+            ("generator", js(name)),
+            ("family", js(family)),
+            ("preserved", normal.is_zero().to_string()),
+            ("normal_component", js(&self.printer.term(normal))),
+        ];
+        self.entry(&fields);
         if normal.is_zero() {
             let _ = writeln!(
                 self.out,
@@ -113,6 +199,21 @@ impl<'a> Reporter<'a> {
 
     /// The verdict on a claim or an expected result.
     pub fn verdict(&mut self, line: usize, what: &str, input: &str, v: &Verdict) -> bool {
+        let (status, s) = match v {
+            Verdict::Proved(s) => ("proved", s),
+            Verdict::NotProved(s) if s.stop.is_saturated() => ("not proved", s),
+            Verdict::NotProved(s) => ("unknown", s),
+        };
+        let fields = [
+            ("line", line.to_string()),
+            ("kind", js(what)),
+            ("input", js(input)),
+            ("status", js(status)),
+            ("remainder", js(&self.printer.term(&s.term))),
+            ("stop", js(&s.stop.describe())),
+            ("e_nodes", s.nodes.to_string()),
+        ];
+        self.entry(&fields);
         let input = abbreviate(input, INPUT_WIDTH);
         let input = input.as_str();
         match v {
@@ -212,6 +313,18 @@ impl<'a> Reporter<'a> {
 
     /// `line N: evaluate` with one value per component.
     pub fn evaluated(&mut self, line: usize, input: &str, e: &Evaluation) {
+        let v: Vec<String> = e
+            .components
+            .iter()
+            .map(|(_, v)| json_number(v.value))
+            .collect();
+        let fields = [
+            ("line", line.to_string()),
+            ("kind", js("evaluate")),
+            ("input", js(input)),
+            ("values", format!("[{}]", v.join(", "))),
+        ];
+        self.entry(&fields);
         let _ = writeln!(
             self.out,
             "line {line}: evaluate {}",
@@ -224,6 +337,15 @@ impl<'a> Reporter<'a> {
 
     /// `line N: solve` with the value found.
     pub fn solved(&mut self, line: usize, input: &str, unknown: &str, s: &Solution) {
+        let fields = [
+            ("line", line.to_string()),
+            ("kind", js("solve")),
+            ("input", js(input)),
+            ("unknown", js(unknown)),
+            ("value", json_number(s.value)),
+            ("residual", json_number(s.residual)),
+        ];
+        self.entry(&fields);
         let _ = writeln!(
             self.out,
             "line {line}: solve {}",
@@ -288,6 +410,20 @@ impl<'a> Reporter<'a> {
             );
         }
         let verdict = if all { "holds" } else { "FAILS" };
+        let failing: Vec<String> = r
+            .around
+            .iter()
+            .filter(|c| !agree(&c.flux, &c.contact))
+            .map(|c| js(&c.point))
+            .collect();
+        let fields = [
+            ("line", line.to_string()),
+            ("kind", js("flux")),
+            ("input", js(input)),
+            ("status", js(if all { "holds" } else { "fails" })),
+            ("failing_insertions", format!("[{}]", failing.join(", "))),
+        ];
+        self.entry(&fields);
         let _ = writeln!(
             self.out,
             "line {line}: flux {verdict}: {}",
@@ -331,6 +467,23 @@ impl<'a> Reporter<'a> {
             );
         }
         let verdict = if all { "agree" } else { "DISAGREE" };
+        let values = |e: &Evaluation| -> String {
+            let v: Vec<String> = e
+                .components
+                .iter()
+                .map(|(_, v)| json_number(v.value))
+                .collect();
+            format!("[{}]", v.join(", "))
+        };
+        let fields = [
+            ("line", line.to_string()),
+            ("kind", js("compare")),
+            ("input", js(input)),
+            ("status", js(if all { "agree" } else { "disagree" })),
+            ("left", values(left)),
+            ("right", values(right)),
+        ];
+        self.entry(&fields);
         let _ = writeln!(
             self.out,
             "line {line}: compare {verdict}: {}",
@@ -342,6 +495,7 @@ impl<'a> Reporter<'a> {
 
     /// The closing count of a check.
     pub fn summary(&mut self, proved: usize, failed: usize) {
+        self.counts = (proved, failed);
         let _ = writeln!(self.out, "{proved} proved, {failed} not proved");
     }
 }

@@ -35,6 +35,8 @@ pub struct Options {
     pub limits: Limits,
     /// Show a progress line on standard error during long numeric work.
     pub progress: bool,
+    /// Report as one JSON document instead of text.
+    pub json: bool,
 }
 
 /// The printed report and the exit code (0: all claims hold, 1: some do not).
@@ -206,7 +208,11 @@ pub fn run_source(
     let program = lower::lower(source, &syntax::parse_file(source)?)?;
     let book = load_rules(&program, base, opts)?;
     let engine = Engine::new(program.ctx.clone(), Arc::new(book), opts.limits)?;
-    let mut reporter = Reporter::new(&program.ctx, opts.style);
+    let mut reporter = if opts.json {
+        Reporter::json(&program.ctx)
+    } else {
+        Reporter::new(&program.ctx, opts.style)
+    };
     // Built on the first numeric statement, so files without one need no model.
     let mut session: Option<Session> = None;
     let (mut proved, mut failed) = (0, 0);

@@ -133,3 +133,39 @@ fn test_runs_every_file_of_a_folder() {
     );
     assert!(stdout.ends_with("1 passed, 1 failed\n"), "{stdout}");
 }
+
+#[test]
+fn json_output_parses_and_counts_the_claims() {
+    let mut files: Vec<PathBuf> = std::fs::read_dir("examples")
+        .expect("examples/")
+        .filter_map(|e| e.ok().map(|e| e.path()))
+        .filter(|p| p.extension().is_some_and(|x| x == "ward"))
+        .collect();
+    files.sort();
+    for path in files {
+        let file = path.to_str().expect("utf-8 path");
+        for mode in ["simplify", "check"] {
+            let (code, stdout, stderr) = wardsmith(&[mode, "--json", file]);
+            assert_eq!(code, 0, "{file}: {stderr}");
+            let doc: serde_json::Value =
+                serde_json::from_str(&stdout).unwrap_or_else(|e| panic!("{file}: {e}\n{stdout}"));
+            let items = doc["items"].as_array().expect("items");
+            // In simplify mode a file of claims alone has nothing to show.
+            assert!(mode == "simplify" || !items.is_empty(), "{file} {mode}");
+            for item in items {
+                assert!(
+                    item["line"].as_u64().is_some() && item["kind"].is_string(),
+                    "{item}"
+                );
+            }
+            if mode == "check" {
+                let proved = items
+                    .iter()
+                    .filter(|i| matches!(i["status"].as_str(), Some("proved" | "agree" | "holds")))
+                    .count();
+                assert_eq!(doc["proved"].as_u64(), Some(proved as u64), "{file}");
+                assert_eq!(doc["not_proved"].as_u64(), Some(0), "{file}");
+            }
+        }
+    }
+}
