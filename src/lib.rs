@@ -9,6 +9,7 @@
 //! does one whole file for the command line.
 
 pub mod context;
+pub mod derive;
 pub mod diagnostic;
 pub mod egraph;
 pub mod engine;

@@ -294,6 +294,92 @@ impl<'a> Reporter<'a> {
         }
     }
 
+    /// A derivation step by step; returns (steps proved, steps not).
+    pub fn derivation(
+        &mut self,
+        line: usize,
+        name: &str,
+        steps: &[crate::derive::StepReport],
+    ) -> (usize, usize) {
+        use crate::derive::StepVerdict;
+        let _ = writeln!(self.out, "line {line}: derivation {name}");
+        let (mut ok, mut bad) = (0, 0);
+        let mut objects = Vec::new();
+        for (k, step) in steps.iter().enumerate() {
+            let claimed = if step.claimed.is_empty() {
+                String::new()
+            } else {
+                format!(" (cited: {})", step.claimed.join(", "))
+            };
+            let (status, detail) = match &step.verdict {
+                StepVerdict::Proved { rules } => {
+                    ok += 1;
+                    let by = if rules.is_empty() {
+                        "normalisation".to_string()
+                    } else {
+                        rules.join(", ")
+                    };
+                    let _ = writeln!(
+                        self.out,
+                        "  step {} (line {}): proved by {by}{claimed}",
+                        k + 1,
+                        step.line
+                    );
+                    ("proved", by)
+                }
+                StepVerdict::Refuted {
+                    remainder,
+                    diagnosis,
+                } => {
+                    bad += 1;
+                    let _ = writeln!(
+                        self.out,
+                        "  step {} (line {}): NOT PROVED: {diagnosis}{claimed}",
+                        k + 1,
+                        step.line
+                    );
+                    let _ = writeln!(
+                        self.out,
+                        "    step before minus this step: {}",
+                        self.layout(remainder, "      ")
+                    );
+                    ("not proved", diagnosis.clone())
+                }
+                StepVerdict::Unknown { remainder, reason } => {
+                    bad += 1;
+                    let _ = writeln!(
+                        self.out,
+                        "  step {} (line {}): UNKNOWN: the e-graph {reason}{claimed}",
+                        k + 1,
+                        step.line
+                    );
+                    let _ = writeln!(
+                        self.out,
+                        "    step before minus this step: {}",
+                        self.layout(remainder, "      ")
+                    );
+                    ("unknown", reason.clone())
+                }
+            };
+            objects.push(format!(
+                "{{\"step\": {}, \"line\": {}, \"status\": {}, \"detail\": {}}}",
+                k + 1,
+                step.line,
+                js(status),
+                js(&detail)
+            ));
+        }
+        let _ = writeln!(self.out, "  {ok} of {} steps proved", steps.len());
+        let fields = [
+            ("line", line.to_string()),
+            ("kind", js("derivation")),
+            ("name", js(name)),
+            ("steps", format!("[{}]", objects.join(", "))),
+        ];
+        self.entry(&fields);
+        (ok, bad)
+    }
+
     /// Which sample the following numeric lines are for, and its points.
     pub fn sample(&mut self, k: usize, points: &[(String, Vec<f64>)]) {
         let listed: Vec<String> = points

@@ -75,6 +75,9 @@ fn check_file(path: &str) {
             | ItemKind::Scan { lhs, rhs, .. } => vec![lhs, rhs],
             ItemKind::Evaluate { expr, .. } => vec![expr],
             ItemKind::Flux { body, rhs, .. } => vec![body, rhs],
+            ItemKind::Derivation { start, steps, .. } => std::iter::once(start)
+                .chain(steps.iter().map(|(t, _, _)| t))
+                .collect(),
             ItemKind::Classify { .. } => vec![],
         };
         for expr in exprs {

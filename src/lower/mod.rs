@@ -85,6 +85,13 @@ pub enum ItemKind {
         /// File stem for the CSV and SVG output, as written.
         output: Option<String>,
     },
+    /// `derivation NAME …`: each step with its line and the names of what
+    /// justifies it.
+    Derivation {
+        name: String,
+        start: Term,
+        steps: Vec<(Term, usize, Vec<String>)>,
+    },
     /// `solve a from L = R`.
     Solve {
         unknown: String,
@@ -307,6 +314,33 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         rhs: lowerer.expr(rhs)?,
                         free: profile.into_iter().collect(),
                         output: output.as_ref().map(|(n, _)| n.clone()),
+                    },
+                    span: *span,
+                    line: source.line_col(span.start).0,
+                });
+            }
+            Stmt::Derivation {
+                name,
+                start,
+                steps,
+                span,
+            } => {
+                seen_expression = true;
+                let profile = lowerer.free_indices(start)?;
+                let mut lowered = Vec::new();
+                for (step, why) in steps {
+                    lowerer.same_free_indices(&profile, step, "this step")?;
+                    lowered.push((
+                        lowerer.expr(step)?,
+                        source.line_col(step.span.start).0,
+                        why.iter().map(|w| w.text.clone()).collect(),
+                    ));
+                }
+                items.push(Item {
+                    kind: ItemKind::Derivation {
+                        name: name.text.clone(),
+                        start: lowerer.expr(start)?,
+                        steps: lowered,
                     },
                     span: *span,
                     line: source.line_col(span.start).0,
@@ -599,6 +633,7 @@ impl Lowerer {
             | Stmt::Solve { .. }
             | Stmt::Flux { .. }
             | Stmt::Scan { .. }
+            | Stmt::Derivation { .. }
             | Stmt::Compare { .. } => {}
         }
         Ok(())

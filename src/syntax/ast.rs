@@ -331,6 +331,13 @@ pub enum Stmt {
         output: Option<(String, Span)>,
         span: Span,
     },
+    /// `derivation NAME start = step [by why] … end`.
+    Derivation {
+        name: Name,
+        start: Expr,
+        steps: Vec<(Expr, Vec<Name>)>,
+        span: Span,
+    },
     /// `sample N seed S`: N sets of seeded random positions.
     Sample {
         count: Expr,

@@ -162,6 +162,7 @@ const STATEMENT_RULES: &[Rule] = &[
     Rule::let_stmt,
     Rule::classify_stmt,
     Rule::place_stmt,
+    Rule::derivation_stmt,
 ];
 
 /// Tokens that start an expression but never a statement.
@@ -244,6 +245,7 @@ const STATEMENT_STARTS: &[&str] = &[
     "flux",
     "sample",
     "scan",
+    "derivation",
 ];
 /// Infix operators.
 const INFIX: &[&str] = &["+", "-", "*", "/", "^"];
@@ -342,6 +344,7 @@ fn hints(rules: &[Rule]) -> Vec<&'static str> {
             }
             Rule::mixing_dir => "the rotation mixing n with a direction along the boundary names that direction: `killing eps rotation n e`",
             Rule::place_stmt => "a placement reads `place x2 inside ball(x1, r)` (or `outside`, `on`)",
+            Rule::derivation_stmt | Rule::derivation_step => "a derivation reads `derivation NAME`, the starting expression, one `= STEP` per step (optionally `by RULE, …`), and closes with `end`",
             Rule::let_stmt => "a named expression reads `let G = EXPRESSION`",
             Rule::rule | Rule::conditions => "a rule reads `rule NAME [when CONDITIONS] from PATTERN to TEMPLATE`",
             _ => continue,
@@ -597,6 +600,22 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                 lhs,
                 rhs,
                 output,
+                span,
+            }
+        }
+        Rule::derivation_stmt => {
+            let name = parse_name(next(&mut inner));
+            let start = parse_expr_pair(source, next(&mut inner))?;
+            let mut steps = Vec::new();
+            for step in inner {
+                let mut parts = step.into_inner();
+                let expr = parse_expr_pair(source, next(&mut parts))?;
+                steps.push((expr, parts.map(parse_name).collect()));
+            }
+            Stmt::Derivation {
+                name,
+                start,
+                steps,
                 span,
             }
         }

@@ -1,0 +1,179 @@
+//! Checking a hand derivation step by step: each step against the one
+//! before it, proved by the rules (which ones applied is reported), or not,
+//! with a diagnosis of the usual slips: a flipped sign, a wrong constant
+//! factor (exact), or a contact term missing, extra or wrong at a named
+//! insertion.
+
+use crate::diagnostic::Result;
+use crate::engine::{Engine, Verdict};
+use crate::normal::normalize;
+use crate::term::{Point, Term};
+
+/// What checking one step found.
+#[derive(Clone, Debug)]
+pub enum StepVerdict {
+    /// Equal to the step before; the rules that fired (empty when
+    /// normalisation alone sufficed).
+    Proved { rules: Vec<String> },
+    /// Not equal: the remainder (earlier minus this step) and a diagnosis.
+    Refuted { remainder: Term, diagnosis: String },
+    /// The search stopped on a limit before settling it.
+    Unknown { remainder: Term, reason: String },
+}
+
+/// One checked step.
+#[derive(Clone, Debug)]
+pub struct StepReport {
+    pub line: usize,
+    /// What the user said justifies it (`by …`).
+    pub claimed: Vec<String>,
+    pub verdict: StepVerdict,
+}
+
+/// Checks every step against the one before it.
+pub fn check(
+    engine: &Engine,
+    start: &Term,
+    steps: &[(Term, usize, Vec<String>)],
+) -> Result<Vec<StepReport>> {
+    let mut out = Vec::new();
+    let mut previous = start;
+    for (step, line, claimed) in steps {
+        let verdict = match engine.check(previous, step)? {
+            Verdict::Proved(s) => StepVerdict::Proved {
+                rules: s.applied.keys().cloned().collect(),
+            },
+            Verdict::NotProved(s) if !s.stop.is_saturated() => StepVerdict::Unknown {
+                remainder: s.term.clone(),
+                reason: s.stop.describe(),
+            },
+            Verdict::NotProved(s) => StepVerdict::Refuted {
+                diagnosis: diagnose(engine, previous, step, &s.term)?,
+                remainder: s.term,
+            },
+        };
+        out.push(StepReport {
+            line: *line,
+            claimed: claimed.clone(),
+            verdict,
+        });
+        previous = step;
+    }
+    Ok(out)
+}
+
+/// Names the slip that turns `before` into `after`, if it is a common one.
+fn diagnose(engine: &Engine, before: &Term, after: &Term, remainder: &Term) -> Result<String> {
+    // A flipped sign: before = -after.
+    if matches!(
+        engine.check(before, &after.clone().negated())?,
+        Verdict::Proved(_)
+    ) {
+        return Ok("off by a sign: this step is minus the one before".into());
+    }
+    // A constant factor: before = c · after for a scalar c read off the
+    // first term of each.
+    let p = engine.simplify(before)?.term;
+    let q = engine.simplify(after)?.term;
+    if let (Some((cp, fp)), Some(q_terms)) = (split_first(&p), terms(&q)) {
+        for t in q_terms {
+            let (cq, fq) = coefficient(&t);
+            if fq == fp && !cq.is_zero() {
+                let ratio = normalize(
+                    engine.ctx.as_ref(),
+                    &Term::Mul(vec![
+                        cp.clone(),
+                        Term::Pow(Box::new(cq), Box::new(Term::int(-1))),
+                    ]),
+                )?;
+                let scaled = Term::Mul(vec![ratio.clone(), after.clone()]);
+                if matches!(engine.check(before, &scaled)?, Verdict::Proved(_)) {
+                    let printer =
+                        crate::term::print::Printer::new(engine.ctx.as_ref(), Default::default());
+                    return Ok(format!(
+                        "off by a constant factor: the step before is {} times this one",
+                        printer.term(&ratio)
+                    ));
+                }
+            }
+        }
+    }
+    // Contact terms: every term of the remainder sits at one insertion.
+    let points: Vec<Vec<Point>> = terms(remainder)
+        .unwrap_or_default()
+        .iter()
+        .map(contact_points)
+        .collect();
+    if let Some(first) = points.first().and_then(|p| p.first()) {
+        if points
+            .iter()
+            .all(|ps| ps.iter().any(|p| p.name == first.name))
+        {
+            let before_has = has_contact(&p, first);
+            let after_has = has_contact(&q, first);
+            let what = match (before_has, after_has) {
+                (true, false) => "missing from this step",
+                (false, true) => "extra in this step",
+                _ => "different in this step",
+            };
+            return Ok(format!("the contact term at `{}` is {what}", first.name));
+        }
+    }
+    Ok("the two steps differ by the remainder shown".into())
+}
+
+/// The summands of a normal form (none for 0).
+fn terms(t: &Term) -> Option<Vec<Term>> {
+    match t {
+        t if t.is_zero() => Some(vec![]),
+        Term::Add(ts) => Some(ts.clone()),
+        t => Some(vec![t.clone()]),
+    }
+}
+
+fn split_first(t: &Term) -> Option<(Term, Vec<Term>)> {
+    terms(t)?.first().map(coefficient)
+}
+
+/// A normal-form product split into its scalar coefficient and the rest.
+fn coefficient(t: &Term) -> (Term, Vec<Term>) {
+    let factors = match t {
+        Term::Mul(fs) => fs.clone(),
+        other => vec![other.clone()],
+    };
+    let (scalar, rest): (Vec<Term>, Vec<Term>) = factors.into_iter().partition(|f| {
+        matches!(
+            f,
+            Term::Num(_) | Term::Sym(_) | Term::Pow(..) | Term::Add(_) | Term::Mul(_)
+        )
+    });
+    let c = match scalar.len() {
+        0 => Term::one(),
+        1 => scalar.into_iter().next().unwrap_or_else(Term::one),
+        _ => Term::Mul(scalar),
+    };
+    (c, rest)
+}
+
+/// The points p of the δ(x - p) factors of a term.
+fn contact_points(t: &Term) -> Vec<Point> {
+    let mut out = Vec::new();
+    let factors = match t {
+        Term::Mul(fs) => fs.clone(),
+        other => vec![other.clone()],
+    };
+    for f in factors {
+        if let Term::DeltaFn(a, b) = f {
+            out.push(a);
+            out.push(b);
+        }
+    }
+    out
+}
+
+fn has_contact(t: &Term, p: &Point) -> bool {
+    terms(t)
+        .unwrap_or_default()
+        .iter()
+        .any(|s| contact_points(s).iter().any(|q| q.name == p.name))
+}
