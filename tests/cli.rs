@@ -169,3 +169,35 @@ fn json_output_parses_and_counts_the_claims() {
         }
     }
 }
+
+#[test]
+fn derivation_steps_are_reported_one_by_one_in_json() {
+    let file = "tests/cases/simplify/derivation-slips.ward";
+    let (code, stdout, stderr) = wardsmith(&["check", "--json", file]);
+    assert_eq!(code, 1, "{stderr}");
+    let doc: serde_json::Value = serde_json::from_str(&stdout).expect("one JSON document");
+    let statuses: Vec<Vec<&str>> = doc["items"]
+        .as_array()
+        .expect("items")
+        .iter()
+        .map(|item| {
+            assert_eq!(item["kind"], "derivation");
+            item["steps"]
+                .as_array()
+                .expect("steps")
+                .iter()
+                .map(|s| s["status"].as_str().expect("status"))
+                .collect()
+        })
+        .collect();
+    assert_eq!(
+        statuses,
+        vec![
+            vec!["proved", "not proved"],
+            vec!["not proved"],
+            vec!["not proved"]
+        ]
+    );
+    assert_eq!(doc["proved"].as_u64(), Some(1));
+    assert_eq!(doc["not_proved"].as_u64(), Some(3));
+}

@@ -131,7 +131,11 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                 let lowered = lowerer.expr(expr)?;
                 let expect = match expect {
                     Some(e) => {
-                        lowerer.same_free_indices(&profile, e, "the expected result")?;
+                        lowerer.same_free_indices(
+                            &profile,
+                            e,
+                            ("the expression", "the expected result"),
+                        )?;
                         Some(lowerer.expr(e)?)
                     }
                     None => None,
@@ -150,7 +154,11 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                 // `L = 0` and `0 = R` hold for tensors of any index structure.
                 if !is_zero(lhs) {
                     let profile = lowerer.free_indices(lhs)?;
-                    lowerer.same_free_indices(&profile, rhs, "the right side")?;
+                    lowerer.same_free_indices(
+                        &profile,
+                        rhs,
+                        ("the left side", "the right side"),
+                    )?;
                 }
                 items.push(Item {
                     kind: ItemKind::Claim {
@@ -188,7 +196,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         .with_note("solve for a scalar parameter, e.g. `parameters a` and `coefficient <T O O> = a`"));
                 }
                 let profile = lowerer.free_indices(lhs)?;
-                lowerer.same_free_indices(&profile, rhs, "the right side")?;
+                lowerer.same_free_indices(&profile, rhs, ("the left side", "the right side"))?;
                 items.push(Item {
                     kind: ItemKind::Solve {
                         unknown: unknown.text.clone(),
@@ -208,7 +216,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
             } => {
                 seen_expression = true;
                 let profile = lowerer.free_indices(lhs)?;
-                lowerer.same_free_indices(&profile, rhs, "the right side")?;
+                lowerer.same_free_indices(&profile, rhs, ("the left side", "the right side"))?;
                 let Term::Der(index, var, body) = lowerer.expr(lhs)? else {
                     return Err(lowerer
                         .err(
@@ -303,7 +311,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                     }
                 }
                 let profile = lowerer.free_indices(lhs)?;
-                lowerer.same_free_indices(&profile, rhs, "the right side")?;
+                lowerer.same_free_indices(&profile, rhs, ("the left side", "the right side"))?;
                 items.push(Item {
                     kind: ItemKind::Scan {
                         param: param.text.clone(),
@@ -329,7 +337,11 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                 let profile = lowerer.free_indices(start)?;
                 let mut lowered = Vec::new();
                 for (step, why) in steps {
-                    lowerer.same_free_indices(&profile, step, "this step")?;
+                    lowerer.same_free_indices(
+                        &profile,
+                        step,
+                        ("the starting expression", "this step"),
+                    )?;
                     lowered.push((
                         lowerer.expr(step)?,
                         source.line_col(step.span.start).0,
@@ -349,7 +361,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
             Stmt::Compare { lhs, rhs, span } => {
                 seen_expression = true;
                 let profile = lowerer.free_indices(lhs)?;
-                lowerer.same_free_indices(&profile, rhs, "the right side")?;
+                lowerer.same_free_indices(&profile, rhs, ("the left side", "the right side"))?;
                 items.push(Item {
                     kind: ItemKind::Compare {
                         lhs: lowerer.expr(lhs)?,
@@ -766,7 +778,12 @@ impl Lowerer {
         })
     }
 
-    fn same_free_indices(&self, left: &indices::Profile, e: &Expr, what: &str) -> Result<()> {
+    fn same_free_indices(
+        &self,
+        left: &indices::Profile,
+        e: &Expr,
+        (first, what): (&str, &str),
+    ) -> Result<()> {
         let right = self.free_indices(e)?;
         if is_zero(e) {
             return Ok(());
@@ -779,7 +796,7 @@ impl Lowerer {
                     ErrorKind::Index,
                     e.span,
                     format!(
-                        "free indices do not match: the left side has {}, {what} has {}",
+                        "free indices do not match: {first} has {}, {what} has {}",
                         indices::describe(&l),
                         indices::describe(&r)
                     ),
