@@ -119,7 +119,43 @@ fn diagnose(engine: &Engine, before: &Term, after: &Term, remainder: &Term) -> R
             return Ok(format!("the contact term at `{}` is {what}", first.name));
         }
     }
+    if let Some(slip) = term_slip(engine, &p, &q, remainder)? {
+        return Ok(slip);
+    }
     Ok("the two steps differ by the remainder shown".into())
+}
+
+/// When the steps differ in one term only: that term is missing, extra, or
+/// carries a different coefficient (both printed exactly).
+fn term_slip(engine: &Engine, p: &Term, q: &Term, remainder: &Term) -> Result<Option<String>> {
+    let (Some(r), Some(p_terms), Some(q_terms)) = (terms(remainder), terms(p), terms(q)) else {
+        return Ok(None);
+    };
+    let [only] = r.as_slice() else {
+        return Ok(None);
+    };
+    let (_, factors) = coefficient(only);
+    let find = |ts: &[Term]| ts.iter().map(coefficient).find(|(_, f)| *f == factors);
+    let printer = crate::term::print::Printer::new(engine.ctx.as_ref(), Default::default());
+    let shown = match factors.as_slice() {
+        [] => "the constant term".to_string(),
+        [f] => format!("the term with {}", printer.term(f)),
+        fs => format!("the term with {}", printer.term(&Term::Mul(fs.to_vec()))),
+    };
+    Ok(match (find(&p_terms), find(&q_terms)) {
+        (Some(_), None) => Some(format!("{shown} is missing from this step")),
+        (None, Some(_)) => Some(format!("{shown} is extra in this step")),
+        (Some((cp, _)), Some((cq, _))) => {
+            let cp = normalize(engine.ctx.as_ref(), &cp)?;
+            let cq = normalize(engine.ctx.as_ref(), &cq)?;
+            Some(format!(
+                "{shown} has a wrong coefficient: {} in the step before, {} in this step",
+                printer.term(&cp),
+                printer.term(&cq)
+            ))
+        }
+        (None, None) => None,
+    })
 }
 
 /// The summands of a normal form (none for 0).

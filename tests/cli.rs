@@ -195,9 +195,10 @@ fn derivation_steps_are_reported_one_by_one_in_json() {
         vec![
             vec!["proved", "not proved"],
             vec!["not proved"],
+            vec!["not proved"],
             vec!["not proved"]
         ]
     );
     assert_eq!(doc["proved"].as_u64(), Some(1));
-    assert_eq!(doc["not_proved"].as_u64(), Some(3));
+    assert_eq!(doc["not_proved"].as_u64(), Some(4));
 }
