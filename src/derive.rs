@@ -24,6 +24,8 @@ pub enum StepVerdict {
 /// One checked step.
 #[derive(Clone, Debug)]
 pub struct StepReport {
+    /// The step as written (lowered).
+    pub expr: Term,
     pub line: usize,
     /// What the user said justifies it (`by …`).
     pub claimed: Vec<String>,
@@ -53,6 +55,7 @@ pub fn check(
             },
         };
         out.push(StepReport {
+            expr: step.clone(),
             line: *line,
             claimed: claimed.clone(),
             verdict,

@@ -8,6 +8,7 @@ use crate::context::Context;
 use crate::engine::{Simplified, Verdict};
 use crate::numeric::session::{Evaluation, FluxReport, Scan, Solution, Value};
 use crate::term::print::{Printer, Style};
+use crate::term::Term;
 
 /// A JSON string literal.
 fn js(s: &str) -> String {
@@ -299,6 +300,7 @@ impl<'a> Reporter<'a> {
         &mut self,
         line: usize,
         name: &str,
+        start: &Term,
         steps: &[crate::derive::StepReport],
     ) -> (usize, usize) {
         use crate::derive::StepVerdict;
@@ -370,6 +372,31 @@ impl<'a> Reporter<'a> {
             ));
         }
         let _ = writeln!(self.out, "  {ok} of {} steps proved", steps.len());
+        if self.printer.style == Style::Latex {
+            // The chain itself, ready to paste into a paper.
+            let _ = writeln!(
+                self.out,
+                "\\begin{{align*}}\n  & {}",
+                self.latex.term(start)
+            );
+            for step in steps {
+                let mut note = step.claimed.join(", ");
+                if !matches!(step.verdict, StepVerdict::Proved { .. }) {
+                    note = if note.is_empty() {
+                        "not proved".into()
+                    } else {
+                        format!("{note}; not proved")
+                    };
+                }
+                let note = if note.is_empty() {
+                    String::new()
+                } else {
+                    format!(" && \\text{{{note}}}")
+                };
+                let _ = writeln!(self.out, "  \\\\ &= {}{note}", self.latex.term(&step.expr));
+            }
+            let _ = writeln!(self.out, "\\end{{align*}}");
+        }
         let fields = [
             ("line", line.to_string()),
             ("kind", js("derivation")),

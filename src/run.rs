@@ -262,7 +262,7 @@ pub fn run_source(
             (ItemKind::Claim { .. }, Mode::Simplify) => {}
             (ItemKind::Derivation { name, start, steps }, _) => {
                 let report = crate::derive::check(&engine, start, steps).map_err(at_item)?;
-                let (ok, bad) = reporter.derivation(item.line, name, &report);
+                let (ok, bad) = reporter.derivation(item.line, name, start, &report);
                 if mode == Mode::Check {
                     proved += ok;
                     failed += bad;

@@ -122,11 +122,7 @@ fn atom(ctx: &Context, t: &Term, out: &mut String) {
             out.push_str("\\right)");
         }
         Term::Comp(p, i) => out.push_str(&format!("{}_{{{}}}", wrap(&point(p)), index(i))),
-        Term::Param(n, indices) => out.push_str(&format!(
-            "{}_{{{}}}",
-            name(n),
-            indices.iter().map(index).collect::<String>()
-        )),
+        Term::Param(n, is) => out.push_str(&format!("{}_{{{}}}", name(n), indices(is))),
         Term::DeltaFn(p, q) => {
             out.push_str(&format!("\\delta^{{(d)}}({} - {})", point(p), point(q)))
         }
@@ -136,7 +132,9 @@ fn atom(ctx: &Context, t: &Term, out: &mut String) {
             point(p)
         )),
         Term::Normal(i) => out.push_str(&format!("n_{{{}}}", index(i))),
-        Term::Kron(i, j) => out.push_str(&format!("\\delta_{{{}{}}}", index(i), index(j))),
+        Term::Kron(i, j) => {
+            out.push_str(&format!("\\delta_{{{}}}", indices(&[i.clone(), j.clone()])))
+        }
         Term::OutNormal(i) => out.push_str(&format!("N_{{{}}}", index(i))),
         Term::Integral(i) => integral(ctx, i, out),
         Term::Der(i, p, body) => {
@@ -191,12 +189,26 @@ fn integral(ctx: &Context, i: &Integral, out: &mut String) {
 fn op(o: &Op) -> String {
     let mut s = name(&o.name);
     if !o.indices.is_empty() {
-        s.push_str(&format!(
-            "_{{{}}}",
-            o.indices.iter().map(index).collect::<String>()
-        ));
+        s.push_str(&format!("_{{{}}}", indices(&o.indices)));
     }
     format!("{s}({})", point(&o.point))
+}
+
+/// Indices written side by side; a space after a command such as `\\mu`
+/// keeps `\\mu n` from reading as the undefined `\\mun`.
+fn indices(is: &[Index]) -> String {
+    let mut out = String::new();
+    for i in is {
+        let next = index(i);
+        let after_command = out
+            .rfind('\\')
+            .is_some_and(|k| out[k + 1..].chars().all(|c| c.is_ascii_alphabetic()));
+        if after_command && next.starts_with(|c: char| c.is_ascii_alphabetic()) {
+            out.push(' ');
+        }
+        out.push_str(&next);
+    }
+    out
 }
 
 fn index(i: &Index) -> String {
