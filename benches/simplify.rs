@@ -1,7 +1,8 @@
 //! Benchmarks of `simplify` on the local Ward identity with N insertions,
 //! half bulk and half boundary, in a half-space: parse, lower and simplify.
 //!
-//! Run with `cargo bench --bench simplify`. The e-node count of each size is
+//! Also the check of the longest shipped derivation. Run with
+//! `cargo bench --bench simplify`. The e-node count of each size is
 //! printed once before timing, so both figures come from one run.
 
 use std::path::Path;
@@ -110,5 +111,19 @@ fn verify_special_conformal_engine(bencher: divan::Bencher) {
         let v = engine.check(lhs, rhs).expect("checks");
         assert!(matches!(v, Verdict::Proved(_)));
         v
+    });
+}
+
+/// The longest shipped derivation (six steps, wall normal translation),
+/// checked through the whole pipeline as `wardsmith check` runs it.
+#[divan::bench]
+fn check_wall_derivation(bencher: divan::Bencher) {
+    let text = include_str!("../examples/wall-derivation.ward");
+    let source = Source::new("wall-derivation.ward", text);
+    bencher.bench(|| {
+        let out =
+            run_source(&source, Path::new("."), Mode::Check, &Options::default()).expect("valid");
+        assert_eq!(out.code, 0);
+        out
     });
 }
