@@ -209,3 +209,56 @@ fn derivation_steps_are_reported_one_by_one_in_json() {
     assert_eq!(doc["proved"].as_u64(), Some(1));
     assert_eq!(doc["not_proved"].as_u64(), Some(4));
 }
+
+/// Changing a convention in a copy of a shipped rule set (here the sign of
+/// the displacement term) and rerunning the saved examples against it fails
+/// exactly the files whose proofs used that rule, and in the derivation
+/// exactly the step that cites it.
+#[test]
+fn a_flipped_displacement_sign_fails_exactly_the_files_that_use_it() {
+    let shipped = std::fs::read_to_string("rules/halfspace.rules").expect("shipped rule file");
+    let term = "+ δ(y(?x)) n[?nu] <D(?x∥) ...?rest>";
+    assert!(
+        shipped.contains(term),
+        "the displacement term of the shipped rule"
+    );
+    let flipped = scratch(
+        "halfspace.rules",
+        &shipped.replacen(term, "- δ(y(?x)) n[?nu] <D(?x∥) ...?rest>", 1),
+    );
+    let flipped = flipped.to_str().expect("utf-8 path");
+
+    let mut files: Vec<PathBuf> = std::fs::read_dir("examples")
+        .expect("examples/")
+        .filter_map(|e| e.ok().map(|e| e.path()))
+        .filter(|p| p.extension().is_some_and(|x| x == "ward"))
+        .collect();
+    files.sort();
+    let uses: Vec<String> = files
+        .iter()
+        .map(|p| p.to_str().expect("utf-8 path").to_string())
+        .filter(|f| {
+            wardsmith(&["check", f])
+                .1
+                .contains("ward-divergence-halfspace")
+        })
+        .collect();
+    assert!(uses.len() >= 2, "{uses:?}");
+
+    let (code, stdout, stderr) = wardsmith(&["test", "--rules", flipped, "examples"]);
+    assert_eq!(code, 1, "{stderr}");
+    let failed: Vec<String> = stdout
+        .lines()
+        .filter_map(|l| l.strip_prefix("FAIL  "))
+        .map(|l| l.split("  (").next().unwrap_or(l).to_string())
+        .collect();
+    assert_eq!(failed, uses, "{stdout}");
+
+    let (_, report, _) = wardsmith(&["check", "--rules", flipped, "examples/wall-derivation.ward"]);
+    let refuted: Vec<&str> = report
+        .lines()
+        .filter(|l| l.contains("NOT PROVED"))
+        .collect();
+    assert_eq!(refuted.len(), 1, "{report}");
+    assert!(refuted[0].contains("step 3"), "{report}");
+}

@@ -33,6 +33,9 @@ pub const SHIPPED: &[(&str, &str)] = &[
     ),
 ];
 
+/// How the source names of shipped rule files begin.
+const SHIPPED_PREFIX: &str = "<shipped>";
+
 /// One rule, lowered.
 #[derive(Debug)]
 pub struct Rule {
@@ -58,15 +61,27 @@ impl RuleBook {
     pub fn shipped() -> Result<RuleBook> {
         let mut book = RuleBook::default();
         for (name, text) in SHIPPED {
-            book.load(&Source::new(format!("<shipped>/rules/{name}"), *text))?;
+            book.load(&Source::new(
+                format!("{SHIPPED_PREFIX}/rules/{name}"),
+                *text,
+            ))?;
         }
         Ok(book)
     }
 
-    /// Adds the rules of one `.rules` text. Rule names must be unique.
+    /// Adds the rules of one `.rules` text. Rule names must be unique. A
+    /// user file that declares a `ruleset` with the name of a shipped one
+    /// replaces that shipped set whole, so a convention can be changed and
+    /// every saved derivation rerun against it.
     pub fn load(&mut self, source: &Arc<Source>) -> Result<()> {
         let file = syntax::parse_rule_file(source)?;
+        let user = !source.name.starts_with(SHIPPED_PREFIX);
         for set in &file.sets {
+            if user {
+                self.rules.retain(|r| {
+                    !(r.ruleset == set.name.text && r.origin.starts_with(SHIPPED_PREFIX))
+                });
+            }
             for rule in &set.rules {
                 if self.rules.iter().any(|r| r.name == rule.name.text) {
                     return Err(Error::at(
