@@ -40,7 +40,17 @@ enum Command {
     /// Check every .ward file below FILE (a folder): one line per file, then
     /// `N passed, M failed`.
     #[command(after_help = CONVENTIONS)]
-    Test(FileArgs),
+    Test(TestArgs),
+}
+
+#[derive(Args, Debug)]
+struct TestArgs {
+    #[command(flatten)]
+    common: FileArgs,
+    /// Rewrite each `expect` that does not hold with the result wardsmith
+    /// finds, in place; every other byte of the file is kept.
+    #[arg(long)]
+    accept: bool,
 }
 
 #[derive(Args, Debug)]
@@ -69,10 +79,10 @@ struct FileArgs {
 
 fn main() -> ExitCode {
     let cli = Cli::parse();
-    let (mode, args, folder) = match cli.command {
-        Command::Simplify(a) => (Mode::Simplify, a, false),
-        Command::Check(a) => (Mode::Check, a, false),
-        Command::Test(a) => (Mode::Check, a, true),
+    let (mode, args, folder, accept) = match cli.command {
+        Command::Simplify(a) => (Mode::Simplify, a, false, false),
+        Command::Check(a) => (Mode::Check, a, false, false),
+        Command::Test(t) => (Mode::Check, t.common, true, t.accept),
     };
     let opts = Options {
         rules: args.rules,
@@ -91,6 +101,7 @@ fn main() -> ExitCode {
         // Long numeric work reports progress on a terminal, nowhere else.
         progress: std::io::stderr().is_terminal(),
         json: args.json,
+        accept,
     };
     let result = if folder {
         run_folder(&args.file, &opts)

@@ -15,6 +15,7 @@ use crate::numeric::session::Session;
 use crate::report::Reporter;
 use crate::rules::RuleBook;
 use crate::syntax;
+use crate::syntax::ast::Span;
 use crate::term::print::Style;
 
 /// What to do with the statements of a file.
@@ -37,6 +38,8 @@ pub struct Options {
     pub progress: bool,
     /// Report as one JSON document instead of text.
     pub json: bool,
+    /// `test --accept`: rewrite the expected results that do not hold.
+    pub accept: bool,
 }
 
 /// The printed report and the exit code (0: all claims hold, 1: some do not).
@@ -44,6 +47,9 @@ pub struct Options {
 pub struct Outcome {
     pub report: String,
     pub code: i32,
+    /// Under `accept`: each failing expected result's place in the source
+    /// and the normal form to write there instead.
+    pub edits: Vec<(Span, String)>,
 }
 
 /// Runs one numeric statement on the current sample; `Some(verdict)` for
@@ -146,7 +152,7 @@ pub fn run_folder(dir: &Path, opts: &Options) -> Result<Outcome> {
     let (mut passed, mut failed) = (0, 0);
     let mut report = String::new();
     for path in &files {
-        let line = match run_path(path, Mode::Check, opts) {
+        let line = match run_path(path, Mode::Check, opts).and_then(|out| accept(path, out, opts)) {
             Ok(out) if out.code == 0 => {
                 passed += 1;
                 let summary = out.report.lines().last().unwrap_or("").to_string();
@@ -169,7 +175,59 @@ pub fn run_folder(dir: &Path, opts: &Options) -> Result<Outcome> {
     Ok(Outcome {
         report,
         code: i32::from(failed > 0),
+        edits: Vec::new(),
     })
+}
+
+/// Under `--accept`, writes a file's new expected results in place (all
+/// other bytes kept, through a temporary file and a rename) and runs it
+/// again; otherwise, and when nothing changes, returns `out` as it is.
+fn accept(path: &Path, out: Outcome, opts: &Options) -> Result<Outcome> {
+    if !opts.accept || out.edits.is_empty() {
+        return Ok(out);
+    }
+    let io = |e: std::io::Error| {
+        Error::new(
+            ErrorKind::Io,
+            format!("cannot rewrite `{}`: {e}", path.display()),
+        )
+    };
+    let mut text = std::fs::read_to_string(path).map_err(io)?;
+    let mut edits = out.edits;
+    edits.sort_by_key(|(span, _)| std::cmp::Reverse(span.start));
+    for (span, new) in &edits {
+        if span.end > text.len()
+            || !text.is_char_boundary(span.start)
+            || !text.is_char_boundary(span.end)
+        {
+            return Err(Error::new(
+                ErrorKind::Io,
+                format!(
+                    "`{}` changed while it was checked; nothing written",
+                    path.display()
+                ),
+            ));
+        }
+        text.replace_range(span.start..span.end, new);
+    }
+    let temporary = path.with_extension("ward.partial");
+    std::fs::write(&temporary, &text).map_err(io)?;
+    std::fs::rename(&temporary, path).map_err(io)?;
+    let mut again = run_path(
+        path,
+        Mode::Check,
+        &Options {
+            accept: false,
+            ..opts.clone()
+        },
+    )?;
+    // The file's summary line names what was rewritten.
+    again.report = format!(
+        "{}; accepted {} new expected result(s)\n",
+        again.report.trim_end_matches('\n'),
+        edits.len()
+    );
+    Ok(again)
 }
 
 fn collect_ward_files(dir: &Path, out: &mut Vec<PathBuf>) -> Result<()> {
@@ -216,6 +274,7 @@ pub fn run_source(
     // Built on the first numeric statement, so files without one need no model.
     let mut session: Option<Session> = None;
     let (mut proved, mut failed) = (0, 0);
+    let mut edits = Vec::new();
     for item in &program.items {
         let text = collapse(&source.text[item.span.start..item.span.end]);
         let at_item = |e: Error| locate(e, source, item.span);
@@ -227,18 +286,31 @@ pub fn run_source(
                 reporter.simplified(item.line, input, &s);
             }
             // Nothing to prove, but an input error must still be reported.
-            (ItemKind::Simplify { expr, expect: None }, Mode::Check) => {
+            (
+                ItemKind::Simplify {
+                    expr, expect: None, ..
+                },
+                Mode::Check,
+            ) => {
                 engine.simplify(expr).map_err(at_item)?;
             }
             (
                 ItemKind::Simplify {
                     expr,
                     expect: Some(r),
+                    expect_span,
                 },
                 Mode::Check,
             ) => {
                 let v = engine.check(expr, r).map_err(at_item)?;
                 let ok = reporter.verdict(item.line, "expected result", &text, &v);
+                if let (false, true, Some(span)) = (ok, opts.accept, expect_span) {
+                    // Record the normal form in the input syntax, which
+                    // parses back to the same expression.
+                    let s = engine.simplify(expr).map_err(at_item)?;
+                    let printer = crate::term::print::Printer::new(&program.ctx, Style::Unicode);
+                    edits.push((*span, printer.term(&s.term)));
+                }
                 if ok {
                     proved += 1
                 } else {
@@ -363,6 +435,7 @@ pub fn run_source(
     Ok(Outcome {
         report: reporter.finish(),
         code: i32::from(failed > 0),
+        edits,
     })
 }
 

@@ -262,3 +262,63 @@ fn a_flipped_displacement_sign_fails_exactly_the_files_that_use_it() {
     assert_eq!(refuted.len(), 1, "{report}");
     assert!(refuted[0].contains("step 3"), "{report}");
 }
+
+/// `test --accept` on a folder whose expected results all hold changes no
+/// byte; on a file with a wrong `expect` it writes the normal form in its
+/// place, keeping every other byte (comments on that line included), and
+/// the folder passes afterwards.
+#[test]
+fn accept_rewrites_only_the_expected_results_that_fail() {
+    let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("accept");
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).expect("scratch dir");
+    let mut originals = Vec::new();
+    for entry in std::fs::read_dir("examples").expect("examples/").flatten() {
+        let path = entry.path();
+        let copy = dir.join(path.file_name().expect("file name"));
+        std::fs::copy(&path, &copy).expect("copy");
+        originals.push((copy, std::fs::read(&path).expect("read")));
+    }
+    let folder = dir.to_str().expect("utf-8 path");
+    let (code, stdout, _) = wardsmith(&["test", "--accept", folder]);
+    assert_eq!(code, 0, "{stdout}");
+    for (copy, bytes) in &originals {
+        assert_eq!(
+            &std::fs::read(copy).expect("read"),
+            bytes,
+            "{}",
+            copy.display()
+        );
+    }
+
+    let file = dir.join("bulk-ward.ward");
+    let good = std::fs::read_to_string(&file).expect("read");
+    let expect_line = good
+        .lines()
+        .find(|l| l.trim_start().starts_with("expect "))
+        .expect("bulk-ward.ward has an expect line")
+        .to_string();
+    let broken = good.replacen(&expect_line, "  expect 0   # to be filled in", 1);
+    std::fs::write(&file, &broken).expect("write");
+    assert_eq!(wardsmith(&["test", folder]).0, 1);
+
+    let (code, stdout, stderr) = wardsmith(&["test", "--accept", folder]);
+    assert_eq!(code, 0, "{stdout}{stderr}");
+    assert!(
+        stdout.contains("accepted 1 new expected result(s)"),
+        "{stdout}"
+    );
+    let accepted = std::fs::read_to_string(&file).expect("read");
+    let changed: Vec<(&str, &str)> = broken
+        .lines()
+        .zip(accepted.lines())
+        .filter(|(a, b)| a != b)
+        .collect();
+    assert_eq!(broken.lines().count(), accepted.lines().count());
+    assert_eq!(changed.len(), 1, "{accepted}");
+    // The same normal form as the hand-written line, in the printed syntax.
+    let written = expect_line.trim().replace('<', "⟨").replace('>', "⟩");
+    assert_eq!(changed[0].1, format!("  {written}   # to be filled in"));
+    assert_eq!(wardsmith(&["test", folder]).0, 0);
+    assert!(!dir.join("bulk-ward.ward.partial").exists());
+}

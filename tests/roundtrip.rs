@@ -68,7 +68,9 @@ fn check_file(path: &str) {
     let mut checked = 0;
     for item in &p.items {
         let exprs: Vec<&Term> = match &item.kind {
-            ItemKind::Simplify { expr, expect } => std::iter::once(expr).chain(expect).collect(),
+            ItemKind::Simplify { expr, expect, .. } => {
+                std::iter::once(expr).chain(expect).collect()
+            }
             ItemKind::Claim { lhs, rhs }
             | ItemKind::Compare { lhs, rhs, .. }
             | ItemKind::Solve { lhs, rhs, .. }

@@ -51,8 +51,13 @@ pub struct Item {
 
 #[derive(Debug)]
 pub enum ItemKind {
-    /// `simplify E [expect R]`.
-    Simplify { expr: Term, expect: Option<Term> },
+    /// `simplify E [expect R]`; `expect_span` is where R is written, for
+    /// `test --accept` to rewrite it.
+    Simplify {
+        expr: Term,
+        expect: Option<Term>,
+        expect_span: Option<Span>,
+    },
     /// `claim L = R`.
     Claim { lhs: Term, rhs: Term },
     /// `evaluate E`: numeric values in the file's model, one per value of
@@ -126,6 +131,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
     for stmt in &file.stmts {
         match stmt {
             Stmt::Simplify { expr, expect, span } => {
+                let expect_expr = expect;
                 seen_expression = true;
                 let profile = lowerer.free_indices(expr)?;
                 let lowered = lowerer.expr(expr)?;
@@ -144,6 +150,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                     kind: ItemKind::Simplify {
                         expr: lowered,
                         expect,
+                        expect_span: expect_expr.as_ref().map(|e| e.span),
                     },
                     span: *span,
                     line: source.line_col(span.start).0,
