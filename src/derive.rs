@@ -19,6 +19,9 @@ pub enum StepVerdict {
     Refuted { remainder: Term, diagnosis: String },
     /// The search stopped on a limit before settling it.
     Unknown { remainder: Term, reason: String },
+    /// Not proved by the rules, but both steps agree on the file's model
+    /// at every sampled configuration.
+    Confirmed { samples: usize },
 }
 
 /// One checked step.
@@ -30,6 +33,8 @@ pub struct StepReport {
     /// What the user said justifies it (`by …`).
     pub claimed: Vec<String>,
     pub verdict: StepVerdict,
+    /// What the numeric check of a step the rules did not prove found.
+    pub numeric: Option<String>,
 }
 
 /// Checks every step against the one before it.
@@ -59,6 +64,7 @@ pub fn check(
             line: *line,
             claimed: claimed.clone(),
             verdict,
+            numeric: None,
         });
         previous = step;
     }

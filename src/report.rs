@@ -42,7 +42,7 @@ const COMPARE_TOLERANCE: f64 = 1e-9;
 
 /// True if two evaluations agree component by component within the
 /// relative tolerance plus the quadrature error estimates.
-fn agree(left: &Evaluation, right: &Evaluation) -> bool {
+pub(crate) fn agree(left: &Evaluation, right: &Evaluation) -> bool {
     left.components
         .iter()
         .zip(&right.components)
@@ -347,6 +347,17 @@ impl<'a> Reporter<'a> {
                     );
                     ("not proved", diagnosis.clone())
                 }
+                StepVerdict::Confirmed { samples } => {
+                    ok += 1;
+                    let by = format!("numerically on {samples} configuration(s) of the model");
+                    let _ = writeln!(
+                        self.out,
+                        "  step {} (line {}): confirmed {by}, not by the rules{claimed}",
+                        k + 1,
+                        step.line
+                    );
+                    ("confirmed", by)
+                }
                 StepVerdict::Unknown { remainder, reason } => {
                     bad += 1;
                     let _ = writeln!(
@@ -363,6 +374,9 @@ impl<'a> Reporter<'a> {
                     ("unknown", reason.clone())
                 }
             };
+            if let Some(note) = &step.numeric {
+                let _ = writeln!(self.out, "    numerically: {note}");
+            }
             objects.push(format!(
                 "{{\"step\": {}, \"line\": {}, \"status\": {}, \"detail\": {}}}",
                 k + 1,
@@ -371,7 +385,7 @@ impl<'a> Reporter<'a> {
                 js(&detail)
             ));
         }
-        let _ = writeln!(self.out, "  {ok} of {} steps proved", steps.len());
+        let _ = writeln!(self.out, "  {ok} of {} steps hold", steps.len());
         if self.printer.style == Style::Latex {
             // The chain itself, ready to paste into a paper.
             let _ = writeln!(

@@ -98,6 +98,54 @@ fn numeric_item(
     })
 }
 
+/// Evaluates two consecutive derivation steps on every sampled
+/// configuration: agreement everywhere confirms the step; otherwise the
+/// first configuration where they differ (or why they cannot be evaluated)
+/// is noted.
+fn numeric_step(
+    s: &Session,
+    before: &crate::term::Term,
+    after: &crate::term::Term,
+    free: &[String],
+    step: &mut crate::derive::StepReport,
+) {
+    let samples = s.sample_count();
+    for k in 0..samples {
+        let points = s.select(k);
+        let (left, right) = match (s.evaluate(before, free), s.evaluate(after, free)) {
+            (Ok(l), Ok(r)) => (l, r),
+            (Err(e), _) | (_, Err(e)) => {
+                let why = e.message.lines().next().unwrap_or("").to_string();
+                step.numeric = Some(format!("not evaluated on the model: {why}"));
+                return;
+            }
+        };
+        if !crate::report::agree(&left, &right) {
+            let at = points
+                .iter()
+                .map(|(p, c)| {
+                    let c: Vec<String> = c.iter().map(|v| format!("{v:.4}")).collect();
+                    format!("{p} = ({})", c.join(", "))
+                })
+                .collect::<Vec<_>>()
+                .join(", ");
+            let pair = left
+                .components
+                .iter()
+                .zip(&right.components)
+                .find(|((_, l), (_, r))| l.value != r.value)
+                .map(|((_, l), (_, r))| (l.value, r.value));
+            if let Some((l, r)) = pair {
+                step.numeric = Some(format!(
+                    "they differ at {at}: {l:.9e} in the step before, {r:.9e} in this step"
+                ));
+            }
+            return;
+        }
+    }
+    step.verdict = crate::derive::StepVerdict::Confirmed { samples };
+}
+
 /// Writes `stem.csv` and `stem.svg` beside the file, each through a
 /// temporary file and a rename, so a failure never leaves half a file.
 fn write_scan(
@@ -332,8 +380,33 @@ pub fn run_source(
                 }
             }
             (ItemKind::Claim { .. }, Mode::Simplify) => {}
-            (ItemKind::Derivation { name, start, steps }, _) => {
-                let report = crate::derive::check(&engine, start, steps).map_err(at_item)?;
+            (
+                ItemKind::Derivation {
+                    name,
+                    start,
+                    steps,
+                    free,
+                },
+                _,
+            ) => {
+                let mut report = crate::derive::check(&engine, start, steps).map_err(at_item)?;
+                // Steps the rules did not prove are evaluated on the file's
+                // model, when it has one.
+                if program.numeric.model.is_some()
+                    && report
+                        .iter()
+                        .any(|r| !matches!(r.verdict, crate::derive::StepVerdict::Proved { .. }))
+                {
+                    let s = numeric_session(&mut session, &program, &engine, &mut reporter)
+                        .map_err(at_item)?;
+                    let mut before = start;
+                    for (r, (after, _, _)) in report.iter_mut().zip(steps) {
+                        if !matches!(r.verdict, crate::derive::StepVerdict::Proved { .. }) {
+                            numeric_step(s, before, after, free, r);
+                        }
+                        before = after;
+                    }
+                }
                 let (ok, bad) = reporter.derivation(item.line, name, start, &report);
                 if mode == Mode::Check {
                     proved += ok;

@@ -161,7 +161,10 @@ fn json_output_parses_and_counts_the_claims() {
             if mode == "check" {
                 // A derivation counts its steps; every other item counts once.
                 let holds = |i: &serde_json::Value| {
-                    matches!(i["status"].as_str(), Some("proved" | "agree" | "holds"))
+                    matches!(
+                        i["status"].as_str(),
+                        Some("proved" | "agree" | "holds" | "confirmed")
+                    )
                 };
                 let proved: usize = items
                     .iter()

@@ -96,6 +96,8 @@ pub enum ItemKind {
         name: String,
         start: Term,
         steps: Vec<(Term, usize, Vec<String>)>,
+        /// Free indices shared by every step, for numeric checks.
+        free: Vec<String>,
     },
     /// `solve a from L = R`.
     Solve {
@@ -360,6 +362,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         name: name.text.clone(),
                         start: lowerer.expr(start)?,
                         steps: lowered,
+                        free: profile.into_iter().collect(),
                     },
                     span: *span,
                     line: source.line_col(span.start).0,
