@@ -331,12 +331,20 @@ impl<'a> Reporter<'a> {
                 }
                 StepVerdict::Refuted {
                     remainder,
-                    diagnosis,
+                    diagnosis: why,
+                }
+                | StepVerdict::Unknown {
+                    remainder,
+                    reason: why,
                 } => {
                     bad += 1;
+                    let (status, head) = match &step.verdict {
+                        StepVerdict::Unknown { .. } => ("unknown", "UNKNOWN: the e-graph "),
+                        _ => ("not proved", "NOT PROVED: "),
+                    };
                     let _ = writeln!(
                         self.out,
-                        "  step {} (line {}): NOT PROVED: {diagnosis}{claimed}",
+                        "  step {} (line {}): {head}{why}{claimed}",
                         k + 1,
                         step.line
                     );
@@ -345,7 +353,7 @@ impl<'a> Reporter<'a> {
                         "    step before minus this step: {}",
                         self.layout(remainder, "      ")
                     );
-                    ("not proved", diagnosis.clone())
+                    (status, why.clone())
                 }
                 StepVerdict::Confirmed { samples } => {
                     ok += 1;
@@ -357,21 +365,6 @@ impl<'a> Reporter<'a> {
                         step.line
                     );
                     ("confirmed", by)
-                }
-                StepVerdict::Unknown { remainder, reason } => {
-                    bad += 1;
-                    let _ = writeln!(
-                        self.out,
-                        "  step {} (line {}): UNKNOWN: the e-graph {reason}{claimed}",
-                        k + 1,
-                        step.line
-                    );
-                    let _ = writeln!(
-                        self.out,
-                        "    step before minus this step: {}",
-                        self.layout(remainder, "      ")
-                    );
-                    ("unknown", reason.clone())
                 }
             };
             if let Some(note) = &step.numeric {
