@@ -227,9 +227,9 @@ pub fn run_folder(dir: &Path, opts: &Options) -> Result<Outcome> {
     })
 }
 
-/// Under `--accept`, writes a file's new expected results in place (all
-/// other bytes kept, through a temporary file and a rename) and runs it
-/// again; otherwise, and when nothing changes, returns `out` as it is.
+/// Under `--accept`, runs the file with its new expected results and writes
+/// them in place (all other bytes kept, through a temporary file and a
+/// rename); otherwise, and when nothing changes, returns `out` as it is.
 fn accept(path: &Path, out: Outcome, opts: &Options) -> Result<Outcome> {
     if !opts.accept || out.edits.is_empty() {
         return Ok(out);
@@ -258,17 +258,18 @@ fn accept(path: &Path, out: Outcome, opts: &Options) -> Result<Outcome> {
         }
         text.replace_range(span.start..span.end, new);
     }
+    // The new text is run before it is written: a file that would no longer
+    // read is left as it was.
+    let source = Source::new(path.display().to_string(), text.clone());
+    let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
+    let once = Options {
+        accept: false,
+        ..opts.clone()
+    };
+    let mut again = run_source(&source, &base, Mode::Check, &once)?;
     let temporary = path.with_extension("ward.partial");
     std::fs::write(&temporary, &text).map_err(io)?;
     std::fs::rename(&temporary, path).map_err(io)?;
-    let mut again = run_path(
-        path,
-        Mode::Check,
-        &Options {
-            accept: false,
-            ..opts.clone()
-        },
-    )?;
     // The file's summary line names what was rewritten.
     again.report = format!(
         "{}; accepted {} new expected result(s)\n",
