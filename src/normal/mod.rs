@@ -14,6 +14,7 @@
 //! terminating, syntax-directed pass; it applies no Ward identity.
 
 mod calculus;
+mod cancel;
 mod contract;
 mod distance;
 mod integrate;
@@ -361,6 +362,7 @@ pub fn collect(monos: Vec<Mono>) -> Term {
     for (factors, poly) in groups {
         let poly: BTreeMap<Atoms, BigRational> =
             poly.into_iter().filter(|(_, c)| !c.is_zero()).collect();
+        let poly = cancel::cancel_sums(poly);
         if poly.is_empty() {
             continue;
         }

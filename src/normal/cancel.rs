@@ -1,0 +1,235 @@
+//! Cancelling a sum against its own inverse power: a coefficient such as
+//! `(2 d - 4)/(d - 2)` or `(d^2 - 4)/(d - 2)` is an exact quotient and
+//! becomes `2` or `d + 2`. Coefficients are Laurent polynomials in scalar
+//! atoms; the division is long division in lexicographic order and is kept
+//! only when it leaves no remainder.
+
+use std::cmp::Ordering;
+use std::collections::BTreeMap;
+
+use num_rational::BigRational;
+use num_traits::{One, Zero};
+
+use super::monomial::Atoms;
+use crate::term::Term;
+
+/// A polynomial coefficient: atoms → exact rational.
+pub type Poly = BTreeMap<Atoms, BigRational>;
+
+/// Long division steps allowed per quotient term of the dividend (the
+/// division of polynomials finishes well within it; Laurent monomials
+/// could otherwise go on).
+const STEPS_PER_TERM: usize = 4;
+
+/// Divides out sum atoms carried to negative whole powers, as far as the
+/// division is exact: the monomials with `P^-e` are divided by `P` and
+/// come back with `P^(1-e)`.
+pub fn cancel_sums(mut poly: Poly) -> Poly {
+    let mut tried: Vec<(Term, BigRational)> = Vec::new();
+    // Each success removes one power of one atom; each failure is tried
+    // once. The bound guards against surprises.
+    for _ in 0..64 {
+        let candidate = poly.keys().find_map(|atoms| {
+            atoms.iter().find_map(|(key, exp)| {
+                let fits = matches!(key, Term::Add(_) | Term::Mul(_))
+                    && exp.is_integer()
+                    && exp < &BigRational::zero()
+                    && !tried.iter().any(|(k, e)| k == key && e == exp);
+                fits.then(|| (key.clone(), exp.clone()))
+            })
+        });
+        let Some((key, exp)) = candidate else {
+            return poly;
+        };
+        tried.push((key.clone(), exp.clone()));
+        let Some(divisor) = scalar_poly(&key) else {
+            continue;
+        };
+        let (part, rest): (Poly, Poly) = poly
+            .clone()
+            .into_iter()
+            .partition(|(atoms, _)| atoms.get(&key) == Some(&exp));
+        let dividend: Poly = part
+            .into_iter()
+            .map(|(mut atoms, c)| {
+                atoms.remove(&key);
+                (atoms, c)
+            })
+            .collect();
+        let Some(quotient) = divide(&dividend, &divisor) else {
+            continue;
+        };
+        let left = &exp + BigRational::one();
+        poly = rest;
+        for (mut atoms, c) in quotient {
+            if !left.is_zero() {
+                let slot = atoms.entry(key.clone()).or_insert_with(BigRational::zero);
+                *slot += &left;
+                if slot.is_zero() {
+                    atoms.remove(&key);
+                }
+            }
+            *poly.entry(atoms).or_insert_with(BigRational::zero) += c;
+        }
+        poly.retain(|_, c| !c.is_zero());
+        tried.clear();
+    }
+    poly
+}
+
+/// A scalar normal-form term back as a polynomial in its atoms.
+fn scalar_poly(t: &Term) -> Option<Poly> {
+    match t {
+        Term::Num(c) => Some(Poly::from([(Atoms::new(), c.clone())])),
+        Term::Add(ts) => {
+            let mut out = Poly::new();
+            for t in ts {
+                for (atoms, c) in scalar_poly(t)? {
+                    *out.entry(atoms).or_insert_with(BigRational::zero) += c;
+                }
+            }
+            out.retain(|_, c| !c.is_zero());
+            Some(out)
+        }
+        Term::Mul(ts) => {
+            let mut out = Poly::from([(Atoms::new(), BigRational::one())]);
+            for t in ts {
+                out = multiply(&out, &scalar_poly(t)?);
+            }
+            Some(out)
+        }
+        // Atoms carry rational exponents; a symbolic power is one atom.
+        Term::Pow(base, e) => Some(match &**e {
+            Term::Num(q) => Poly::from([(
+                Atoms::from([((**base).clone(), q.clone())]),
+                BigRational::one(),
+            )]),
+            _ => Poly::from([(
+                Atoms::from([(t.clone(), BigRational::one())]),
+                BigRational::one(),
+            )]),
+        }),
+        atom => Some(Poly::from([(
+            Atoms::from([(atom.clone(), BigRational::one())]),
+            BigRational::one(),
+        )])),
+    }
+}
+
+fn multiply(a: &Poly, b: &Poly) -> Poly {
+    let mut out = Poly::new();
+    for (ma, ca) in a {
+        for (mb, cb) in b {
+            *out.entry(times(ma, mb, 1))
+                .or_insert_with(BigRational::zero) += ca * cb;
+        }
+    }
+    out.retain(|_, c| !c.is_zero());
+    out
+}
+
+/// `a · b^sign` for monomials (sign ±1).
+fn times(a: &Atoms, b: &Atoms, sign: i32) -> Atoms {
+    let mut out = a.clone();
+    for (k, e) in b {
+        let slot = out.entry(k.clone()).or_insert_with(BigRational::zero);
+        if sign > 0 {
+            *slot += e;
+        } else {
+            *slot -= e;
+        }
+        if slot.is_zero() {
+            out.remove(k);
+        }
+    }
+    out
+}
+
+/// Lexicographic monomial order: at the first atom (in atom order) whose
+/// exponents differ, the larger exponent is the larger monomial.
+fn lex(a: &Atoms, b: &Atoms) -> Ordering {
+    let keys: std::collections::BTreeSet<&Term> = a.keys().chain(b.keys()).collect();
+    let zero = BigRational::zero();
+    for k in keys {
+        let ea = a.get(k).unwrap_or(&zero);
+        let eb = b.get(k).unwrap_or(&zero);
+        match ea.cmp(eb) {
+            Ordering::Equal => continue,
+            other => return other,
+        }
+    }
+    Ordering::Equal
+}
+
+fn leading(p: &Poly) -> Option<(&Atoms, &BigRational)> {
+    p.iter().max_by(|(a, _), (b, _)| lex(a, b))
+}
+
+/// `dividend / divisor` when it is exact; `None` otherwise.
+fn divide(dividend: &Poly, divisor: &Poly) -> Option<Poly> {
+    let (lead_atoms, lead_coef) = leading(divisor)?;
+    if divisor.len() < 2 {
+        return None;
+    }
+    let mut rest = dividend.clone();
+    let mut quotient = Poly::new();
+    for _ in 0..STEPS_PER_TERM * (dividend.len() + 1) {
+        let Some((atoms, c)) = leading(&rest) else {
+            return Some(quotient);
+        };
+        let t_atoms = times(atoms, lead_atoms, -1);
+        let t_coef = c / lead_coef;
+        let term = Poly::from([(t_atoms.clone(), t_coef.clone())]);
+        for (m, k) in multiply(&term, divisor) {
+            let slot = rest.entry(m.clone()).or_insert_with(BigRational::zero);
+            *slot -= k;
+            if slot.is_zero() {
+                rest.remove(&m);
+            }
+        }
+        *quotient.entry(t_atoms).or_insert_with(BigRational::zero) += t_coef;
+    }
+    rest.is_empty().then_some(quotient)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn sym(s: &str) -> Term {
+        Term::Sym(s.into())
+    }
+    fn q(n: i64) -> BigRational {
+        BigRational::from_integer(n.into())
+    }
+
+    #[test]
+    fn exact_quotients_cancel_and_others_stay() {
+        // (d - 2) as the atom's base.
+        let base = Term::Add(vec![sym("d"), Term::Num(q(-2))]);
+        let inv = |mut a: Atoms| {
+            a.insert(base.clone(), q(-1));
+            a
+        };
+        let d = |e: i64| Atoms::from([(sym("d"), q(e))]);
+        // (d^2 - 4)/(d - 2) = d + 2
+        let p = Poly::from([(inv(d(2)), q(1)), (inv(Atoms::new()), q(-4))]);
+        assert_eq!(
+            cancel_sums(p),
+            Poly::from([(d(1), q(1)), (Atoms::new(), q(2))])
+        );
+        // (2 d - 4)/(d - 2) = 2
+        let p = Poly::from([(inv(d(1)), q(2)), (inv(Atoms::new()), q(-4))]);
+        assert_eq!(cancel_sums(p), Poly::from([(Atoms::new(), q(2))]));
+        // 1 + (d - 2)/(d - 2) = 2
+        let p = Poly::from([
+            (Atoms::new(), q(1)),
+            (inv(d(1)), q(1)),
+            (inv(Atoms::new()), q(-2)),
+        ]);
+        assert_eq!(cancel_sums(p), Poly::from([(Atoms::new(), q(2))]));
+        // (d - 1)/(d - 2) stays as it is.
+        let p = Poly::from([(inv(d(1)), q(1)), (inv(Atoms::new()), q(-1))]);
+        assert_eq!(cancel_sums(p.clone()), p);
+    }
+}
