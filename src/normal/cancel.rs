@@ -78,7 +78,7 @@ pub fn cancel_sums(mut poly: Poly) -> Poly {
 }
 
 /// A scalar normal-form term back as a polynomial in its atoms.
-fn scalar_poly(t: &Term) -> Option<Poly> {
+pub(super) fn scalar_poly(t: &Term) -> Option<Poly> {
     match t {
         Term::Num(c) => Some(Poly::from([(Atoms::new(), c.clone())])),
         Term::Add(ts) => {

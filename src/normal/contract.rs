@@ -319,6 +319,17 @@ pub fn canonical_dummies(ctx: &Context, m: Mono) -> Mono {
     m
 }
 
+/// True when every factor carrying the index `name` is a coordinate of a
+/// boundary point.
+fn on_wall_only(ctx: &Context, factors: &[Term], name: &str) -> bool {
+    factors.iter().all(|f| {
+        let mut mentions = false;
+        visit_indices(f, &mut |i| mentions |= i.name() == Some(name));
+        !mentions
+            || matches!(f, Term::Comp(p, Index::Named(n)) if n == name && ctx.is_boundary_point(p))
+    })
+}
+
 fn rename_canonically(ctx: &Context, mut m: Mono) -> Mono {
     for _ in 0..4 {
         let counts = occurrences(&m.factors);
@@ -358,7 +369,13 @@ fn rename_canonically(ctx: &Context, mut m: Mono) -> Mono {
         let mut used: BTreeMap<IndexKind, usize> = BTreeMap::new();
         let mut map = BTreeMap::new();
         for name in &order {
-            let kind = ctx.index_kind(name);
+            let kind = match ctx.index_kind(name) {
+                // s1[a] s2[a] = s1[k] s2[k] for boundary points (their
+                // normal coordinate is 0): one form, the bulk one, so that
+                // it meets |s1 - s2|² expanded in coordinates.
+                IndexKind::Parallel if on_wall_only(ctx, &m.factors, name) => IndexKind::Bulk,
+                kind => kind,
+            };
             let mut pool: Vec<String> = ctx
                 .index_pool
                 .get(&kind)

@@ -300,13 +300,50 @@ fn symbolic_power(ctx: &Context, m: &Mono, e: &Term) -> Result<Mono> {
             };
         }
         if !rest.is_zero() {
-            out = out.mul(&Mono::atom(
-                Term::Pow(Box::new(a), Box::new(rest)),
-                BigRational::one(),
-            ));
+            // a^(c R) is kept as (a^R)^c with R primitive (whole
+            // coefficients without a common factor, leading one positive),
+            // so that (a^(-d))^2 and a^(-2 d) are one atom to one power.
+            let (c, primitive) = primitive_part(ctx, &rest)?;
+            out = out.mul(&Mono::atom(Term::Pow(Box::new(a), Box::new(primitive)), c));
         }
     }
     Ok(out)
+}
+
+/// `t = c · R` with R primitive: whole coefficients whose greatest common
+/// divisor is 1, the first of them (in normal-form order) positive.
+fn primitive_part(ctx: &Context, t: &Term) -> Result<(BigRational, Term)> {
+    use num_integer::Integer;
+    let monos = expand(ctx, t)?;
+    let mut numerators = num_bigint::BigInt::zero();
+    let mut denominators = num_bigint::BigInt::one();
+    for m in &monos {
+        numerators = numerators.gcd(m.coef.numer());
+        denominators = denominators.lcm(m.coef.denom());
+    }
+    if numerators.is_zero() {
+        return Ok((BigRational::one(), t.clone()));
+    }
+    let mut c = BigRational::new(numerators, denominators);
+    let scale = |c: &BigRational| {
+        collect(
+            monos
+                .iter()
+                .map(|m| Mono {
+                    coef: &m.coef / c,
+                    ..m.clone()
+                })
+                .collect(),
+        )
+    };
+    let mut primitive = scale(&c);
+    if let Term::Mul(fs) = &primitive {
+        if matches!(fs.first(), Some(Term::Num(k)) if k.is_negative()) {
+            c = -c;
+            primitive = scale(&c);
+        }
+    }
+    Ok((c, primitive))
 }
 
 /// Splits the constant part off a scalar: `Delta + 2` → (2, Delta), the

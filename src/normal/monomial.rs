@@ -125,6 +125,9 @@ pub fn scalar_term(c: &BigRational, atoms: &Atoms) -> Term {
     for (a, e) in atoms {
         if e.is_one() {
             fs.push(a.clone());
+        } else if let Some(folded) = fold_symbolic_power(a, e) {
+            // (a^R)^e reads as a^(e R).
+            fs.push(folded);
         } else {
             fs.push(Term::Pow(
                 Box::new(a.clone()),
@@ -137,6 +140,21 @@ pub fn scalar_term(c: &BigRational, atoms: &Atoms) -> Term {
     } else {
         Term::Mul(fs)
     }
+}
+
+/// `(b^R)^e` as `b^(e R)` for a symbolic exponent R.
+fn fold_symbolic_power(a: &Term, e: &BigRational) -> Option<Term> {
+    let Term::Pow(base, r) = a else {
+        return None;
+    };
+    if matches!(**r, Term::Num(_)) {
+        return None;
+    }
+    let scaled: super::cancel::Poly = super::cancel::scalar_poly(r)?
+        .into_iter()
+        .map(|(atoms, c)| (atoms, c * e))
+        .collect();
+    Some(Term::Pow(base.clone(), Box::new(super::poly_term(scaled))))
 }
 
 #[allow(dead_code)]
