@@ -388,11 +388,16 @@ impl<'a> Reporter<'a> {
             );
             for step in steps {
                 let mut note = step.claimed.join(", ");
-                if !matches!(step.verdict, StepVerdict::Proved { .. }) {
+                let status = match step.verdict {
+                    StepVerdict::Proved { .. } => None,
+                    StepVerdict::Confirmed { .. } => Some("checked numerically"),
+                    _ => Some("not proved"),
+                };
+                if let Some(status) = status {
                     note = if note.is_empty() {
-                        "not proved".into()
+                        status.into()
                     } else {
-                        format!("{note}; not proved")
+                        format!("{note}; {status}")
                     };
                 }
                 let note = if note.is_empty() {

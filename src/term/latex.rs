@@ -3,7 +3,7 @@
 //! trailing digits as subscripts. Output only; it is not read back.
 
 use num_rational::BigRational;
-use num_traits::{One, Signed};
+use num_traits::{One, Signed, Zero};
 
 use super::{Index, Integral, Op, Point, Region, Term};
 use crate::context::Context;
@@ -11,8 +11,74 @@ use crate::context::Context;
 /// A term in LaTeX.
 pub fn latex(ctx: &Context, t: &Term) -> String {
     let mut out = String::new();
-    sum(ctx, t, &mut out);
+    sum(ctx, &tidy(t), &mut out);
     out
+}
+
+/// The shape of a term as typed (sums of sums, products of products,
+/// `1/2` as `1 · 2^-1`) flattened for display: nested sums and products
+/// spliced, numbers multiplied into one leading coefficient, and the
+/// inverse of a product split into inverses of its factors.
+fn tidy(t: &Term) -> Term {
+    match t {
+        Term::Add(ts) => {
+            let mut out = Vec::new();
+            for t in ts.iter().map(tidy) {
+                match t {
+                    Term::Add(inner) => out.extend(inner),
+                    t => out.push(t),
+                }
+            }
+            match out.len() {
+                1 => out.pop().unwrap_or_else(Term::zero),
+                _ => Term::Add(out),
+            }
+        }
+        Term::Mul(fs) => {
+            let mut coefficient = BigRational::one();
+            let mut out = Vec::new();
+            let mut push = |f: Term, out: &mut Vec<Term>| match f {
+                Term::Num(c) => coefficient *= c,
+                f => out.push(f),
+            };
+            for f in fs.iter().map(tidy) {
+                match f {
+                    Term::Mul(inner) => inner.into_iter().for_each(|f| push(f, &mut out)),
+                    f => push(f, &mut out),
+                }
+            }
+            if coefficient.is_zero() {
+                return Term::zero();
+            }
+            if !coefficient.is_one() || out.is_empty() {
+                out.insert(0, Term::Num(coefficient));
+            }
+            match out.len() {
+                1 => out.pop().unwrap_or_else(Term::one),
+                _ => Term::Mul(out),
+            }
+        }
+        Term::Pow(b, e) => {
+            let (b, e) = (tidy(b), tidy(e));
+            match (b, e) {
+                (Term::Num(c), Term::Num(q)) if q == -BigRational::one() && !c.is_zero() => {
+                    Term::Num(c.recip())
+                }
+                (Term::Mul(fs), Term::Num(q)) if q.is_negative() => tidy(&Term::Mul(
+                    fs.into_iter()
+                        .map(|f| Term::Pow(Box::new(f), Box::new(Term::Num(q.clone()))))
+                        .collect(),
+                )),
+                (b, e) => Term::Pow(Box::new(b), Box::new(e)),
+            }
+        }
+        Term::Der(i, p, body) => Term::Der(i.clone(), p.clone(), Box::new(tidy(body))),
+        Term::Integral(i) => Term::Integral(Box::new(Integral {
+            body: tidy(&i.body),
+            ..(**i).clone()
+        })),
+        other => other.clone(),
+    }
 }
 
 fn sum(ctx: &Context, t: &Term, out: &mut String) {
@@ -55,8 +121,24 @@ fn product(ctx: &Context, t: &Term, out: &mut String) {
             other => numer.push(other),
         }
     }
+    // Correlators, derivatives, integrals and distributions follow the
+    // fraction of scalars instead of sitting in its numerator.
+    let (mut numer, trailing): (Vec<Term>, Vec<Term>) =
+        numer.into_iter().partition(|f| !is_operator(f));
     let mut parts: Vec<String> = Vec::new();
-    if let Some(c) = coefficient.filter(|c| !c.is_one() || (numer.is_empty() && denom.is_empty())) {
+    // A fractional coefficient goes into the fraction: \frac{3 x}{4 y}.
+    if let Some(c) = coefficient
+        .clone()
+        .filter(|c| !c.is_integer() && !denom.is_empty())
+    {
+        if !c.numer().is_one() {
+            numer.insert(0, Term::Num(BigRational::from_integer(c.numer().clone())));
+        }
+        denom.insert(0, Term::Num(BigRational::from_integer(c.denom().clone())));
+        coefficient = None;
+    }
+    let alone = numer.is_empty() && denom.is_empty() && trailing.is_empty();
+    if let Some(c) = coefficient.filter(|c| !c.is_one() || alone) {
         parts.push(number(&c));
     }
     let join = |fs: &[Term]| -> String {
@@ -69,13 +151,38 @@ fn product(ctx: &Context, t: &Term, out: &mut String) {
             .collect::<Vec<_>>()
             .join(" \\, ")
     };
+    // Inside \frac a lone sum needs no parentheses.
+    let bare = |fs: &[Term]| -> String {
+        match fs {
+            [t @ Term::Add(_)] => {
+                let mut s = String::new();
+                sum(ctx, t, &mut s);
+                s
+            }
+            fs => join(fs),
+        }
+    };
     match (numer.is_empty(), denom.is_empty()) {
         (_, true) => parts.push(join(&numer)),
-        (true, false) => parts.push(format!("\\frac{{1}}{{{}}}", join(&denom))),
-        (false, false) => parts.push(format!("\\frac{{{}}}{{{}}}", join(&numer), join(&denom))),
+        (true, false) => parts.push(format!("\\frac{{1}}{{{}}}", bare(&denom))),
+        (false, false) => parts.push(format!("\\frac{{{}}}{{{}}}", bare(&numer), bare(&denom))),
     }
+    parts.push(join(&trailing));
     let parts: Vec<String> = parts.into_iter().filter(|p| !p.is_empty()).collect();
     out.push_str(&parts.join(" \\, "));
+}
+
+/// Factors that are not plain scalars: correlators, derivatives,
+/// integrals, δ-functions, and sums or powers holding them.
+fn is_operator(t: &Term) -> bool {
+    match t {
+        Term::Corr(_) | Term::Der(..) | Term::Integral(_) | Term::DeltaFn(..) | Term::DeltaY(_) => {
+            true
+        }
+        Term::Add(ts) | Term::Mul(ts) => ts.iter().any(is_operator),
+        Term::Pow(b, _) => is_operator(b),
+        _ => false,
+    }
 }
 
 fn factor(ctx: &Context, t: &Term, out: &mut String) {
