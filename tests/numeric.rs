@@ -237,3 +237,87 @@ fn the_unimproved_stress_tensor_has_a_one_point_function_near_a_wall() {
         assert!(report.contains("compare DISAGREE"), "{report}");
     }
 }
+
+/// The steps of a derivation that hold and those that do not, from its
+/// report: (step number, holds).
+fn steps(report: &str) -> Vec<(usize, bool)> {
+    report
+        .lines()
+        .filter_map(|l| l.trim().strip_prefix("step "))
+        .filter_map(|l| {
+            let (k, rest) = l.split_once(' ')?;
+            let holds = rest.contains("proved by") || rest.contains("confirmed numerically");
+            Some((k.parse().ok()?, holds))
+        })
+        .collect()
+}
+
+/// The saved derivation of the <T O O> coefficient holds in d = 3 and 4,
+/// and a coefficient with (d - 1) written as d fails at the step where the
+/// sphere integral meets the contact terms, and only there
+/// (a = - d Δ C_O/((d - 1) S_d), Osborn & Petkou 1994, hep-th/9307010).
+#[test]
+fn the_saved_coupling_derivation_fixes_the_coefficient() {
+    let saved = std::fs::read_to_string("examples/coupling-derivation.ward").expect("example");
+    let (report, code) = check(&saved);
+    assert_eq!(code, 0, "{report}");
+    assert_eq!(
+        steps(&report),
+        vec![(1, true), (2, true), (3, true)],
+        "{report}"
+    );
+    let d4 = saved.replace("values d = 3,", "values d = 4,");
+    assert_ne!(d4, saved);
+    let (report, code) = check(&d4);
+    assert_eq!(code, 0, "{report}");
+
+    let wrong = saved.replace(
+        "let a = - d Delta/((d - 1) S_d)",
+        "let a = - d Delta/(d S_d)",
+    );
+    assert_ne!(wrong, saved);
+    let (report, code) = check(&wrong);
+    assert_eq!(code, 1, "{report}");
+    assert_eq!(
+        steps(&report),
+        vec![(1, true), (2, true), (3, false)],
+        "{report}"
+    );
+}
+
+/// C_D = 2/S_d² for the free scalar with either wall (PHYSICS.md §3–4,
+/// derived; the same value is checked by `compare` in the free-scalar-cd
+/// cases). Slips in the Wick step are caught at that step: a 1/4 for the
+/// 1/2 of Dirichlet, the sign of one ξ term of Neumann.
+#[test]
+fn the_saved_displacement_norms_catch_slips_in_the_wick_step() {
+    for (file, right, slip) in [
+        (
+            "examples/displacement-dirichlet.ward",
+            "  = 1/2 <Dn(s1) Dn(s2)>",
+            "  = 1/4 <Dn(s1) Dn(s2)>",
+        ),
+        (
+            "examples/displacement-neumann.ward",
+            "    - xi ∂[b](s2) ∂[b](s2) { ∂[a](s1) <Q",
+            "    + xi ∂[b](s2) ∂[b](s2) { ∂[a](s1) <Q",
+        ),
+    ] {
+        let saved = std::fs::read_to_string(file).expect("example");
+        let (report, code) = check(&saved);
+        assert_eq!(code, 0, "{report}");
+        assert_eq!(
+            steps(&report),
+            vec![(1, true), (2, true), (3, true)],
+            "{file}: {report}"
+        );
+        assert!(report.contains("step 3 (line") && report.contains("proved by normalisation"));
+        let wrong = saved.replacen(right, slip, 1);
+        assert_ne!(wrong, saved, "{file}");
+        let (report, code) = check(&wrong);
+        assert_eq!(code, 1, "{report}");
+        // Step 1 fails; step 2 compares against the wrong step 1, so it fails too.
+        assert_eq!(steps(&report)[0], (1, false), "{file}: {report}");
+        assert_eq!(steps(&report)[2], (3, true), "{file}: {report}");
+    }
+}
