@@ -37,11 +37,91 @@ pub struct StepReport {
     pub numeric: Option<String>,
 }
 
+/// The moves a step may cite after `by` besides rule names, each with what
+/// it stands for. The rules' own names (`ward-divergence`, …) are checked
+/// against what fired; these name the bookkeeping of normalisation and the
+/// numeric checks, and are labels for the reader.
+pub const MOVES: &[(&str, &str)] = &[
+    ("algebra", "expanding, collecting and cancelling"),
+    (
+        "linearity",
+        "splitting sums, integrals and derivatives of sums",
+    ),
+    ("leibniz", "the product rule"),
+    ("differentiate", "derivatives of explicit functions"),
+    (
+        "contraction",
+        "summing indices: traces, n·n = 1, δ contractions",
+    ),
+    ("symmetry", "symmetric T, antisymmetric parameters"),
+    ("killing-equation", "∂_μ ε_ν + ∂_ν ε_μ = (2/d) δ_μν ∂·ε"),
+    ("sift", "integrating a δ-function"),
+    (
+        "wall-delta",
+        "δ(y) turning a half-space integral into one over the wall",
+    ),
+    (
+        "divergence-theorem",
+        "a surface integral as the volume integral of a divergence",
+    ),
+    ("parts", "integration by parts"),
+    ("model", "the model's correlators (checked numerically)"),
+    (
+        "wick",
+        "Wick contraction in the free model (checked numerically)",
+    ),
+    ("images", "the method of images (checked numerically)"),
+    ("quadrature", "a numeric integral (checked numerically)"),
+];
+
+/// Every name after `by` must be a rule of `rules` or one of [`MOVES`]; an
+/// unknown one is an error at its span, with the nearest known name.
+pub fn check_citations<'a>(
+    rules: impl Iterator<Item = &'a str> + Clone,
+    steps: &[(Term, usize, Vec<(String, crate::syntax::ast::Span)>)],
+) -> std::result::Result<(), (String, crate::syntax::ast::Span, Option<String>)> {
+    let known = |n: &str| MOVES.iter().any(|(m, _)| *m == n) || rules.clone().any(|r| r == n);
+    for (_, _, names) in steps {
+        for (name, span) in names {
+            if !known(name) {
+                let nearest = MOVES
+                    .iter()
+                    .map(|(m, _)| *m)
+                    .chain(rules.clone())
+                    .map(|m| (edit_distance(name, m), m))
+                    .filter(|(k, m)| *k <= 2.max(m.len() / 4))
+                    .min()
+                    .map(|(_, m)| m.to_string());
+                return Err((name.clone(), *span, nearest));
+            }
+        }
+    }
+    Ok(())
+}
+
+/// Levenshtein distance between two short names.
+fn edit_distance(a: &str, b: &str) -> usize {
+    let b: Vec<char> = b.chars().collect();
+    let mut row: Vec<usize> = (0..=b.len()).collect();
+    for (i, ca) in a.chars().enumerate() {
+        let mut prev = row[0];
+        row[0] = i + 1;
+        for (j, cb) in b.iter().enumerate() {
+            let next = (prev + usize::from(ca != *cb))
+                .min(row[j] + 1)
+                .min(row[j + 1] + 1);
+            prev = row[j + 1];
+            row[j + 1] = next;
+        }
+    }
+    row[b.len()]
+}
+
 /// Checks every step against the one before it.
 pub fn check(
     engine: &Engine,
     start: &Term,
-    steps: &[(Term, usize, Vec<String>)],
+    steps: &[(Term, usize, Vec<(String, crate::syntax::ast::Span)>)],
 ) -> Result<Vec<StepReport>> {
     let mut out = Vec::new();
     let mut previous = start;
@@ -62,7 +142,7 @@ pub fn check(
         out.push(StepReport {
             expr: step.clone(),
             line: *line,
-            claimed: claimed.clone(),
+            claimed: claimed.iter().map(|(n, _)| n.clone()).collect(),
             verdict,
             numeric: None,
         });

@@ -316,11 +316,23 @@ impl<'a> Reporter<'a> {
             let (status, detail) = match &step.verdict {
                 StepVerdict::Proved { rules } => {
                     ok += 1;
-                    let by = if rules.is_empty() {
+                    let mut by = if rules.is_empty() {
                         "normalisation".to_string()
                     } else {
                         rules.join(", ")
                     };
+                    // A cited rule that did not fire: the step holds
+                    // without it, which may not be what the author meant.
+                    let unused: Vec<&str> = step
+                        .claimed
+                        .iter()
+                        .map(String::as_str)
+                        .filter(|c| !crate::derive::MOVES.iter().any(|(m, _)| m == c))
+                        .filter(|c| !rules.iter().any(|r| r == c))
+                        .collect();
+                    if !unused.is_empty() {
+                        by = format!("{by}; cited but not used: {}", unused.join(", "));
+                    }
                     let _ = writeln!(
                         self.out,
                         "  step {} (line {}): proved by {by}{claimed}",

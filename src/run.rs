@@ -314,6 +314,7 @@ pub fn run_source(
 ) -> Result<Outcome> {
     let program = lower::lower(source, &syntax::parse_file(source)?)?;
     let book = load_rules(&program, base, opts)?;
+    check_citations(source, &program, &book)?;
     let engine = Engine::new(program.ctx.clone(), Arc::new(book), opts.limits)?;
     let mut reporter = if opts.json {
         Reporter::json(&program.ctx)
@@ -537,6 +538,38 @@ fn load_rules(program: &Program, base: &Path, opts: &Options) -> Result<RuleBook
         book.load(&source)?;
     }
     Ok(book)
+}
+
+/// The names after `by` in every derivation are rules or known moves; a
+/// misspelt one is an input error before anything runs.
+fn check_citations(
+    source: &Arc<Source>,
+    program: &lower::Program,
+    book: &crate::rules::RuleBook,
+) -> Result<()> {
+    for item in &program.items {
+        let ItemKind::Derivation { steps, .. } = &item.kind else {
+            continue;
+        };
+        let rules = book.rules.iter().map(|r| r.name.as_str());
+        if let Err((name, span, nearest)) = crate::derive::check_citations(rules, steps) {
+            let moves: Vec<&str> = crate::derive::MOVES.iter().map(|(m, _)| *m).collect();
+            let mut e = Error::new(
+                ErrorKind::Name,
+                format!("`{name}` is neither a rule nor a move"),
+            )
+            .with_span(source, span)
+            .with_label("cited here");
+            if let Some(n) = nearest {
+                e = e.with_note(format!("did you mean `{n}`?"));
+            }
+            return Err(e.with_note(format!(
+                "after `by` come rule names (e.g. `ward-divergence`) or moves: {}",
+                moves.join(", ")
+            )));
+        }
+    }
+    Ok(())
 }
 
 /// Errors from later stages carry no span; point them at the statement.

@@ -213,6 +213,39 @@ fn derivation_steps_are_reported_one_by_one_in_json() {
     assert_eq!(doc["not_proved"].as_u64(), Some(4));
 }
 
+/// Names after `by`: a rule that did not fire in a proved step is pointed
+/// out; a name that is neither a rule nor a move stops the run (exit 2)
+/// with the nearest name.
+#[test]
+fn cited_rules_are_checked_against_what_fired() {
+    let saved = std::fs::read_to_string("examples/wall-derivation.ward").expect("example");
+    let cited = scratch(
+        "cited.ward",
+        &saved.replacen("by leibniz", "by ward-trace", 1),
+    );
+    let (code, stdout, stderr) = wardsmith(&["check", cited.to_str().expect("utf-8 path")]);
+    assert_eq!(code, 0, "{stderr}");
+    let step = stdout
+        .lines()
+        .find(|l| l.contains("step 1 "))
+        .expect("step 1");
+    assert!(step.contains("cited but not used: ward-trace"), "{stdout}");
+    assert!(
+        !stdout.contains("not used: ward-divergence-halfspace"),
+        "{stdout}"
+    );
+
+    let typo = scratch("typo.ward", &saved.replacen("by sift", "by sfit", 1));
+    let (code, stdout, stderr) = wardsmith(&["check", typo.to_str().expect("utf-8 path")]);
+    assert_eq!(code, 2, "{stdout}");
+    assert!(
+        stderr.contains("`sfit` is neither a rule nor a move"),
+        "{stderr}"
+    );
+    assert!(stderr.contains("did you mean `sift`?"), "{stderr}");
+    assert!(stdout.is_empty(), "{stdout}");
+}
+
 /// Changing a convention in a copy of a shipped rule set (here the sign of
 /// the displacement term) and rerunning the saved examples against it fails
 /// exactly the files whose proofs used that rule, and in the derivation

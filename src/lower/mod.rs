@@ -95,7 +95,7 @@ pub enum ItemKind {
     Derivation {
         name: String,
         start: Term,
-        steps: Vec<(Term, usize, Vec<String>)>,
+        steps: Vec<(Term, usize, Vec<(String, Span)>)>,
         /// Free indices shared by every step, for numeric checks.
         free: Vec<String>,
     },
@@ -354,7 +354,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                     lowered.push((
                         lowerer.expr(step)?,
                         source.line_col(step.span.start).0,
-                        why.iter().map(|w| w.text.clone()).collect(),
+                        why.iter().map(|w| (w.text.clone(), w.span)).collect(),
                     ));
                 }
                 items.push(Item {
