@@ -6,6 +6,7 @@
 
 use crate::diagnostic::Result;
 use crate::engine::{Engine, Verdict};
+use crate::lower::Step;
 use crate::normal::normalize;
 use crate::term::{Point, Term};
 
@@ -78,11 +79,11 @@ pub const MOVES: &[(&str, &str)] = &[
 /// unknown one is an error at its span, with the nearest known name.
 pub fn check_citations<'a>(
     rules: impl Iterator<Item = &'a str> + Clone,
-    steps: &[(Term, usize, Vec<(String, crate::syntax::ast::Span)>)],
+    steps: &[Step],
 ) -> std::result::Result<(), (String, crate::syntax::ast::Span, Option<String>)> {
     let known = |n: &str| MOVES.iter().any(|(m, _)| *m == n) || rules.clone().any(|r| r == n);
-    for (_, _, names) in steps {
-        for (name, span) in names {
+    for step in steps {
+        for (name, span) in &step.cited {
             if !known(name) {
                 let nearest = MOVES
                     .iter()
@@ -118,14 +119,15 @@ fn edit_distance(a: &str, b: &str) -> usize {
 }
 
 /// Checks every step against the one before it.
-pub fn check(
-    engine: &Engine,
-    start: &Term,
-    steps: &[(Term, usize, Vec<(String, crate::syntax::ast::Span)>)],
-) -> Result<Vec<StepReport>> {
+pub fn check(engine: &Engine, start: &Term, steps: &[Step]) -> Result<Vec<StepReport>> {
     let mut out = Vec::new();
     let mut previous = start;
-    for (step, line, claimed) in steps {
+    for Step {
+        expr: step,
+        line,
+        cited: claimed,
+    } in steps
+    {
         let verdict = match engine.check(previous, step)? {
             Verdict::Proved(s) => StepVerdict::Proved {
                 rules: s.applied.keys().cloned().collect(),

@@ -402,7 +402,7 @@ pub fn run_source(
                     let s = numeric_session(&mut session, &program, &engine, &mut reporter)
                         .map_err(at_item)?;
                     let mut before = start;
-                    for (r, (after, _, _)) in report.iter_mut().zip(steps) {
+                    for (r, after) in report.iter_mut().zip(steps.iter().map(|s| &s.expr)) {
                         if !matches!(r.verdict, crate::derive::StepVerdict::Proved { .. }) {
                             numeric_step(s, before, after, free, r);
                         }

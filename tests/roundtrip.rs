@@ -78,7 +78,7 @@ fn check_file(path: &str) {
             ItemKind::Evaluate { expr, .. } => vec![expr],
             ItemKind::Flux { body, rhs, .. } => vec![body, rhs],
             ItemKind::Derivation { start, steps, .. } => std::iter::once(start)
-                .chain(steps.iter().map(|(t, _, _)| t))
+                .chain(steps.iter().map(|s| &s.expr))
                 .collect(),
             ItemKind::Classify { .. } => vec![],
         };

@@ -49,6 +49,15 @@ pub struct Item {
     pub line: usize,
 }
 
+/// One step of a derivation: the expression, its line, and the names after
+/// `by` with their spans.
+#[derive(Clone, Debug)]
+pub struct Step {
+    pub expr: Term,
+    pub line: usize,
+    pub cited: Vec<(String, Span)>,
+}
+
 #[derive(Debug)]
 pub enum ItemKind {
     /// `simplify E [expect R]`; `expect_span` is where R is written, for
@@ -95,7 +104,7 @@ pub enum ItemKind {
     Derivation {
         name: String,
         start: Term,
-        steps: Vec<(Term, usize, Vec<(String, Span)>)>,
+        steps: Vec<Step>,
         /// Free indices shared by every step, for numeric checks.
         free: Vec<String>,
     },
@@ -351,11 +360,11 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         step,
                         ("the starting expression", "this step"),
                     )?;
-                    lowered.push((
-                        lowerer.expr(step)?,
-                        source.line_col(step.span.start).0,
-                        why.iter().map(|w| (w.text.clone(), w.span)).collect(),
-                    ));
+                    lowered.push(Step {
+                        expr: lowerer.expr(step)?,
+                        line: source.line_col(step.span.start).0,
+                        cited: why.iter().map(|w| (w.text.clone(), w.span)).collect(),
+                    });
                 }
                 items.push(Item {
                     kind: ItemKind::Derivation {
