@@ -97,7 +97,8 @@ pub struct Reporter<'a> {
     /// JSON objects, one per statement, when the output is JSON.
     json: Option<Vec<String>>,
     latex: Printer<'a>,
-    counts: (usize, usize),
+    /// (proved, confirmed numerically, not proved).
+    counts: (usize, usize, usize),
     printer: Printer<'a>,
     out: String,
 }
@@ -107,7 +108,7 @@ impl<'a> Reporter<'a> {
         Reporter {
             json: None,
             latex: Printer::new(ctx, Style::Latex),
-            counts: (0, 0),
+            counts: (0, 0, 0),
             printer: Printer::new(ctx, style),
             out: String::new(),
         }
@@ -125,10 +126,11 @@ impl<'a> Reporter<'a> {
         match self.json {
             None => self.out,
             Some(entries) => format!(
-                "{{\"items\": [\n{}\n], \"proved\": {}, \"not_proved\": {}}}\n",
+                "{{\"items\": [\n{}\n], \"proved\": {}, \"confirmed\": {}, \"not_proved\": {}}}\n",
                 entries.join(",\n"),
                 self.counts.0,
-                self.counts.1
+                self.counts.1,
+                self.counts.2
             ),
         }
     }
@@ -295,17 +297,18 @@ impl<'a> Reporter<'a> {
         }
     }
 
-    /// A derivation step by step; returns (steps proved, steps not).
+    /// A derivation step by step; returns the steps proved, confirmed
+    /// numerically, and neither.
     pub fn derivation(
         &mut self,
         line: usize,
         name: &str,
         start: &Term,
         steps: &[crate::derive::StepReport],
-    ) -> (usize, usize) {
+    ) -> (usize, usize, usize) {
         use crate::derive::StepVerdict;
         let _ = writeln!(self.out, "line {line}: derivation {name}");
-        let (mut ok, mut bad) = (0, 0);
+        let (mut ok, mut confirmed, mut bad) = (0, 0, 0);
         let mut objects = Vec::new();
         for (k, step) in steps.iter().enumerate() {
             let claimed = if step.claimed.is_empty() {
@@ -368,7 +371,7 @@ impl<'a> Reporter<'a> {
                     (status, why.clone())
                 }
                 StepVerdict::Confirmed { samples } => {
-                    ok += 1;
+                    confirmed += 1;
                     let by = format!("numerically on {samples} configuration(s) of the model");
                     let _ = writeln!(
                         self.out,
@@ -390,7 +393,12 @@ impl<'a> Reporter<'a> {
                 js(&detail)
             ));
         }
-        let _ = writeln!(self.out, "  {ok} of {} steps hold", steps.len());
+        let _ = writeln!(
+            self.out,
+            "  {} of {} steps hold",
+            ok + confirmed,
+            steps.len()
+        );
         if self.printer.style == Style::Latex {
             // The chain itself, ready to paste into a paper.
             let _ = writeln!(
@@ -428,7 +436,7 @@ impl<'a> Reporter<'a> {
             ("steps", format!("[{}]", objects.join(", "))),
         ];
         self.entry(&fields);
-        (ok, bad)
+        (ok, confirmed, bad)
     }
 
     /// Which sample the following numeric lines are for, and its points.
@@ -631,9 +639,16 @@ impl<'a> Reporter<'a> {
     }
 
     /// The closing count of a check.
-    pub fn summary(&mut self, proved: usize, failed: usize) {
-        self.counts = (proved, failed);
-        let _ = writeln!(self.out, "{proved} proved, {failed} not proved");
+    pub fn summary(&mut self, proved: usize, confirmed: usize, failed: usize) {
+        self.counts = (proved, confirmed, failed);
+        if confirmed == 0 {
+            let _ = writeln!(self.out, "{proved} proved, {failed} not proved");
+        } else {
+            let _ = writeln!(
+                self.out,
+                "{proved} proved, {confirmed} confirmed numerically, {failed} not proved"
+            );
+        }
     }
 }
 

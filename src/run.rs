@@ -323,7 +323,7 @@ pub fn run_source(
     };
     // Built on the first numeric statement, so files without one need no model.
     let mut session: Option<Session> = None;
-    let (mut proved, mut failed) = (0, 0);
+    let (mut proved, mut confirmed, mut failed) = (0, 0, 0);
     let mut edits = Vec::new();
     for item in &program.items {
         let text = collapse(&source.text[item.span.start..item.span.end]);
@@ -409,9 +409,10 @@ pub fn run_source(
                         before = after;
                     }
                 }
-                let (ok, bad) = reporter.derivation(item.line, name, start, &report);
+                let (ok, numerically, bad) = reporter.derivation(item.line, name, start, &report);
                 if mode == Mode::Check {
                     proved += ok;
+                    confirmed += numerically;
                     failed += bad;
                 }
             }
@@ -485,7 +486,7 @@ pub fn run_source(
                     match numeric_item(s, &item.kind, item.line, &text, &mut reporter)
                         .map_err(at_item)?
                     {
-                        Some(true) if mode == Mode::Check => proved += 1,
+                        Some(true) if mode == Mode::Check => confirmed += 1,
                         Some(false) if mode == Mode::Check => failed += 1,
                         _ => {}
                     }
@@ -505,7 +506,7 @@ pub fn run_source(
         }
     }
     if mode == Mode::Check {
-        reporter.summary(proved, failed);
+        reporter.summary(proved, confirmed, failed);
     }
     Ok(Outcome {
         report: reporter.finish(),

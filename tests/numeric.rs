@@ -163,7 +163,9 @@ fn seeded_samples_are_reported_and_reproducible() {
         );
     }
     assert!(
-        first.report.ends_with("3 proved, 0 not proved\n"),
+        first
+            .report
+            .ends_with("0 proved, 3 confirmed numerically, 0 not proved\n"),
         "{}",
         first.report
     );
