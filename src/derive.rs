@@ -8,6 +8,7 @@ use crate::diagnostic::Result;
 use crate::engine::{Engine, Verdict};
 use crate::lower::Step;
 use crate::normal::normalize;
+use crate::term::print::{Printer, Style};
 use crate::term::{Point, Term};
 
 /// What checking one step found.
@@ -119,7 +120,12 @@ fn edit_distance(a: &str, b: &str) -> usize {
 }
 
 /// Checks every step against the one before it.
-pub fn check(engine: &Engine, start: &Term, steps: &[Step]) -> Result<Vec<StepReport>> {
+pub fn check(
+    engine: &Engine,
+    start: &Term,
+    steps: &[Step],
+    style: Style,
+) -> Result<Vec<StepReport>> {
     let mut out = Vec::new();
     let mut previous = start;
     for Step {
@@ -137,7 +143,7 @@ pub fn check(engine: &Engine, start: &Term, steps: &[Step]) -> Result<Vec<StepRe
                 reason: s.stop.describe(),
             },
             Verdict::NotProved(s) => StepVerdict::Refuted {
-                diagnosis: diagnose(engine, previous, step, &s.term)?,
+                diagnosis: diagnose(engine, previous, step, &s.term, style)?,
                 remainder: s.term,
             },
         };
@@ -154,7 +160,14 @@ pub fn check(engine: &Engine, start: &Term, steps: &[Step]) -> Result<Vec<StepRe
 }
 
 /// Names the slip that turns `before` into `after`, if it is a common one.
-fn diagnose(engine: &Engine, before: &Term, after: &Term, remainder: &Term) -> Result<String> {
+fn diagnose(
+    engine: &Engine,
+    before: &Term,
+    after: &Term,
+    remainder: &Term,
+    style: Style,
+) -> Result<String> {
+    let show = |t: &Term| shown(engine, style, t);
     // A flipped sign: before = -after.
     if matches!(
         engine.check(before, &after.clone().negated())?,
@@ -179,11 +192,9 @@ fn diagnose(engine: &Engine, before: &Term, after: &Term, remainder: &Term) -> R
                 )?;
                 let scaled = Term::Mul(vec![ratio.clone(), after.clone()]);
                 if matches!(engine.check(before, &scaled)?, Verdict::Proved(_)) {
-                    let printer =
-                        crate::term::print::Printer::new(engine.ctx.as_ref(), Default::default());
                     return Ok(format!(
                         "off by a constant factor: the step before is {} times this one",
-                        printer.term(&ratio)
+                        show(&ratio)
                     ));
                 }
             }
@@ -210,7 +221,7 @@ fn diagnose(engine: &Engine, before: &Term, after: &Term, remainder: &Term) -> R
             return Ok(format!("the contact term at `{}` is {what}", first.name));
         }
     }
-    if let Some(slip) = term_slip(engine, &p, &q, remainder)? {
+    if let Some(slip) = term_slip(engine, &p, &q, remainder, style)? {
         return Ok(slip);
     }
     Ok("the two steps differ by the remainder shown".into())
@@ -218,7 +229,14 @@ fn diagnose(engine: &Engine, before: &Term, after: &Term, remainder: &Term) -> R
 
 /// When the steps differ in one term only: that term is missing, extra, or
 /// carries a different coefficient (both printed exactly).
-fn term_slip(engine: &Engine, p: &Term, q: &Term, remainder: &Term) -> Result<Option<String>> {
+fn term_slip(
+    engine: &Engine,
+    p: &Term,
+    q: &Term,
+    remainder: &Term,
+    style: Style,
+) -> Result<Option<String>> {
+    let show = |t: &Term| shown(engine, style, t);
     let (Some(r), Some(p_terms), Some(q_terms)) = (terms(remainder), terms(p), terms(q)) else {
         return Ok(None);
     };
@@ -227,11 +245,10 @@ fn term_slip(engine: &Engine, p: &Term, q: &Term, remainder: &Term) -> Result<Op
     };
     let (_, factors) = coefficient(only);
     let find = |ts: &[Term]| ts.iter().map(coefficient).find(|(_, f)| *f == factors);
-    let printer = crate::term::print::Printer::new(engine.ctx.as_ref(), Default::default());
     let shown = match factors.as_slice() {
         [] => "the constant term".to_string(),
-        [f] => format!("the term with {}", printer.term(f)),
-        fs => format!("the term with {}", printer.term(&Term::Mul(fs.to_vec()))),
+        [f] => format!("the term with {}", show(f)),
+        fs => format!("the term with {}", show(&Term::Mul(fs.to_vec()))),
     };
     Ok(match (find(&p_terms), find(&q_terms)) {
         (Some(_), None) => Some(format!("{shown} is missing from this step")),
@@ -241,12 +258,22 @@ fn term_slip(engine: &Engine, p: &Term, q: &Term, remainder: &Term) -> Result<Op
             let cq = normalize(engine.ctx.as_ref(), &cq)?;
             Some(format!(
                 "{shown} has a wrong coefficient: {} in the step before, {} in this step",
-                printer.term(&cp),
-                printer.term(&cq)
+                show(&cp),
+                show(&cq)
             ))
         }
         (None, None) => None,
     })
+}
+
+/// A term inside a sentence of the report, in the report's style (LaTeX
+/// between dollars).
+fn shown(engine: &Engine, style: Style, t: &Term) -> String {
+    let text = Printer::new(engine.ctx.as_ref(), style).term(t);
+    match style {
+        Style::Latex => format!("${text}$"),
+        _ => text,
+    }
 }
 
 /// The summands of a normal form (none for 0).

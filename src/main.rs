@@ -61,8 +61,12 @@ struct FileArgs {
     #[arg(long = "rules", value_name = "FILE")]
     rules: Vec<PathBuf>,
     /// Print with ASCII names (del, delta, <>, par(x)) instead of ∂, δ, ⟨⟩, x∥.
+    /// The default on a terminal whose locale is not UTF-8.
     #[arg(long, conflicts_with = "latex")]
     ascii: bool,
+    /// Print with ∂, δ, ⟨⟩, x∥ whatever the locale says.
+    #[arg(long, conflicts_with_all = ["ascii", "latex", "json"])]
+    unicode: bool,
     /// Print results as LaTeX, for pasting into a paper.
     #[arg(long, conflicts_with = "json")]
     latex: bool,
@@ -86,10 +90,15 @@ fn main() -> ExitCode {
     };
     let opts = Options {
         rules: args.rules,
-        style: if args.ascii {
-            Style::Ascii
-        } else if args.latex {
+        style: if args.latex {
             Style::Latex
+        } else if args.ascii
+            || !(args.unicode
+                || wardsmith::charset::unicode_output(std::io::stdout().is_terminal(), |k| {
+                    std::env::var(k).ok()
+                }))
+        {
+            Style::Ascii
         } else {
             Style::Unicode
         },

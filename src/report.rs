@@ -124,6 +124,7 @@ impl<'a> Reporter<'a> {
 
     pub fn finish(self) -> String {
         match self.json {
+            None if self.printer.style == Style::Ascii => crate::charset::to_ascii(&self.out),
             None => self.out,
             Some(entries) => format!(
                 "{{\"items\": [\n{}\n], \"proved\": {}, \"confirmed\": {}, \"not_proved\": {}}}\n",

@@ -391,7 +391,8 @@ pub fn run_source(
                 },
                 _,
             ) => {
-                let mut report = crate::derive::check(&engine, start, steps).map_err(at_item)?;
+                let mut report =
+                    crate::derive::check(&engine, start, steps, opts.style).map_err(at_item)?;
                 // Steps the rules did not prove are evaluated on the file's
                 // model, when it has one.
                 if program.numeric.model.is_some()
