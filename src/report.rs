@@ -77,6 +77,8 @@ fn number(v: &Value) -> String {
 }
 
 /// Longest statement text echoed in a verdict line.
+/// Terms of a derivation step's remainder printed before the rest is counted.
+const REMAINDER_TERMS: usize = 12;
 const INPUT_WIDTH: usize = 110;
 
 /// `text` cut to `width` characters, with `…` where it was cut.
@@ -262,6 +264,20 @@ impl<'a> Reporter<'a> {
         self.printer.terms(t).join(&format!("\n{indent}"))
     }
 
+    /// Like `layout`, with at most `cap` terms and a count of the rest.
+    fn layout_capped(&self, t: &crate::term::Term, indent: &str, cap: usize) -> String {
+        let terms = self.printer.terms(t);
+        if terms.len() <= cap {
+            return self.layout(t, indent);
+        }
+        format!(
+            "{}\n{indent}… and {} more terms ({} in all)",
+            terms[..cap].join(&format!("\n{indent}")),
+            terms.len() - cap,
+            terms.len()
+        )
+    }
+
     /// `line N: scan` with its table (every row up to 21, else 21 evenly
     /// spaced rows) and where the files went.
     pub fn scanned(&mut self, line: usize, input: &str, scan: &Scan, written: Option<&str>) {
@@ -367,7 +383,7 @@ impl<'a> Reporter<'a> {
                     let _ = writeln!(
                         self.out,
                         "    step before minus this step: {}",
-                        self.layout(remainder, "      ")
+                        self.layout_capped(remainder, "      ", REMAINDER_TERMS)
                     );
                     (status, why.clone())
                 }

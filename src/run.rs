@@ -98,10 +98,12 @@ fn numeric_item(
     })
 }
 
-/// Evaluates two consecutive derivation steps on every sampled
-/// configuration: agreement everywhere confirms the step; otherwise the
-/// first configuration where they differ (or why they cannot be evaluated)
-/// is noted.
+/// Evaluates a step the rules did not prove against the one before it at
+/// every sampled configuration: confirmed when they agree at all of them;
+/// otherwise the first configuration where they differ (the points the
+/// steps mention, both values), and, when the two differ by the same
+/// factor everywhere, that factor (a fraction when one with a small
+/// denominator matches to 1e-9).
 fn numeric_step(
     s: &Session,
     before: &crate::term::Term,
@@ -110,6 +112,8 @@ fn numeric_step(
     step: &mut crate::derive::StepReport,
 ) {
     let samples = s.sample_count();
+    let mut first_difference: Option<String> = None;
+    let mut ratios: Vec<f64> = Vec::new();
     for k in 0..samples {
         let points = s.select(k);
         let (left, right) = match (s.evaluate(before, free), s.evaluate(after, free)) {
@@ -120,30 +124,94 @@ fn numeric_step(
                 return;
             }
         };
-        if !crate::report::agree(&left, &right) {
-            let at = points
-                .iter()
-                .map(|(p, c)| {
-                    let c: Vec<String> = c.iter().map(|v| format!("{v:.4}")).collect();
-                    format!("{p} = ({})", c.join(", "))
-                })
-                .collect::<Vec<_>>()
-                .join(", ");
-            let pair = left
-                .components
-                .iter()
-                .zip(&right.components)
-                .find(|((_, l), (_, r))| l.value != r.value)
-                .map(|((_, l), (_, r))| (l.value, r.value));
-            if let Some((l, r)) = pair {
-                step.numeric = Some(format!(
-                    "they differ at {at}: {l:.9e} in the step before, {r:.9e} in this step"
-                ));
+        for ((_, l), (_, r)) in left.components.iter().zip(&right.components) {
+            if l.value != 0.0 && r.value != 0.0 {
+                ratios.push(l.value / r.value);
             }
-            return;
+        }
+        if crate::report::agree(&left, &right) || first_difference.is_some() {
+            continue;
+        }
+        let at = points
+            .iter()
+            .filter(|(p, _)| {
+                let point = crate::term::Point::named(0, p.as_str());
+                before.mentions_point(&point) || after.mentions_point(&point)
+            })
+            .map(|(p, c)| {
+                let c: Vec<String> = c.iter().map(|v| format!("{v:.4}")).collect();
+                format!("{p} = ({})", c.join(", "))
+            })
+            .collect::<Vec<_>>()
+            .join(", ");
+        let pair = left
+            .components
+            .iter()
+            .zip(&right.components)
+            .find(|((_, l), (_, r))| l.value != r.value)
+            .map(|((_, l), (_, r))| (l.value, r.value));
+        if let Some((l, r)) = pair {
+            first_difference = Some(format!(
+                "they differ at {at}: {l:.9e} in the step before, {r:.9e} in this step"
+            ));
         }
     }
-    step.verdict = crate::derive::StepVerdict::Confirmed { samples };
+    match first_difference {
+        None => step.verdict = crate::derive::StepVerdict::Confirmed { samples },
+        Some(mut note) => {
+            if let Some(r) = common_ratio(&ratios) {
+                let exact = small_fraction(r)
+                    .map(|(p, q)| {
+                        if q == 1 {
+                            format!(" = {p}")
+                        } else {
+                            format!(" = {p}/{q}")
+                        }
+                    })
+                    .unwrap_or_default();
+                note.push_str(&format!(
+                    "; at every configuration the step before is {r:.9}{exact} times this one"
+                ));
+            }
+            step.numeric = Some(note);
+        }
+    }
+}
+
+/// The one ratio all values share (to 1e-9, relative), if there are at
+/// least two values and it is not 1.
+fn common_ratio(ratios: &[f64]) -> Option<f64> {
+    let first = *ratios.first()?;
+    let same = ratios
+        .iter()
+        .all(|r| (r - first).abs() <= 1e-9 * first.abs().max(1.0));
+    (ratios.len() >= 2 && same && (first - 1.0).abs() > 1e-9).then_some(first)
+}
+
+/// p/q with q ≤ 1000 within 1e-9 (relative) of x, by continued fractions.
+fn small_fraction(x: f64) -> Option<(i64, i64)> {
+    if !x.is_finite() || x.abs() > 1e6 {
+        return None;
+    }
+    let (mut p0, mut q0, mut p1, mut q1) = (0i64, 1i64, 1i64, 0i64);
+    let mut rest = x;
+    for _ in 0..20 {
+        let a = rest.floor();
+        let (p2, q2) = (a as i64 * p1 + p0, a as i64 * q1 + q0);
+        if q2 > 1000 {
+            return None;
+        }
+        if ((p2 as f64 / q2 as f64) - x).abs() <= 1e-9 * x.abs().max(1e-300) {
+            return Some((p2, q2));
+        }
+        (p0, q0, p1, q1) = (p1, q1, p2, q2);
+        let frac = rest - a;
+        if frac.abs() < 1e-15 {
+            return None;
+        }
+        rest = 1.0 / frac;
+    }
+    None
 }
 
 /// Writes `stem.csv` and `stem.svg` beside the file, each through a

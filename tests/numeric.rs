@@ -285,6 +285,12 @@ fn the_saved_coupling_derivation_fixes_the_coefficient() {
         vec![(1, true), (2, true), (3, false)],
         "{report}"
     );
+    // The numeric check names the factor: (d - 1)/d = 2/3 in d = 3.
+    assert!(
+        report
+            .contains("at every configuration the step before is 0.666666667 = 2/3 times this one"),
+        "{report}"
+    );
 }
 
 /// C_D = 2/S_d² for the free scalar with either wall (PHYSICS.md §3–4,
@@ -318,6 +324,10 @@ fn the_saved_displacement_norms_catch_slips_in_the_wick_step() {
         assert_ne!(wrong, saved, "{file}");
         let (report, code) = check(&wrong);
         assert_eq!(code, 1, "{report}");
+        if file.ends_with("dirichlet.ward") {
+            // 1/4 for 1/2: the true step is twice the slipped one.
+            assert!(report.contains("= 2 times this one"), "{report}");
+        }
         // Step 1 fails; step 2 compares against the wrong step 1, so it fails too.
         assert_eq!(steps(&report)[0], (1, false), "{file}: {report}");
         assert_eq!(steps(&report)[2], (3, true), "{file}: {report}");
