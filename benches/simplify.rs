@@ -127,3 +127,19 @@ fn check_wall_derivation(bencher: divan::Bencher) {
         out
     });
 }
+
+/// The same with egg's explanations recorded in every e-graph (the engine
+/// does not need them: the rules that fired come from the runner's
+/// counts); the difference is the cost explanations would add.
+#[divan::bench]
+fn check_wall_derivation_with_explanations(bencher: divan::Bencher) {
+    let text = include_str!("../examples/wall-derivation.ward");
+    let source = Source::new("wall-derivation.ward", text);
+    let mut opts = Options::default();
+    opts.limits.explanations = true;
+    bencher.bench(|| {
+        let out = run_source(&source, Path::new("."), Mode::Check, &opts).expect("valid");
+        assert_eq!(out.code, 0);
+        out
+    });
+}

@@ -21,60 +21,97 @@ pub type Poly = BTreeMap<Atoms, BigRational>;
 /// could otherwise go on).
 const STEPS_PER_TERM: usize = 4;
 
-/// Divides out sum atoms carried to negative whole powers, as far as the
-/// division is exact: the monomials with `P^-e` are divided by `P` and
-/// come back with `P^(1-e)`.
+/// Cancels sum atoms against their inverse powers, as far as the division
+/// is exact: over the common denominator P^e of every monomial carrying
+/// the atom P (to whole powers), the numerator is divided by P as often as
+/// it goes, up to e times. The common-denominator form is kept when a
+/// division went or it has fewer terms; otherwise nothing changes.
 pub fn cancel_sums(mut poly: Poly) -> Poly {
-    let mut tried: Vec<(Term, BigRational)> = Vec::new();
-    // Each success removes one power of one atom; each failure is tried
-    // once. The bound guards against surprises.
+    let mut tried: Vec<Term> = Vec::new();
+    // Each success lowers the power of one atom; each failure is tried
+    // once per success. The bound guards against surprises.
     for _ in 0..64 {
         let candidate = poly.keys().find_map(|atoms| {
             atoms.iter().find_map(|(key, exp)| {
                 let fits = matches!(key, Term::Add(_) | Term::Mul(_))
                     && exp.is_integer()
                     && exp < &BigRational::zero()
-                    && !tried.iter().any(|(k, e)| k == key && e == exp);
-                fits.then(|| (key.clone(), exp.clone()))
+                    && !tried.contains(key);
+                fits.then(|| key.clone())
             })
         });
-        let Some((key, exp)) = candidate else {
+        let Some(key) = candidate else {
             return poly;
         };
-        tried.push((key.clone(), exp.clone()));
-        let Some(divisor) = scalar_poly(&key) else {
-            continue;
-        };
-        let (part, rest): (Poly, Poly) = poly
-            .clone()
-            .into_iter()
-            .partition(|(atoms, _)| atoms.get(&key) == Some(&exp));
-        let dividend: Poly = part
-            .into_iter()
-            .map(|(mut atoms, c)| {
-                atoms.remove(&key);
-                (atoms, c)
-            })
-            .collect();
-        let Some(quotient) = divide(&dividend, &divisor) else {
-            continue;
-        };
-        let left = &exp + BigRational::one();
-        poly = rest;
-        for (mut atoms, c) in quotient {
-            if !left.is_zero() {
-                let slot = atoms.entry(key.clone()).or_insert_with(BigRational::zero);
-                *slot += &left;
-                if slot.is_zero() {
-                    atoms.remove(&key);
-                }
-            }
-            *poly.entry(atoms).or_insert_with(BigRational::zero) += c;
+        tried.push(key.clone());
+        if let Some(reduced) = cancel_one(&poly, &key) {
+            poly = reduced;
+            tried.clear();
         }
-        poly.retain(|_, c| !c.is_zero());
-        tried.clear();
     }
     poly
+}
+
+/// One atom P: the polynomial over the common power P^-e with the
+/// numerator divided by P as often as it goes; `None` when that cancels
+/// nothing, or when P appears to a fractional power.
+fn cancel_one(poly: &Poly, key: &Term) -> Option<Poly> {
+    let divisor = scalar_poly(key)?;
+    let exponent = |atoms: &Atoms| atoms.get(key).cloned().unwrap_or_else(BigRational::zero);
+    if poly.keys().any(|a| !exponent(a).is_integer()) {
+        return None;
+    }
+    let e = poly.keys().map(|a| -exponent(a)).max()?.to_integer();
+    let e: usize = e.try_into().ok().filter(|e| *e >= 1 && *e <= 8)?;
+    // Numerator: each monomial times P^(its exponent + e), P expanded.
+    let mut powers = vec![Poly::from([(Atoms::new(), BigRational::one())])];
+    let mut numerator = Poly::new();
+    for (atoms, c) in poly {
+        let k: usize = (exponent(atoms).to_integer() + num_bigint::BigInt::from(e))
+            .try_into()
+            .ok()?;
+        if k > 16 {
+            return None;
+        }
+        while powers.len() <= k {
+            let next = multiply(powers.last()?, &divisor);
+            powers.push(next);
+        }
+        let mut rest = atoms.clone();
+        rest.remove(key);
+        let term = Poly::from([(rest, c.clone())]);
+        for (m, v) in multiply(&term, &powers[k]) {
+            *numerator.entry(m).or_insert_with(BigRational::zero) += v;
+        }
+    }
+    numerator.retain(|_, c| !c.is_zero());
+    let mut divisions = 0;
+    while divisions < e {
+        match divide(&numerator, &divisor) {
+            Some(q) => {
+                numerator = q;
+                divisions += 1;
+            }
+            None => break,
+        }
+    }
+    // Over the common denominator only when something cancelled: a
+    // division, or fewer terms than before.
+    if divisions == 0 && numerator.len() >= poly.len() {
+        return None;
+    }
+    let left = BigRational::from_integer(num_bigint::BigInt::from(divisions as i64 - e as i64));
+    Some(
+        numerator
+            .into_iter()
+            .map(|(mut atoms, c)| {
+                if !left.is_zero() {
+                    atoms.insert(key.clone(), left.clone());
+                }
+                (atoms, c)
+            })
+            .collect(),
+    )
 }
 
 /// A scalar normal-form term back as a polynomial in its atoms.

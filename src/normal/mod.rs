@@ -266,6 +266,15 @@ fn power(ctx: &Context, b: &Term, e: &Term) -> Result<Vec<Mono>> {
     }
     // A non-integer or negative power of a sum: the sum, in normal form, is
     // a scalar atom carrying the exponent, so (A)^(3/2) (A)^(-1) = (A)^(1/2).
+    // Its content comes out first, (4 d - 4)^(-1) = (d - 1)^(-1)/4, so that
+    // multiples of one sum are one atom (kept whole when a negative content
+    // would need a fractional power).
+    if let Some((c, primitive)) = primitive_monos(&base) {
+        if q.is_integer() || c.is_positive() {
+            let content = Mono::scalar(c).scalar_power(q)?;
+            return Ok(vec![Mono::atom(primitive, q.clone()).mul(&content)]);
+        }
+    }
     Ok(vec![Mono::atom(collect(base), q.clone())])
 }
 
@@ -313,16 +322,21 @@ fn symbolic_power(ctx: &Context, m: &Mono, e: &Term) -> Result<Mono> {
 /// `t = c · R` with R primitive: whole coefficients whose greatest common
 /// divisor is 1, the first of them (in normal-form order) positive.
 fn primitive_part(ctx: &Context, t: &Term) -> Result<(BigRational, Term)> {
-    use num_integer::Integer;
     let monos = expand(ctx, t)?;
+    Ok(primitive_monos(&monos).unwrap_or_else(|| (BigRational::one(), t.clone())))
+}
+
+/// The same for a sum given as monomials; `None` for zero.
+fn primitive_monos(monos: &[Mono]) -> Option<(BigRational, Term)> {
+    use num_integer::Integer;
     let mut numerators = num_bigint::BigInt::zero();
     let mut denominators = num_bigint::BigInt::one();
-    for m in &monos {
+    for m in monos {
         numerators = numerators.gcd(m.coef.numer());
         denominators = denominators.lcm(m.coef.denom());
     }
     if numerators.is_zero() {
-        return Ok((BigRational::one(), t.clone()));
+        return None;
     }
     let mut c = BigRational::new(numerators, denominators);
     let scale = |c: &BigRational| {
@@ -343,7 +357,7 @@ fn primitive_part(ctx: &Context, t: &Term) -> Result<(BigRational, Term)> {
             primitive = scale(&c);
         }
     }
-    Ok((c, primitive))
+    Some((c, primitive))
 }
 
 /// Splits the constant part off a scalar: `Delta + 2` → (2, Delta), the
