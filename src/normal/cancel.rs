@@ -21,6 +21,12 @@ pub type Poly = BTreeMap<Atoms, BigRational>;
 /// could otherwise go on).
 const STEPS_PER_TERM: usize = 4;
 
+/// Largest sum divided out, in terms.
+const MAX_DIVISOR_TERMS: usize = 8;
+
+/// Largest coefficient polynomial tried, in terms.
+const MAX_DIVIDEND_TERMS: usize = 64;
+
 /// Cancels sum atoms against their inverse powers, as far as the division
 /// is exact: over the common denominator P^e of every monomial carrying
 /// the atom P (to whole powers), the numerator is divided by P as often as
@@ -57,6 +63,16 @@ pub fn cancel_sums(mut poly: Poly) -> Poly {
 /// nothing, or when P appears to a fractional power.
 fn cancel_one(poly: &Poly, key: &Term) -> Option<Poly> {
     let divisor = scalar_poly(key)?;
+    // Sums of parameters only ((d - 1), (Delta + 2), …): sums of
+    // coordinates and distances (image distances of a wall) are left as
+    // they are, where long division would be costly and rarely exact.
+    let parameters_only = divisor
+        .keys()
+        .flat_map(|atoms| atoms.keys())
+        .all(|a| matches!(a, Term::Sym(_)));
+    if !parameters_only || divisor.len() > MAX_DIVISOR_TERMS || poly.len() > MAX_DIVIDEND_TERMS {
+        return None;
+    }
     let exponent = |atoms: &Atoms| atoms.get(key).cloned().unwrap_or_else(BigRational::zero);
     if poly.keys().any(|a| !exponent(a).is_integer()) {
         return None;
@@ -183,19 +199,49 @@ fn times(a: &Atoms, b: &Atoms, sign: i32) -> Atoms {
 }
 
 /// Lexicographic monomial order: at the first atom (in atom order) whose
-/// exponents differ, the larger exponent is the larger monomial.
+/// exponents differ, the larger exponent is the larger monomial (a missing
+/// atom has exponent 0). Both maps are sorted, so one merged pass does.
 fn lex(a: &Atoms, b: &Atoms) -> Ordering {
-    let keys: std::collections::BTreeSet<&Term> = a.keys().chain(b.keys()).collect();
     let zero = BigRational::zero();
-    for k in keys {
-        let ea = a.get(k).unwrap_or(&zero);
-        let eb = b.get(k).unwrap_or(&zero);
+    let mut left = a.iter().peekable();
+    let mut right = b.iter().peekable();
+    loop {
+        let (ea, eb) = match (left.peek(), right.peek()) {
+            (None, None) => return Ordering::Equal,
+            (Some((ka, ea)), Some((kb, eb))) => match ka.cmp(kb) {
+                Ordering::Equal => {
+                    let pair = (*ea, *eb);
+                    left.next();
+                    right.next();
+                    pair
+                }
+                Ordering::Less => {
+                    let pair = (*ea, &zero);
+                    left.next();
+                    pair
+                }
+                Ordering::Greater => {
+                    let pair = (&zero, *eb);
+                    right.next();
+                    pair
+                }
+            },
+            (Some((_, ea)), None) => {
+                let pair = (*ea, &zero);
+                left.next();
+                pair
+            }
+            (None, Some((_, eb))) => {
+                let pair = (&zero, *eb);
+                right.next();
+                pair
+            }
+        };
         match ea.cmp(eb) {
             Ordering::Equal => continue,
             other => return other,
         }
     }
-    Ordering::Equal
 }
 
 fn leading(p: &Poly) -> Option<(&Atoms, &BigRational)> {
@@ -208,12 +254,19 @@ fn divide(dividend: &Poly, divisor: &Poly) -> Option<Poly> {
     if divisor.len() < 2 {
         return None;
     }
+    // In an exact division every leading monomial met stays at or above
+    // lowest(dividend) = lowest(quotient) · lowest(divisor); below it the
+    // remainder can no longer cancel.
+    let lowest = dividend.keys().min_by(|a, b| lex(a, b))?.clone();
     let mut rest = dividend.clone();
     let mut quotient = Poly::new();
     for _ in 0..STEPS_PER_TERM * (dividend.len() + 1) {
         let Some((atoms, c)) = leading(&rest) else {
             return Some(quotient);
         };
+        if lex(atoms, &lowest) == Ordering::Less {
+            return None;
+        }
         let t_atoms = times(atoms, lead_atoms, -1);
         let t_coef = c / lead_coef;
         let term = Poly::from([(t_atoms.clone(), t_coef.clone())]);
