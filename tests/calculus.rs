@@ -640,10 +640,27 @@ fn closed_form_derivatives_of_the_unknown_functions() {
 
 // ───────────────────────── 6. not vacuous ─────────────────────────
 
-/// The terms of a normal form.
+/// The terms of a normal form; a product whose coefficient is a sum counts
+/// each of its terms.
 fn summands(t: &Term) -> Vec<Term> {
     match t {
         Term::Add(ts) => ts.clone(),
+        Term::Mul(fs) => {
+            let Some(k) = fs.iter().position(|f| matches!(f, Term::Add(_))) else {
+                return vec![t.clone()];
+            };
+            let Term::Add(inner) = &fs[k] else {
+                return vec![t.clone()];
+            };
+            inner
+                .iter()
+                .map(|a| {
+                    let mut product = fs.clone();
+                    product[k] = a.clone();
+                    Term::Mul(product)
+                })
+                .collect()
+        }
         t => vec![t.clone()],
     }
 }

@@ -168,7 +168,7 @@ fn occurrences(factors: &[Term]) -> BTreeMap<String, usize> {
 }
 
 /// Named indices in the order they appear, anywhere inside a factor.
-fn visit_indices(f: &Term, visit: &mut impl FnMut(&Index)) {
+pub(super) fn visit_indices(f: &Term, visit: &mut impl FnMut(&Index)) {
     match f {
         Term::Kron(i, j) => {
             visit(i);

@@ -84,6 +84,98 @@ pub fn common_powers(ctx: &Context, mut monos: Vec<Mono>) -> Result<Vec<Mono>> {
     Ok(monos)
 }
 
+/// The other way round: p·p written as |p - q|² + 2 p·q - q·q in every
+/// monomial, for one distance |p - q| of the sum (`eliminate` is p or q).
+/// Normalisation keeps this form when it is shorter, so that
+/// (p·p - 2 p·q + q·q)/|p - q|² reads 1.
+pub fn dot_to_distance(monos: &[Mono], dist: &Term, eliminate: &Point) -> Option<Vec<Mono>> {
+    let Term::Dist(p, q) = dist else {
+        return None;
+    };
+    let other = if p.name == eliminate.name && p.par == eliminate.par {
+        q
+    } else {
+        p
+    };
+    let is_square_of = |m: &Mono, k: &str| {
+        let mut count = 0;
+        for f in &m.factors {
+            match f {
+                Term::Comp(x, Index::Named(i)) if i == k => {
+                    if x.name != eliminate.name || x.par != eliminate.par {
+                        return false;
+                    }
+                    count += 1;
+                }
+                f if mentions_index(f, k) => return false,
+                _ => {}
+            }
+        }
+        count == 2
+    };
+    let mut changed = false;
+    let mut out = Vec::with_capacity(monos.len());
+    for m in monos {
+        let summed = m.factors.iter().find_map(|f| match f {
+            Term::Comp(x, Index::Named(k))
+                if x.name == eliminate.name && x.par == eliminate.par && is_square_of(m, k) =>
+            {
+                Some(k.clone())
+            }
+            _ => None,
+        });
+        let Some(k) = summed else {
+            out.push(m.clone());
+            continue;
+        };
+        changed = true;
+        let rest: Vec<Term> = m
+            .factors
+            .iter()
+            .filter(|f| !matches!(f, Term::Comp(_, Index::Named(i)) if *i == k))
+            .cloned()
+            .collect();
+        let index = Index::Named(k.clone());
+        let mut squared = Mono {
+            coef: m.coef.clone(),
+            atoms: m.atoms.clone(),
+            factors: rest.clone(),
+        };
+        let slot = squared
+            .atoms
+            .entry(dist.clone())
+            .or_insert_with(BigRational::zero);
+        *slot += BigRational::from_integer(2.into());
+        if slot.is_zero() {
+            squared.atoms.remove(dist);
+        }
+        out.push(squared);
+        let mut cross = rest.clone();
+        cross.push(Term::Comp(eliminate.clone(), index.clone()));
+        cross.push(Term::Comp(other.clone(), index.clone()));
+        out.push(Mono {
+            coef: &m.coef * BigRational::from_integer(2.into()),
+            atoms: m.atoms.clone(),
+            factors: cross,
+        });
+        let mut far = rest;
+        far.push(Term::Comp(other.clone(), index.clone()));
+        far.push(Term::Comp(other.clone(), index));
+        out.push(Mono {
+            coef: -m.coef.clone(),
+            atoms: m.atoms.clone(),
+            factors: far,
+        });
+    }
+    changed.then_some(out)
+}
+
+fn mentions_index(t: &Term, k: &str) -> bool {
+    let mut found = false;
+    super::contract::visit_indices(t, &mut |i| found |= i.name() == Some(k));
+    found
+}
+
 /// |p - q|² = p_k p_k - 2 p_k q_k + q_k q_k.
 fn squared(p: &Point, q: &Point, k: &Index) -> Term {
     let dot = |a: &Point, b: &Point| {

@@ -42,12 +42,43 @@ pub fn normalize(ctx: &Context, t: &Term) -> Result<Term> {
     }
     // Over a common power of each distance, terms that cancel by the
     // algebra of distances do; keep that form when it is no longer.
-    let common = collect(canonical(ctx, distance::common_powers(ctx, monos)?));
-    Ok(if term_count(&common) <= term_count(&plain) {
-        common
+    let common_monos = merge(canonical(ctx, distance::common_powers(ctx, monos.clone())?));
+    let common = collect(common_monos.clone());
+    let (mut best, mut best_monos) = if term_count(&common) <= term_count(&plain) {
+        (common, common_monos.len())
     } else {
-        plain
-    })
+        (plain, monos.len())
+    };
+    // p·p - 2 p·q + q·q back into |p - q|², when that is shorter still.
+    let distances: std::collections::BTreeSet<Term> = monos
+        .iter()
+        .flat_map(|m| m.atoms.keys())
+        .filter(|a| matches!(a, Term::Dist(..)))
+        .cloned()
+        .collect();
+    for dist in &distances {
+        let Term::Dist(p, q) = dist else { continue };
+        for eliminate in [p, q] {
+            if let Some(folded) = distance::dot_to_distance(&monos, dist, eliminate) {
+                // Fewer monomials, not fewer printed terms: a sum can
+                // collect into one product with a long coefficient.
+                // Only a complete fold: no coordinate of p or q left with a
+                // summed index, so that normalising again keeps it.
+                let folded = merge(canonical(ctx, folded));
+                let dotted = folded.iter().any(|m| {
+                    m.factors.iter().any(|f| {
+                        matches!(f, Term::Comp(x, Index::Named(_))
+                            if x.name == p.name || x.name == q.name)
+                    })
+                });
+                if !dotted && folded.len() < best_monos {
+                    best_monos = folded.len();
+                    best = collect(folded);
+                }
+            }
+        }
+    }
+    Ok(best)
 }
 
 /// Contracts indices and renames summed indices canonically.
