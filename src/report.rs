@@ -403,11 +403,14 @@ impl<'a> Reporter<'a> {
                 let _ = writeln!(self.out, "    numerically: {note}");
             }
             objects.push(format!(
-                "{{\"step\": {}, \"line\": {}, \"status\": {}, \"detail\": {}}}",
+                "{{\"step\": {}, \"line\": {}, \"status\": {}, \"detail\": {}, \"numeric\": {}}}",
                 k + 1,
                 step.line,
                 js(status),
-                js(&detail)
+                js(&detail),
+                step.numeric
+                    .as_deref()
+                    .map_or_else(|| "null".to_string(), js)
             ));
         }
         let _ = writeln!(
