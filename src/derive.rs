@@ -67,6 +67,10 @@ pub const MOVES: &[(&str, &str)] = &[
         "a surface integral as the volume integral of a divergence",
     ),
     ("parts", "integration by parts"),
+    (
+        "integrate",
+        "integrating a total derivative, or an integral done by hand",
+    ),
     ("model", "the model's correlators (checked numerically)"),
     (
         "wick",
@@ -200,26 +204,27 @@ fn diagnose(
             }
         }
     }
-    // Contact terms: every term of the remainder sits at one insertion.
+    // Contact terms: every term of the remainder sits at one insertion (a
+    // point that some correlator is inserted at; the integration point of
+    // the δ-functions is common to all of them and names nothing).
     let points: Vec<Vec<Point>> = terms(remainder)
         .unwrap_or_default()
         .iter()
         .map(contact_points)
         .collect();
-    if let Some(first) = points.first().and_then(|p| p.first()) {
-        if points
-            .iter()
-            .all(|ps| ps.iter().any(|p| p.name == first.name))
-        {
-            let before_has = has_contact(&p, first);
-            let after_has = has_contact(&q, first);
-            let what = match (before_has, after_has) {
-                (true, false) => "missing from this step",
-                (false, true) => "extra in this step",
-                _ => "different in this step",
-            };
-            return Ok(format!("the contact term at `{}` is {what}", first.name));
-        }
+    let shared = points.first().and_then(|first| {
+        first.iter().find(|c| {
+            points.iter().all(|ps| ps.iter().any(|p| p.name == c.name))
+                && (inserted_at(&p, &c.name) || inserted_at(&q, &c.name))
+        })
+    });
+    if let Some(at) = shared {
+        let what = match (has_contact(&p, at), has_contact(&q, at)) {
+            (true, false) => "is missing from this step",
+            (false, true) => "is extra in this step",
+            _ => "has a different coefficient in this step",
+        };
+        return Ok(format!("the contact term at `{}` {what}", at.name));
     }
     if let Some(slip) = term_slip(engine, &p, &q, remainder, style)? {
         return Ok(slip);
@@ -323,6 +328,18 @@ fn contact_points(t: &Term) -> Vec<Point> {
         }
     }
     out
+}
+
+/// True if some correlator in `t` has an insertion at the point `name`.
+fn inserted_at(t: &Term, name: &str) -> bool {
+    match t {
+        Term::Corr(ops) => ops.iter().any(|o| &*o.point.name == name),
+        Term::Add(ts) | Term::Mul(ts) => ts.iter().any(|t| inserted_at(t, name)),
+        Term::Pow(a, b) => inserted_at(a, name) || inserted_at(b, name),
+        Term::Der(_, _, body) => inserted_at(body, name),
+        Term::Integral(i) => inserted_at(&i.body, name),
+        _ => false,
+    }
 }
 
 fn has_contact(t: &Term, p: &Point) -> bool {

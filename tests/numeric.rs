@@ -333,3 +333,40 @@ fn the_saved_displacement_norms_catch_slips_in_the_wick_step() {
         assert_eq!(steps(&report)[2], (3, true), "{file}: {report}");
     }
 }
+
+/// A distributional step is checked by flux; a contact term twice too large
+/// at x2 fails there, and the diagnosis names x2, not the point x the
+/// δ-functions are of (W1, PHYSICS.md §1 and §5).
+#[test]
+fn a_distributional_step_is_checked_by_flux() {
+    let saved =
+        std::fs::read_to_string("tests/cases/numeric/derivation-flux.ward").expect("case file");
+    let (report, code) = check(&saved);
+    assert_eq!(code, 0, "{report}");
+    assert!(
+        report.contains("numerically: by flux: around each insertion"),
+        "{report}"
+    );
+    let wrong = saved.replace(
+        "- δ(x - x2) ∂[nu](x2) { |x1 - x2|^(-2 Delta) }",
+        "- δ(x - x2) ∂[nu](x2) { 2 |x1 - x2|^(-2 Delta) }",
+    );
+    assert_ne!(wrong, saved);
+    let (report, code) = check(&wrong);
+    assert_eq!(code, 1, "{report}");
+    assert!(
+        report.contains("around x2 the flux through the sphere"),
+        "{report}"
+    );
+    // Written with the correlators, the rules refute the same slip and name
+    // the insertion.
+    let with_correlators = wrong
+        .replace("{ |x1 - x2|^(-2 Delta) }", "<O(x1) O(x2)>")
+        .replace("{ 2 |x1 - x2|^(-2 Delta) }", "{ 2 <O(x1) O(x2)> }");
+    let (report, code) = check(&with_correlators);
+    assert_eq!(code, 1, "{report}");
+    assert!(
+        report.contains("the contact term at `x2` has a different coefficient in this step"),
+        "{report}"
+    );
+}
