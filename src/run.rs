@@ -301,7 +301,14 @@ fn small_fraction(x: f64) -> Option<(i64, i64)> {
     let mut rest = x;
     for _ in 0..20 {
         let a = rest.floor();
-        let (p2, q2) = (a as i64 * p1 + p0, a as i64 * q1 + q0);
+        if a.abs() > 1e9 {
+            return None;
+        }
+        let a = a as i64;
+        let (p2, q2) = (
+            a.checked_mul(p1)?.checked_add(p0)?,
+            a.checked_mul(q1)?.checked_add(q0)?,
+        );
         if q2 > 1000 {
             return None;
         }
@@ -309,7 +316,7 @@ fn small_fraction(x: f64) -> Option<(i64, i64)> {
             return Some((p2, q2));
         }
         (p0, q0, p1, q1) = (p1, q1, p2, q2);
-        let frac = rest - a;
+        let frac = rest - a as f64;
         if frac.abs() < 1e-15 {
             return None;
         }
@@ -768,4 +775,23 @@ fn collapse(text: &str) -> String {
         .split_whitespace()
         .collect::<Vec<_>>()
         .join(" ")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::{common_ratio, small_fraction};
+
+    #[test]
+    fn fractions_are_found_only_when_they_fit() {
+        assert_eq!(small_fraction(2.0 / 3.0), Some((2, 3)));
+        assert_eq!(small_fraction(-1.5), Some((-3, 2)));
+        assert_eq!(small_fraction(2.0), Some((2, 1)));
+        assert_eq!(small_fraction(std::f64::consts::PI), None);
+        assert_eq!(small_fraction(1e-12), None);
+        assert_eq!(small_fraction(f64::NAN), None);
+        assert_eq!(common_ratio(&[0.5, 0.5 + 1e-12]), Some(0.5));
+        assert_eq!(common_ratio(&[0.5]), None);
+        assert_eq!(common_ratio(&[0.5, 0.6]), None);
+        assert_eq!(common_ratio(&[1.0, 1.0]), None);
+    }
 }
