@@ -104,6 +104,8 @@ pub struct Context {
     /// Points in declaration order; a point's rank is its position here.
     pub points: Vec<PointDecl>,
     pub parameters: BTreeSet<String>,
+    /// Parameters declared positive (`positive r`).
+    pub positive: BTreeSet<String>,
     pub parallel: BTreeSet<String>,
     /// Every index name used anywhere in the file, by kind, sorted. Dummy
     /// indices are renamed to the first free names of their kind, so both
@@ -174,6 +176,12 @@ impl Context {
             IndexKind::Bulk => self.dim(),
             IndexKind::Parallel => Term::Add(vec![self.dim(), Term::int(-1)]),
         }
+    }
+
+    /// True for symbols known to be positive: the dimension, S_d and
+    /// parameters declared positive.
+    pub fn is_positive_symbol(&self, name: &str) -> bool {
+        name == DIMENSION || name == SPHERE_AREA || self.positive.contains(name)
     }
 
     pub fn operator(&self, name: &str) -> Option<&OperatorDecl> {

@@ -15,8 +15,12 @@ use crate::term::{Point, Term};
 #[derive(Clone, Debug)]
 pub enum StepVerdict {
     /// Equal to the step before; the rules that fired (empty when
-    /// normalisation alone sufficed).
-    Proved { rules: Vec<String> },
+    /// normalisation alone sufficed), and the coincidences away from which
+    /// alone it holds (empty: as distributions).
+    Proved {
+        rules: Vec<String>,
+        away: crate::normal::Caveats,
+    },
     /// Not equal: the remainder (earlier minus this step) and a diagnosis.
     Refuted { remainder: Term, diagnosis: String },
     /// The search stopped on a limit before settling it.
@@ -139,8 +143,9 @@ pub fn check(
     } in steps
     {
         let verdict = match engine.check(previous, step)? {
-            Verdict::Proved(s) => StepVerdict::Proved {
+            Verdict::Proved(s) | Verdict::ProvedAway(s) => StepVerdict::Proved {
                 rules: s.applied.keys().cloned().collect(),
+                away: s.caveats,
             },
             Verdict::NotProved(s) if !s.stop.is_saturated() => StepVerdict::Unknown {
                 remainder: s.term.clone(),
@@ -173,10 +178,7 @@ fn diagnose(
 ) -> Result<String> {
     let show = |t: &Term| shown(engine, style, t);
     // A flipped sign: before = -after.
-    if matches!(
-        engine.check(before, &after.clone().negated())?,
-        Verdict::Proved(_)
-    ) {
+    if engine.check(before, &after.clone().negated())?.holds() {
         return Ok("off by a sign: this step is minus the one before".into());
     }
     // A constant factor: before = c · after for a scalar c read off the
@@ -195,7 +197,7 @@ fn diagnose(
                     ]),
                 )?;
                 let scaled = Term::Mul(vec![ratio.clone(), after.clone()]);
-                if matches!(engine.check(before, &scaled)?, Verdict::Proved(_)) {
+                if engine.check(before, &scaled)?.holds() {
                     return Ok(format!(
                         "off by a constant factor: the step before is {} times this one",
                         show(&ratio)

@@ -12,7 +12,7 @@ use crate::diagnostic::{Error, ErrorKind, Result};
 use crate::egraph::{
     add_term, extract_term, run_rules, EGraph, Fold, Limits, Stop, Ward, WardCost,
 };
-use crate::normal::normalize;
+use crate::normal::{normal_form, Caveats, Singular};
 use crate::rules::RuleBook;
 use crate::term::Term;
 
@@ -40,15 +40,37 @@ pub struct Simplified {
     pub rounds: usize,
     /// Rules applied, with counts, sorted by name.
     pub applied: BTreeMap<String, usize>,
+    /// Where derivatives of explicit functions were taken only pointwise:
+    /// the normal form holds away from these coincidences.
+    pub caveats: Caveats,
 }
 
 /// What checking a claim found.
 #[derive(Clone, Debug)]
 pub enum Verdict {
-    /// Both sides have the same normal form.
+    /// Both sides have the same normal form, as distributions: contact
+    /// terms included.
     Proved(Simplified),
-    /// They do not; `remainder` is left side minus right side, simplified.
+    /// Both sides agree away from the coincidences in `caveats`, where
+    /// derivatives of explicit functions were taken pointwise; the
+    /// remainder holds at most δ-function terms at those coincidences.
+    ProvedAway(Simplified),
+    /// They do not; the term is left side minus right side, simplified.
     NotProved(Simplified),
+}
+
+impl Verdict {
+    /// The simplification behind the verdict.
+    pub fn simplified(&self) -> &Simplified {
+        match self {
+            Verdict::Proved(s) | Verdict::ProvedAway(s) | Verdict::NotProved(s) => s,
+        }
+    }
+
+    /// True for both kinds of proof.
+    pub fn holds(&self) -> bool {
+        !matches!(self, Verdict::NotProved(_))
+    }
 }
 
 impl Engine {
@@ -64,7 +86,8 @@ impl Engine {
 
     /// Simplifies a term to contact-term normal form.
     pub fn simplify(&self, t: &Term) -> Result<Simplified> {
-        let mut current = normalize(&self.ctx, t)?;
+        let first = normal_form(&self.ctx, t)?;
+        let mut current = first.term;
         let mut out = Simplified {
             term: current.clone(),
             stop: Stop::Saturated,
@@ -72,6 +95,7 @@ impl Engine {
             iterations: 0,
             rounds: 0,
             applied: BTreeMap::new(),
+            caveats: first.caveats,
         };
         for _ in 0..MAX_ROUNDS {
             let mut eg = if self.limits.explanations {
@@ -97,7 +121,9 @@ impl Engine {
             let redexes = self.book.redexes(&eg, &self.ctx);
             let extractor = egg::Extractor::new(&eg, WardCost { redexes });
             let (_, best) = extractor.find_best(eg.find(root));
-            let next = normalize(&self.ctx, &extract_term(&self.ctx, &best)?)?;
+            let normal = normal_form(&self.ctx, &extract_term(&self.ctx, &best)?)?;
+            out.caveats.extend(normal.caveats);
+            let next = normal.term;
             let done = next == current || !out.stop.is_saturated();
             current = next;
             if done {
@@ -112,10 +138,44 @@ impl Engine {
     pub fn check(&self, lhs: &Term, rhs: &Term) -> Result<Verdict> {
         let difference = Term::Add(vec![lhs.clone(), rhs.clone().negated()]);
         let s = self.simplify(&difference)?;
-        Ok(if s.term.is_zero() {
+        Ok(if s.term.is_zero() && s.caveats.is_empty() {
             Verdict::Proved(s)
+        } else if s.term.is_zero() || (!s.caveats.is_empty() && only_at(&s.term, &s.caveats)) {
+            Verdict::ProvedAway(s)
         } else {
             Verdict::NotProved(s)
         })
     }
+}
+
+/// True if every term of a normal form carries a δ-function at one of the
+/// coincidences (possibly differentiated): such terms vanish away from
+/// them.
+fn only_at(t: &Term, caveats: &Caveats) -> bool {
+    let summands = match t {
+        Term::Add(ts) => ts.as_slice(),
+        t => std::slice::from_ref(t),
+    };
+    summands.iter().all(|s| {
+        let factors = match s {
+            Term::Mul(fs) => fs.as_slice(),
+            f => std::slice::from_ref(f),
+        };
+        factors.iter().any(|f| {
+            let mut f = f;
+            while let Term::Der(_, _, body) = f {
+                f = body;
+            }
+            let Term::DeltaFn(a, b) = f else {
+                return false;
+            };
+            caveats.iter().any(|c| match &c.at {
+                Singular::Point(p) => {
+                    (a.name == c.var.name && b.name == p.name)
+                        || (b.name == c.var.name && a.name == p.name)
+                }
+                Singular::Zeros(_) => false,
+            })
+        })
+    })
 }

@@ -99,8 +99,9 @@ pub struct Reporter<'a> {
     /// JSON objects, one per statement, when the output is JSON.
     json: Option<Vec<String>>,
     latex: Printer<'a>,
-    /// (proved, confirmed numerically, not proved).
-    counts: (usize, usize, usize),
+    /// (proved, proved away from coincident points, confirmed numerically,
+    /// not proved).
+    counts: (usize, usize, usize, usize),
     printer: Printer<'a>,
     out: String,
 }
@@ -110,7 +111,7 @@ impl<'a> Reporter<'a> {
         Reporter {
             json: None,
             latex: Printer::new(ctx, Style::Latex),
-            counts: (0, 0, 0),
+            counts: (0, 0, 0, 0),
             printer: Printer::new(ctx, style),
             out: String::new(),
         }
@@ -129,11 +130,12 @@ impl<'a> Reporter<'a> {
             None if self.printer.style == Style::Ascii => crate::charset::to_ascii(&self.out),
             None => self.out,
             Some(entries) => format!(
-                "{{\"items\": [\n{}\n], \"proved\": {}, \"confirmed\": {}, \"not_proved\": {}}}\n",
+                "{{\"items\": [\n{}\n], \"proved\": {}, \"proved_away\": {}, \"confirmed\": {}, \"not_proved\": {}}}\n",
                 entries.join(",\n"),
                 self.counts.0,
                 self.counts.1,
-                self.counts.2
+                self.counts.2,
+                self.counts.3
             ),
         }
     }
@@ -153,6 +155,13 @@ impl<'a> Reporter<'a> {
     pub fn simplified(&mut self, line: usize, input: &str, s: &Simplified) {
         let _ = writeln!(self.out, "line {line}: simplify {input}");
         let _ = writeln!(self.out, "  = {}", self.layout(&s.term, "    "));
+        if !s.caveats.is_empty() {
+            let _ = writeln!(
+                self.out,
+                "  (holds where {}: there, derivatives of explicit functions were taken pointwise)",
+                self.coincidences(&s.caveats).join(", ")
+            );
+        }
         let _ = writeln!(self.out, "  [{}]", stats(s));
         let rules: Vec<String> = s
             .applied
@@ -207,14 +216,21 @@ impl<'a> Reporter<'a> {
     pub fn verdict(&mut self, line: usize, what: &str, input: &str, v: &Verdict) -> bool {
         let (status, s) = match v {
             Verdict::Proved(s) => ("proved", s),
+            Verdict::ProvedAway(s) => ("proved away from coincident points", s),
             Verdict::NotProved(s) if s.stop.is_saturated() => ("not proved", s),
             Verdict::NotProved(s) => ("unknown", s),
         };
+        let away: Vec<String> = self
+            .coincidences(&s.caveats)
+            .iter()
+            .map(|c| js(c))
+            .collect();
         let fields = [
             ("line", line.to_string()),
             ("kind", js(what)),
             ("input", js(input)),
             ("status", js(status)),
+            ("away_from", format!("[{}]", away.join(", "))),
             ("remainder", js(&self.printer.term(&s.term))),
             ("stop", js(&s.stop.describe())),
             ("e_nodes", s.nodes.to_string()),
@@ -225,6 +241,27 @@ impl<'a> Reporter<'a> {
         match v {
             Verdict::Proved(s) => {
                 let _ = writeln!(self.out, "line {line}: {what} proved: {input}");
+                let _ = writeln!(self.out, "  [{}]", stats(s));
+                true
+            }
+            Verdict::ProvedAway(s) => {
+                let _ = writeln!(
+                    self.out,
+                    "line {line}: {what} proved away from coincident points: {input}"
+                );
+                let _ = writeln!(
+                    self.out,
+                    "  it holds where {}; there, derivatives of explicit functions were taken \
+                     pointwise and the contact terms are not fixed",
+                    self.coincidences(&s.caveats).join(", ")
+                );
+                if !s.term.is_zero() {
+                    let _ = writeln!(
+                        self.out,
+                        "  the two sides differ by contact terms there:\n    {}",
+                        self.layout(&s.term, "    ")
+                    );
+                }
                 let _ = writeln!(self.out, "  [{}]", stats(s));
                 true
             }
@@ -253,6 +290,27 @@ impl<'a> Reporter<'a> {
                 false
             }
         }
+    }
+
+    /// The coincidences a result does not cover, as conditions under
+    /// which it holds: `x ≠ x1`, `x - x1 ≠ 0`.
+    pub fn coincidences(&self, caveats: &crate::normal::Caveats) -> Vec<String> {
+        use crate::normal::Singular;
+        let mut out: Vec<String> = Vec::new();
+        for c in caveats {
+            let text = match &c.at {
+                Singular::Point(p) => {
+                    let mut pair = [point_name(&c.var), point_name(p)];
+                    pair.sort();
+                    format!("{} ≠ {}", pair[0], pair[1])
+                }
+                Singular::Zeros(t) => format!("{} ≠ 0", self.printer.term(t)),
+            };
+            if !out.contains(&text) {
+                out.push(text);
+            }
+        }
+        out
     }
 
     /// A term on one line if it is short, otherwise one summand per line.
@@ -322,10 +380,10 @@ impl<'a> Reporter<'a> {
         name: &str,
         start: &Term,
         steps: &[crate::derive::StepReport],
-    ) -> (usize, usize, usize) {
+    ) -> (usize, usize, usize, usize) {
         use crate::derive::StepVerdict;
         let _ = writeln!(self.out, "line {line}: derivation {name}");
-        let (mut ok, mut confirmed, mut bad) = (0, 0, 0);
+        let (mut ok, mut pointwise, mut confirmed, mut bad) = (0, 0, 0, 0);
         let mut objects = Vec::new();
         for (k, step) in steps.iter().enumerate() {
             let claimed = if step.claimed.is_empty() {
@@ -334,8 +392,12 @@ impl<'a> Reporter<'a> {
                 format!(" (cited: {})", step.claimed.join(", "))
             };
             let (status, detail) = match &step.verdict {
-                StepVerdict::Proved { rules } => {
-                    ok += 1;
+                StepVerdict::Proved { rules, away } => {
+                    if away.is_empty() {
+                        ok += 1;
+                    } else {
+                        pointwise += 1;
+                    }
                     let mut by = if rules.is_empty() {
                         "normalisation".to_string()
                     } else {
@@ -353,13 +415,24 @@ impl<'a> Reporter<'a> {
                     if !unused.is_empty() {
                         by = format!("{by}; cited but not used: {}", unused.join(", "));
                     }
-                    let _ = writeln!(
-                        self.out,
-                        "  step {} (line {}): proved by {by}{claimed}",
-                        k + 1,
-                        step.line
-                    );
-                    ("proved", by)
+                    if away.is_empty() {
+                        let _ = writeln!(
+                            self.out,
+                            "  step {} (line {}): proved by {by}{claimed}",
+                            k + 1,
+                            step.line
+                        );
+                        ("proved", by)
+                    } else {
+                        let _ = writeln!(
+                            self.out,
+                            "  step {} (line {}): proved away from coincident points ({}) by {by}{claimed}",
+                            k + 1,
+                            step.line,
+                            self.coincidences(away).join(", ")
+                        );
+                        ("proved away from coincident points", by)
+                    }
                 }
                 StepVerdict::Refuted {
                     remainder,
@@ -416,7 +489,7 @@ impl<'a> Reporter<'a> {
         let _ = writeln!(
             self.out,
             "  {} of {} steps hold",
-            ok + confirmed,
+            ok + pointwise + confirmed,
             steps.len()
         );
         if self.printer.style == Style::Latex {
@@ -428,8 +501,9 @@ impl<'a> Reporter<'a> {
             );
             for step in steps {
                 let mut note = step.claimed.join(", ");
-                let status = match step.verdict {
-                    StepVerdict::Proved { .. } => None,
+                let status = match &step.verdict {
+                    StepVerdict::Proved { away, .. } if away.is_empty() => None,
+                    StepVerdict::Proved { .. } => Some("away from coincident points"),
                     StepVerdict::Confirmed { .. } => Some("checked numerically"),
                     _ => Some("not proved"),
                 };
@@ -456,7 +530,7 @@ impl<'a> Reporter<'a> {
             ("steps", format!("[{}]", objects.join(", "))),
         ];
         self.entry(&fields);
-        (ok, confirmed, bad)
+        (ok, pointwise, confirmed, bad)
     }
 
     /// Which sample the following numeric lines are for, and its points.
@@ -659,16 +733,26 @@ impl<'a> Reporter<'a> {
     }
 
     /// The closing count of a check.
-    pub fn summary(&mut self, proved: usize, confirmed: usize, failed: usize) {
-        self.counts = (proved, confirmed, failed);
-        if confirmed == 0 {
-            let _ = writeln!(self.out, "{proved} proved, {failed} not proved");
-        } else {
-            let _ = writeln!(
-                self.out,
-                "{proved} proved, {confirmed} confirmed numerically, {failed} not proved"
-            );
+    pub fn summary(&mut self, proved: usize, away: usize, confirmed: usize, failed: usize) {
+        self.counts = (proved, away, confirmed, failed);
+        let mut parts = vec![format!("{proved} proved")];
+        if away > 0 {
+            parts.push(format!("{away} proved away from coincident points"));
         }
+        if confirmed > 0 {
+            parts.push(format!("{confirmed} confirmed numerically"));
+        }
+        parts.push(format!("{failed} not proved"));
+        let _ = writeln!(self.out, "{}", parts.join(", "));
+    }
+}
+
+/// A point as written: `x1`, or `x∥` for a projection.
+fn point_name(p: &crate::term::Point) -> String {
+    if p.par {
+        format!("{}∥", p.name)
+    } else {
+        p.name.to_string()
     }
 }
 

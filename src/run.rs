@@ -502,7 +502,7 @@ pub fn run_source(
     };
     // Built on the first numeric statement, so files without one need no model.
     let mut session: Option<Session> = None;
-    let (mut proved, mut confirmed, mut failed) = (0, 0, 0);
+    let (mut proved, mut away, mut confirmed, mut failed) = (0, 0, 0, 0);
     let mut edits = Vec::new();
     for item in &program.items {
         let text = collapse(&source.text[item.span.start..item.span.end]);
@@ -533,6 +533,7 @@ pub fn run_source(
             ) => {
                 let v = engine.check(expr, r).map_err(at_item)?;
                 let ok = reporter.verdict(item.line, "expected result", &text, &v);
+                let away_only = matches!(v, crate::engine::Verdict::ProvedAway(_));
                 if let (false, true, Some(span)) = (ok, opts.accept, expect_span) {
                     // Record the normal form in the input syntax, which
                     // parses back to the same expression.
@@ -540,7 +541,9 @@ pub fn run_source(
                     let printer = crate::term::print::Printer::new(&program.ctx, Style::Unicode);
                     edits.push((*span, printer.term(&s.term)));
                 }
-                if ok {
+                if away_only {
+                    away += 1
+                } else if ok {
                     proved += 1
                 } else {
                     failed += 1
@@ -554,7 +557,9 @@ pub fn run_source(
                     text.strip_prefix("claim ").unwrap_or(&text),
                     &v,
                 );
-                if ok {
+                if matches!(v, crate::engine::Verdict::ProvedAway(_)) {
+                    away += 1
+                } else if ok {
                     proved += 1
                 } else {
                     failed += 1
@@ -589,9 +594,11 @@ pub fn run_source(
                         before = after;
                     }
                 }
-                let (ok, numerically, bad) = reporter.derivation(item.line, name, start, &report);
+                let (ok, pointwise, numerically, bad) =
+                    reporter.derivation(item.line, name, start, &report);
                 if mode == Mode::Check {
                     proved += ok;
+                    away += pointwise;
                     confirmed += numerically;
                     failed += bad;
                 }
@@ -686,7 +693,7 @@ pub fn run_source(
         }
     }
     if mode == Mode::Check {
-        reporter.summary(proved, confirmed, failed);
+        reporter.summary(proved, away, confirmed, failed);
     }
     Ok(Outcome {
         report: reporter.finish(),

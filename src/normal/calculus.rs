@@ -4,18 +4,22 @@
 //! Explicit functions are differentiated here (common practice):
 //!   ∂_i |p - q| = (p_i - q_i)/|p - q|,  ∂_i p_k = δ_ik,  ∂_i p_n = n_i,
 //!   ∂_i F^{(k)}(u) = F^{(k+1)}(u) ∂_i u,  ∂_i a^E = E a^E a^{-1} ∂_i a.
+//! A point on the wall (a boundary point, or the projection x∥) moves only
+//! along it: its gradients carry the projector δ_ik - n_i n_k.
+//! These are pointwise derivatives; [`super::distribution`] adds the
+//! δ-function terms of singular points.
 //! Derivatives of δ-functions, correlators and integrals stay as ∂ factors.
 
 use num_rational::BigRational;
 use num_traits::One;
 
+use super::Norm;
 use super::{derivative, expand, Mono};
-use crate::context::Context;
 use crate::diagnostic::Result;
 use crate::term::{Index, Point, Term};
 
 /// ∂[i](p) of one monomial.
-pub fn differentiate(ctx: &Context, i: &Index, p: &Point, m: Mono) -> Result<Vec<Mono>> {
+pub fn differentiate(ctx: &Norm, i: &Index, p: &Point, m: Mono) -> Result<Vec<Mono>> {
     let mut out = Vec::new();
     for (atom, exp) in &m.atoms {
         if !atom.mentions_point(p) {
@@ -43,7 +47,10 @@ pub fn differentiate(ctx: &Context, i: &Index, p: &Point, m: Mono) -> Result<Vec
         match f {
             // ∂_i p_k = δ_ik; for a projection, δ_ik - n_i n_k.
             Term::Comp(q, index) => {
-                for d in expand(ctx, &coordinate_gradient(i, q, index))? {
+                for d in expand(
+                    ctx,
+                    &coordinate_gradient(i, q, index, ctx.is_boundary_point(q)),
+                )? {
                     out.push(rest.mul(&d));
                 }
             }
@@ -58,7 +65,7 @@ pub fn differentiate(ctx: &Context, i: &Index, p: &Point, m: Mono) -> Result<Vec
 }
 
 /// ∂_i of one scalar atom, as monomials.
-fn atom_derivative(ctx: &Context, i: &Index, p: &Point, atom: &Term) -> Result<Vec<Mono>> {
+fn atom_derivative(ctx: &Norm, i: &Index, p: &Point, atom: &Term) -> Result<Vec<Mono>> {
     let term = match atom {
         Term::Dist(a, b) => {
             // ∂_i |a - b| = ((∂_i a_k) - (∂_i b_k)) (a - b)_k / |a - b|,
@@ -73,7 +80,7 @@ fn atom_derivative(ctx: &Context, i: &Index, p: &Point, atom: &Term) -> Result<V
                     Term::Mul(vec![Term::int(-1), Term::Comp(b.clone(), i.clone())]),
                 ]);
                 let mut along = vec![Term::int(sign), difference];
-                if q.par {
+                if ctx.is_boundary_point(q) {
                     // Only the parallel part moves: subtract n_i (a - b)_n.
                     let normal_part = Term::Mul(vec![
                         Term::Normal(i.clone()),
@@ -118,10 +125,11 @@ fn atom_derivative(ctx: &Context, i: &Index, p: &Point, atom: &Term) -> Result<V
     expand(ctx, &term)
 }
 
-/// ∂_i q_k for a point q that moves with the differentiated point.
-fn coordinate_gradient(i: &Index, q: &Point, k: &Index) -> Term {
+/// ∂_i q_k for a point q that moves with the differentiated point; a
+/// point on the wall moves only along it.
+fn coordinate_gradient(i: &Index, _q: &Point, k: &Index, on_wall: bool) -> Term {
     let kron = Term::Kron(i.clone(), k.clone());
-    if q.par {
+    if on_wall {
         Term::Add(vec![
             kron,
             Term::Mul(vec![

@@ -113,14 +113,14 @@ fn local(ctx: &Context, f: &Term) -> Local {
         Term::Kron(Index::Named(a), Index::Named(b)) if a == b => {
             let trace = ctx.trace(ctx.index_kind(a));
             // The trace is d or d - 1: a scalar, expandable without error.
-            Local::Scalar(expand(ctx, &trace).unwrap_or_default())
+            Local::Scalar(expand(&super::Norm::new(ctx), &trace).unwrap_or_default())
         }
         Term::Normal(Index::N) => Local::Scalar(vec![Mono::scalar(BigRational::one())]),
         Term::Normal(i) if parallel(i) => Local::Zero,
         // A coordinate or parameter component with only normal indices is a
         // scalar; with a normal index on a parallel parameter it vanishes.
         Term::Comp(..) | Term::Param(..) if has_normal(f) => {
-            Local::Scalar(super::expand(ctx, f).unwrap_or_default())
+            Local::Scalar(super::expand(&super::Norm::new(ctx), f).unwrap_or_default())
         }
         Term::Param(name, indices)
             if is_antisymmetric(ctx, name) && indices.len() == 2 && indices[0] == indices[1] =>

@@ -11,15 +11,15 @@ use std::collections::BTreeSet;
 use num_rational::BigRational;
 use num_traits::{ToPrimitive, Zero};
 
+use super::Norm;
 use super::{expand, Mono};
-use crate::context::Context;
 use crate::diagnostic::Result;
 use crate::term::{Index, Point, Term};
 
 /// Largest power of |p - q|² expanded into coordinates.
 const MAX_EXPANDED: u32 = 6;
 
-pub fn common_powers(ctx: &Context, mut monos: Vec<Mono>) -> Result<Vec<Mono>> {
+pub fn common_powers(ctx: &Norm, mut monos: Vec<Mono>) -> Result<Vec<Mono>> {
     if monos.len() < 2 {
         return Ok(monos);
     }

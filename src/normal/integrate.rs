@@ -14,15 +14,15 @@
 use num_rational::BigRational;
 use num_traits::One;
 
-use super::{collect, expand, monomial::Atoms, normalize, Mono};
-use crate::context::{Context, Placement};
+use super::{collect, expand, monomial::Atoms, normalize_in, Mono, Norm};
+use crate::context::Placement;
 use crate::diagnostic::{Error, ErrorKind, Result};
 use crate::term::{Integral, Point, Region, Term};
 
 /// Expands an integral into monomials.
-pub fn integral(ctx: &Context, i: &Integral) -> Result<Vec<Mono>> {
+pub fn integral(ctx: &Norm, i: &Integral) -> Result<Vec<Mono>> {
     let region = match &i.region {
-        Region::Ball(c, r) => Region::Ball(c.clone(), normalize(ctx, r)?),
+        Region::Ball(c, r) => Region::Ball(c.clone(), normalize_in(ctx, r)?),
         r => r.clone(),
     };
     // Around a boundary point the surface is a hemisphere plus the disc on
@@ -34,7 +34,7 @@ pub fn integral(ctx: &Context, i: &Integral) -> Result<Vec<Mono>> {
                 var: i.var.clone(),
                 region,
                 surface: true,
-                body: super::normalize(ctx, &i.body)?,
+                body: super::normalize_in(ctx, &i.body)?,
             })))]);
         }
     }
@@ -50,7 +50,7 @@ pub fn integral(ctx: &Context, i: &Integral) -> Result<Vec<Mono>> {
 }
 
 /// One monomial of a surface integral: N[i] F → ∫ ∂[i] F.
-fn surface(ctx: &Context, var: &Point, region: &Region, m: Mono) -> Result<Vec<Mono>> {
+fn surface(ctx: &Norm, var: &Point, region: &Region, m: Mono) -> Result<Vec<Mono>> {
     let normals: Vec<usize> = (0..m.factors.len())
         .filter(|k| matches!(m.factors[*k], Term::OutNormal(_)))
         .collect();
@@ -79,7 +79,7 @@ fn surface(ctx: &Context, var: &Point, region: &Region, m: Mono) -> Result<Vec<M
 }
 
 /// One monomial of a volume (or boundary-plane) integral.
-fn volume(ctx: &Context, var: &Point, region: &Region, m: Mono) -> Result<Vec<Mono>> {
+fn volume(ctx: &Norm, var: &Point, region: &Region, m: Mono) -> Result<Vec<Mono>> {
     let (outside, inside) = split(var, m);
     // f ∂_i δ(x - p): integrate by parts. The surface term f δ N_i vanishes
     // because δ does on the surface (a δ on the surface is refused below),
@@ -196,7 +196,7 @@ fn is_var(p: &Point, var: &Point) -> bool {
 }
 
 /// Where a point lies with respect to a region, if the file says so.
-fn membership(ctx: &Context, p: &Point, region: &Region) -> Option<Placement> {
+fn membership(ctx: &Norm, p: &Point, region: &Region) -> Option<Placement> {
     match region {
         Region::Space | Region::Halfspace => Some(Placement::Inside),
         Region::Boundary => Some(if ctx.is_boundary_point(p) {
@@ -212,11 +212,11 @@ fn membership(ctx: &Context, p: &Point, region: &Region) -> Option<Placement> {
 /// The declared placement of `p` in a ball, comparing radii in normal form;
 /// failing that, the placement from numeric positions and a numeric radius,
 /// decided exactly.
-fn placement(ctx: &Context, p: &Point, region: &Region) -> Option<Placement> {
+fn placement(ctx: &Norm, p: &Point, region: &Region) -> Option<Placement> {
     declared(ctx, p, region).or_else(|| measured(ctx, p, region))
 }
 
-fn measured(ctx: &Context, p: &Point, region: &Region) -> Option<Placement> {
+fn measured(ctx: &Norm, p: &Point, region: &Region) -> Option<Placement> {
     let Region::Ball(center, Term::Num(radius)) = region else {
         return None;
     };
@@ -231,7 +231,7 @@ fn measured(ctx: &Context, p: &Point, region: &Region) -> Option<Placement> {
     })
 }
 
-fn declared(ctx: &Context, p: &Point, region: &Region) -> Option<Placement> {
+fn declared(ctx: &Norm, p: &Point, region: &Region) -> Option<Placement> {
     let Region::Ball(center, radius) = region else {
         return None;
     };
@@ -239,7 +239,7 @@ fn declared(ctx: &Context, p: &Point, region: &Region) -> Option<Placement> {
         Region::Ball(c, rr)
             if **name == *p.name
                 && c.name == center.name
-                && normalize(ctx, rr).ok().as_ref() == Some(radius) =>
+                && normalize_in(ctx, rr).ok().as_ref() == Some(radius) =>
         {
             Some(*place)
         }
@@ -264,7 +264,7 @@ fn undecided(point: &Point, region: &Region) -> Error {
 }
 
 /// Replaces the integration point `var` by `to` everywhere in `t`.
-pub fn substitute(ctx: &Context, t: &Term, var: &Point, to: &Point) -> Term {
+pub fn substitute(ctx: &Norm, t: &Term, var: &Point, to: &Point) -> Term {
     let point = |p: &Point| -> Point {
         if p.name != var.name {
             return p.clone();

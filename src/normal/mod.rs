@@ -17,7 +17,9 @@ mod calculus;
 mod cancel;
 mod contract;
 mod distance;
+mod distribution;
 mod integrate;
+mod local;
 mod monomial;
 
 use std::collections::BTreeMap;
@@ -28,10 +30,79 @@ use num_traits::{One, Signed, ToPrimitive, Zero};
 use crate::context::Context;
 use crate::diagnostic::{Error, ErrorKind, Result};
 use crate::term::{Index, Point, Term};
+pub use distribution::{positive, Caveats, Coincidence, Singular};
 pub use monomial::{Atoms, Mono};
 
 /// Puts `t` in contact-term normal form.
 pub fn normalize(ctx: &Context, t: &Term) -> Result<Term> {
+    Ok(normal_form(ctx, t)?.term)
+}
+
+/// A normal form and where it is established only away from coincident
+/// points.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct Normal {
+    pub term: Term,
+    pub caveats: Caveats,
+}
+
+/// Puts `t` in contact-term normal form and says where derivatives of
+/// explicit functions were taken only away from coincident points.
+pub fn normal_form(ctx: &Context, t: &Term) -> Result<Normal> {
+    let cx = Norm::new(ctx);
+    let term = normalize_in(&cx, t)?;
+    Ok(Normal {
+        term,
+        caveats: cx.caveats.into_inner(),
+    })
+}
+
+/// Puts `t` in normal form as a function at distinct points: derivatives
+/// of explicit functions are taken pointwise, with no contact terms. This
+/// is what a value at a configuration of separated points needs (the
+/// numeric layer and its models); an identity between distributions is
+/// never decided this way.
+pub fn normalize_pointwise(ctx: &Context, t: &Term) -> Result<Term> {
+    let cx = Norm {
+        pointwise: true,
+        ..Norm::new(ctx)
+    };
+    normalize_in(&cx, t)
+}
+
+/// The declarations of a file while one term is normalised, and what the
+/// derivatives of explicit functions found on the way.
+pub struct Norm<'c> {
+    ctx: &'c Context,
+    caveats: std::cell::RefCell<Caveats>,
+    /// Derivatives are pointwise: values at separated points only.
+    pointwise: bool,
+}
+
+impl<'c> Norm<'c> {
+    pub fn new(ctx: &'c Context) -> Norm<'c> {
+        Norm {
+            ctx,
+            caveats: Default::default(),
+            pointwise: false,
+        }
+    }
+
+    /// Records that a result holds only away from a coincidence.
+    pub(crate) fn caveat(&self, c: Coincidence) {
+        self.caveats.borrow_mut().insert(c);
+    }
+}
+
+impl std::ops::Deref for Norm<'_> {
+    type Target = Context;
+    fn deref(&self) -> &Context {
+        self.ctx
+    }
+}
+
+/// Normalisation inside the pipeline, sharing the caveats of `cx`.
+pub(crate) fn normalize_in(ctx: &Norm, t: &Term) -> Result<Term> {
     let monos = merge(canonical(ctx, expand(ctx, t)?));
     let has_distance = monos
         .iter()
@@ -82,7 +153,7 @@ pub fn normalize(ctx: &Context, t: &Term) -> Result<Term> {
 }
 
 /// Contracts indices and renames summed indices canonically.
-fn canonical(ctx: &Context, monos: Vec<Mono>) -> Vec<Mono> {
+fn canonical(ctx: &Norm, monos: Vec<Mono>) -> Vec<Mono> {
     let mut out = Vec::new();
     for m in monos {
         for m in contract::contract(ctx, m) {
@@ -121,7 +192,7 @@ fn term_count(t: &Term) -> usize {
 }
 
 /// Expands a term into a list of monomials (not yet collected).
-fn expand(ctx: &Context, t: &Term) -> Result<Vec<Mono>> {
+fn expand(ctx: &Norm, t: &Term) -> Result<Vec<Mono>> {
     Ok(match t {
         Term::Num(c) => {
             if c.is_zero() {
@@ -173,13 +244,7 @@ fn expand(ctx: &Context, t: &Term) -> Result<Vec<Mono>> {
             ops.sort();
             vec![Mono::factor(Term::Corr(ops))]
         }
-        Term::Der(i, p, body) => {
-            let mut out = Vec::new();
-            for m in expand(ctx, body)? {
-                out.extend(calculus::differentiate(ctx, i, p, m)?);
-            }
-            out
-        }
+        Term::Der(i, p, body) => distribution::differentiate(ctx, i, p, expand(ctx, body)?)?,
         Term::Dist(p, q) => {
             if p.name == q.name && p.par == q.par {
                 vec![]
@@ -194,7 +259,7 @@ fn expand(ctx: &Context, t: &Term) -> Result<Vec<Mono>> {
         Term::Fun(name, order, args) => {
             let args = args
                 .iter()
-                .map(|a| normalize(ctx, a))
+                .map(|a| normalize_in(ctx, a))
                 .collect::<Result<Vec<_>>>()?;
             vec![Mono::atom(
                 Term::Fun(name.clone(), *order, args),
@@ -225,7 +290,7 @@ fn expand(ctx: &Context, t: &Term) -> Result<Vec<Mono>> {
 /// The coordinate p[i]: a scalar atom for the normal coordinate, zero for
 /// the normal coordinate of a point on the boundary (a boundary point or a
 /// projection x∥), a factor otherwise.
-fn coordinate(ctx: &Context, p: &Point, i: &Index) -> Result<Vec<Mono>> {
+fn coordinate(ctx: &Norm, p: &Point, i: &Index) -> Result<Vec<Mono>> {
     Ok(match i {
         Index::N if ctx.is_boundary_point(p) => vec![],
         Index::N => vec![Mono::atom(
@@ -248,8 +313,8 @@ pub(crate) fn derivative(i: &Index, p: &Point, f: Term) -> Term {
 /// Largest integer power expanded by repeated multiplication.
 const MAX_EXPANDED_POWER: u32 = 16;
 
-fn power(ctx: &Context, b: &Term, e: &Term) -> Result<Vec<Mono>> {
-    let e = normalize(ctx, e)?;
+fn power(ctx: &Norm, b: &Term, e: &Term) -> Result<Vec<Mono>> {
+    let e = normalize_in(ctx, e)?;
     let base = expand(ctx, b)?;
     let Term::Num(q) = &e else {
         // A symbolic exponent: a monomial's atoms each get their own power;
@@ -318,7 +383,7 @@ pub fn is_generated_index(name: &str) -> bool {
 /// `m^E` for a scalar monomial and a symbolic exponent E: each atom a^r
 /// becomes a^k · (a^(rE - k)) with k the rational part of rE, so that
 /// powers differing by a number share one symbolic atom.
-fn symbolic_power(ctx: &Context, m: &Mono, e: &Term) -> Result<Mono> {
+fn symbolic_power(ctx: &Norm, m: &Mono, e: &Term) -> Result<Mono> {
     let mut out = Mono::scalar(BigRational::one());
     let mut factors: Vec<(Term, BigRational)> = m
         .atoms
@@ -352,7 +417,7 @@ fn symbolic_power(ctx: &Context, m: &Mono, e: &Term) -> Result<Mono> {
 
 /// `t = c · R` with R primitive: whole coefficients whose greatest common
 /// divisor is 1, the first of them (in normal-form order) positive.
-fn primitive_part(ctx: &Context, t: &Term) -> Result<(BigRational, Term)> {
+fn primitive_part(ctx: &Norm, t: &Term) -> Result<(BigRational, Term)> {
     let monos = expand(ctx, t)?;
     Ok(primitive_monos(&monos).unwrap_or_else(|| (BigRational::one(), t.clone())))
 }

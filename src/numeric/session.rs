@@ -24,7 +24,7 @@ use crate::context::{Context, IndexKind, DIMENSION, STRESS_TENSOR};
 use crate::diagnostic::{Error, ErrorKind, Result};
 use crate::engine::Engine;
 use crate::lower::{ModelChoice, NumericSpec};
-use crate::normal::normalize;
+use crate::normal::normalize_pointwise as normalize;
 use crate::term::{Index, Integral, Point, Region, Term};
 
 /// The parameter that carries the outward normal at each quadrature node.

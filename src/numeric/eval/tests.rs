@@ -196,7 +196,7 @@ fn the_wall_and_projections() {
 #[test]
 fn eval_many_agrees_with_eval_and_hoists_the_rest() {
     let (ctx, ts) = terms(&format!(
-        "{BULK}simplify ∂[mu](x1) ∂[mu](x1) {{ |x1 - x2|^(-2 Delta) |x1 - x3|^(-1) |x2 - x3|^(3/2) }}\n"
+        "{BULK}simplify ∂[mu](x1) ∂[mu](x1) {{ |x1 - x2|^(-2 Delta) |x1 - x3|^(-1/2) |x2 - x3|^(3/2) }}\n"
     ));
     let p = compile(&ctx, &ts[0], &[], 3).unwrap();
     let mut v = values(

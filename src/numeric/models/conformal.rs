@@ -44,7 +44,7 @@ use super::{
 };
 use crate::context::{Context, DISPLACEMENT, STRESS_TENSOR};
 use crate::diagnostic::Result;
-use crate::normal::normalize;
+use crate::normal::normalize_pointwise as normalize;
 use crate::term::{Index, Op, Point, Term};
 
 /// How one-point and bulk-to-boundary functions are normalised next to a

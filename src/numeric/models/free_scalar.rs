@@ -38,7 +38,7 @@ use super::{add, dist_pow, inv, minus, mul, normal_coord, pow, rational, sphere,
 use super::{describe_op, index_names, rename_indices, substitute_points};
 use crate::context::{Context, DISPLACEMENT, STRESS_TENSOR};
 use crate::diagnostic::Result;
-use crate::normal::normalize;
+use crate::normal::normalize_pointwise as normalize;
 use crate::term::{Index, Op, Point, Term};
 
 /// The boundary condition at y = 0.
