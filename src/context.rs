@@ -119,6 +119,8 @@ pub struct Context {
     pub killing: BTreeMap<String, Killing>,
     /// Declared positions of points relative to regions.
     pub placements: Vec<(String, Region, Placement)>,
+    /// Balls declared clear of the wall (`place ball(x1, r) inside halfspace`).
+    pub balls_inside: Vec<Region>,
     /// Numeric coordinates of points (`place x at (…)`), the normal one last.
     pub positions: BTreeMap<String, Vec<num_rational::BigRational>>,
 }

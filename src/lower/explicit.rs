@@ -233,6 +233,31 @@ impl Lowerer {
         Ok(())
     }
 
+    /// `place ball(c, r) inside halfspace`: the ball stays clear of the
+    /// wall (its centre is a bulk point higher than r).
+    pub(super) fn declare_ball_inside(&mut self, region: &RegionRef) -> Result<()> {
+        self.need_halfspace(region.span, "a ball inside the half-space")?;
+        let lowered = self.region(region)?;
+        let Region::Ball(center, _) = &lowered else {
+            return Ok(());
+        };
+        if self.ctx.is_boundary_point(center) {
+            return Err(self
+                .err(
+                    ErrorKind::Placement,
+                    region.span,
+                    format!(
+                        "a ball around the boundary point `{}` reaches the wall",
+                        center.name
+                    ),
+                )
+                .with_label("centred on the wall")
+                .with_note("only a ball around a bulk point can lie inside the half-space"));
+        }
+        self.ctx.balls_inside.push(lowered);
+        Ok(())
+    }
+
     pub(super) fn declare_place(
         &mut self,
         point: &PointRef,

@@ -612,6 +612,15 @@ impl Lowerer {
                     self.ctx.parameters.insert(name.text.clone());
                 }
             }
+            Stmt::Positive(names) => {
+                for name in names {
+                    if !self.ctx.parameters.contains(&name.text) {
+                        self.new_name(name, Declared::Parameter)?;
+                        self.ctx.parameters.insert(name.text.clone());
+                    }
+                    self.ctx.positive.insert(name.text.clone());
+                }
+            }
             Stmt::Parallel(names) => {
                 if !self.ctx.has_halfspace() {
                     let span = names.first().map_or(Span::default(), |n| n.span);
@@ -645,6 +654,7 @@ impl Lowerer {
                 region,
                 ..
             } => self.declare_place(point, *kind, region)?,
+            Stmt::PlaceBall { region, .. } => self.declare_ball_inside(region)?,
             Stmt::Position {
                 point,
                 coords,
@@ -973,7 +983,7 @@ impl Lowerer {
         .with_label("not allowed in a .ward file")
     }
 
-    fn need_halfspace(&self, span: Span, what: &str) -> Result<()> {
+    pub(super) fn need_halfspace(&self, span: Span, what: &str) -> Result<()> {
         if self.ctx.has_halfspace() {
             Ok(())
         } else {

@@ -6,13 +6,15 @@
 //!   δ[i,i] = d, δ[a,a] = d - 1 for parallel a, δ[n,n] = n[n] = 1,
 //!   n[a] = δ[a,n] = 0 for parallel a, δ[i,k] X[k] = X[i],
 //!   n[k] X[k] = X[n], δ[m,a] X[a] = X[m] - n[m] X[n] for parallel a,
+//!   p[a] q[a] = p[k] q[k] - p[n] q[n] for coordinates and parallel a,
+//!   x[n]^k δ(y(x)) = 0 for k > 0,
 //!   ∂[n](s) = 0 at a boundary point s (boundary points move only along
 //!   the boundary).
 
 use std::collections::{BTreeMap, BTreeSet};
 
 use num_rational::BigRational;
-use num_traits::One;
+use num_traits::{One, Signed};
 
 use super::{derivative, expand, Mono};
 use crate::context::{Context, IndexKind};
@@ -37,6 +39,21 @@ pub fn contract(ctx: &Context, m: Mono) -> Vec<Mono> {
 
 /// One rewriting step, or `None` if the monomial is fully contracted.
 fn step(ctx: &Context, m: &Mono) -> Option<Vec<Mono>> {
+    // y^k δ(y) = 0 for k > 0: the height above the wall vanishes on it.
+    for f in &m.factors {
+        let Term::DeltaY(p) = f else { continue };
+        let height = m.atoms.iter().any(|(a, e)| {
+            e.is_positive()
+                && match a {
+                    Term::Comp(q, Index::N) => q.name == p.name && !q.par,
+                    Term::Dist(a, b) => a.name == p.name && b.name == p.name && a.par != b.par,
+                    _ => false,
+                }
+        });
+        if height {
+            return Some(vec![]);
+        }
+    }
     // Factor-local identities first.
     for (k, f) in m.factors.iter().enumerate() {
         match local(ctx, f) {
@@ -55,6 +72,25 @@ fn step(ctx: &Context, m: &Mono) -> Option<Vec<Mono>> {
         }
     }
     let counts = occurrences(&m.factors);
+    // x[a] y[a] over a parallel index, both coordinates: written over all
+    // directions, x[k] y[k] - x[n] y[n], so that it meets |x - y|² and the
+    // normal part is not lost.
+    for (name, count) in &counts {
+        if *count != 2 || ctx.index_kind(name) != IndexKind::Parallel {
+            continue;
+        }
+        let coordinates = m
+            .factors
+            .iter()
+            .filter(|f| matches!(f, Term::Comp(_, Index::Named(k)) if k == name))
+            .count();
+        if coordinates == 2 {
+            let bulk = Index::Named(format!("·b{name}"));
+            let mut normal = rename(m, name, &Index::N);
+            normal.coef = -normal.coef;
+            return Some(vec![rename(m, name, &bulk), normal]);
+        }
+    }
     let is_dummy_elsewhere =
         |name: &str, inside: usize| counts.get(name).copied().unwrap_or(0) == 2 && inside == 1;
     for (k, f) in m.factors.iter().enumerate() {

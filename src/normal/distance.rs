@@ -88,7 +88,12 @@ pub fn common_powers(ctx: &Norm, mut monos: Vec<Mono>) -> Result<Vec<Mono>> {
 /// monomial, for one distance |p - q| of the sum (`eliminate` is p or q).
 /// Normalisation keeps this form when it is shorter, so that
 /// (p·p - 2 p·q + q·q)/|p - q|² reads 1.
-pub fn dot_to_distance(monos: &[Mono], dist: &Term, eliminate: &Point) -> Option<Vec<Mono>> {
+pub fn dot_to_distance(
+    ctx: &Norm,
+    monos: &[Mono],
+    dist: &Term,
+    eliminate: &Point,
+) -> Option<Vec<Mono>> {
     let Term::Dist(p, q) = dist else {
         return None;
     };
@@ -97,7 +102,12 @@ pub fn dot_to_distance(monos: &[Mono], dist: &Term, eliminate: &Point) -> Option
     } else {
         p
     };
+    // Only a contraction over every direction is a square of the distance:
+    // over indices along the wall it misses the normal components.
     let is_square_of = |m: &Mono, k: &str| {
+        if ctx.index_kind(k) != crate::context::IndexKind::Bulk {
+            return false;
+        }
         let mut count = 0;
         for f in &m.factors {
             match f {

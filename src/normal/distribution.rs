@@ -377,6 +377,12 @@ pub fn positive(cx: &Context, t: &Term) -> bool {
     strict
 }
 
+/// True for an atom that is never negative where it is defined, so that
+/// its powers compose: (a^m)^q = a^(m q).
+pub(super) fn never_negative(cx: &Context, a: &Term) -> bool {
+    matches!(atom_sign(cx, a), Sign::Positive | Sign::NonNegative)
+}
+
 enum Sign {
     Positive,
     NonNegative,

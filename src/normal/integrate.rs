@@ -12,7 +12,7 @@
 //! the integrand by parts; its surface term vanishes with the δ.
 
 use num_rational::BigRational;
-use num_traits::One;
+use num_traits::{One, Zero};
 
 use super::{collect, expand, monomial::Atoms, normalize_in, Mono, Norm};
 use crate::context::Placement;
@@ -139,6 +139,10 @@ fn volume(ctx: &Norm, var: &Point, region: &Region, m: Mono) -> Result<Vec<Mono>
         .factors
         .iter()
         .position(|f| matches!(f, Term::DeltaY(a) if is_var(a, var)));
+    // A ball clear of the wall: δ(y(x)) vanishes on it.
+    if wall.is_some() && clear_of_wall(ctx, region) {
+        return Ok(vec![]);
+    }
     if let (Some(k), Region::Halfspace | Region::Space) = (wall, region) {
         let mut rest = inside.clone();
         rest.factors.remove(k);
@@ -155,14 +159,48 @@ fn volume(ctx: &Norm, var: &Point, region: &Region, m: Mono) -> Result<Vec<Mono>
         }
         return Ok(out);
     }
-    Ok(vec![outside.mul(&Mono::factor(Term::Integral(Box::new(
-        Integral {
-            var: var.clone(),
-            region: region.clone(),
-            surface: false,
-            body: collect(vec![inside]),
-        },
-    ))))])
+    // The body's own index algebra (x[n] δ(y(x)) = 0, contractions) first:
+    // it may leave nothing to integrate.
+    let mut out = Vec::new();
+    for body in super::contract::contract(ctx, inside) {
+        if body.coef.is_zero() {
+            continue;
+        }
+        let (factor, body) = split(var, body);
+        out.push(
+            outside
+                .mul(&factor)
+                .mul(&Mono::factor(Term::Integral(Box::new(Integral {
+                    var: var.clone(),
+                    region: region.clone(),
+                    surface: false,
+                    body: collect(vec![body]),
+                })))),
+        );
+    }
+    Ok(out)
+}
+
+/// True if a ball lies inside the open half-space: declared so, or its
+/// centre placed at numeric coordinates higher than a numeric radius.
+fn clear_of_wall(ctx: &Norm, region: &Region) -> bool {
+    let Region::Ball(center, radius) = region else {
+        return false;
+    };
+    if !ctx.has_halfspace() || ctx.is_boundary_point(center) {
+        return false;
+    }
+    let declared = ctx.balls_inside.iter().any(|b| match b {
+        Region::Ball(c, r) => {
+            c.name == center.name && normalize_in(ctx, r).ok().as_ref() == Some(radius)
+        }
+        _ => false,
+    });
+    let measured = match (ctx.positions.get(&*center.name), radius) {
+        (Some(at), Term::Num(r)) => at.last().is_some_and(|y| y > r),
+        _ => false,
+    };
+    declared || measured
 }
 
 /// Splits a monomial into the part that does not depend on the integration

@@ -130,7 +130,7 @@ pub(crate) fn normalize_in(ctx: &Norm, t: &Term) -> Result<Term> {
     for dist in &distances {
         let Term::Dist(p, q) = dist else { continue };
         for eliminate in [p, q] {
-            if let Some(folded) = distance::dot_to_distance(&monos, dist, eliminate) {
+            if let Some(folded) = distance::dot_to_distance(ctx, &monos, dist, eliminate) {
                 // Fewer monomials, not fewer printed terms: a sum can
                 // collect into one product with a long coefficient.
                 // Only a complete fold: no coordinate of p or q left with a
@@ -323,7 +323,16 @@ fn power(ctx: &Norm, b: &Term, e: &Term) -> Result<Vec<Mono>> {
             return Err(unsupported_power());
         }
         if let [single] = &base[..] {
-            return symbolic_power(ctx, single, &e).map(|m| vec![m]);
+            let (free, kept) = sign_split(ctx, single);
+            let mut out = symbolic_power(ctx, &free, &e)?;
+            if let Some(kept) = kept {
+                let (c, primitive) = primitive_part(ctx, &e)?;
+                out = out.mul(&Mono::atom(
+                    Term::Pow(Box::new(kept), Box::new(primitive)),
+                    c,
+                ));
+            }
+            return Ok(vec![out]);
         }
         return Ok(vec![Mono::atom(
             Term::Pow(Box::new(collect(base)), Box::new(e)),
@@ -353,7 +362,17 @@ fn power(ctx: &Norm, b: &Term, e: &Term) -> Result<Vec<Mono>> {
         return Err(unsupported_power());
     }
     if base.len() == 1 {
-        return base[0].scalar_power(q).map(|m| vec![m]);
+        if q.is_integer() {
+            return base[0].scalar_power(q).map(|m| vec![m]);
+        }
+        // (a^m)^q = a^(m q) only for a ≥ 0: the rest keeps its power whole,
+        // so that (g^2)^(1/2) is not g for a g of unknown sign.
+        let (free, kept) = sign_split(ctx, &base[0]);
+        let mut out = free.scalar_power(q)?;
+        if let Some(kept) = kept {
+            out = out.mul(&Mono::atom(kept, q.clone()));
+        }
+        return Ok(vec![out]);
     }
     if q.is_integer() && q.is_positive() {
         if let Some(n) = q.to_u32().filter(|n| *n <= MAX_EXPANDED_POWER) {
@@ -372,6 +391,33 @@ fn power(ctx: &Norm, b: &Term, e: &Term) -> Result<Vec<Mono>> {
         }
     }
     Ok(vec![Mono::atom(collect(base), q.clone())])
+}
+
+/// Splits a scalar monomial into the part whose powers may be taken factor
+/// by factor (a positive coefficient, atoms never negative: distances,
+/// heights above the wall, positive symbols) and the rest, as one term
+/// (`None` when nothing is left).
+fn sign_split(ctx: &Norm, m: &Mono) -> (Mono, Option<Term>) {
+    let mut free = Mono::scalar(BigRational::one());
+    let mut kept = Mono::scalar(BigRational::one());
+    for (a, e) in &m.atoms {
+        let target = if distribution::never_negative(ctx, a) {
+            &mut free
+        } else {
+            &mut kept
+        };
+        target.atoms.insert(a.clone(), e.clone());
+    }
+    if m.coef.is_positive() {
+        free.coef = m.coef.clone();
+    } else {
+        kept.coef = m.coef.clone();
+    }
+    if kept.atoms.is_empty() && kept.coef.is_one() {
+        return (free, None);
+    }
+    let term = monomial::scalar_term(&kept.coef, &kept.atoms);
+    (free, Some(term))
 }
 
 /// True for the summation-index names normalisation generates (`k1`, …).

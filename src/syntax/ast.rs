@@ -246,6 +246,9 @@ pub enum Stmt {
         names: Vec<Name>,
     },
     Parameters(Vec<Name>),
+    /// `positive r g`: parameters known to be positive (declared here if
+    /// they are not yet).
+    Positive(Vec<Name>),
     Parallel(Vec<Name>),
     Rules {
         path: String,
@@ -348,6 +351,12 @@ pub enum Stmt {
     Compare {
         lhs: Expr,
         rhs: Expr,
+        span: Span,
+    },
+    /// `place ball(x1, r) inside halfspace`: the ball stays clear of the
+    /// wall.
+    PlaceBall {
+        region: RegionRef,
         span: Span,
     },
     /// `place x2 at (0, 0, 3)`: numeric coordinates, the normal one last.

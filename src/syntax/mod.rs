@@ -153,6 +153,7 @@ const STATEMENT_RULES: &[Rule] = &[
     Rule::operator_decl,
     Rule::points_decl,
     Rule::parameters_decl,
+    Rule::positive_decl,
     Rule::parallel_decl,
     Rule::rules_decl,
     Rule::simplify_stmt,
@@ -227,6 +228,7 @@ const STATEMENT_STARTS: &[&str] = &[
     "vector",
     "points",
     "parameters",
+    "positive",
     "parallel",
     "rules",
     "simplify",
@@ -454,6 +456,7 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
             }
         }
         Rule::parameters_decl => Stmt::Parameters(inner.map(parse_name).collect()),
+        Rule::positive_decl => Stmt::Positive(inner.map(parse_name).collect()),
         Rule::parallel_decl => Stmt::Parallel(inner.map(parse_name).collect()),
         Rule::rules_decl => {
             let string = next(&mut inner);
@@ -482,7 +485,22 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
             span,
         },
         Rule::place_stmt => {
-            let point = parse_point(next(&mut inner));
+            let first = next(&mut inner);
+            if first.as_rule() == Rule::place_ball {
+                let ball = next(&mut first.into_inner());
+                let region_span = span_of(&ball);
+                let mut parts = ball.into_inner();
+                let center = parse_point(next(&mut parts));
+                let radius = build_expr(next(&mut parts));
+                return Ok(Stmt::PlaceBall {
+                    region: RegionRef {
+                        kind: RegionKind::Ball(center, Box::new(radius)),
+                        span: region_span,
+                    },
+                    span,
+                });
+            }
+            let point = parse_point(first);
             let what = next(&mut inner);
             if what.as_rule() == Rule::place_at {
                 return Ok(Stmt::Position {
