@@ -184,16 +184,23 @@ pub(super) fn ln_gamma_diff(x: f64, e: f64) -> f64 {
     }
     // Both arguments positive here: the interval is pole-free and reaches
     // 1/2. Shift up with ln Γ(y) = ln Γ(y + 1) - ln y.
+    // Σ ln(1 + e/y_k)/e = ln Π(1 + e/y_k)/e, with the product less one
+    // formed without cancellation: (1 + p)(1 + u) - 1 = p + u(1 + p).
     let mut y = x;
-    let mut shift = 0.0;
+    let (mut product, mut inverses) = (0.0, 0.0);
     while y.min(y + e) < STIRLING_FROM {
-        shift += if e == 0.0 {
-            1.0 / y
+        if e == 0.0 {
+            inverses += 1.0 / y;
         } else {
-            (e / y).ln_1p() / e
-        };
+            product += (e / y) * (1.0 + product);
+        }
         y += 1.0;
     }
+    let shift = if e == 0.0 {
+        inverses
+    } else {
+        product.ln_1p() / e
+    };
     stirling_diff(y, e) - shift
 }
 
@@ -313,16 +320,22 @@ fn stirling_diff(y: f64, e: f64) -> f64 {
     } else {
         (y - 0.5) * (u.ln_1p() / e) + (y + e).ln() - 1.0
     };
-    // [(y + e)^(-j) - y^(-j)]/e = y^(-j-1) [(1 + u)^(-j) - 1]/u.
-    let l = u.ln_1p();
-    let inv = 1.0 / y;
-    let mut yj = inv * inv; // y^(-j-1), j = 1
+    // [(y + e)^(-j) - y^(-j)]/e = y^(-j-1) [(1 + u)^(-j) - 1]/u, and with
+    // v = 1/(1 + u), [(1 + u)^(-j) - 1]/u = -v (1 + v + … + v^(j-1)): no
+    // cancellation, and -j at e = 0.
+    let v = y / (y + e);
+    let inv2 = 1.0 / (y * y);
+    let mut yj = inv2; // y^(-j-1), j = 1
+    let (mut geometric, mut vi, mut i) = (0.0, 1.0, 0);
     let mut series = 0.0;
     for (k, c) in STIRLING_C.iter().enumerate() {
-        let j = (2 * k + 1) as f64;
-        let ratio = if e == 0.0 { -j } else { (-j * l).exp_m1() / u };
-        series += c * yj * ratio;
-        yj *= inv * inv;
+        while i < 2 * k + 1 {
+            geometric += vi;
+            vi *= v;
+            i += 1;
+        }
+        series += c * yj * (-v * geometric);
+        yj *= inv2;
     }
     main + series
 }
