@@ -12,6 +12,7 @@ pub mod eval;
 pub mod models;
 pub mod quadrature;
 pub mod session;
+pub mod special;
 
 use std::collections::BTreeMap;
 

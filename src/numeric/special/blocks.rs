@@ -1,0 +1,99 @@
+//! Conformal blocks of a bulk two-point function near a flat wall, in the
+//! bulk channel and in the boundary channel, as functions of the cross-ratio
+//! ξ = (x1 - x2)²/(4 y1 y2).
+//!
+//! # Normalisation
+//!
+//! Two identical bulk scalars of dimension Δ at heights y1, y2 above the
+//! wall y = 0 (McAvity & Osborn 1995, cond-mat/9505127; Liendo, Rastelli &
+//! van Rees 2012, arXiv:1210.4258; the project's PHYSICS.md §8):
+//!
+//!   ⟨O(x1) O(x2)⟩ = G(ξ) / ((2y1)^Δ (2y2)^Δ ξ^Δ),
+//!
+//! so that G = 1 without a wall (the two-point function normalised to
+//! 1/|x1 - x2|^(2Δ)). The two expansions are
+//!
+//!   bulk channel:     G(ξ) = 1 + Σ_k λ_k a_k f_bulk(Δ_k; ξ),
+//!   boundary channel: G(ξ) = ξ^Δ Σ_l μ_l² f_bdy(Δ̂_l; ξ),
+//!
+//!   f_bulk(Δ; ξ)  = ξ^(Δ/2) ₂F₁(Δ/2, Δ/2; Δ + 1 - d/2; -ξ),
+//!   f_bdy(Δ̂; ξ)  = ξ^(-Δ̂) ₂F₁(Δ̂, Δ̂ + 1 - d/2; 2Δ̂ + 2 - d; -1/ξ),
+//!
+//! normalised by f_bulk ~ ξ^(Δ/2) as ξ → 0 (the bulk OPE limit) and
+//! f_bdy ~ ξ^(-Δ̂) as ξ → ∞ (the boundary limit). Both ₂F₁ are taken at a
+//! negative argument, where they are real for all ξ > 0.
+//!
+//! At the unitarity bound of a boundary scalar, Δ̂ = d/2 - 1, both b and c
+//! of the boundary ₂F₁ vanish with c = 2b; the block is the limit along Δ̂,
+//! ₂F₁(a, ε; 2ε; z) → (1 + (1 - z)^(-a))/2
+//! ([`super::hyp2f1_vanishing_bc`]), so
+//!
+//!   f_bdy(d/2 - 1; ξ) = ξ^(1-d/2) (1 + (ξ/(1 + ξ))^(d/2-1))/2.
+//!
+//! # The free scalar (derived for this project)
+//!
+//! With image propagators (PHYSICS.md §3) and C_φ scaled to 1,
+//! ⟨φφ⟩ = |x1 - x2|^(2-d) ± |x1 - x̄2|^(2-d), + for Neumann, - for
+//! Dirichlet. Since |x1 - x2|² = 4y1y2 ξ and |x1 - x̄2|² = 4y1y2 (1 + ξ),
+//! with Δ = d/2 - 1:
+//!
+//!   G(ξ) = 1 ± (ξ/(1 + ξ))^(d/2-1).
+//!
+//! **Bulk channel.** At Δ = d - 2 the bulk ₂F₁ has c = Δ + 1 - d/2 = d/2 - 1
+//! = b, so ₂F₁(a, b; b; -ξ) = (1 + ξ)^(-a) (DLMF 15.4.6) and
+//! f_bulk(d - 2; ξ) = (ξ/(1 + ξ))^(d/2-1) exactly: G = 1 ± f_bulk(d - 2; ξ),
+//! the identity and φ² with λa = ±1.
+//!
+//! **Boundary channel, Neumann.** One block, φ̂ = φ|wall at Δ̂ = d/2 - 1: by
+//! the limit above ξ^Δ f_bdy(d/2 - 1; ξ) = (1 + (ξ/(1 + ξ))^(d/2-1))/2, so
+//!
+//!   G_N = 2 ξ^Δ f_bdy(d/2 - 1; ξ),   μ² = 2.
+//!
+//! **Boundary channel, Dirichlet.** One block, ∂_nφ at Δ̂ = d/2: the ₂F₁ is
+//! ₂F₁(d/2, 1; 2; z), and ₂F₁(a, 1; 2; z) = ((1 - z)^(1-a) - 1)/((a - 1) z)
+//! (sum Σ (a)_k z^k/(k + 1)! = ((1 - z)^(1-a) - 1)/((a - 1) z) by the
+//! binomial series). At z = -1/ξ this gives
+//! ξ^Δ f_bdy(d/2; ξ) = (1 - (ξ/(1 + ξ))^(d/2-1))/(d/2 - 1), so
+//!
+//!   G_D = (d/2 - 1) ξ^Δ f_bdy(d/2; ξ),   μ² = (d - 2)/2.
+//!
+//! Both are checked numerically in `tests/special.rs` for d = 3, 4, 5.
+
+use super::hypergeometric::{hyp2f1, hyp2f1_vanishing_bc};
+use super::{finite, SpecialError};
+
+/// The bulk-channel block f_bulk(Δ; ξ) = ξ^(Δ/2) ₂F₁(Δ/2, Δ/2; Δ + 1 - d/2; -ξ)
+/// in dimension `d` (any real d), for ξ > 0.
+pub fn bulk_block(d: f64, delta: f64, xi: f64) -> Result<f64, SpecialError> {
+    check(d, delta, xi)?;
+    let h = 0.5 * delta;
+    let f = hyp2f1(h, h, delta + 1.0 - 0.5 * d, -xi)?;
+    finite(xi.powf(h) * f)
+}
+
+/// The boundary-channel block
+/// f_bdy(Δ̂; ξ) = ξ^(-Δ̂) ₂F₁(Δ̂, Δ̂ + 1 - d/2; 2Δ̂ + 2 - d; -1/ξ) in dimension
+/// `d`, for ξ > 0; at Δ̂ = d/2 - 1 its limit along Δ̂.
+pub fn boundary_block(d: f64, delta_hat: f64, xi: f64) -> Result<f64, SpecialError> {
+    check(d, delta_hat, xi)?;
+    let b = delta_hat + 1.0 - 0.5 * d;
+    // c = 2b exactly, so that b = 0 and c = 0 come together.
+    let c = 2.0 * b;
+    let z = -1.0 / xi;
+    let f = if b == 0.0 {
+        hyp2f1_vanishing_bc(delta_hat, 0.5, z)?
+    } else {
+        hyp2f1(delta_hat, b, c, z)?
+    };
+    finite(xi.powf(-delta_hat) * f)
+}
+
+fn check(d: f64, delta: f64, xi: f64) -> Result<(), SpecialError> {
+    if !(d.is_finite() && delta.is_finite() && xi.is_finite()) {
+        return Err(SpecialError::NotFinite);
+    }
+    if xi <= 0.0 {
+        return Err(SpecialError::CrossRatio);
+    }
+    Ok(())
+}
