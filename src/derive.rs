@@ -20,6 +20,9 @@ pub enum StepVerdict {
     Proved {
         rules: Vec<String>,
         away: crate::normal::Caveats,
+        /// Proved with the model's explicit correlators in place of the
+        /// correlators, not by the rules alone.
+        in_model: bool,
     },
     /// Not equal: the remainder (earlier minus this step) and a diagnosis.
     Refuted { remainder: Term, diagnosis: String },
@@ -75,7 +78,10 @@ pub const MOVES: &[(&str, &str)] = &[
         "integrate",
         "integrating a total derivative, or an integral done by hand",
     ),
-    ("model", "the model's correlators (checked numerically)"),
+    (
+        "model",
+        "the model's correlators (proved with them in place where the algebra allows, otherwise checked numerically)",
+    ),
     (
         "wick",
         "Wick contraction in the free model (checked numerically)",
@@ -127,12 +133,19 @@ fn edit_distance(a: &str, b: &str) -> usize {
     row[b.len()]
 }
 
-/// Checks every step against the one before it.
+/// Checks a step against the one before it with a model's explicit
+/// correlators in place of the correlators.
+pub type ModelProver<'a> = dyn Fn(&Term, &Term) -> Result<Verdict> + 'a;
+
+/// Checks every step against the one before it: by the rules, then (for a
+/// step they do not prove) with the model's correlators in place when a
+/// model is given; a step neither proves is diagnosed.
 pub fn check(
     engine: &Engine,
     start: &Term,
     steps: &[Step],
     style: Style,
+    model: Option<&ModelProver>,
 ) -> Result<Vec<StepReport>> {
     let mut out = Vec::new();
     let mut previous = start;
@@ -142,10 +155,23 @@ pub fn check(
         cited: claimed,
     } in steps
     {
-        let verdict = match engine.check(previous, step)? {
+        let mut verdict = engine.check(previous, step)?;
+        let mut in_model = false;
+        if let (false, Some(prove)) = (verdict.holds(), model) {
+            // A model that cannot express a correlator of the step leaves
+            // the verdict of the rules.
+            if let Ok(v) = prove(previous, step) {
+                if v.holds() {
+                    verdict = v;
+                    in_model = true;
+                }
+            }
+        }
+        let verdict = match verdict {
             Verdict::Proved(s) | Verdict::ProvedAway(s) => StepVerdict::Proved {
                 rules: s.applied.keys().cloned().collect(),
                 away: s.caveats,
+                in_model,
             },
             Verdict::NotProved(s) if !s.stop.is_saturated() => StepVerdict::Unknown {
                 remainder: s.term.clone(),

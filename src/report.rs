@@ -392,7 +392,11 @@ impl<'a> Reporter<'a> {
                 format!(" (cited: {})", step.claimed.join(", "))
             };
             let (status, detail) = match &step.verdict {
-                StepVerdict::Proved { rules, away } => {
+                StepVerdict::Proved {
+                    rules,
+                    away,
+                    in_model,
+                } => {
                     if away.is_empty() {
                         ok += 1;
                     } else {
@@ -414,6 +418,9 @@ impl<'a> Reporter<'a> {
                         .collect();
                     if !unused.is_empty() {
                         by = format!("{by}; cited but not used: {}", unused.join(", "));
+                    }
+                    if *in_model {
+                        by = format!("{by}, with the model's correlators in place");
                     }
                     if away.is_empty() {
                         let _ = writeln!(

@@ -575,17 +575,28 @@ pub fn run_source(
                 },
                 _,
             ) => {
-                let mut report =
-                    crate::derive::check(&engine, start, steps, opts.style).map_err(at_item)?;
-                // Steps the rules did not prove are evaluated on the file's
-                // model, when it has one.
-                if program.numeric.model.is_some()
-                    && report
-                        .iter()
-                        .any(|r| !matches!(r.verdict, crate::derive::StepVerdict::Proved { .. }))
-                {
-                    let s = numeric_session(&mut session, &program, &engine, &mut reporter)
-                        .map_err(at_item)?;
+                // With a model, steps the rules do not prove are tried with
+                // the model's correlators in place, then numerically.
+                let session_ref = if program.numeric.model.is_some() {
+                    Some(
+                        numeric_session(&mut session, &program, &engine, &mut reporter)
+                            .map_err(at_item)?,
+                    )
+                } else {
+                    None
+                };
+                let prover = session_ref.map(|s| {
+                    move |b: &crate::term::Term, a: &crate::term::Term| s.prove_in_model(b, a)
+                });
+                let mut report = crate::derive::check(
+                    &engine,
+                    start,
+                    steps,
+                    opts.style,
+                    prover.as_ref().map(|p| p as &crate::derive::ModelProver),
+                )
+                .map_err(at_item)?;
+                if let Some(s) = session_ref {
                     let mut before = start;
                     for (r, after) in report.iter_mut().zip(steps.iter().map(|s| &s.expr)) {
                         if !matches!(r.verdict, crate::derive::StepVerdict::Proved { .. }) {

@@ -39,7 +39,21 @@ pub fn integral(ctx: &Norm, i: &Integral) -> Result<Vec<Mono>> {
         }
     }
     let mut out = Vec::new();
-    for m in expand(ctx, &i.body)? {
+    let mut monos = expand(ctx, &i.body)?;
+    if i.surface {
+        // The explicit part of a flux, in closed form when it can be.
+        let (explicit, rest): (Vec<Mono>, Vec<Mono>) =
+            monos.into_iter().partition(|m| is_explicit_flux(m, &i.var));
+        monos = rest;
+        // All of it at once: the divergence may vanish only in the sum.
+        if !explicit.is_empty() {
+            match super::flux::explicit_flux(ctx, &i.var, &region, &explicit)? {
+                Some(value) => out.extend(value),
+                None => monos.extend(explicit),
+            }
+        }
+    }
+    for m in monos {
         if i.surface {
             out.extend(surface(ctx, &i.var, &region, m)?);
         } else {
@@ -47,6 +61,28 @@ pub fn integral(ctx: &Norm, i: &Integral) -> Result<Vec<Mono>> {
         }
     }
     Ok(out)
+}
+
+/// A monomial of a flux whose dependence on the integration point is
+/// explicit: one outward normal, and explicit functions.
+fn is_explicit_flux(m: &Mono, var: &Point) -> bool {
+    m.factors
+        .iter()
+        .filter(|f| matches!(f, Term::OutNormal(_)))
+        .count()
+        == 1
+        && super::flux::explicit(
+            &Mono {
+                factors: m
+                    .factors
+                    .iter()
+                    .filter(|f| !matches!(f, Term::OutNormal(_)))
+                    .cloned()
+                    .collect(),
+                ..m.clone()
+            },
+            var,
+        )
 }
 
 /// One monomial of a surface integral: N[i] F → ∫ ∂[i] F.
@@ -183,7 +219,7 @@ fn volume(ctx: &Norm, var: &Point, region: &Region, m: Mono) -> Result<Vec<Mono>
 
 /// True if a ball lies inside the open half-space: declared so, or its
 /// centre placed at numeric coordinates higher than a numeric radius.
-fn clear_of_wall(ctx: &Norm, region: &Region) -> bool {
+pub(super) fn clear_of_wall(ctx: &Norm, region: &Region) -> bool {
     let Region::Ball(center, radius) = region else {
         return false;
     };
@@ -234,7 +270,7 @@ fn is_var(p: &Point, var: &Point) -> bool {
 }
 
 /// Where a point lies with respect to a region, if the file says so.
-fn membership(ctx: &Norm, p: &Point, region: &Region) -> Option<Placement> {
+pub(super) fn membership(ctx: &Norm, p: &Point, region: &Region) -> Option<Placement> {
     match region {
         Region::Space | Region::Halfspace => Some(Placement::Inside),
         Region::Boundary => Some(if ctx.is_boundary_point(p) {

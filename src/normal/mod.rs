@@ -18,6 +18,7 @@ mod cancel;
 mod contract;
 mod distance;
 mod distribution;
+mod flux;
 mod integrate;
 mod local;
 mod monomial;
@@ -157,10 +158,52 @@ fn canonical(ctx: &Norm, monos: Vec<Mono>) -> Vec<Mono> {
     let mut out = Vec::new();
     for m in monos {
         for m in contract::contract(ctx, m) {
+            // A failure leaves the powers as they were: still exact.
+            let m = match combine_powers(ctx, m.clone()) {
+                Ok(combined) => combined,
+                Err(_) => m,
+            };
             out.push(contract::canonical_dummies(ctx, m));
         }
     }
     out
+}
+
+/// One symbolic power per base: |p - q|^(-d) |p - q|^(d - 2 Δ) is
+/// |p - q|^(-2 Δ), kept as the rational part times (|p - q|^R)^c with R
+/// primitive, as [`symbolic_power`] writes every power.
+fn combine_powers(ctx: &Norm, mut m: Mono) -> Result<Mono> {
+    let mut by_base: BTreeMap<Term, Vec<(Term, Term)>> = BTreeMap::new();
+    for (a, e) in &m.atoms {
+        let (base, exponent) = match a {
+            Term::Pow(b, r) if !matches!(**r, Term::Num(_)) => (
+                (**b).clone(),
+                Term::Mul(vec![Term::Num(e.clone()), (**r).clone()]),
+            ),
+            other => (other.clone(), Term::Num(e.clone())),
+        };
+        by_base.entry(base).or_default().push((a.clone(), exponent));
+    }
+    for (base, parts) in by_base {
+        let symbolic = parts
+            .iter()
+            .filter(|(a, _)| matches!(a, Term::Pow(_, r) if !matches!(**r, Term::Num(_))))
+            .count();
+        if symbolic < 2 {
+            continue;
+        }
+        for (a, _) in &parts {
+            m.atoms.remove(a);
+        }
+        let total = normalize_in(ctx, &Term::Add(parts.into_iter().map(|(_, e)| e).collect()))?;
+        let power = match &total {
+            Term::Num(q) if q.is_zero() => continue,
+            Term::Num(q) => Mono::atom(base, q.clone()),
+            e => symbolic_power(ctx, &Mono::atom(base, BigRational::one()), e)?,
+        };
+        m = m.mul(&power);
+    }
+    Ok(m)
 }
 
 /// Adds up monomials that differ only in their coefficient.

@@ -17,14 +17,14 @@ use num_traits::ToPrimitive;
 use super::eval::compile;
 use super::models::conformal::{Conformal, Convention};
 use super::models::free_scalar::{Composite, FreeScalar, Mapping, Wall};
-use super::models::{apply, sphere_area, Model, SPHERE_AREA};
+use super::models::{apply, pointwise_pairs, sphere_area, Model, SPHERE_AREA};
 use super::quadrature::{integrate, Surface, Tolerance};
 use super::Values;
 use crate::context::{Context, IndexKind, DIMENSION, STRESS_TENSOR};
 use crate::diagnostic::{Error, ErrorKind, Result};
-use crate::engine::Engine;
+use crate::engine::{Engine, Verdict};
 use crate::lower::{ModelChoice, NumericSpec};
-use crate::normal::normalize_pointwise as normalize;
+use crate::normal::{normalize_pointwise as normalize, Coincidence, Singular};
 use crate::term::{Index, Integral, Point, Region, Term};
 
 /// The parameter that carries the outward normal at each quadrature node.
@@ -159,6 +159,33 @@ impl<'a> Session<'a> {
     /// One line saying which model is in force.
     pub fn describe(&self) -> String {
         self.model.describe()
+    }
+
+    /// Checks `before = after` symbolically with the model's correlators in
+    /// place of the correlators: a proof in the model, exact, for every
+    /// value of the parameters. Where the model's correlators were built
+    /// with pointwise derivatives, the result holds away from coincident
+    /// insertions, and says so.
+    pub fn prove_in_model(&self, before: &Term, after: &Term) -> Result<Verdict> {
+        let b = apply(self.model.as_ref(), self.ctx, before)?;
+        let a = apply(self.model.as_ref(), self.ctx, after)?;
+        let verdict = self.engine.check(&b, &a)?;
+        let mut pairs = pointwise_pairs(self.model.as_ref(), before);
+        pairs.extend(pointwise_pairs(self.model.as_ref(), after));
+        if pairs.is_empty() {
+            return Ok(verdict);
+        }
+        let away = pairs.into_iter().map(|(p, q)| Coincidence {
+            var: p,
+            at: Singular::Point(q),
+        });
+        Ok(match verdict {
+            Verdict::Proved(mut s) | Verdict::ProvedAway(mut s) => {
+                s.caveats.extend(away);
+                Verdict::ProvedAway(s)
+            }
+            other => other,
+        })
     }
 
     /// The values of `t` for every assignment of its free indices.

@@ -475,6 +475,19 @@ fn matchings(legs: &[usize]) -> Vec<Vec<(usize, usize)>> {
 }
 
 impl Model for FreeScalar {
+    fn pointwise_inside(&self, ops: &[Op]) -> bool {
+        ops.iter().any(|op| {
+            matches!(
+                self.mapping.get(&op.name),
+                Some(
+                    Composite::Stress
+                        | Composite::Displacement
+                        | Composite::BoundaryNormalDerivative
+                )
+            )
+        })
+    }
+
     fn describe(&self) -> String {
         let wall = match self.wall {
             Some(w) => w.describe(),

@@ -63,6 +63,48 @@ pub trait Model {
     fn describe(&self) -> String {
         String::from("a model")
     }
+
+    /// True if the model's correlator of these insertions was built with
+    /// derivatives taken pointwise (composites with derivatives of fields):
+    /// it holds away from coincident insertions only, and a symbolic proof
+    /// through it says so.
+    fn pointwise_inside(&self, _ops: &[Op]) -> bool {
+        false
+    }
+}
+
+/// The pairs of distinct points inserted together in some correlator of a
+/// term whose model correlator is pointwise inside.
+pub fn pointwise_pairs(model: &dyn Model, t: &Term) -> Vec<(Point, Point)> {
+    let mut out = Vec::new();
+    visit_correlators(t, &mut |ops| {
+        if model.pointwise_inside(ops) {
+            for (k, a) in ops.iter().enumerate() {
+                for b in &ops[k + 1..] {
+                    if a.point.name != b.point.name {
+                        out.push((a.point.clone(), b.point.clone()));
+                    }
+                }
+            }
+        }
+    });
+    out
+}
+
+fn visit_correlators(t: &Term, f: &mut dyn FnMut(&[Op])) {
+    match t {
+        Term::Corr(ops) => f(ops),
+        Term::Pow(a, b) => {
+            visit_correlators(a, f);
+            visit_correlators(b, f);
+        }
+        Term::Mul(ts) | Term::Add(ts) | Term::Fun(_, _, ts) => {
+            ts.iter().for_each(|t| visit_correlators(t, f))
+        }
+        Term::Der(_, _, body) => visit_correlators(body, f),
+        Term::Integral(i) => visit_correlators(&i.body, f),
+        _ => {}
+    }
 }
 
 /// Replaces every correlator in a term by the model's explicit function.
