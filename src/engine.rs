@@ -148,6 +148,136 @@ impl Engine {
     }
 }
 
+/// The value of a parameter that makes two sides equal, when they depend
+/// on it linearly and it comes out as a constant.
+#[derive(Clone, Debug)]
+pub struct Solved {
+    /// The value, in normal form (free of points and indices).
+    pub value: Term,
+    /// Where the equation with this value holds only away from coincident
+    /// points.
+    pub caveats: Caveats,
+}
+
+impl Engine {
+    /// Solves `lhs = rhs` for `unknown` exactly: with N(u) the normal form of
+    /// lhs - rhs, N is affine in u when N(0) + u (N(1) - N(0)) is N(u); the
+    /// value is -N(0)/(N(1) - N(0)) when that is a constant, checked by
+    /// putting it back (the equation must then hold). `None` when the
+    /// dependence is not linear, the ratio is not a constant, or nothing
+    /// depends on the unknown.
+    pub fn solve_linear(&self, unknown: &str, lhs: &Term, rhs: &Term) -> Result<Option<Solved>> {
+        let with = |value: Term| {
+            let put = |t: &Term| substitute_symbol(t, unknown, &value);
+            Term::Add(vec![put(lhs), put(rhs).negated()])
+        };
+        let at_zero = self.simplify(&with(Term::zero()))?;
+        let at_one = self.simplify(&with(Term::one()))?;
+        let slope = self.simplify(&Term::Add(vec![
+            at_one.term.clone(),
+            at_zero.term.clone().negated(),
+        ]))?;
+        if slope.term.is_zero() {
+            return Ok(None);
+        }
+        let (Some((c_slope, rest)), Some(offset)) =
+            (first_summand(&slope.term), summands(&at_zero.term))
+        else {
+            return Ok(None);
+        };
+        let c_offset = offset
+            .iter()
+            .map(split_scalar)
+            .find(|(_, r)| *r == rest)
+            .map(|(c, _)| c)
+            .unwrap_or_else(Term::zero);
+        let value = crate::normal::normalize(
+            &self.ctx,
+            &Term::Mul(vec![
+                Term::int(-1),
+                c_offset,
+                Term::Pow(Box::new(c_slope), Box::new(Term::int(-1))),
+            ]),
+        )?;
+        let constant = self.ctx.points.iter().enumerate().all(|(k, p)| {
+            !value.mentions_point(&crate::term::Point::named(k as u32, p.name.as_str()))
+        });
+        if !constant {
+            return Ok(None);
+        }
+        match self.check(
+            &substitute_symbol(lhs, unknown, &value),
+            &substitute_symbol(rhs, unknown, &value),
+        )? {
+            Verdict::Proved(s) | Verdict::ProvedAway(s) => Ok(Some(Solved {
+                value,
+                caveats: s.caveats,
+            })),
+            Verdict::NotProved(_) => Ok(None),
+        }
+    }
+}
+
+/// Replaces a scalar parameter by a term everywhere in `t`.
+fn substitute_symbol(t: &Term, name: &str, value: &Term) -> Term {
+    let sub = |t: &Term| substitute_symbol(t, name, value);
+    match t {
+        Term::Sym(s) if s == name => value.clone(),
+        Term::Pow(a, b) => Term::Pow(Box::new(sub(a)), Box::new(sub(b))),
+        Term::Mul(ts) => Term::Mul(ts.iter().map(sub).collect()),
+        Term::Add(ts) => Term::Add(ts.iter().map(sub).collect()),
+        Term::Fun(f, k, args) => Term::Fun(f.clone(), *k, args.iter().map(sub).collect()),
+        Term::Der(i, p, body) => Term::Der(i.clone(), p.clone(), Box::new(sub(body))),
+        Term::Integral(i) => {
+            let mut i = (**i).clone();
+            i.body = sub(&i.body);
+            if let crate::term::Region::Ball(c, r) = &i.region {
+                i.region = crate::term::Region::Ball(c.clone(), sub(r));
+            }
+            Term::Integral(Box::new(i))
+        }
+        other => other.clone(),
+    }
+}
+
+fn summands(t: &Term) -> Option<Vec<Term>> {
+    Some(match t {
+        t if t.is_zero() => vec![],
+        Term::Add(ts) => ts.clone(),
+        t => vec![t.clone()],
+    })
+}
+
+fn first_summand(t: &Term) -> Option<(Term, Vec<Term>)> {
+    summands(t)?.first().map(split_scalar)
+}
+
+/// A normal-form product split into its scalar coefficient (numbers and
+/// parameters: terms without points) and the rest.
+fn split_scalar(t: &Term) -> (Term, Vec<Term>) {
+    let factors = match t {
+        Term::Mul(fs) => fs.clone(),
+        other => vec![other.clone()],
+    };
+    let (scalar, rest): (Vec<Term>, Vec<Term>) = factors.into_iter().partition(|f| {
+        matches!(
+            f,
+            Term::Num(_) | Term::Sym(_) | Term::Pow(..) | Term::Add(_) | Term::Mul(_)
+        ) && !mentions_any_point(f)
+    });
+    (Term::Mul(scalar), rest)
+}
+
+/// True if a term mentions a point anywhere.
+fn mentions_any_point(t: &Term) -> bool {
+    match t {
+        Term::Num(_) | Term::Sym(_) => false,
+        Term::Pow(a, b) => mentions_any_point(a) || mentions_any_point(b),
+        Term::Mul(ts) | Term::Add(ts) => ts.iter().any(mentions_any_point),
+        _ => true,
+    }
+}
+
 /// True if every term of a normal form carries a δ-function at one of the
 /// coincidences (possibly differentiated): such terms vanish away from
 /// them.

@@ -581,8 +581,16 @@ impl<'a> Reporter<'a> {
         }
     }
 
-    /// `line N: solve` with the value found.
-    pub fn solved(&mut self, line: usize, input: &str, unknown: &str, s: &Solution) {
+    /// `line N: solve` with the value found, exact when the algebra
+    /// settled it.
+    pub fn solved(
+        &mut self,
+        line: usize,
+        input: &str,
+        unknown: &str,
+        s: &Solution,
+        exact: Option<&crate::engine::Solved>,
+    ) {
         let fields = [
             ("line", line.to_string()),
             ("kind", js("solve")),
@@ -590,6 +598,10 @@ impl<'a> Reporter<'a> {
             ("unknown", js(unknown)),
             ("value", json_number(s.value)),
             ("residual", json_number(s.residual)),
+            (
+                "exact",
+                exact.map_or_else(|| "null".to_string(), |e| js(&self.printer.term(&e.value))),
+            ),
         ];
         self.entry(&fields);
         let _ = writeln!(
@@ -597,6 +609,21 @@ impl<'a> Reporter<'a> {
             "line {line}: solve {}",
             abbreviate(input, INPUT_WIDTH)
         );
+        if let Some(e) = exact {
+            let away = if e.caveats.is_empty() {
+                String::new()
+            } else {
+                format!(
+                    " (the equation then holds where {})",
+                    self.coincidences(&e.caveats).join(", ")
+                )
+            };
+            let _ = writeln!(
+                self.out,
+                "  {unknown} = {}  exactly, for every value of the other parameters{away}",
+                self.printer.term(&e.value)
+            );
+        }
         let from = if s.component.is_empty() {
             String::new()
         } else {

@@ -75,7 +75,9 @@ fn numeric_item(
             free,
         } => {
             let solution = s.solve(unknown, lhs, rhs, free)?;
-            reporter.solved(line, &input("solve "), unknown, &solution);
+            // The exact value too, when the algebra settles it.
+            let exact = s.solve_exact(unknown, lhs, rhs).ok().flatten();
+            reporter.solved(line, &input("solve "), unknown, &solution, exact.as_ref());
             None
         }
         ItemKind::Flux {

@@ -422,6 +422,19 @@ fn power(ctx: &Norm, b: &Term, e: &Term) -> Result<Vec<Mono>> {
             return Ok(repeat_product(&base, n));
         }
     }
+    // The monomial every term shares comes out first, with negative powers
+    // as their lowest: (S_d λ/d - S_d λ)^(-1) = d/(S_d λ (1 - d)).
+    if let Some((shared, rest)) = shared_monomial(&base) {
+        let outer = power(ctx, &collect(vec![shared]), &Term::Num(q.clone()))?;
+        let inner = power(ctx, &collect(rest), &Term::Num(q.clone()))?;
+        let mut out = Vec::new();
+        for a in &outer {
+            for b in &inner {
+                out.push(a.mul(b));
+            }
+        }
+        return Ok(out);
+    }
     // A non-integer or negative power of a sum: the sum, in normal form, is
     // a scalar atom carrying the exponent, so (A)^(3/2) (A)^(-1) = (A)^(1/2).
     // Its content comes out first, (4 d - 4)^(-1) = (d - 1)^(-1)/4, so that
@@ -434,6 +447,51 @@ fn power(ctx: &Norm, b: &Term, e: &Term) -> Result<Vec<Mono>> {
         }
     }
     Ok(vec![Mono::atom(collect(base), q.clone())])
+}
+
+/// The atoms every monomial of a sum carries, to their lowest power (a
+/// missing atom counts as power zero, so negative powers come out too),
+/// and the sum divided by them; `None` when nothing is shared.
+fn shared_monomial(monos: &[Mono]) -> Option<(Mono, Vec<Mono>)> {
+    let keys: std::collections::BTreeSet<&Term> =
+        monos.iter().flat_map(|m| m.atoms.keys()).collect();
+    let mut shared = Atoms::new();
+    for a in keys {
+        let lowest = monos
+            .iter()
+            .map(|m| m.atoms.get(a).cloned().unwrap_or_else(BigRational::zero))
+            .min()
+            .unwrap_or_else(BigRational::zero);
+        if !lowest.is_zero() {
+            shared.insert(a.clone(), lowest);
+        }
+    }
+    if shared.is_empty() {
+        return None;
+    }
+    let rest = monos
+        .iter()
+        .map(|m| {
+            let mut r = m.clone();
+            for (a, low) in &shared {
+                let e = r.atoms.get(a).cloned().unwrap_or_else(BigRational::zero) - low;
+                if e.is_zero() {
+                    r.atoms.remove(a);
+                } else {
+                    r.atoms.insert(a.clone(), e);
+                }
+            }
+            r
+        })
+        .collect();
+    Some((
+        Mono {
+            coef: BigRational::one(),
+            atoms: shared,
+            factors: Vec::new(),
+        },
+        rest,
+    ))
 }
 
 /// Splits a scalar monomial into the part whose powers may be taken factor

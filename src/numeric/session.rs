@@ -22,7 +22,7 @@ use super::quadrature::{integrate, Surface, Tolerance};
 use super::Values;
 use crate::context::{Context, IndexKind, DIMENSION, STRESS_TENSOR};
 use crate::diagnostic::{Error, ErrorKind, Result};
-use crate::engine::{Engine, Verdict};
+use crate::engine::{Engine, Solved, Verdict};
 use crate::lower::{ModelChoice, NumericSpec};
 use crate::normal::{normalize_pointwise as normalize, Coincidence, Singular};
 use crate::term::{Index, Integral, Point, Region, Term};
@@ -186,6 +186,14 @@ impl<'a> Session<'a> {
             }
             other => other,
         })
+    }
+
+    /// Solves `lhs = rhs` for `unknown` exactly, with the model's
+    /// correlators in place: `None` when the algebra does not settle it.
+    pub fn solve_exact(&self, unknown: &str, lhs: &Term, rhs: &Term) -> Result<Option<Solved>> {
+        let l = apply(self.model.as_ref(), self.ctx, lhs)?;
+        let r = apply(self.model.as_ref(), self.ctx, rhs)?;
+        self.engine.solve_linear(unknown, &l, &r)
     }
 
     /// The values of `t` for every assignment of its free indices.
