@@ -892,10 +892,31 @@ impl Lowerer {
                 }
             }
             ExprKind::Corr(items) => {
-                let mut ops = Vec::new();
+                let mut ops: Vec<Op> = Vec::new();
                 for item in items {
                     match item {
-                        Insertion::Op(op) => ops.push(self.op(op)?),
+                        Insertion::Op(op) => {
+                            let lowered = self.op(op)?;
+                            // Two insertions at one point: a product of
+                            // operators there is not defined.
+                            if let Some(other) = ops.iter().find(|o| o.point == lowered.point) {
+                                return Err(self
+                                    .err(
+                                        ErrorKind::Placement,
+                                        op.span,
+                                        format!(
+                                            "`{}` and `{}` are both inserted at `{}`",
+                                            other.name, lowered.name, lowered.point.name
+                                        ),
+                                    )
+                                    .with_label("a second insertion at this point")
+                                    .with_note(
+                                        "a correlator takes its insertions at distinct points; \
+                                         declare another point (`points x x1 x2`) for one of them",
+                                    ));
+                            }
+                            ops.push(lowered);
+                        }
                         Insertion::Splice(v) => return Err(self.rule_syntax(v.span)),
                     }
                 }
@@ -925,6 +946,22 @@ impl Lowerer {
                     return Err(self
                         .err(ErrorKind::Placement, point.span, "derivatives are taken with respect to declared points, not projections")
                         .with_label("a projection"));
+                }
+                // A boundary point moves only along the wall: ∂[n] there is
+                // zero by convention, and writing it is a slip.
+                if i == Index::N && self.ctx.is_boundary_point(&p) {
+                    return Err(self
+                        .err(
+                            ErrorKind::Index,
+                            index.span,
+                            format!("`{}` is a boundary point: it moves only along the wall", p.name),
+                        )
+                        .with_label("a derivative along the normal")
+                        .with_note(
+                            "derivatives at a boundary point run along the wall (a parallel index; \
+                             a bulk index is projected onto the wall); for the normal derivative of a \
+                             field at the wall, map an operator to `boundary-dphi` in the model",
+                        ));
                 }
                 Term::Der(i, p, Box::new(self.expr(body)?))
             }

@@ -82,6 +82,7 @@ impl Lowerer {
                 let mut out = Vec::new();
                 for (name, composite) in fields {
                     self.need_operator(name)?;
+                    self.same_dimension(name, composite)?;
                     out.push((name.text.clone(), composite.clone()));
                 }
                 ModelChoice::FreeScalar {
@@ -105,6 +106,67 @@ impl Lowerer {
         }
         self.numeric.model = Some((choice, span));
         Ok(())
+    }
+
+    /// A declared dimension that the free scalar's composite contradicts is
+    /// an error: `scalar P dim 2` cannot stand for φ² (dimension d - 2).
+    /// Dimensions with parameters besides d are left to the values.
+    fn same_dimension(&self, name: &Name, composite: &str) -> Result<()> {
+        let d = self.ctx.dim();
+        let half = |t: Term| Term::Mul(vec![Term::Num(BigRational::new(1.into(), 2.into())), t]);
+        let expected = match composite {
+            "phi" | "boundary-phi" => half(Term::Add(vec![d, Term::int(-2)])),
+            "phi2" | "boundary-phi2" => Term::Add(vec![d, Term::int(-2)]),
+            "boundary-dphi" => half(d),
+            _ => return Ok(()),
+        };
+        let Some(declared) = self.ctx.attribute(&name.text, "dim") else {
+            return Ok(());
+        };
+        let difference = crate::normal::normalize(
+            &self.ctx,
+            &Term::Add(vec![declared.clone(), expected.clone().negated()]),
+        )?;
+        let only_d = |t: &Term| -> bool {
+            let mut ok = true;
+            let mut stack = vec![t];
+            while let Some(t) = stack.pop() {
+                match t {
+                    Term::Num(_) => {}
+                    Term::Sym(s) => ok &= s == crate::context::DIMENSION,
+                    Term::Add(ts) | Term::Mul(ts) => stack.extend(ts),
+                    Term::Pow(a, b) => {
+                        stack.push(a);
+                        stack.push(b);
+                    }
+                    _ => ok = false,
+                }
+            }
+            ok
+        };
+        if difference.is_zero() || !only_d(&difference) {
+            return Ok(());
+        }
+        let printer =
+            crate::term::print::Printer::new(&self.ctx, crate::term::print::Style::Unicode);
+        let expected = crate::normal::normalize(&self.ctx, &expected)?;
+        Err(self
+            .err(
+                ErrorKind::Name,
+                name.span,
+                format!(
+                    "`{}` is declared with dimension {}, but `{composite}` has dimension {}",
+                    name.text,
+                    printer.term(declared),
+                    printer.term(&expected)
+                ),
+            )
+            .with_label("stands for a composite of another dimension")
+            .with_note(format!(
+                "declare `{}` with `dim {}`, or map another composite",
+                name.text,
+                printer.term(&expected)
+            )))
     }
 
     pub(super) fn declare_coefficient(

@@ -157,6 +157,17 @@ fn volume(ctx: &Norm, var: &Point, region: &Region, m: Mono) -> Result<Vec<Mono>
             None => Err(undecided(&target, region)),
             Some(Placement::Inside) => {
                 let sifted = substitute(ctx, &collect(vec![rest]), var, &target);
+                if let Some((a, b)) = coincident_insertions(&sifted) {
+                    return Err(Error::new(
+                        ErrorKind::Placement,
+                        format!(
+                            "sifting δ({} - {}) puts `{a}` at `{}`, where `{b}` is inserted: \
+                             a product of operators at one point is not defined",
+                            var.name, target.name, target.name
+                        ),
+                    )
+                    .with_note("the local Ward rules turn T next to its δ-function into contact terms; write the identity through them"));
+                }
                 Ok(expand(ctx, &sifted)?.iter().map(|m| outside.mul(m)).collect())
             }
             Some(Placement::Outside) => Ok(vec![]),
@@ -335,6 +346,23 @@ fn undecided(point: &Point, region: &Region) -> Error {
         "state it: `place {name} inside ball({center}, r)` or `place {name} outside ball({center}, r)`, \
          or give numeric positions (`place {name} at (…)`, `place {center} at (…)`) and a numeric radius"
     ))
+}
+
+/// Two insertions of one correlator at the same point, by name.
+fn coincident_insertions(t: &Term) -> Option<(String, String)> {
+    match t {
+        Term::Corr(ops) => ops.iter().enumerate().find_map(|(k, a)| {
+            ops[k + 1..]
+                .iter()
+                .find(|b| b.point == a.point)
+                .map(|b| (a.name.clone(), b.name.clone()))
+        }),
+        Term::Mul(ts) | Term::Add(ts) => ts.iter().find_map(coincident_insertions),
+        Term::Der(_, _, body) => coincident_insertions(body),
+        Term::Pow(a, b) => coincident_insertions(a).or_else(|| coincident_insertions(b)),
+        Term::Integral(i) => coincident_insertions(&i.body),
+        _ => None,
+    }
 }
 
 /// Replaces the integration point `var` by `to` everywhere in `t`.

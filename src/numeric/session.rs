@@ -468,6 +468,16 @@ impl<'a> Session<'a> {
                 Ok(total)
             }
             _ => {
+                if let Some((a, b)) = coincident(t, values) {
+                    return Err(Error::new(
+                        ErrorKind::Numeric,
+                        format!(
+                            "a correlator is evaluated with `{a}` and `{b}` at the same position, \
+                             where it has no value"
+                        ),
+                    )
+                    .with_note("place the points apart"));
+                }
                 let value = self.explicit(t, free)?.eval(values)?;
                 Ok(Value {
                     value,
@@ -648,6 +658,33 @@ impl<'a> Session<'a> {
 }
 
 /// The model a file asked for.
+/// Two insertions of one correlator at the same position, by name.
+fn coincident(t: &Term, values: &Values) -> Option<(String, String)> {
+    let at = |p: &Point| -> Option<Vec<f64>> {
+        let mut v = values.points.get(&*p.name)?.clone();
+        if p.par {
+            if let Some(y) = v.last_mut() {
+                *y = 0.0;
+            }
+        }
+        Some(v)
+    };
+    match t {
+        Term::Corr(ops) => ops.iter().enumerate().find_map(|(k, a)| {
+            let pa = at(&a.point)?;
+            ops[k + 1..].iter().find_map(|b| {
+                (b.point.name != a.point.name && at(&b.point)? == pa)
+                    .then(|| (a.point.name.to_string(), b.point.name.to_string()))
+            })
+        }),
+        Term::Mul(ts) | Term::Add(ts) => ts.iter().find_map(|t| coincident(t, values)),
+        Term::Der(_, _, body) => coincident(body, values),
+        Term::Pow(a, b) => coincident(a, values).or_else(|| coincident(b, values)),
+        Term::Integral(i) => coincident(&i.body, values),
+        _ => None,
+    }
+}
+
 fn build_model(ctx: &Context, choice: &ModelChoice, spec: &NumericSpec) -> Result<Box<dyn Model>> {
     Ok(match choice {
         ModelChoice::Conformal { y_convention } => {
