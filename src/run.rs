@@ -187,7 +187,7 @@ fn numeric_step(
 }
 
 /// A step between a divergence ∂_μ(x) F and terms with δ-functions at x,
-/// checked as `flux` checks a local identity (PHYSICS.md §5): at every
+/// checked as `flux` checks a local identity (docs/conventions.md §8): at every
 /// configuration the flux of F through a small sphere around each
 /// insertion against the contact terms there, and conservation away from
 /// them. The sphere's radius is a third of the smallest distance between

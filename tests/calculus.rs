@@ -15,7 +15,7 @@
 //! - `cross_ratio_*`: the chain rule through ξ = |x1 - x2|²/(4 y1 y2) next to
 //!   a wall, for two concrete choices of F.
 //! - `killing_vectors_*`: the expanded conformal Killing vectors, their
-//!   Jacobians and divergences against PHYSICS.md §1.
+//!   Jacobians and divergences against docs/conventions.md §2.
 //! - `sifted_integrals_*`: ∫ δ(x - p) f(x) = f(p) inside the ball, 0 outside.
 //! - `oracle_agrees_with_central_differences`, `perturbed_answers_fail`:
 //!   the oracle is accurate, and the comparison is not vacuous.
@@ -317,7 +317,7 @@ fn harmonic_d4() {
 
 fn cross_ratio(d: usize, seed: u64) {
     // Common practice: the chain rule ∂_i F(ξ) = F'(ξ) ∂_i ξ through
-    // ξ = |x1 - x2|²/(4 y1 y2) (PHYSICS.md §4 for ξ); the oracle uses the
+    // ξ = |x1 - x2|²/(4 y1 y2) (docs/conventions.md §7 for ξ); the oracle uses the
     // closed-form F^(k) of each concrete F. With `dimension d` and with d a
     // number.
     let mut rng = SplitMix64::new(seed);
@@ -372,7 +372,7 @@ fn cross_ratio_d4() {
 
 // ───────────────────────── 3. Killing vectors ─────────────────────────
 
-/// ε_μ(x) and ∂_μ ε_ν(x) of each family by hand (PHYSICS.md §1; the
+/// ε_μ(x) and ∂_μ ε_ν(x) of each family by hand (docs/conventions.md §2; the
 /// half-space families as in DEVELOPERS.md and context.rs: ε = n for the
 /// normal translation, ε = n (f·x) - f y for the rotation mixing n with the
 /// parallel f, ε = 2 y x - x² n for the normal special conformal one).
@@ -395,7 +395,7 @@ fn killing_by_hand(m: &Model, family: &str, x: &[f64], mu: usize) -> f64 {
     }
 }
 
-/// ∂·ε by hand: 0, 0, d λ, 2 d (b·x) (PHYSICS.md §1); the mixing rotation
+/// ∂·ε by hand: 0, 0, d λ, 2 d (b·x) (docs/conventions.md §2); the mixing rotation
 /// is divergence-free and the normal special one has 2 d y.
 fn divergence_by_hand(m: &Model, family: &str, x: &[f64]) -> f64 {
     let d = m.d;
@@ -411,7 +411,7 @@ fn divergence_by_hand(m: &Model, family: &str, x: &[f64]) -> f64 {
     }
 }
 
-/// ∂_μ ε_ν by hand (differentiating the formulas of PHYSICS.md §1; common
+/// ∂_μ ε_ν by hand (differentiating the formulas of docs/conventions.md §2; common
 /// practice): 0, ω_νμ, λ δ_μν, 2 b_μ x_ν + 2 (b·x) δ_μν - 2 x_μ b_ν.
 fn jacobian_by_hand(m: &Model, family: &str, x: &[f64], mu: usize, nu: usize) -> f64 {
     let d = m.d;
@@ -460,7 +460,7 @@ fn killing_vectors(d: usize, seed: u64) {
         for _ in 0..SAMPLES {
             let model = Model::random(&ctx, d, &mut rng);
             let x = model.at("x");
-            // The expansion: ε_μ(x) (PHYSICS.md §1).
+            // The expansion: ε_μ(x) (docs/conventions.md §2).
             let by_hand: Vec<f64> = (0..d)
                 .map(|mu| killing_by_hand(&model, f, &x, mu))
                 .collect();
@@ -474,7 +474,7 @@ fn killing_vectors(d: usize, seed: u64) {
             );
             worst = worst.max(err);
             // The Jacobian ∂_μ ε_ν, engine and oracle against the formula
-            // (PHYSICS.md §1 differentiated by hand; common practice).
+            // (docs/conventions.md §2 differentiated by hand; common practice).
             let mut by_hand_jac = Vec::new();
             for mu in 0..d {
                 for nu in 0..d {
@@ -496,7 +496,7 @@ fn killing_vectors(d: usize, seed: u64) {
                 );
                 worst = worst.max(err);
             }
-            // The divergence: d λ, 2 d (b·x), … (PHYSICS.md §1).
+            // The divergence: d λ, 2 d (b·x), … (docs/conventions.md §2).
             let want = [divergence_by_hand(&model, f, &x)];
             for (what, t) in [("engine", &div.output), ("oracle", &div.input)] {
                 let got = values(&model, t, &[]);
@@ -508,7 +508,7 @@ fn killing_vectors(d: usize, seed: u64) {
                 );
                 worst = worst.max(err);
             }
-            // The conformal Killing equation (PHYSICS.md §1): zero.
+            // The conformal Killing equation (docs/conventions.md §2): zero.
             let zero = vec![0.0; d * d];
             for (what, t) in [
                 ("engine", &killing_eq.output),

@@ -12,8 +12,8 @@
 //! 3. and every input without a numeric value is an error, not a NaN.
 //!
 //! The formulas are common practice: ε_μ = 2 (b·x) x_μ - x² b_μ is the
-//! special conformal Killing vector (PHYSICS.md §1), ξ the bulk two-point
-//! cross-ratio (PHYSICS.md §4), |x_ij|^(Δk - Δi - Δj) the conformal
+//! special conformal Killing vector (docs/conventions.md §2), ξ the bulk two-point
+//! cross-ratio (docs/conventions.md §7), |x_ij|^(Δk - Δi - Δj) the conformal
 //! three-point structure.
 
 use std::collections::BTreeMap;

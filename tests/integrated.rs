@@ -116,7 +116,7 @@ fn broken_generators_do_not_annihilate_the_wall_two_point_function() {
 
 #[test]
 fn a_wrong_coefficient_in_a_global_identity_is_caught() {
-    // W4 with B = R^d (PHYSICS.md §1): the dilatation term is Δ λ, not Δ λ/2.
+    // W4 with B = R^d (docs/conventions.md §2): the dilatation term is Δ λ, not Δ λ/2.
     let header = "dimension d\nscalar A dim Delta1\npoints x x1\nkilling dil dilatation lambda";
     let body = "simplify ∫[x in space] { ∂[mu](x) { dil[nu](x) <T[mu,nu](x) A(x1)> } }
   expect - lambda x1[mu] ∂[mu](x1) <A(x1)> - Delta1/2 lambda <A(x1)>";
@@ -127,7 +127,7 @@ fn a_wrong_coefficient_in_a_global_identity_is_caught() {
 
 #[test]
 fn the_displacement_term_is_needed_for_the_normal_translation() {
-    // PHYSICS.md §4 (derived): ∫ <D(s) X> = Σ_i ∂<X>/∂y_i; without the
+    // docs/conventions.md §7 (derived): ∫ <D(s) X> = Σ_i ∂<X>/∂y_i; without the
     // boundary integral the identity does not hold.
     let header =
         "dimension d\nhalfspace y >= 0\nscalar O dim Delta\npoints x x1\nkilling ntr translation n";
@@ -143,7 +143,7 @@ fn the_displacement_term_is_needed_for_the_normal_translation() {
 
 #[test]
 fn generators_are_classified_preserved_or_broken() {
-    // Common practice (PHYSICS.md §4): ε_n = 0 on y = 0 is preserved.
+    // Common practice (docs/conventions.md §7): ε_n = 0 on y = 0 is preserved.
     let text = "dimension d\nhalfspace y >= 0\npoints x\n\
         killing a1 translation e parallel\nkilling a2 translation n\n\
         killing a3 rotation omega parallel\nkilling a4 rotation n f\n\

@@ -9,15 +9,15 @@
 //!
 //! - `wick_stress_phi_phi_*`: ⟨T φ φ⟩ of the free scalar by Wick
 //!   contraction equals the ⟨T O O⟩ form with Δ = (d-2)/2, C_O = C_φ
-//!   (Osborn & Petkou 1994, hep-th/9307010; PHYSICS.md §2–3), d = 3, 4.
+//!   (Osborn & Petkou 1994, hep-th/9307010; docs/conventions.md §3–4), d = 3, 4.
 //! - `free_scalar_central_charge_*`: C_T of the free scalar from ⟨T T⟩ is
 //!   d/((d-1)S_d²) (Osborn & Petkou 1994), d = 3, 4.
 //! - `halfspace_stress_one_point_*`: ⟨T_μν⟩ = 0 next to either wall with the
-//!   improved T, not with the unimproved one (PHYSICS.md §3–4, derived).
+//!   improved T, not with the unimproved one (docs/conventions.md §4, §7, derived).
 //! - `displacement_two_point_*`: C_D = 2/S_d² for both walls, d = 3, 4, 5
-//!   (PHYSICS.md §4, derived).
+//!   (docs/conventions.md §7, derived).
 //! - `phi2_displacement_coupling_*`: b_{φ²D} = ∓1/S_d² in the (2y)
-//!   convention (PHYSICS.md §4, derived), and the conformal model's Ward
+//!   convention (docs/conventions.md §7, derived), and the conformal model's Ward
 //!   value b_OD = -Δa_O/S_d agrees, in both conventions.
 //! - further checks of the conformal forms against the free scalar
 //!   (one-point, bulk-to-boundary, ⟨T O⟩ next to a wall), conservation and
@@ -487,13 +487,13 @@ fn wick_stress_phi_phi(d: usize) {
     assert!(err < TOL, "d = {d}: relative error {err:e}");
 }
 
-// Osborn & Petkou 1994, hep-th/9307010; PHYSICS.md §2–3.
+// Osborn & Petkou 1994, hep-th/9307010; docs/conventions.md §3–4.
 #[test]
 fn wick_stress_phi_phi_d3() {
     wick_stress_phi_phi(3);
 }
 
-// Osborn & Petkou 1994, hep-th/9307010; PHYSICS.md §2–3.
+// Osborn & Petkou 1994, hep-th/9307010; docs/conventions.md §3–4.
 #[test]
 fn wick_stress_phi_phi_d4() {
     wick_stress_phi_phi(4);
@@ -581,7 +581,7 @@ fn ratio(n: i64, d: i64) -> Term {
 }
 
 // Osborn & Petkou 1994, hep-th/9307010: C_T = d/((d-1)S_d²) for a real
-// free scalar; PHYSICS.md §2 (derived by Wick contraction in d = 3, 4).
+// free scalar; docs/conventions.md §3 (derived by Wick contraction in d = 3, 4).
 #[test]
 fn free_scalar_central_charge_d3() {
     central_charge(3);
@@ -641,14 +641,14 @@ fn halfspace_stress_one_point(d: usize) {
     }
 }
 
-// PHYSICS.md §3–4 (derived): ⟨T_μν⟩ = 0 next to either wall only with the
+// docs/conventions.md §4, §7 (derived): ⟨T_μν⟩ = 0 next to either wall only with the
 // improved T.
 #[test]
 fn halfspace_stress_one_point_d3() {
     halfspace_stress_one_point(3);
 }
 
-// PHYSICS.md §3–4 (derived).
+// docs/conventions.md §4, §7 (derived).
 #[test]
 fn halfspace_stress_one_point_d4() {
     halfspace_stress_one_point(4);
@@ -679,26 +679,26 @@ fn displacement_two_point(d: usize) {
     }
 }
 
-// PHYSICS.md §4 (derived): C_D = 2/S_d² for both walls in every d.
+// docs/conventions.md §7 (derived): C_D = 2/S_d² for both walls in every d.
 #[test]
 fn displacement_two_point_d3() {
     displacement_two_point(3);
 }
 
-// PHYSICS.md §4 (derived).
+// docs/conventions.md §7 (derived).
 #[test]
 fn displacement_two_point_d4() {
     displacement_two_point(4);
 }
 
-// PHYSICS.md §4 (derived).
+// docs/conventions.md §7 (derived).
 #[test]
 fn displacement_two_point_d5() {
     displacement_two_point(5);
 }
 
 /// The one-point coefficient of :φ²: in each convention: ±C_φ in (2y),
-/// ±C_φ 2^{-(d-2)} in y (a^{(2y)} = 2^Δ a^{(y)}, PHYSICS.md §0).
+/// ±C_φ 2^{-(d-2)} in y (a^{(2y)} = 2^Δ a^{(y)}, docs/conventions.md §1).
 fn phi2_one_point(d: usize, wall: Wall, convention: Convention) -> Term {
     let c = FreeScalar::new(Some(wall), Mapping::new()).c_phi(&Context {
         dimension: Some(Term::int(d as i64)),
@@ -758,26 +758,26 @@ fn phi2_displacement_coupling(d: usize) {
     }
 }
 
-// PHYSICS.md §4 (derived): b_{φ²D} = ∓1/S_d², (2y) convention.
+// docs/conventions.md §7 (derived): b_{φ²D} = ∓1/S_d², (2y) convention.
 #[test]
 fn phi2_displacement_coupling_d3() {
     phi2_displacement_coupling(3);
 }
 
-// PHYSICS.md §4 (derived).
+// docs/conventions.md §7 (derived).
 #[test]
 fn phi2_displacement_coupling_d4() {
     phi2_displacement_coupling(4);
 }
 
-// PHYSICS.md §4 (derived).
+// docs/conventions.md §7 (derived).
 #[test]
 fn phi2_displacement_coupling_d5() {
     phi2_displacement_coupling(5);
 }
 
-// PHYSICS.md §3 (derived): ⟨φ²(x)⟩ = ±C_φ/(2y)^{d-2}; the conformal
-// one-point form in both conventions (PHYSICS.md §0) agrees with it.
+// docs/conventions.md §4 (derived): ⟨φ²(x)⟩ = ±C_φ/(2y)^{d-2}; the conformal
+// one-point form in both conventions (docs/conventions.md §1) agrees with it.
 #[test]
 fn phi2_one_point_both_conventions() {
     for d in [3, 4] {
@@ -815,7 +815,7 @@ fn phi2_one_point_both_conventions() {
     }
 }
 
-// PHYSICS.md §4 (derived): ⟨T_μν(x) O(x')⟩ next to a wall has one
+// docs/conventions.md §7 (derived): ⟨T_μν(x) O(x')⟩ next to a wall has one
 // structure with K = -dΔa_O/((d-1)S_d) in the (2y) convention; the free
 // scalar's ⟨T φ²⟩ by Wick contraction has it, with a = ±C_φ.
 #[test]
@@ -902,7 +902,7 @@ fn boundary_values_are_bulk_to_boundary_forms() {
     }
 }
 
-// PHYSICS.md §3–4 (derived): D = T_nn at the wall, so ⟨D(x∥) φ²(x1)⟩ is the
+// docs/conventions.md §4, §7 (derived): D = T_nn at the wall, so ⟨D(x∥) φ²(x1)⟩ is the
 // limit y → 0 of ⟨T_nn(x) φ²(x1)⟩; the difference falls like y.
 #[test]
 fn displacement_is_the_wall_limit_of_t_nn() {
@@ -956,7 +956,7 @@ fn relative_size(ctx: &Context, d: usize, t: &Term, unit: &Term, seed: u64) -> f
     worst
 }
 
-// Common practice (W1, W2 away from insertions, PHYSICS.md §1): the stress
+// Common practice (W1, W2 away from insertions, docs/conventions.md §2): the stress
 // tensor of either model is conserved and traceless away from the
 // insertions; `∂[mu](x) <…>` goes through apply and the normaliser.
 #[test]
@@ -1001,7 +1001,7 @@ fn conservation_and_trace_through_apply() {
     }
 }
 
-// PHYSICS.md §4 (derived): the broken Ward identity of the normal
+// docs/conventions.md §7 (derived): the broken Ward identity of the normal
 // translation, ∫ d^{d-1}s ⟨D(s) O(x)⟩ = ∂_y ⟨O(x)⟩, holds for the conformal
 // model's Ward value of b_OD in both conventions, and fails in the y
 // convention with the (2y) value (so the check is not vacuous). The
@@ -1128,7 +1128,7 @@ fn models_name_what_they_do_not_know() {
     assert!(wick.describe().contains("Neumann"));
 }
 
-// PHYSICS.md §2 (derived): a/C_O for Δ = 1.5 is -0.179049310978 (d = 3),
+// docs/conventions.md §3 (derived): a/C_O for Δ = 1.5 is -0.179049310978 (d = 3),
 // -0.101321183642 (d = 4), -0.0580527619798 (d = 6); the conformal model's
 // Ward value of a is the ratio of its ⟨T O O⟩ to the one with a = 1.
 #[test]
@@ -1165,7 +1165,7 @@ fn stress_coupling_ward_value_matches_the_table() {
 
 // A free coefficient and a symbolic dimension: ⟨T O O⟩ with a = g and
 // Δ = Delta is still conserved and traceless away from the insertions
-// (Osborn & Petkou 1994; W1, W2 of PHYSICS.md §1).
+// (Osborn & Petkou 1994; W1, W2 of docs/conventions.md §2).
 #[test]
 fn stress_scalar_scalar_with_free_coefficient_and_symbolic_dimension() {
     let text = "dimension 3\nscalar O dim Delta\nparameters g\npoints x x1 x2\n\
@@ -1190,7 +1190,7 @@ fn stress_scalar_scalar_with_free_coefficient_and_symbolic_dimension() {
 }
 
 // Common practice: in symbolic dimension d the free scalar gives
-// ⟨:φ²:(x) :φ²:(x1)⟩ = 2C_φ²/|x - x1|^{2(d-2)} (PHYSICS.md §3: C = 2C_φ²).
+// ⟨:φ²:(x) :φ²:(x1)⟩ = 2C_φ²/|x - x1|^{2(d-2)} (docs/conventions.md §4: C = 2C_φ²).
 #[test]
 fn phi2_two_point_in_symbolic_dimension() {
     let text = "dimension d\nscalar phi2 dim d - 2\npoints x x1\nsimplify <phi2(x) phi2(x1)>\n";

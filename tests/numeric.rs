@@ -1,6 +1,6 @@
 //! Numeric checks from `.ward` text: fluxes through spheres and integrals
 //! over the boundary plane by quadrature, in a model, against the contact
-//! terms the local rules give (PHYSICS.md §5). Every file under
+//! terms the local rules give (docs/conventions.md §8). Every file under
 //! `tests/cases/numeric/` names its published source and must check clean;
 //! the tests below make sure a wrong coefficient is caught.
 
@@ -51,7 +51,7 @@ fn check(text: &str) -> (String, i32) {
 
 #[test]
 fn a_wrong_contact_coefficient_fails_the_flux_check() {
-    // W4 (PHYSICS.md §1): the dilatation contact term is Δ λ, not 2 Δ λ.
+    // W4 (docs/conventions.md §2): the dilatation contact term is Δ λ, not 2 Δ λ.
     let right = "compare ∮[x on ball(x1, 1/4)] { N[mu] dil[nu](x) <T[mu,nu](x) O(x1) O(x2)> }
         = - lambda x1[mu] ∂[mu](x1) <O(x1) O(x2)> - Delta lambda <O(x1) O(x2)>";
     let wrong = right.replace("- Delta lambda", "- 2 Delta lambda");
@@ -67,7 +67,7 @@ fn a_wrong_contact_coefficient_fails_the_flux_check() {
 
 #[test]
 fn the_flux_around_the_other_insertion_sees_only_its_terms() {
-    // The sphere around x2 encloses x2 alone (W4, PHYSICS.md §1).
+    // The sphere around x2 encloses x2 alone (W4, docs/conventions.md §2).
     let text = format!(
         "{TOO}\ncompare ∮[x on ball(x2, 1/4)] {{ N[mu] dil[nu](x) <T[mu,nu](x) O(x1) O(x2)> }}
         = - lambda x2[mu] ∂[mu](x2) <O(x1) O(x2)> - Delta lambda <O(x1) O(x2)>\n"
@@ -91,7 +91,7 @@ fn a_sphere_through_an_insertion_is_refused() {
 
 #[test]
 fn solving_the_ward_identity_gives_the_published_coupling() {
-    // a/C_O for Δ = 3/2 (PHYSICS.md §2; a = -dΔC_O/((d-1)S_d), Osborn &
+    // a/C_O for Δ = 3/2 (docs/conventions.md §3; a = -dΔC_O/((d-1)S_d), Osborn &
     // Petkou 1994, hep-th/9307010, sign derived there).
     for (d, expected) in [
         (3, -0.179049310978),
@@ -104,9 +104,8 @@ fn solving_the_ward_identity_gives_the_published_coupling() {
         let solved: f64 = out
             .report
             .lines()
-            .find_map(|l| l.trim().strip_prefix("a = "))
-            .and_then(|rest| rest.split_whitespace().next())
-            .and_then(|v| v.parse().ok())
+            .filter_map(|l| l.trim().strip_prefix("a = "))
+            .find_map(|rest| rest.split_whitespace().next()?.parse().ok())
             .unwrap_or_else(|| panic!("no solution in:\n{}", out.report));
         assert!(
             ((solved - expected) / expected).abs() < 1e-9,
@@ -173,7 +172,7 @@ fn seeded_samples_are_reported_and_reproducible() {
 
 #[test]
 fn a_scan_writes_a_table_and_a_plot_whole() {
-    // Both sides of W4 for the dilatation (PHYSICS.md §1) as Δ runs.
+    // Both sides of W4 for the dilatation (docs/conventions.md §2) as Δ runs.
     let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("scan");
     std::fs::create_dir_all(&dir).expect("scratch dir");
     let text = format!(
@@ -203,7 +202,7 @@ fn a_scan_writes_a_table_and_a_plot_whole() {
 
 #[test]
 fn broken_generators_and_wrong_weights_fail_on_generalised_free_fields() {
-    // PHYSICS.md §4 (common practice): the normal translation is broken by
+    // docs/conventions.md §7 (common practice): the normal translation is broken by
     // the wall; and the dilatation weight of a two-point function is 2Δ.
     let header = "dimension 3
 halfspace y >= 0
@@ -227,7 +226,7 @@ values Delta = 1.3, lambda = 1";
 
 #[test]
 fn the_unimproved_stress_tensor_has_a_one_point_function_near_a_wall() {
-    // PHYSICS.md §3 (derived): <T_μν> = 0 next to a wall only with the
+    // docs/conventions.md §4 (derived): <T_μν> = 0 next to a wall only with the
     // improvement term.
     for wall in ["dirichlet", "neumann"] {
         let text = format!(
@@ -295,7 +294,7 @@ fn the_saved_coupling_derivation_fixes_the_coefficient() {
     );
 }
 
-/// C_D = 2/S_d² for the free scalar with either wall (PHYSICS.md §3–4,
+/// C_D = 2/S_d² for the free scalar with either wall (docs/conventions.md §4, §7,
 /// derived; the same value is checked by `compare` in the free-scalar-cd
 /// cases). Slips in the Wick step are caught at that step: a 1/4 for the
 /// 1/2 of Dirichlet, the sign of one ξ term of Neumann.
@@ -338,7 +337,7 @@ fn the_saved_displacement_norms_catch_slips_in_the_wick_step() {
 
 /// A distributional step is checked by flux; a contact term twice too large
 /// at x2 fails there, and the diagnosis names x2, not the point x the
-/// δ-functions are of (W1, PHYSICS.md §1 and §5).
+/// δ-functions are of (W1, docs/conventions.md §2 and §5).
 #[test]
 fn a_distributional_step_is_checked_by_flux() {
     let saved =

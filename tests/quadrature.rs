@@ -1,7 +1,7 @@
 //! Accuracy of the quadrature behind the numeric checks of distributional
-//! identities (PHYSICS.md §5): sphere areas and moments, Gauss's law through
+//! identities (docs/conventions.md §8): sphere areas and moments, Gauss's law through
 //! spheres and through a hemisphere closed by a disc, the boundary-plane
-//! integral of PHYSICS.md §4, the honesty of the error estimate, the node
+//! integral of docs/conventions.md §7, the honesty of the error estimate, the node
 //! budget, and the refusal of surfaces that pass through an insertion.
 //!
 //! Node counts are deterministic; nothing here is timed (see
@@ -235,7 +235,7 @@ fn axis_toward_the_source_saves_nodes() {
     }
 }
 
-// Hemisphere plus disc around a boundary point (PHYSICS.md §5): Gauss's law
+// Hemisphere plus disc around a boundary point (docs/conventions.md §8): Gauss's law
 // and the divergence theorem (common practice). A divergence-free field
 // has zero total flux; x - c (divergence d) has flux d · vol = S_d r^d / 2;
 // a unit point source inside has flux S_d, one outside (below the wall or
@@ -335,7 +335,7 @@ fn closed_hemisphere_flux_d6() {
     closed_hemisphere_flux(6);
 }
 
-// ∫ d^{d-1}s (s² + y²)^{-d} = S_d / (2^d y^{d+1}) (PHYSICS.md §4, derived),
+// ∫ d^{d-1}s (s² + y²)^{-d} = S_d / (2^d y^{d+1}) (docs/conventions.md §7, derived),
 // with the plane centred on the foot of the bulk point or off it, and the
 // scale matched to y or not. The error estimate must bound the true error.
 #[test]

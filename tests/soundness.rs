@@ -18,7 +18,7 @@
 //!   term fails, so the check is not vacuous. d = 3, 4.
 //!
 //! Integrated identities are independent of the contact-term scheme, so they
-//! test the physics of the rules, not their spelling (PHYSICS.md §5).
+//! test the physics of the rules, not their spelling (docs/conventions.md §8).
 
 // Tensor components read best as explicit index loops.
 #![allow(clippy::needless_range_loop)]
@@ -227,7 +227,7 @@ impl Eval<'_> {
 
 // ───────────────────────── models ─────────────────────────
 
-/// ⟨O(x1) O(x2)⟩ = C_O / |x12|^{2Δ}. (PHYSICS.md §0, common practice)
+/// ⟨O(x1) O(x2)⟩ = C_O / |x12|^{2Δ}. (docs/conventions.md §1, common practice)
 struct TwoPoint {
     c: f64,
     delta: f64,
@@ -251,7 +251,7 @@ impl Model for TwoPoint {
 /// ⟨T_μν(x) O(x1) O(x2)⟩ = a h_μν(X̂) / (|x - x1|^d |x - x2|^d |x12|^{2Δ-d}),
 /// h_μν = X̂_μ X̂_ν - δ_μν/d, X = (x1 - x)/|x1 - x|² - (x2 - x)/|x2 - x|²,
 /// a = -dΔC_O/((d-1)S_d).
-/// Osborn & Petkou 1994, hep-th/9307010; sign of a fixed by W4 (PHYSICS.md §2, derived).
+/// Osborn & Petkou 1994, hep-th/9307010; sign of a fixed by W4 (docs/conventions.md §3, derived).
 fn t_o_o(d: usize, delta: f64, c_o: f64, x: &Vec4, x1: &Vec4, x2: &Vec4) -> [[f64; 4]; 4] {
     let df = d as f64;
     let a = -df * delta * c_o / ((df - 1.0) * sphere_area(d));
@@ -455,7 +455,7 @@ fn ward_trace(d: usize, seed: u64) {
                 let engine_side = ev.product(&coef, &rest);
                 // ε = x - x_i: ∂_μ ε_ν = δ_μν and ε(x_i) = 0, so ∮ N_μ ε_ν T_μν
                 // = ∫_B T_μμ = the δ(x - x_i) coefficient (W4 with a dilatation,
-                // PHYSICS.md §1, derived; ⟨T O O⟩ of Osborn & Petkou 1994, hep-th/9307010).
+                // docs/conventions.md §2, derived; ⟨T O O⟩ of Osborn & Petkou 1994, hep-th/9307010).
                 let reference = flux(d, &rule, &centre, r, t, |x| sub(x, &centre));
                 let err = (engine_side - reference).abs() / reference.abs();
                 worst = worst.max(err);
@@ -494,7 +494,7 @@ struct Propagator {
 }
 
 impl FreeScalarWall {
-    /// C_φ = 1/((d-2)S_d). (PHYSICS.md §3, common practice)
+    /// C_φ = 1/((d-2)S_d). (docs/conventions.md §4, common practice)
     fn c_phi(&self) -> f64 {
         1.0 / ((self.d as f64 - 2.0) * sphere_area(self.d))
     }
@@ -509,7 +509,7 @@ impl FreeScalarWall {
     }
 
     /// G(x, x') = C_φ(|x - x'|^{2-d} ± |x - x̄'|^{2-d}), x̄' = (x'∥, -y'):
-    /// the image propagator (PHYSICS.md §3, common practice), derivatives by
+    /// the image propagator (docs/conventions.md §4, common practice), derivatives by
     /// ∂_μ|z|^{2-d} = (2-d) z_μ |z|^{-d}.
     fn propagator(&self, x: &Vec4, xp: &Vec4) -> Propagator {
         let (d, df) = (self.d, self.d as f64);
@@ -539,12 +539,12 @@ impl FreeScalarWall {
         out
     }
 
-    /// ⟨D(s) :φ²:(x1)⟩ by Wick contraction (PHYSICS.md §3, derived: free-field
+    /// ⟨D(s) :φ²:(x1)⟩ by Wick contraction (docs/conventions.md §4, derived: free-field
     /// Wick contraction), D at the boundary point s:
     /// Dirichlet D = ½(∂_nφ)²: 2 · ½ (∂_n G)²;
     /// Neumann D = -½(∂_aφ̂)² + ξ∂_a∂_a φ̂²: -(∂_a G)² + 2ξ ∂_a∂_a (G²),
     /// ξ = (d-2)/(4(d-1)). The disconnected part ⟨D⟩⟨φ²⟩ vanishes since
-    /// ⟨T_nn⟩ = 0 (PHYSICS.md §4, derived).
+    /// ⟨T_nn⟩ = 0 (docs/conventions.md §7, derived).
     fn d_phi2(&self, s: &Vec4, x1: &Vec4) -> f64 {
         let d = self.d;
         let g = self.propagator(s, x1);
@@ -562,7 +562,7 @@ impl Model for FreeScalarWall {
     fn value(&self, ops: &[(&str, Vec4)]) -> f64 {
         let d = self.d as f64;
         match ops {
-            // ⟨φ²(x)⟩ = ± C_φ/(2y)^{d-2} (PHYSICS.md §3, derived).
+            // ⟨φ²(x)⟩ = ± C_φ/(2y)^{d-2} (docs/conventions.md §4, derived).
             [("P", x)] => self.sign() * self.c_phi() / (2.0 * x[self.d - 1]).powf(d - 2.0),
             [("D", s), ("P", x)] => self.d_phi2(s, x),
             _ => panic!("no model for {ops:?}"),
@@ -627,8 +627,8 @@ fn ward_divergence_halfspace(d: usize, neumann: bool, seed: u64) {
         if sample == 0 {
             // One-line cross-check of the Wick result against the bulk-to-boundary
             // form b (2y)²/(ρ² + y²)^d with b_{φ²D} = +1/S_d² Dirichlet, -1/S_d²
-            // Neumann, (2y) convention (PHYSICS.md §4, derived), and, Dirichlet,
-            // against (∂_n G)² = 4(d-2)² C_φ² y1²/(ρ² + y1²)^d (PHYSICS.md §3, derived:
+            // Neumann, (2y) convention (docs/conventions.md §7, derived), and, Dirichlet,
+            // against (∂_n G)² = 4(d-2)² C_φ² y1²/(ρ² + y1²)^d (docs/conventions.md §4, derived:
             // free-field Wick contraction).
             let s = axpy(&foot, 0.37, &unit(0));
             let u = dot(&sub(&s, &foot), &sub(&s, &foot)) + y1 * y1;
@@ -669,7 +669,7 @@ fn ward_divergence_halfspace(d: usize, neumann: bool, seed: u64) {
         });
         // T extended by zero to y < 0 decays, so ∫ ∂_μ T_μν = 0 over R^d:
         // the two terms cancel (Herzog, Huang & Jensen 2017, arXiv:1709.07431;
-        // W5 with a normal translation, PHYSICS.md §4, derived).
+        // W5 with a normal translation, docs/conventions.md §7, derived).
         let scale = bulk.abs().max(wall.abs());
         let err = (bulk + wall).abs() / bulk.abs().min(wall.abs());
         worst = worst.max(err);

@@ -698,7 +698,7 @@ fn undefined_values_are_errors() {
 // ------------------------------------------------------------ blocks
 
 /// G(ξ) of the free scalar with a wall, C_φ = 1: 1 ± (ξ/(1 + ξ))^(d/2-1)
-/// (derived: image propagator, PHYSICS.md §3 and §8).
+/// (derived: image propagator, docs/conventions.md §4 and §8).
 fn free_scalar(d: f64, xi: f64, sign: f64) -> f64 {
     1.0 + sign * (xi / (1.0 + xi)).powf(d / 2.0 - 1.0)
 }
@@ -708,7 +708,7 @@ const XIS: [f64; 7] = [1e-4, 0.01, 0.3, 1.0, 2.5, 40.0, 1e5];
 #[test]
 fn free_scalar_in_the_bulk_channel() {
     // G = 1 ± f_bulk(d - 2; ξ): the identity and φ² with λa = ±1 (derived,
-    // PHYSICS.md §8; McAvity & Osborn 1995, Liendo, Rastelli & van Rees 2012).
+    // the block conventions of src/numeric/special/blocks.rs; McAvity & Osborn 1995, Liendo, Rastelli & van Rees 2012).
     for d in [3.0, 4.0, 5.0] {
         for &xi in &XIS {
             // G = 1 ± (terms of size ≤ 1): compared on that scale.

@@ -973,7 +973,7 @@ impl Lowerer {
         Ok(self.expand_killing(killing, &index, &point))
     }
 
-    /// ε_i(p) for each family (PHYSICS.md §1; common practice).
+    /// ε_i(p) for each family (docs/conventions.md §2; common practice).
     fn expand_killing(&self, killing: &Killing, i: &Index, p: &Point) -> Term {
         let x = |j: &Index| Term::Comp(p.clone(), j.clone());
         let vector = |param: &Option<String>, j: &Index| match param {

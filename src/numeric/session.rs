@@ -8,7 +8,7 @@
 //! sphere `∮[x on ball(c, r)]` or over the boundary plane `∫[x∥ in
 //! boundary]` is not worked out symbolically here but by quadrature, with
 //! the error estimate reported: that is what makes a flux an independent
-//! check of the local identities (PHYSICS.md §5).
+//! check of the local identities (docs/conventions.md §8).
 
 use std::cell::RefCell;
 
@@ -269,7 +269,7 @@ impl<'a> Session<'a> {
     }
 
     /// Checks a local identity ∂[index](var) { body } = rhs the way
-    /// PHYSICS.md §5 says: the flux of `body` through a sphere of `radius`
+    /// docs/conventions.md §8 says: the flux of `body` through a sphere of `radius`
     /// around each insertion against the integral of `rhs` over the ball,
     /// and the divergence of the model's `body` away from the insertions.
     pub fn flux(

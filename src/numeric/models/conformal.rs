@@ -2,7 +2,7 @@
 //!
 //! Dimensions are the operators' declared `dim` attributes (T and D have
 //! dimension d); coefficients are terms, so they may be numbers or symbolic
-//! parameters. The forms (PHYSICS.md §0, §2, §4):
+//! parameters. The forms (docs/conventions.md §1, §2, §4):
 //!
 //! - ⟨O_1(x_1) O_2(x_2)⟩ = C_12 / |x_12|^{2Δ} for Δ_1 = Δ_2, zero when the
 //!   dimensions differ by a nonzero number [common practice];
@@ -11,7 +11,7 @@
 //! - ⟨T_{μν}(x_1) O(x_2) O(x_3)⟩ = a h_{μν} / (x_12^d x_13^d x_23^{2Δ-d}),
 //!   h_{μν} = X_μX_ν/X² - δ_{μν}/d, X = x_21/x_21² - x_31/x_31², with
 //!   a = -dΔC_O/((d-1)S_d) unless a coefficient is declared (Osborn &
-//!   Petkou 1994, hep-th/9307010; sign as in PHYSICS.md §2). X² is written
+//!   Petkou 1994, hep-th/9307010; sign as in docs/conventions.md §3). X² is written
 //!   as x_23²/(x_12² x_13²), an identity of the three distances;
 //! - ⟨T_{μν}(x) T_{ρσ}(0)⟩ = C_T I_{μν,ρσ}(x)/x^{2d} (Osborn & Petkou 1994);
 //! - ⟨O⟩ = ⟨T⟩ = ⟨T O⟩ = 0 without a boundary.
@@ -24,12 +24,12 @@
 //!   (|x - s|² = |x∥ - s|² + y² for a boundary point s);
 //! - ⟨O(x) D(s)⟩ is the bulk-to-boundary form with Δ̂ = d and, unless
 //!   declared, b_OD = -Δ a_O/S_d in the (2y) convention and
-//!   -2^d Δ a_O/S_d in the y convention (PHYSICS.md §4, derived);
+//!   -2^d Δ a_O/S_d in the y convention (docs/conventions.md §7, derived);
 //! - ⟨Ô_1(s_1) Ô_2(s_2)⟩ = C/|s_12|^{2Δ̂} (⟨D D⟩ with a declared C_D);
 //! - ⟨T_{μν}(x) O(x')⟩ = K (ξ(1+ξ))^{-d/2} (V_μV_ν/(ξ(1+ξ)) - δ_{μν}/d)
 //!   / ((2y)^d (2y')^Δ), V_μ = (x - x')_μ/(2y') - ξ n_μ,
 //!   ξ = (x - x')²/(4yy'), with K = -dΔ a_O^{(2y)}/((d-1)S_d) unless
-//!   declared (PHYSICS.md §4, derived); V² = ξ(1+ξ) is used to write X̂X̂;
+//!   declared (docs/conventions.md §7, derived); V² = ξ(1+ξ) is used to write X̂X̂;
 //! - ⟨T⟩ = ⟨D⟩ = ⟨Ô⟩ = 0.
 //!
 //! Anything else (a bulk two-point function next to the wall, which
@@ -48,7 +48,7 @@ use crate::normal::normalize_pointwise as normalize;
 use crate::term::{Index, Op, Point, Term};
 
 /// How one-point and bulk-to-boundary functions are normalised next to a
-/// wall (PHYSICS.md §0).
+/// wall (docs/conventions.md §1).
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
 pub enum Convention {
     /// ⟨O⟩ = a_O/(2y)^Δ (McAvity & Osborn 1995, cond-mat/9505127; Liendo,
@@ -510,7 +510,7 @@ impl Conformal {
         let b = match self.bulk_boundary.get(&key) {
             Some(b) => b.clone(),
             None if hat.name == DISPLACEMENT => {
-                // W5 with the normal translation (PHYSICS.md §4, derived).
+                // W5 with the normal translation (docs/conventions.md §7, derived).
                 let a = self.one_point_coefficient(ops, o).map_err(|_| {
                     unknown(
                         NAME,

@@ -1,7 +1,7 @@
 //! The free massless scalar φ in R^d, or in the half-space y ≥ 0 with a
 //! Neumann (+) or Dirichlet (-) wall, by Wick contraction.
 //!
-//! Propagator, by the method of images (PHYSICS.md §3, common practice):
+//! Propagator, by the method of images (docs/conventions.md §4, common practice):
 //!
 //!   G(x, x') = C_φ ( |x - x'|^{2-d} ± |x - x̄'|^{2-d} ),  C_φ = 1/((d-2) S_d),
 //!
@@ -14,7 +14,7 @@
 //!   T_{μν} = ∂_μφ∂_νφ - ½δ_{μν}(∂φ)² - ξ(∂_μ∂_ν - δ_{μν}∂²)φ²,
 //!   ξ = (d-2)/(4(d-1)) improved, ξ = 0 unimproved (a setting),
 //!
-//! the displacement operator D = T_nn at the wall (PHYSICS.md §3, derived):
+//! the displacement operator D = T_nn at the wall (docs/conventions.md §4, derived):
 //! ½(∂_nφ)² for Dirichlet, -½(∂_aφ̂)² + ξ ∂_a∂_a φ̂² for Neumann (the sums
 //! over parallel a written as bulk sums minus the normal term), and the
 //! boundary values φ̂, ∂_nφ and :φ̂²:.

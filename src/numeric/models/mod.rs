@@ -13,10 +13,10 @@
 //! - [`conformal::Conformal`]: fixed conformal forms with declared
 //!   coefficients (two- and three-point functions of scalars, ⟨T O O⟩,
 //!   ⟨T T⟩, and with a wall the one-point, bulk-to-boundary, boundary
-//!   two-point functions and ⟨T O⟩), PHYSICS.md §2 and §4;
+//!   two-point functions and ⟨T O⟩), docs/conventions.md §3 and §4;
 //! - [`free_scalar::FreeScalar`]: the free scalar in R^d or next to a
 //!   Neumann or Dirichlet wall, composites by Wick contraction with the
-//!   propagator by images, PHYSICS.md §3.
+//!   propagator by images, docs/conventions.md §4.
 //!
 //! The area of the unit sphere S_d = 2π^{d/2}/Γ(d/2) is not rational; models
 //! write it as the symbol [`SPHERE_AREA`], which a numeric evaluation binds

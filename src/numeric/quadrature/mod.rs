@@ -2,7 +2,7 @@
 //!
 //! A distributional identity is checked by flux through a sphere around a
 //! bulk insertion, through a hemisphere plus the disc closing it around a
-//! boundary insertion, and by integrals over the boundary plane (PHYSICS.md
+//! boundary insertion, and by integrals over the boundary plane (docs/conventions.md
 //! §5). [`Surface`] builds those surfaces as product rules in hyperspherical
 //! coordinates whose weights carry the surface measure and whose nodes carry
 //! the outward normal ([`surface`]); [`gauss`] supplies the one-dimensional

@@ -6,7 +6,7 @@
 //!
 //! Two identical bulk scalars of dimension Δ at heights y1, y2 above the
 //! wall y = 0 (McAvity & Osborn 1995, cond-mat/9505127; Liendo, Rastelli &
-//! van Rees 2012, arXiv:1210.4258; the project's PHYSICS.md §8):
+//! van Rees 2012, arXiv:1210.4258; the project's the block conventions of src/numeric/special/blocks.rs):
 //!
 //!   ⟨O(x1) O(x2)⟩ = G(ξ) / ((2y1)^Δ (2y2)^Δ ξ^Δ),
 //!
@@ -32,7 +32,7 @@
 //!
 //! # The free scalar (derived for this project)
 //!
-//! With image propagators (PHYSICS.md §3) and C_φ scaled to 1,
+//! With image propagators (docs/conventions.md §4) and C_φ scaled to 1,
 //! ⟨φφ⟩ = |x1 - x2|^(2-d) ± |x1 - x̄2|^(2-d), + for Neumann, - for
 //! Dirichlet. Since |x1 - x2|² = 4y1y2 ξ and |x1 - x̄2|² = 4y1y2 (1 + ξ),
 //! with Δ = d/2 - 1:
