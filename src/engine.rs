@@ -12,7 +12,7 @@ use crate::diagnostic::{Error, ErrorKind, Result};
 use crate::egraph::{
     add_term, extract_term, run_rules, EGraph, Fold, Limits, Stop, Ward, WardCost,
 };
-use crate::normal::{normal_form, Caveats, Singular};
+use crate::normal::{normal_form_with, Caveats, Memo, Singular};
 use crate::rules::RuleBook;
 use crate::term::Term;
 
@@ -25,6 +25,8 @@ pub struct Engine {
     book: Arc<RuleBook>,
     rewrites: Vec<Rewrite<Ward, Fold>>,
     pub limits: Limits,
+    /// Integrals this engine has expanded.
+    memo: Memo,
 }
 
 /// The result of simplifying one expression.
@@ -81,12 +83,13 @@ impl Engine {
             book,
             rewrites,
             limits,
+            memo: Memo::default(),
         })
     }
 
     /// Simplifies a term to contact-term normal form.
     pub fn simplify(&self, t: &Term) -> Result<Simplified> {
-        let first = normal_form(&self.ctx, t)?;
+        let first = normal_form_with(&self.ctx, t, Some(&self.memo))?;
         let mut current = first.term;
         let mut out = Simplified {
             term: current.clone(),
@@ -121,7 +124,11 @@ impl Engine {
             let redexes = self.book.redexes(&eg, &self.ctx);
             let extractor = egg::Extractor::new(&eg, WardCost { redexes });
             let (_, best) = extractor.find_best(eg.find(root));
-            let normal = normal_form(&self.ctx, &extract_term(&self.ctx, &best)?)?;
+            let normal = normal_form_with(
+                &self.ctx,
+                &extract_term(&self.ctx, &best)?,
+                Some(&self.memo),
+            )?;
             out.caveats.extend(normal.caveats);
             let next = normal.term;
             let done = next == current || !out.stop.is_saturated();

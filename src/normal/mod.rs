@@ -50,12 +50,43 @@ pub struct Normal {
 /// Puts `t` in contact-term normal form and says where derivatives of
 /// explicit functions were taken only away from coincident points.
 pub fn normal_form(ctx: &Context, t: &Term) -> Result<Normal> {
-    let cx = Norm::new(ctx);
+    normal_form_with(ctx, t, None)
+}
+
+/// The same, remembering integrals in `memo` (an engine keeps one per
+/// file, so that a flux worked out once is not worked out again).
+pub fn normal_form_with(ctx: &Context, t: &Term, memo: Option<&Memo>) -> Result<Normal> {
+    let cx = Norm {
+        memo,
+        ..Norm::new(ctx)
+    };
     let term = normalize_in(&cx, t)?;
     Ok(Normal {
         term,
         caveats: cx.caveats.into_inner(),
     })
+}
+
+/// Integrals already expanded, with the caveats their expansion recorded.
+#[derive(Default)]
+pub struct Memo {
+    integrals: std::sync::Mutex<std::collections::HashMap<Term, (Vec<Mono>, Caveats)>>,
+}
+
+impl Memo {
+    fn get(&self, t: &Term) -> Option<(Vec<Mono>, Caveats)> {
+        self.integrals.lock().ok()?.get(t).cloned()
+    }
+
+    fn put(&self, t: Term, value: (Vec<Mono>, Caveats)) {
+        if let Ok(mut map) = self.integrals.lock() {
+            // A bound on memory: the memo is a cache, not a record.
+            if map.len() > 4096 {
+                map.clear();
+            }
+            map.insert(t, value);
+        }
+    }
 }
 
 /// Puts `t` in normal form as a function at distinct points: derivatives
@@ -75,6 +106,7 @@ pub fn normalize_pointwise(ctx: &Context, t: &Term) -> Result<Term> {
 /// derivatives of explicit functions found on the way.
 pub struct Norm<'c> {
     ctx: &'c Context,
+    memo: Option<&'c Memo>,
     caveats: std::cell::RefCell<Caveats>,
     /// Derivatives are pointwise: values at separated points only.
     pointwise: bool,
@@ -84,6 +116,7 @@ impl<'c> Norm<'c> {
     pub fn new(ctx: &'c Context) -> Norm<'c> {
         Norm {
             ctx,
+            memo: None,
             caveats: Default::default(),
             pointwise: false,
         }
@@ -326,7 +359,22 @@ fn expand(ctx: &Norm, t: &Term) -> Result<Vec<Mono>> {
             }
         }
         Term::OutNormal(_) => vec![Mono::factor(t.clone())],
-        Term::Integral(integral) => integrate::integral(ctx, integral)?,
+        Term::Integral(integral) => match ctx.memo {
+            Some(memo) if !ctx.pointwise => {
+                if let Some((monos, caveats)) = memo.get(t) {
+                    ctx.caveats.borrow_mut().extend(caveats);
+                    monos
+                } else {
+                    let before = ctx.caveats.borrow().clone();
+                    let monos = integrate::integral(ctx, integral)?;
+                    let added: Caveats =
+                        ctx.caveats.borrow().difference(&before).cloned().collect();
+                    memo.put(t.clone(), (monos.clone(), added));
+                    monos
+                }
+            }
+            _ => integrate::integral(ctx, integral)?,
+        },
     })
 }
 
