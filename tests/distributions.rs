@@ -175,12 +175,8 @@ fn powers_of_powers_compose_only_for_positive_bases() {
          claim (r r)^h = r^(2 h)\n\
          claim (g^2)^2 = g^4\n",
     );
-    for k in 0..3 {
-        assert!(
-            matches!(found[k], Found::NotProved(_)),
-            "{k}: {:?}",
-            found[k]
-        );
+    for (k, f) in found[..3].iter().enumerate() {
+        assert!(matches!(f, Found::NotProved(_)), "{k}: {f:?}");
     }
     assert_eq!(&found[3..], &[Found::Proved, Found::Proved, Found::Proved]);
 }
