@@ -150,8 +150,11 @@ impl Context {
             .map(|(i, p)| (i as u32, p))
     }
 
-    /// The term-level point for a declared name.
+    /// The term-level point for a declared name (or the origin).
     pub fn point_term(&self, name: &str, par: bool) -> Option<Point> {
+        if name == crate::term::ORIGIN && !par {
+            return Some(Point::origin());
+        }
         self.point(name).map(|(rank, _)| Point {
             rank,
             par,

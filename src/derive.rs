@@ -23,6 +23,9 @@ pub enum StepVerdict {
         /// Proved with the model's explicit correlators in place of the
         /// correlators, not by the rules alone.
         in_model: bool,
+        /// When proved only away from coincident points: the contact terms
+        /// there in which the steps differ, if any (left to numerics).
+        contact: Option<Contact>,
     },
     /// Not equal: the remainder (earlier minus this step) and a diagnosis.
     Refuted { remainder: Term, diagnosis: String },
@@ -31,6 +34,18 @@ pub enum StepVerdict {
     /// Not proved by the rules, but both steps agree on the file's model
     /// at every sampled configuration.
     Confirmed { samples: usize },
+}
+
+/// Contact terms at coincident points in which two steps differ, which
+/// the algebra leaves open.
+#[derive(Clone, Debug)]
+pub struct Contact {
+    /// The difference, with the model's correlators in place.
+    pub terms: Term,
+    /// The rules' remainder and diagnosis, for the report if the contact
+    /// terms turn out wrong.
+    pub remainder: Term,
+    pub diagnosis: String,
 }
 
 /// One checked step.
@@ -155,13 +170,14 @@ pub fn check(
         cited: claimed,
     } in steps
     {
-        let mut verdict = engine.check(previous, step)?;
+        let rules = engine.check(previous, step)?;
+        let mut verdict = rules.clone();
         let mut in_model = false;
-        if let (false, Some(prove)) = (verdict.holds(), model) {
+        if let (false, Some(prove)) = (verdict.settles(), model) {
             // A model that cannot express a correlator of the step leaves
             // the verdict of the rules.
             if let Ok(v) = prove(previous, step) {
-                if v.holds() {
+                if v.holds() && !(verdict.holds() && !v.settles()) {
                     verdict = v;
                     in_model = true;
                 }
@@ -172,6 +188,27 @@ pub fn check(
                 rules: s.applied.keys().cloned().collect(),
                 away: s.caveats,
                 in_model,
+                contact: if s.term.is_zero() {
+                    None
+                } else {
+                    // What the rules make of the difference, for the report
+                    // if numerics find the contact terms wrong.
+                    let (remainder, diagnosis) = match &rules {
+                        Verdict::NotProved(r) => (
+                            r.term.clone(),
+                            diagnose(engine, previous, step, &r.term, style)?,
+                        ),
+                        _ => (
+                            s.term.clone(),
+                            "the contact terms at the coincident points differ".to_string(),
+                        ),
+                    };
+                    Some(Contact {
+                        terms: s.term,
+                        remainder,
+                        diagnosis,
+                    })
+                },
             },
             Verdict::NotProved(s) if !s.stop.is_saturated() => StepVerdict::Unknown {
                 remainder: s.term.clone(),
@@ -204,7 +241,7 @@ fn diagnose(
 ) -> Result<String> {
     let show = |t: &Term| shown(engine, style, t);
     // A flipped sign: before = -after.
-    if engine.check(before, &after.clone().negated())?.holds() {
+    if engine.check(before, &after.clone().negated())?.settles() {
         return Ok("off by a sign: this step is minus the one before".into());
     }
     // A constant factor: before = c · after for a scalar c read off the
@@ -223,7 +260,7 @@ fn diagnose(
                     ]),
                 )?;
                 let scaled = Term::Mul(vec![ratio.clone(), after.clone()]);
-                if engine.check(before, &scaled)?.holds() {
+                if engine.check(before, &scaled)?.settles() {
                     return Ok(format!(
                         "off by a constant factor: the step before is {} times this one",
                         show(&ratio)

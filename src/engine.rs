@@ -73,6 +73,17 @@ impl Verdict {
     pub fn holds(&self) -> bool {
         !matches!(self, Verdict::NotProved(_))
     }
+
+    /// True when the two sides agree with nothing left over: proved, or
+    /// proved away from coincident points with no contact terms between
+    /// them there.
+    pub fn settles(&self) -> bool {
+        match self {
+            Verdict::Proved(_) => true,
+            Verdict::ProvedAway(s) => s.term.is_zero(),
+            Verdict::NotProved(_) => false,
+        }
+    }
 }
 
 impl Engine {
@@ -187,23 +198,28 @@ impl Engine {
         if slope.term.is_zero() {
             return Ok(None);
         }
-        let (Some((c_slope, rest)), Some(offset)) =
-            (first_summand(&slope.term), summands(&at_zero.term))
-        else {
+        // The coefficients, in the parameters alone, of one monomial of the
+        // slope (its factors and point-dependent atoms) in both.
+        let slope_monos = crate::normal::monomials(&self.ctx, &slope.term)?;
+        let offset_monos = crate::normal::monomials(&self.ctx, &at_zero.term)?;
+        let Some(key) = slope_monos.first().map(point_part) else {
             return Ok(None);
         };
-        let c_offset = offset
-            .iter()
-            .map(split_scalar)
-            .find(|(_, r)| *r == rest)
-            .map(|(c, _)| c)
-            .unwrap_or_else(Term::zero);
+        let coefficient = |monos: &[crate::normal::Mono]| {
+            Term::Add(
+                monos
+                    .iter()
+                    .filter(|m| point_part(m) == key)
+                    .map(parameter_part)
+                    .collect(),
+            )
+        };
         let value = crate::normal::normalize(
             &self.ctx,
             &Term::Mul(vec![
                 Term::int(-1),
-                c_offset,
-                Term::Pow(Box::new(c_slope), Box::new(Term::int(-1))),
+                coefficient(&offset_monos),
+                Term::Pow(Box::new(coefficient(&slope_monos)), Box::new(Term::int(-1))),
             ]),
         )?;
         let constant = self.ctx.points.iter().enumerate().all(|(k, p)| {
@@ -223,6 +239,33 @@ impl Engine {
             Verdict::NotProved(_) => Ok(None),
         }
     }
+}
+
+/// A monomial's factors and the atoms that depend on points: what tells
+/// its kind apart, whatever its coefficient in the parameters.
+fn point_part(m: &crate::normal::Mono) -> (Vec<Term>, Vec<(Term, num_rational::BigRational)>) {
+    (
+        m.factors.clone(),
+        m.atoms
+            .iter()
+            .filter(|(a, _)| mentions_any_point(a))
+            .map(|(a, e)| (a.clone(), e.clone()))
+            .collect(),
+    )
+}
+
+/// The rest: the coefficient and the parameter atoms, as a term.
+fn parameter_part(m: &crate::normal::Mono) -> Term {
+    let mut fs = vec![Term::Num(m.coef.clone())];
+    for (a, e) in &m.atoms {
+        if !mentions_any_point(a) {
+            fs.push(Term::Pow(
+                Box::new(a.clone()),
+                Box::new(Term::Num(e.clone())),
+            ));
+        }
+    }
+    Term::Mul(fs)
 }
 
 /// Replaces a scalar parameter by a term everywhere in `t`.
@@ -245,34 +288,6 @@ fn substitute_symbol(t: &Term, name: &str, value: &Term) -> Term {
         }
         other => other.clone(),
     }
-}
-
-fn summands(t: &Term) -> Option<Vec<Term>> {
-    Some(match t {
-        t if t.is_zero() => vec![],
-        Term::Add(ts) => ts.clone(),
-        t => vec![t.clone()],
-    })
-}
-
-fn first_summand(t: &Term) -> Option<(Term, Vec<Term>)> {
-    summands(t)?.first().map(split_scalar)
-}
-
-/// A normal-form product split into its scalar coefficient (numbers and
-/// parameters: terms without points) and the rest.
-fn split_scalar(t: &Term) -> (Term, Vec<Term>) {
-    let factors = match t {
-        Term::Mul(fs) => fs.clone(),
-        other => vec![other.clone()],
-    };
-    let (scalar, rest): (Vec<Term>, Vec<Term>) = factors.into_iter().partition(|f| {
-        matches!(
-            f,
-            Term::Num(_) | Term::Sym(_) | Term::Pow(..) | Term::Add(_) | Term::Mul(_)
-        ) && !mentions_any_point(f)
-    });
-    (Term::Mul(scalar), rest)
 }
 
 /// True if a term mentions a point anywhere.

@@ -396,6 +396,7 @@ impl<'a> Reporter<'a> {
                     rules,
                     away,
                     in_model,
+                    contact,
                 } => {
                     if away.is_empty() {
                         ok += 1;
@@ -421,6 +422,12 @@ impl<'a> Reporter<'a> {
                     }
                     if *in_model {
                         by = format!("{by}, with the model's correlators in place");
+                    }
+                    if let Some(contact) = contact {
+                        by = format!(
+                            "{by}; there the steps differ by contact terms that nothing checked: {}",
+                            self.printer.term(&contact.terms)
+                        );
                     }
                     if away.is_empty() {
                         let _ = writeln!(

@@ -601,8 +601,40 @@ pub fn run_source(
                 if let Some(s) = session_ref {
                     let mut before = start;
                     for (r, after) in report.iter_mut().zip(steps.iter().map(|s| &s.expr)) {
-                        if !matches!(r.verdict, crate::derive::StepVerdict::Proved { .. }) {
-                            numeric_step(s, &program.ctx, before, after, free, r);
+                        match &r.verdict {
+                            crate::derive::StepVerdict::Proved { contact: None, .. } => {}
+                            // Proved away from coincident points, where the
+                            // steps differ by contact terms: those are
+                            // checked by flux, and a difference there refutes
+                            // the step.
+                            crate::derive::StepVerdict::Proved {
+                                contact: Some(contact),
+                                ..
+                            } => {
+                                let contact = contact.clone();
+                                let proved = r.verdict.clone();
+                                numeric_step(s, &program.ctx, before, after, free, r);
+                                match &r.verdict {
+                                    crate::derive::StepVerdict::Confirmed { .. } => {
+                                        r.numeric = Some(format!(
+                                            "proved away from coincident points; {}",
+                                            r.numeric.clone().unwrap_or_default()
+                                        ));
+                                    }
+                                    _ if r
+                                        .numeric
+                                        .as_deref()
+                                        .is_some_and(|n| n.starts_with("by flux")) =>
+                                    {
+                                        r.verdict = crate::derive::StepVerdict::Refuted {
+                                            remainder: contact.remainder,
+                                            diagnosis: contact.diagnosis,
+                                        };
+                                    }
+                                    _ => r.verdict = proved,
+                                }
+                            }
+                            _ => numeric_step(s, &program.ctx, before, after, free, r),
                         }
                         before = after;
                     }

@@ -345,7 +345,7 @@ fn a_distributional_step_is_checked_by_flux() {
     let (report, code) = check(&saved);
     assert_eq!(code, 0, "{report}");
     assert!(
-        report.contains("numerically: by flux: around each insertion"),
+        report.contains("by flux: around each insertion"),
         "{report}"
     );
     let wrong = saved.replace(

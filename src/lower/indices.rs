@@ -110,7 +110,7 @@ fn walk(e: &Expr) -> Result<Usage, Violation> {
         }
         ExprKind::DeltaPoints(..) | ExprKind::DeltaNormal { .. } => Ok(Usage::default()),
         ExprKind::Sum { body, .. } | ExprKind::Integral { body, .. } => walk(body),
-        ExprKind::Distance(..) => Ok(Usage::default()),
+        ExprKind::Distance(..) | ExprKind::Length(_) => Ok(Usage::default()),
         ExprKind::Component { indices, .. } => names(indices),
         ExprKind::Call { args, .. } => {
             for arg in args {

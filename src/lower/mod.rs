@@ -847,6 +847,7 @@ impl Lowerer {
             }
             ExprKind::Sum { op, .. } => return Err(self.rule_syntax(op.span.to(e.span))),
             ExprKind::Distance(p, q) => self.distance(p, q, e.span)?,
+            ExprKind::Length(p) => Term::Dist(self.point(p)?, crate::term::Point::origin()),
             ExprKind::Component { name, par, indices } => {
                 self.component(name, *par, indices, e.span)?
             }

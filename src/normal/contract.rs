@@ -8,6 +8,7 @@
 //!   n[k] X[k] = X[n], δ[m,a] X[a] = X[m] - n[m] X[n] for parallel a,
 //!   p[a] q[a] = p[k] q[k] - p[n] q[n] for coordinates and parallel a,
 //!   x[n]^k δ(y(x)) = 0 for k > 0,
+//!   p[k] q[k] = (|p|² + |q|² - |p - q|²)/2 over all directions,
 //!   ∂[n](s) = 0 at a boundary point s (boundary points move only along
 //!   the boundary).
 
@@ -18,7 +19,11 @@ use num_traits::{One, Signed};
 
 use super::{derivative, expand, Mono};
 use crate::context::{Context, IndexKind};
-use crate::term::{Index, Term};
+use crate::term::{Index, Point, Term};
+
+fn two() -> BigRational {
+    BigRational::from_integer(2.into())
+}
 
 /// Applies the index algebra until nothing changes.
 pub fn contract(ctx: &Context, m: Mono) -> Vec<Mono> {
@@ -90,6 +95,44 @@ fn step(ctx: &Context, m: &Mono) -> Option<Vec<Mono>> {
             normal.coef = -normal.coef;
             return Some(vec![rename(m, name, &bulk), normal]);
         }
+    }
+    // p[k] q[k] over all directions: lengths and distances,
+    // p·q = (|p|² + |q|² - |p - q|²)/2 (common practice), so that identities
+    // between distances need no expansion into coordinates.
+    for (name, count) in &counts {
+        if *count != 2 || ctx.index_kind(name) != IndexKind::Bulk {
+            continue;
+        }
+        let at: Vec<(usize, &Point)> = m
+            .factors
+            .iter()
+            .enumerate()
+            .filter_map(|(k, f)| match f {
+                Term::Comp(p, Index::Named(i)) if i == name && !p.is_origin() => Some((k, p)),
+                _ => None,
+            })
+            .collect();
+        let [(a, p), (b, q)] = at[..] else { continue };
+        let mut rest = m.clone();
+        rest.factors.remove(b);
+        rest.factors.remove(a);
+        let length = |x: &Point| Mono::atom(Term::Dist(x.clone(), Point::origin()), two());
+        if p == q {
+            return Some(vec![rest.mul(&length(p))]);
+        }
+        let (lo, hi) = if p < q { (p, q) } else { (q, p) };
+        let mut across = Mono::atom(Term::Dist(lo.clone(), hi.clone()), two());
+        across.coef = -BigRational::one();
+        let half = BigRational::new(1.into(), 2.into());
+        return Some(
+            [length(p), length(q), across]
+                .into_iter()
+                .map(|mut t| {
+                    t.coef *= &half;
+                    rest.mul(&t)
+                })
+                .collect(),
+        );
     }
     let is_dummy_elsewhere =
         |name: &str, inside: usize| counts.get(name).copied().unwrap_or(0) == 2 && inside == 1;

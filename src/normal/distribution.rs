@@ -301,6 +301,11 @@ fn distance(cx: &Norm, x: &Point, a: &Point, b: &Point, polynomial: bool, atom: 
         return Kind::Smooth;
     }
     let (mine, other) = if a.name == x.name { (a, b) } else { (b, a) };
+    if other.is_origin() {
+        // A length |x| to a non-even power: singular at the origin, which
+        // is no declared point.
+        return Kind::Unknown(Singular::Zeros(atom.clone()));
+    }
     if other.name == x.name {
         // |x - x∥|: the height above the wall.
         return Kind::Wall;

@@ -150,6 +150,9 @@ fn singular_point(cx: &Norm, var: &Point, atom: &Term, e: &BigRational) -> Optio
         }
         let other = if a.name == var.name { b } else { a };
         let mine = if a.name == var.name { a } else { b };
+        if other.is_origin() {
+            return None;
+        }
         if mine.par || other.par || other.name == var.name || cx.is_boundary_point(other) {
             return None;
         }

@@ -16,7 +16,6 @@
 mod calculus;
 mod cancel;
 mod contract;
-mod distance;
 mod distribution;
 mod flux;
 mod integrate;
@@ -37,6 +36,13 @@ pub use monomial::{Atoms, Mono};
 /// Puts `t` in contact-term normal form.
 pub fn normalize(ctx: &Context, t: &Term) -> Result<Term> {
     Ok(normal_form(ctx, t)?.term)
+}
+
+/// The monomials of a term's normal form, each with its exact
+/// coefficient, atoms and factors (for callers that split a sum by kind).
+pub fn monomials(ctx: &Context, t: &Term) -> Result<Vec<Mono>> {
+    let cx = Norm::new(ctx);
+    Ok(merge(canonical(&cx, expand(&cx, t)?)))
 }
 
 /// A normal form and where it is established only away from coincident
@@ -110,6 +116,9 @@ pub struct Norm<'c> {
     caveats: std::cell::RefCell<Caveats>,
     /// Derivatives are pointwise: values at separated points only.
     pointwise: bool,
+    /// Symbolic powers of one base already combined: the atoms → their
+    /// product in canonical form.
+    powers: std::cell::RefCell<std::collections::HashMap<Vec<(Term, BigRational)>, Mono>>,
 }
 
 impl<'c> Norm<'c> {
@@ -119,6 +128,7 @@ impl<'c> Norm<'c> {
             memo: None,
             caveats: Default::default(),
             pointwise: false,
+            powers: Default::default(),
         }
     }
 
@@ -137,53 +147,7 @@ impl std::ops::Deref for Norm<'_> {
 
 /// Normalisation inside the pipeline, sharing the caveats of `cx`.
 pub(crate) fn normalize_in(ctx: &Norm, t: &Term) -> Result<Term> {
-    let monos = merge(canonical(ctx, expand(ctx, t)?));
-    let has_distance = monos
-        .iter()
-        .any(|m| m.atoms.keys().any(|a| matches!(a, Term::Dist(..))));
-    let plain = collect(monos.clone());
-    if !has_distance {
-        return Ok(plain);
-    }
-    // Over a common power of each distance, terms that cancel by the
-    // algebra of distances do; keep that form when it is no longer.
-    let common_monos = merge(canonical(ctx, distance::common_powers(ctx, monos.clone())?));
-    let common = collect(common_monos.clone());
-    let (mut best, mut best_monos) = if term_count(&common) <= term_count(&plain) {
-        (common, common_monos.len())
-    } else {
-        (plain, monos.len())
-    };
-    // p·p - 2 p·q + q·q back into |p - q|², when that is shorter still.
-    let distances: std::collections::BTreeSet<Term> = monos
-        .iter()
-        .flat_map(|m| m.atoms.keys())
-        .filter(|a| matches!(a, Term::Dist(..)))
-        .cloned()
-        .collect();
-    for dist in &distances {
-        let Term::Dist(p, q) = dist else { continue };
-        for eliminate in [p, q] {
-            if let Some(folded) = distance::dot_to_distance(ctx, &monos, dist, eliminate) {
-                // Fewer monomials, not fewer printed terms: a sum can
-                // collect into one product with a long coefficient.
-                // Only a complete fold: no coordinate of p or q left with a
-                // summed index, so that normalising again keeps it.
-                let folded = merge(canonical(ctx, folded));
-                let dotted = folded.iter().any(|m| {
-                    m.factors.iter().any(|f| {
-                        matches!(f, Term::Comp(x, Index::Named(_))
-                            if x.name == p.name || x.name == q.name)
-                    })
-                });
-                if !dotted && folded.len() < best_monos {
-                    best_monos = folded.len();
-                    best = collect(folded);
-                }
-            }
-        }
-    }
-    Ok(best)
+    Ok(collect(merge(canonical(ctx, expand(ctx, t)?))))
 }
 
 /// Contracts indices and renames summed indices canonically.
@@ -206,35 +170,78 @@ fn canonical(ctx: &Norm, monos: Vec<Mono>) -> Vec<Mono> {
 /// |p - q|^(-2 Δ), kept as the rational part times (|p - q|^R)^c with R
 /// primitive, as [`symbolic_power`] writes every power.
 fn combine_powers(ctx: &Norm, mut m: Mono) -> Result<Mono> {
-    let mut by_base: BTreeMap<Term, Vec<(Term, Term)>> = BTreeMap::new();
-    for (a, e) in &m.atoms {
-        let (base, exponent) = match a {
-            Term::Pow(b, r) if !matches!(**r, Term::Num(_)) => (
-                (**b).clone(),
-                Term::Mul(vec![Term::Num(e.clone()), (**r).clone()]),
-            ),
-            other => (other.clone(), Term::Num(e.clone())),
-        };
-        by_base.entry(base).or_default().push((a.clone(), exponent));
+    let symbolic = |a: &Term| matches!(a, Term::Pow(_, r) if !matches!(**r, Term::Num(_)));
+    if m.atoms.keys().filter(|a| symbolic(a)).count() < 2 {
+        return Ok(m);
     }
-    for (base, parts) in by_base {
-        let symbolic = parts
-            .iter()
-            .filter(|(a, _)| matches!(a, Term::Pow(_, r) if !matches!(**r, Term::Num(_))))
-            .count();
-        if symbolic < 2 {
+    // base → exponent, as a polynomial in the parameters.
+    let mut by_base: BTreeMap<Term, (Vec<Term>, cancel::Poly)> = BTreeMap::new();
+    for (a, e) in &m.atoms {
+        let (base, part) = match a {
+            Term::Pow(b, r) if symbolic(a) => {
+                let Some(r) = cancel::scalar_poly(r) else {
+                    return Ok(m);
+                };
+                (
+                    (**b).clone(),
+                    r.into_iter().map(|(k, c)| (k, c * e)).collect(),
+                )
+            }
+            other => (
+                other.clone(),
+                cancel::Poly::from([(Atoms::new(), e.clone())]),
+            ),
+        };
+        let slot = by_base.entry(base).or_default();
+        slot.0.push(a.clone());
+        for (k, c) in part {
+            *slot.1.entry(k).or_insert_with(BigRational::zero) += c;
+        }
+    }
+    for (base, (atoms, exponent)) in by_base {
+        if atoms.iter().filter(|a| symbolic(a)).count() < 2 {
             continue;
         }
-        for (a, _) in &parts {
+        let key: Vec<(Term, BigRational)> = atoms
+            .iter()
+            .map(|a| (a.clone(), m.atoms[a].clone()))
+            .collect();
+        for a in &atoms {
             m.atoms.remove(a);
         }
-        let total = normalize_in(ctx, &Term::Add(parts.into_iter().map(|(_, e)| e).collect()))?;
-        let power = match &total {
-            Term::Num(q) if q.is_zero() => continue,
-            Term::Num(q) => Mono::atom(base, q.clone()),
-            e => symbolic_power(ctx, &Mono::atom(base, BigRational::one()), e)?,
-        };
-        m = m.mul(&power);
+        if let Some(done) = ctx.powers.borrow().get(&key) {
+            m = m.mul(done);
+            continue;
+        }
+        let before = m.clone();
+        m = Mono::scalar(BigRational::one());
+        let mut constant = BigRational::zero();
+        let mut rest = Vec::new();
+        for (k, c) in exponent {
+            if c.is_zero() {
+                continue;
+            }
+            if k.is_empty() {
+                constant += c;
+            } else {
+                rest.push(Mono {
+                    coef: c,
+                    atoms: k,
+                    factors: Vec::new(),
+                });
+            }
+        }
+        if !constant.is_zero() {
+            m = m.mul(&Mono::atom(base.clone(), constant));
+        }
+        if let Some((c, primitive)) = primitive_monos(&rest) {
+            m = m.mul(&Mono::atom(
+                Term::Pow(Box::new(base), Box::new(primitive)),
+                c,
+            ));
+        }
+        ctx.powers.borrow_mut().insert(key, m.clone());
+        m = before.mul(&m);
     }
     Ok(m)
 }
@@ -257,14 +264,6 @@ pub(super) fn merge(monos: Vec<Mono>) -> Vec<Mono> {
             factors,
         })
         .collect()
-}
-
-fn term_count(t: &Term) -> usize {
-    match t {
-        Term::Add(ts) => ts.len(),
-        t if t.is_zero() => 0,
-        _ => 1,
-    }
 }
 
 /// Expands a term into a list of monomials (not yet collected).
@@ -382,6 +381,9 @@ fn expand(ctx: &Norm, t: &Term) -> Result<Vec<Mono>> {
 /// the normal coordinate of a point on the boundary (a boundary point or a
 /// projection x∥), a factor otherwise.
 fn coordinate(ctx: &Norm, p: &Point, i: &Index) -> Result<Vec<Mono>> {
+    if p.is_origin() {
+        return Ok(vec![]);
+    }
     Ok(match i {
         Index::N if ctx.is_boundary_point(p) => vec![],
         Index::N => vec![Mono::atom(

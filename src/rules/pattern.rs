@@ -256,6 +256,7 @@ impl Lowering<'_> {
                 Pat::Corr { items: ops, splice }
             }
             ExprKind::Distance(..)
+            | ExprKind::Length(_)
             | ExprKind::Component { .. }
             | ExprKind::Call { .. }
             | ExprKind::Integral { .. } => {
@@ -488,6 +489,7 @@ fn var_span(e: &Expr, v: &str) -> Option<Span> {
             .or_else(|| var_span(body, v)),
         ExprKind::Component { indices, .. } => indices.iter().find_map(name),
         ExprKind::Distance(p, q) => point(p).or_else(|| point(q)),
+        ExprKind::Length(p) => point(p),
         ExprKind::Call { args, .. } => args.iter().find_map(|a| var_span(a, v)),
         ExprKind::Integral { var: p, body, .. } => point(p).or_else(|| var_span(body, v)),
         ExprKind::Num(_) | ExprKind::Name(_) => None,

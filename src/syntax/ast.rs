@@ -111,6 +111,8 @@ pub enum ExprKind {
     },
     /// Distance `|p - q|`.
     Distance(PointRef, PointRef),
+    /// Length `|x1|`: the distance of a point to the origin.
+    Length(PointRef),
     /// A component `x1[mu]` of a point, or of a parameter vector or tensor
     /// (`b[mu]`, `omega[mu,nu]`), or the outward normal `N[mu]`.
     Component {

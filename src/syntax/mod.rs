@@ -332,7 +332,7 @@ fn hints(rules: &[Rule]) -> Vec<&'static str> {
             Rule::region | Rule::region_ball | Rule::place_kind => {
                 "a region is `space`, `halfspace`, `boundary` or `ball(x1, r)` (centre and radius)"
             }
-            Rule::distance => "a distance is written `|x1 - x2|`, between two points",
+            Rule::distance => "a distance is written `|x1 - x2|`, between two points, and a length `|x1|`",
             Rule::call => "a function is called with its argument in parentheses: `F(u)`, `F'(u)`, `xi(x1, x2)`",
             Rule::killing_decl
             | Rule::generator
@@ -816,7 +816,11 @@ fn parse_primary(pair: Pair<Rule>) -> Expr {
         Rule::op => ExprKind::Op(parse_op(pair)),
         Rule::distance => {
             let mut inner = pair.into_inner();
-            ExprKind::Distance(parse_point(next(&mut inner)), parse_point(next(&mut inner)))
+            let p = parse_point(next(&mut inner));
+            match inner.next() {
+                Some(q) => ExprKind::Distance(p, parse_point(q)),
+                None => ExprKind::Length(p),
+            }
         }
         Rule::component => {
             let mut inner = pair.into_inner();

@@ -215,6 +215,7 @@ fn atom(ctx: &Context, t: &Term, out: &mut String) {
             out.push('}');
         }
         Term::Add(_) | Term::Mul(_) => factor(ctx, t, out),
+        Term::Dist(p, q) if q.is_origin() => out.push_str(&format!("|{}|", point(p))),
         Term::Dist(p, q) => out.push_str(&format!("|{} - {}|", point(p), point(q))),
         Term::Fun(f, order, args) => {
             out.push_str(&name(f));

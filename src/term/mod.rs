@@ -27,7 +27,25 @@ pub struct Point {
 /// A name inside terms: cheap to clone, compared as a string.
 pub type Name = std::sync::Arc<str>;
 
+/// The name of the origin of coordinates (on the wall, when there is one).
+/// No declared point can take it: names start with a letter.
+pub const ORIGIN: &str = "0";
+
 impl Point {
+    /// The origin: |p - 0| is the length of p, which contracted
+    /// coordinates become (p[k] p[k] = |p|²).
+    pub fn origin() -> Point {
+        Point {
+            rank: u32::MAX - 1,
+            par: false,
+            name: ORIGIN.into(),
+        }
+    }
+
+    pub fn is_origin(&self) -> bool {
+        &*self.name == ORIGIN
+    }
+
     pub fn named(rank: u32, name: impl Into<Name>) -> Point {
         Point {
             rank,

@@ -211,8 +211,10 @@ impl<'a> Printer<'a> {
             Term::Dist(p, q) => {
                 out.push('|');
                 self.point(p, out);
-                out.push_str(" - ");
-                self.point(q, out);
+                if !q.is_origin() {
+                    out.push_str(" - ");
+                    self.point(q, out);
+                }
                 out.push('|');
             }
             Term::Fun(name, order, args) => {

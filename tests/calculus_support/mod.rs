@@ -431,7 +431,8 @@ impl<'a> Model<'a> {
     }
 
     fn coordinate(&self, p: &Point, k: usize, env: &Env) -> Jet {
-        if k == self.d - 1 && (p.par || self.ctx.is_boundary_point(p)) {
+        // The origin's coordinates are 0 (|p| is its distance to p).
+        if p.is_origin() || (k == self.d - 1 && (p.par || self.ctx.is_boundary_point(p))) {
             return Jet::zero();
         }
         env.coords

@@ -442,6 +442,12 @@ impl<'c> Builder<'c> {
         if let Some(r) = self.points.get(&*p.name) {
             return Ok(*r);
         }
+        if p.is_origin() {
+            // Zeros, read from no input.
+            let base = self.alloc(self.dim, 0)?;
+            self.points.insert(p.name.to_string(), base);
+            return Ok(base);
+        }
         let base = self.alloc(self.dim, self.bit(p))?;
         self.points.insert(p.name.to_string(), base);
         self.inputs.push(Input::Point {
