@@ -177,7 +177,10 @@ pub fn check(
             // A model that cannot express a correlator of the step leaves
             // the verdict of the rules.
             if let Ok(v) = prove(previous, step) {
-                if v.holds() && !(verdict.holds() && !v.settles()) {
+                // A model proof replaces the rules' verdict unless it is the
+                // weaker of two "away" proofs.
+                let better = v.settles() || !verdict.holds();
+                if v.holds() && better {
                     verdict = v;
                     in_model = true;
                 }
