@@ -18,22 +18,38 @@ use crate::syntax::ast::Span;
 pub struct Source {
     pub name: String,
     pub text: String,
+    /// Byte offset of the start of every line, indexed once so that a
+    /// position costs a binary search, not a scan from the start of the file.
+    line_starts: Vec<usize>,
 }
 
 impl Source {
     pub fn new(name: impl Into<String>, text: impl Into<String>) -> Arc<Source> {
+        let text = text.into();
+        let line_starts = std::iter::once(0)
+            .chain(text.match_indices('\n').map(|(i, _)| i + 1))
+            .collect();
         Arc::new(Source {
             name: name.into(),
-            text: text.into(),
+            text,
+            line_starts,
         })
+    }
+
+    /// 1-based line of a byte offset.
+    pub fn line(&self, offset: usize) -> usize {
+        self.line_starts.partition_point(|&s| s <= offset)
     }
 
     /// 1-based line and column (in characters) of a byte offset.
     pub fn line_col(&self, offset: usize) -> (usize, usize) {
-        let offset = offset.min(self.text.len());
-        let before = &self.text[..offset];
-        let line = before.matches('\n').count() + 1;
-        let line_start = before.rfind('\n').map_or(0, |i| i + 1);
+        let mut offset = offset.min(self.text.len());
+        while !self.text.is_char_boundary(offset) {
+            offset -= 1;
+        }
+        // The last line starting at or before the offset.
+        let line = self.line_starts.partition_point(|&s| s <= offset);
+        let line_start = self.line_starts[line - 1];
         let col = self.text[line_start..offset].chars().count() + 1;
         (line, col)
     }
@@ -195,3 +211,26 @@ impl fmt::Display for Error {
 impl std::error::Error for Error {}
 
 pub type Result<T> = std::result::Result<T, Error>;
+
+#[cfg(test)]
+mod tests {
+    use super::Source;
+
+    #[test]
+    fn line_and_column_come_from_the_line_index() {
+        let s = Source::new("f", "ab\nδx\n\nz");
+        assert_eq!(s.line_col(0), (1, 1));
+        assert_eq!(s.line_col(2), (1, 3));
+        assert_eq!(s.line_col(3), (2, 1));
+        // Columns count characters: δ is two bytes, one column.
+        assert_eq!(s.line_col(5), (2, 2));
+        // Inside a character: the character's own column.
+        assert_eq!(s.line_col(4), (2, 1));
+        assert_eq!(s.line_col(7), (3, 1));
+        assert_eq!(s.line_col(8), (4, 1));
+        // Past the end: the end.
+        assert_eq!(s.line_col(100), (4, 2));
+        assert_eq!(s.line(8), 4);
+        assert_eq!(Source::new("e", "").line_col(0), (1, 1));
+    }
+}

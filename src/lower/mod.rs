@@ -164,7 +164,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         expect_span: expect_expr.as_ref().map(|e| e.span),
                     },
                     span: *span,
-                    line: source.line_col(span.start).0,
+                    line: source.line(span.start),
                 });
             }
             Stmt::Claim { lhs, rhs, span } => {
@@ -184,7 +184,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         rhs: lowerer.expr(rhs)?,
                     },
                     span: *span,
-                    line: source.line_col(span.start).0,
+                    line: source.line(span.start),
                 });
             }
             Stmt::Rules { path, span } => rule_files.push((path.clone(), *span)),
@@ -197,7 +197,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         free,
                     },
                     span: *span,
-                    line: source.line_col(span.start).0,
+                    line: source.line(span.start),
                 });
             }
             Stmt::Solve {
@@ -223,7 +223,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         free: profile.into_iter().collect(),
                     },
                     span: *span,
-                    line: source.line_col(span.start).0,
+                    line: source.line(span.start),
                 });
             }
             Stmt::Flux {
@@ -263,7 +263,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         free: profile.into_iter().collect(),
                     },
                     span: *span,
-                    line: source.line_col(span.start).0,
+                    line: source.line(span.start),
                 });
             }
             Stmt::Scan {
@@ -342,7 +342,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         output: output.as_ref().map(|(n, _)| n.clone()),
                     },
                     span: *span,
-                    line: source.line_col(span.start).0,
+                    line: source.line(span.start),
                 });
             }
             Stmt::Derivation {
@@ -362,7 +362,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                     )?;
                     lowered.push(Step {
                         expr: lowerer.expr(step)?,
-                        line: source.line_col(step.span.start).0,
+                        line: source.line(step.span.start),
                         cited: why.iter().map(|w| (w.text.clone(), w.span)).collect(),
                     });
                 }
@@ -374,7 +374,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         free: profile.into_iter().collect(),
                     },
                     span: *span,
-                    line: source.line_col(span.start).0,
+                    line: source.line(span.start),
                 });
             }
             Stmt::Compare { lhs, rhs, span } => {
@@ -388,7 +388,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         free: profile.into_iter().collect(),
                     },
                     span: *span,
-                    line: source.line_col(span.start).0,
+                    line: source.line(span.start),
                 });
             }
             Stmt::Classify { name, span } => {
@@ -401,7 +401,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         normal_component,
                     },
                     span: *span,
-                    line: source.line_col(span.start).0,
+                    line: source.line(span.start),
                 });
             }
             Stmt::Dimension(e) if seen_expression => {
@@ -692,7 +692,7 @@ impl Lowerer {
                 .with_note("the names T, D, d and n are reserved; choose another name"));
         }
         if let Some((kind, first)) = self.declared.get(&name.text) {
-            let line = self.source.line_col(first.start).0;
+            let line = self.source.line(first.start);
             return Err(self
                 .err(
                     ErrorKind::Name,
