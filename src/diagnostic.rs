@@ -76,6 +76,9 @@ pub enum ErrorKind {
     /// An expression is outside what the engine handles (a power of a
     /// correlator, …).
     Unsupported,
+    /// The input asks for more than a budget allows (nesting depth, number
+    /// of terms, size of a number or of a file; see `budget`).
+    Limit,
     /// A term cannot be evaluated numerically: something is left
     /// unevaluated, a value is missing, or the arithmetic has no real value
     /// (division by zero, a non-integer power of a negative number).
@@ -92,6 +95,7 @@ impl ErrorKind {
             ErrorKind::Arithmetic => "arithmetic",
             ErrorKind::Rule => "rule",
             ErrorKind::Io => "io",
+            ErrorKind::Limit => "limit",
             ErrorKind::Unsupported => "unsupported",
             ErrorKind::Numeric => "numeric",
         }

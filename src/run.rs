@@ -484,13 +484,18 @@ pub fn run_path(path: &Path, mode: Mode, opts: &Options) -> Result<Outcome> {
 }
 
 /// Runs a file's text; `base` is the folder its `rules "…"` paths are
-/// relative to.
+/// relative to. The work runs on a thread with a large stack (see
+/// [`crate::budget::MAX_DEPTH`]).
 pub fn run_source(
     source: &Arc<Source>,
     base: &Path,
     mode: Mode,
     opts: &Options,
 ) -> Result<Outcome> {
+    crate::budget::on_checker_stack(|| check_source(source, base, mode, opts))
+}
+
+fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -> Result<Outcome> {
     let program = lower::lower(source, &syntax::parse_file(source)?)?;
     let book = load_rules(&program, base, opts)?;
     check_citations(source, &program, &book)?;
