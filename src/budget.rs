@@ -32,7 +32,7 @@ pub const MAX_BITS: u64 = 1 << 16;
 pub const MAX_NODES: usize = 100_000;
 
 /// Monomials that one normalisation may produce while it expands.
-pub const MAX_TERMS: usize = 1_000_000;
+pub const MAX_TERMS: usize = 500_000;
 
 /// Bytes of one input file (`.ward` or `.rules`).
 pub const MAX_FILE_BYTES: u64 = 16 << 20;
@@ -43,15 +43,66 @@ pub fn too_many_terms(n: usize) -> Error {
         ErrorKind::Limit,
         format!("expression too large: {n} terms (limit {MAX_TERMS})"),
     )
-    .with_note("the expansion grows past what can be checked; split the expression, or keep a power of a sum unexpanded")
+    .with_note("its expansion grows past what can be checked; split it into smaller statements")
 }
 
-/// `Ok` when `n` more monomials fit in the budget.
-pub fn terms(n: usize) -> Result<()> {
-    if n > MAX_TERMS {
-        Err(too_many_terms(n))
-    } else {
-        Ok(())
+thread_local! {
+    /// (nested normalisations running on this thread, monomials they have
+    /// produced since the outermost one began).
+    static WORK: std::cell::Cell<(usize, usize)> = const { std::cell::Cell::new((0, 0)) };
+}
+
+/// The span of one normalisation, for [`spend`]: the outermost one on a
+/// thread starts the count from zero; nested ones share it.
+pub struct Work(());
+
+impl Work {
+    pub fn enter() -> Work {
+        WORK.with(|w| {
+            let (depth, spent) = w.get();
+            w.set((depth + 1, if depth == 0 { 0 } else { spent }));
+        });
+        Work(())
+    }
+}
+
+impl Drop for Work {
+    fn drop(&mut self) {
+        WORK.with(|w| {
+            let (depth, spent) = w.get();
+            w.set((depth.saturating_sub(1), spent));
+        });
+    }
+}
+
+/// Counts `n` monomials produced (or about to be) by the normalisation
+/// running on this thread; past [`MAX_TERMS`] the normalisation ends with
+/// [`too_many_terms`]. Outside a [`Work`] span nothing is counted.
+pub fn spend(n: usize) -> Result<()> {
+    WORK.with(|w| {
+        let (depth, spent) = w.get();
+        if depth == 0 {
+            return Ok(());
+        }
+        let spent = spent.saturating_add(n);
+        w.set((depth, spent));
+        if spent > MAX_TERMS {
+            Err(too_many_terms(spent))
+        } else {
+            Ok(())
+        }
+    })
+}
+
+/// `Ok` when every coefficient of `monos` fits in [`MAX_BITS`]; otherwise
+/// "number too large".
+pub fn coefficients(monos: &[crate::normal::Mono]) -> Result<()> {
+    match monos.iter().map(|m| bits(&m.coef)).max() {
+        Some(b) if b > MAX_BITS => Err(Error::new(
+            ErrorKind::Limit,
+            format!("number too large: a coefficient of {b} bits (limit {MAX_BITS})"),
+        )),
+        _ => Ok(()),
     }
 }
 

@@ -112,3 +112,38 @@ fn named_expressions_count_where_they_are_used() {
     let (source, span) = e.at.as_ref().expect("placed");
     assert_eq!(source.line_col(span.start), (9, 9 + 800));
 }
+
+#[test]
+fn exact_numbers_stay_within_their_budget() {
+    // A power whose value would take 13.6 million bits is kept as a power.
+    let out = run("simplify (10^4096)^1024").unwrap_or_else(|e| panic!("{}", e.render()));
+    let simplify = Options {
+        style: wardsmith::term::print::Style::Ascii,
+        ..Options::default()
+    };
+    let shown = run_source(
+        &Source::new("power.ward", format!("{HEAD}simplify (10^4096)^1024\n")),
+        Path::new("."),
+        Mode::Simplify,
+        &simplify,
+    )
+    .unwrap_or_else(|e| panic!("{}", e.render()));
+    assert_eq!(out.code, 0);
+    assert!(
+        shown
+            .report
+            .contains(&format!("1{}^1024", "0".repeat(4096))),
+        "{}",
+        shown.report
+    );
+    // A literal of a million digits is refused before it is read.
+    let e = run(&format!("simplify {}", "7".repeat(1_000_000))).expect_err("refused");
+    assert_eq!(e.kind, ErrorKind::Limit);
+    assert_eq!(
+        e.message,
+        format!(
+            "number too long: 1000000 digits (limit {})",
+            wardsmith::budget::MAX_DIGITS
+        )
+    );
+}

@@ -32,6 +32,7 @@ pub use monomial::{Atoms, Mono};
 
 /// Puts `t` in contact-term normal form.
 pub fn normalize(ctx: &Context, t: &Term) -> Result<Term> {
+    let _work = crate::budget::Work::enter();
     let monos = merge(canonical(ctx, expand(ctx, t)?));
     let has_distance = monos
         .iter()
@@ -122,6 +123,7 @@ fn term_count(t: &Term) -> usize {
 
 /// Expands a term into a list of monomials (not yet collected).
 fn expand(ctx: &Context, t: &Term) -> Result<Vec<Mono>> {
+    crate::budget::spend(1)?;
     Ok(match t {
         Term::Num(c) => {
             if c.is_zero() {
@@ -142,12 +144,14 @@ fn expand(ctx: &Context, t: &Term) -> Result<Vec<Mono>> {
             let mut acc = vec![Mono::scalar(BigRational::one())];
             for t in ts {
                 let factor = expand(ctx, t)?;
+                crate::budget::spend(acc.len().saturating_mul(factor.len()))?;
                 let mut next = Vec::with_capacity(acc.len() * factor.len());
                 for a in &acc {
                     for b in &factor {
                         next.push(a.mul(b));
                     }
                 }
+                crate::budget::coefficients(&next)?;
                 acc = next;
                 if acc.is_empty() {
                     break;
@@ -176,7 +180,9 @@ fn expand(ctx: &Context, t: &Term) -> Result<Vec<Mono>> {
         Term::Der(i, p, body) => {
             let mut out = Vec::new();
             for m in expand(ctx, body)? {
-                out.extend(calculus::differentiate(ctx, i, p, m)?);
+                let d = calculus::differentiate(ctx, i, p, m)?;
+                crate::budget::spend(d.len())?;
+                out.extend(d);
             }
             out
         }
@@ -282,7 +288,7 @@ fn power(ctx: &Context, b: &Term, e: &Term) -> Result<Vec<Mono>> {
         // Powers of correlators and δ-functions are not distributions.
         if q.is_integer() && q.is_positive() {
             if let Some(n) = q.to_u32().filter(|n| *n <= MAX_EXPANDED_POWER) {
-                return Ok(repeat_product(&base, n));
+                return repeat_product(&base, n);
             }
         }
         return Err(unsupported_power());
@@ -292,7 +298,7 @@ fn power(ctx: &Context, b: &Term, e: &Term) -> Result<Vec<Mono>> {
     }
     if q.is_integer() && q.is_positive() {
         if let Some(n) = q.to_u32().filter(|n| *n <= MAX_EXPANDED_POWER) {
-            return Ok(repeat_product(&base, n));
+            return repeat_product(&base, n);
         }
     }
     // A non-integer or negative power of a sum: the sum, in normal form, is
@@ -414,18 +420,20 @@ fn unsupported_power() -> Error {
     )
 }
 
-fn repeat_product(base: &[Mono], n: u32) -> Vec<Mono> {
+fn repeat_product(base: &[Mono], n: u32) -> Result<Vec<Mono>> {
     let mut acc = vec![Mono::scalar(BigRational::one())];
     for _ in 0..n {
+        crate::budget::spend(acc.len().saturating_mul(base.len()))?;
         let mut next = Vec::new();
         for a in &acc {
             for b in base {
                 next.push(a.mul(b));
             }
         }
+        crate::budget::coefficients(&next)?;
         acc = next;
     }
-    acc
+    Ok(acc)
 }
 
 /// Collects like terms and builds the normal-form term.
