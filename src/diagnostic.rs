@@ -176,18 +176,23 @@ impl Error {
             chars: Chars::ascii(),
             ..Config::default()
         };
+        // Control characters from the input (terminal escapes in a file
+        // name, a comment or a path) are shown escaped, never raw.
+        let escape = |s: &str| crate::charset::escape_controls(s).into_owned();
         let mut diagnostic = Diagnostic::error()
-            .with_message(&self.message)
+            .with_message(escape(&self.message))
             .with_code(self.kind.code())
-            .with_notes(self.notes.clone());
+            .with_notes(self.notes.iter().map(|n| escape(n)).collect());
         let file = match &self.at {
             Some((source, span)) => {
                 let end = span.end.min(source.text.len());
-                let start = span.start.min(end);
-                diagnostic = diagnostic.with_labels(vec![
-                    Label::primary((), start..end).with_message(&self.label)
-                ]);
-                SimpleFile::new(source.name.clone(), source.text.clone())
+                let mut range = [span.start.min(end), end];
+                let text = crate::charset::escape_controls_at(&source.text, &mut range);
+                diagnostic =
+                    diagnostic
+                        .with_labels(vec![Label::primary((), range[0]..range[1])
+                            .with_message(escape(&self.label))]);
+                SimpleFile::new(escape(&source.name), text.into_owned())
             }
             None => SimpleFile::new(String::new(), String::new()),
         };
@@ -195,7 +200,12 @@ impl Error {
         // does, fall back to the plain message rather than lose the error.
         if term::emit(buffer, &config, &file, &diagnostic).is_err() {
             use std::io::Write;
-            let _ = writeln!(buffer, "error[{}]: {}", self.kind.code(), self.message);
+            let _ = writeln!(
+                buffer,
+                "error[{}]: {}",
+                self.kind.code(),
+                escape(&self.message)
+            );
         }
     }
 }

@@ -15,6 +15,7 @@ pub mod derive;
 pub mod diagnostic;
 pub mod egraph;
 pub mod engine;
+pub mod files;
 pub mod lower;
 pub mod normal;
 pub mod numeric;

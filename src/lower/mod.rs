@@ -322,13 +322,14 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                     })?;
                 if let Some((name, span)) = output {
                     let plain = !name.is_empty()
+                        && !name.starts_with('/')
                         && name.chars().all(|c| {
                             c.is_alphanumeric() || c == '-' || c == '_' || c == '/' || c == '.'
                         })
                         && !name.contains("..");
                     if !plain {
                         return Err(lowerer
-                            .err(ErrorKind::Syntax, *span, "an output name is a relative path of letters, digits, `-`, `_`, `/` and `.`")
+                            .err(ErrorKind::Syntax, *span, "an output name is a relative path inside the file's folder, of letters, digits, `-`, `_`, `/` and `.` (no `..`)")
                             .with_label("not a plain name"));
                     }
                 }

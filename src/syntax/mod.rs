@@ -39,8 +39,22 @@ pub fn parse_file(source: &Arc<Source>) -> Result<File> {
     Ok(File { stmts })
 }
 
-/// Parses a `.rules` file.
+/// Parses a `.rules` file. A text that does not start with `ruleset`
+/// (after blank lines and comments) is not taken for a rules file, and its
+/// text is not shown: it may be any file named by mistake.
 pub fn parse_rule_file(source: &Arc<Source>) -> Result<RuleFile> {
+    if !starts_with_ruleset(&source.text) {
+        return Err(Error::new(
+            ErrorKind::Rule,
+            format!(
+                "`{}` is not a rules file: it does not start with `ruleset`",
+                source.name
+            ),
+        )
+        .with_note(
+            "a rules file holds `ruleset NAME` followed by `rule NAME … from … to …` blocks",
+        ));
+    }
     let mut pairs = parse_rule(source, Rule::rule_file)?;
     let file = pairs
         .next()
@@ -197,6 +211,23 @@ const EXPRESSION_WORDS: &[&str] = &[
 /// statement at once.
 fn at_statement_start(rules: &[Rule]) -> bool {
     rules.iter().filter(|r| STATEMENT_RULES.contains(r)).count() >= 2
+}
+
+/// True when the first word, after white space and comments, is
+/// `ruleset`, or there is none.
+fn starts_with_ruleset(text: &str) -> bool {
+    let mut rest = text;
+    loop {
+        rest = rest.trim_start();
+        match rest.strip_prefix('#') {
+            Some(comment) => rest = comment.split_once('\n').map_or("", |(_, after)| after),
+            None => break,
+        }
+    }
+    rest.is_empty()
+        || rest
+            .strip_prefix("ruleset")
+            .is_some_and(|after| !after.starts_with(is_ident_char))
 }
 
 /// Refuses text whose brackets nest more than [`MAX_DEPTH`] deep before
