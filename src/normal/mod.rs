@@ -421,9 +421,13 @@ fn unsupported_power() -> Error {
 }
 
 fn repeat_product(base: &[Mono], n: u32) -> Result<Vec<Mono>> {
+    // The whole expansion is counted before it starts: len + len² + … + lenⁿ.
+    let rounds = (1..=n).fold(0usize, |total, k| {
+        total.saturating_add(base.len().saturating_pow(k))
+    });
+    crate::budget::spend(rounds)?;
     let mut acc = vec![Mono::scalar(BigRational::one())];
     for _ in 0..n {
-        crate::budget::spend(acc.len().saturating_mul(base.len()))?;
         let mut next = Vec::new();
         for a in &acc {
             for b in base {
