@@ -453,7 +453,12 @@ fn isolated(config: &Config, batch: usize) {
     }
     println!("{}", summary.describe(config.count));
     println!("(memory: the largest peak of a child process of {batch} inputs)");
-    assert!(aborts.is_empty(), "inputs that abort: {aborts:?}");
+    assert!(
+        aborts.is_empty(),
+        "{} inputs abort, the first: {:?}",
+        aborts.len(),
+        &aborts[..aborts.len().min(20)]
+    );
     assert!(
         summary.outcomes.keys().all(|k| k != "panic"),
         "some inputs panic"
@@ -481,7 +486,7 @@ fn child(seed: u64, skip: usize, count: usize, all: bool) -> Result<Summary, Str
     let stdout = String::from_utf8_lossy(&out.stdout);
     let summary = stdout
         .lines()
-        .find_map(|l| l.strip_prefix("fuzz-summary "))
+        .find_map(|l| l.split_once("fuzz-summary ").map(|(_, rest)| rest))
         .and_then(Summary::decode);
     match summary {
         Some(s) if out.status.success() => Ok(s),
