@@ -98,33 +98,39 @@ pub fn replace_together(files: &[(PathBuf, String)]) -> io::Result<()> {
             }
         }
     }
-    // The old contents, kept under a temporary name until every rename
-    // has gone through.
-    let mut saved: Vec<(Option<PathBuf>, &Path)> = Vec::new();
+    // How to undo each rename: put the old file back (kept under a
+    // temporary name until every rename has gone through), remove a file
+    // that did not exist, or, when the old one could not be kept, leave it.
+    enum Undo {
+        Restore(PathBuf),
+        Remove,
+        Leave,
+    }
+    let mut done: Vec<(Undo, &Path)> = Vec::new();
     for (i, (temporary, target)) in written.iter().enumerate() {
-        let old = match fs::symlink_metadata(target) {
+        let undo = match fs::symlink_metadata(target) {
             Ok(_) => {
                 let keep = temporary_name(target);
                 match fs::hard_link(target, &keep) {
-                    Ok(()) => Some(keep),
-                    Err(_) => None,
+                    Ok(()) => Undo::Restore(keep),
+                    Err(_) => Undo::Leave,
                 }
             }
-            Err(_) => None,
+            Err(_) => Undo::Remove,
         };
         if let Err(e) = fs::rename(temporary, target) {
-            if let Some(keep) = &old {
+            if let Undo::Restore(keep) = &undo {
                 let _ = fs::remove_file(keep);
             }
-            // Undo the renames done so far, and drop what is left.
-            for (keep, done) in saved.iter().rev() {
-                match keep {
-                    Some(keep) => {
-                        let _ = fs::rename(keep, done);
+            for (undo, target) in done.iter().rev() {
+                match undo {
+                    Undo::Restore(keep) => {
+                        let _ = fs::rename(keep, target);
                     }
-                    None => {
-                        let _ = fs::remove_file(done);
+                    Undo::Remove => {
+                        let _ = fs::remove_file(target);
                     }
+                    Undo::Leave => {}
                 }
             }
             for (temporary, _) in &written[i..] {
@@ -132,10 +138,10 @@ pub fn replace_together(files: &[(PathBuf, String)]) -> io::Result<()> {
             }
             return Err(e);
         }
-        saved.push((old, target));
+        done.push((undo, target));
     }
-    for (keep, _) in saved {
-        if let Some(keep) = keep {
+    for (undo, _) in done {
+        if let Undo::Restore(keep) = undo {
             let _ = fs::remove_file(keep);
         }
     }
