@@ -27,6 +27,47 @@ pub fn unicode_output(is_terminal: bool, var: impl Fn(&str) -> Option<String>) -
     }
 }
 
+/// True for a character that can drive a terminal (C0 and C1 controls and
+/// DEL) other than a new line or a tab.
+fn is_control(c: char) -> bool {
+    c != '\n' && c != '\t' && c.is_control()
+}
+
+/// `text` with every control character but new lines and tabs written as
+/// `\u{1b}` (a carriage return before a new line is kept), so that text
+/// echoed from the input can never move the cursor, recolour or retitle a
+/// terminal.
+pub fn escape_controls(text: &str) -> std::borrow::Cow<'_, str> {
+    escape_controls_at(text, &mut [])
+}
+
+/// [`escape_controls`], also moving the byte `offsets` into `text` to the
+/// same places in the escaped text.
+pub fn escape_controls_at<'t>(text: &'t str, offsets: &mut [usize]) -> std::borrow::Cow<'t, str> {
+    let keep = |i: usize, c: char| !is_control(c) || (c == '\r' && text[i + 1..].starts_with('\n'));
+    if text.char_indices().all(|(i, c)| keep(i, c)) {
+        return std::borrow::Cow::Borrowed(text);
+    }
+    let mut out = String::with_capacity(text.len() + 16);
+    let mut moved: Vec<Option<usize>> = vec![None; offsets.len()];
+    for (i, c) in text.char_indices() {
+        for (k, o) in offsets.iter().enumerate() {
+            if moved[k].is_none() && *o <= i {
+                moved[k] = Some(out.len());
+            }
+        }
+        if keep(i, c) {
+            out.push(c);
+        } else {
+            out.push_str(&format!("\\u{{{:x}}}", c as u32));
+        }
+    }
+    for (o, m) in offsets.iter_mut().zip(moved) {
+        *o = m.unwrap_or(out.len());
+    }
+    std::borrow::Cow::Owned(out)
+}
+
 /// The report with every non-ASCII character spelt in ASCII: `∂` as `del`,
 /// `x∥` as `par(x)`, Greek letters by name, anything unknown as `?`.
 pub fn to_ascii(text: &str) -> String {

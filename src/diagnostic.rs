@@ -18,22 +18,38 @@ use crate::syntax::ast::Span;
 pub struct Source {
     pub name: String,
     pub text: String,
+    /// Byte offset of the start of every line, indexed once so that a
+    /// position costs a binary search, not a scan from the start of the file.
+    line_starts: Vec<usize>,
 }
 
 impl Source {
     pub fn new(name: impl Into<String>, text: impl Into<String>) -> Arc<Source> {
+        let text = text.into();
+        let line_starts = std::iter::once(0)
+            .chain(text.match_indices('\n').map(|(i, _)| i + 1))
+            .collect();
         Arc::new(Source {
             name: name.into(),
-            text: text.into(),
+            text,
+            line_starts,
         })
+    }
+
+    /// 1-based line of a byte offset.
+    pub fn line(&self, offset: usize) -> usize {
+        self.line_starts.partition_point(|&s| s <= offset)
     }
 
     /// 1-based line and column (in characters) of a byte offset.
     pub fn line_col(&self, offset: usize) -> (usize, usize) {
-        let offset = offset.min(self.text.len());
-        let before = &self.text[..offset];
-        let line = before.matches('\n').count() + 1;
-        let line_start = before.rfind('\n').map_or(0, |i| i + 1);
+        let mut offset = offset.min(self.text.len());
+        while !self.text.is_char_boundary(offset) {
+            offset -= 1;
+        }
+        // The last line starting at or before the offset.
+        let line = self.line_starts.partition_point(|&s| s <= offset);
+        let line_start = self.line_starts[line - 1];
         let col = self.text[line_start..offset].chars().count() + 1;
         (line, col)
     }
@@ -60,6 +76,9 @@ pub enum ErrorKind {
     /// An expression is outside what the engine handles (a power of a
     /// correlator, …).
     Unsupported,
+    /// The input asks for more than a budget allows (nesting depth, number
+    /// of terms, size of a number or of a file; see `budget`).
+    Limit,
     /// A term cannot be evaluated numerically: something is left
     /// unevaluated, a value is missing, or the arithmetic has no real value
     /// (division by zero, a non-integer power of a negative number).
@@ -76,6 +95,7 @@ impl ErrorKind {
             ErrorKind::Arithmetic => "arithmetic",
             ErrorKind::Rule => "rule",
             ErrorKind::Io => "io",
+            ErrorKind::Limit => "limit",
             ErrorKind::Unsupported => "unsupported",
             ErrorKind::Numeric => "numeric",
         }
@@ -156,18 +176,23 @@ impl Error {
             chars: Chars::ascii(),
             ..Config::default()
         };
+        // Control characters from the input (terminal escapes in a file
+        // name, a comment or a path) are shown escaped, never raw.
+        let escape = |s: &str| crate::charset::escape_controls(s).into_owned();
         let mut diagnostic = Diagnostic::error()
-            .with_message(&self.message)
+            .with_message(escape(&self.message))
             .with_code(self.kind.code())
-            .with_notes(self.notes.clone());
+            .with_notes(self.notes.iter().map(|n| escape(n)).collect());
         let file = match &self.at {
             Some((source, span)) => {
                 let end = span.end.min(source.text.len());
-                let start = span.start.min(end);
-                diagnostic = diagnostic.with_labels(vec![
-                    Label::primary((), start..end).with_message(&self.label)
-                ]);
-                SimpleFile::new(source.name.clone(), source.text.clone())
+                let mut range = [span.start.min(end), end];
+                let text = crate::charset::escape_controls_at(&source.text, &mut range);
+                diagnostic =
+                    diagnostic
+                        .with_labels(vec![Label::primary((), range[0]..range[1])
+                            .with_message(escape(&self.label))]);
+                SimpleFile::new(escape(&source.name), text.into_owned())
             }
             None => SimpleFile::new(String::new(), String::new()),
         };
@@ -175,7 +200,12 @@ impl Error {
         // does, fall back to the plain message rather than lose the error.
         if term::emit(buffer, &config, &file, &diagnostic).is_err() {
             use std::io::Write;
-            let _ = writeln!(buffer, "error[{}]: {}", self.kind.code(), self.message);
+            let _ = writeln!(
+                buffer,
+                "error[{}]: {}",
+                self.kind.code(),
+                escape(&self.message)
+            );
         }
     }
 }
@@ -195,3 +225,26 @@ impl fmt::Display for Error {
 impl std::error::Error for Error {}
 
 pub type Result<T> = std::result::Result<T, Error>;
+
+#[cfg(test)]
+mod tests {
+    use super::Source;
+
+    #[test]
+    fn line_and_column_come_from_the_line_index() {
+        let s = Source::new("f", "ab\nδx\n\nz");
+        assert_eq!(s.line_col(0), (1, 1));
+        assert_eq!(s.line_col(2), (1, 3));
+        assert_eq!(s.line_col(3), (2, 1));
+        // Columns count characters: δ is two bytes, one column.
+        assert_eq!(s.line_col(5), (2, 2));
+        // Inside a character: the character's own column.
+        assert_eq!(s.line_col(4), (2, 1));
+        assert_eq!(s.line_col(7), (3, 1));
+        assert_eq!(s.line_col(8), (4, 1));
+        // Past the end: the end.
+        assert_eq!(s.line_col(100), (4, 2));
+        assert_eq!(s.line(8), 4);
+        assert_eq!(Source::new("e", "").line_col(0), (1, 1));
+    }
+}

@@ -8,12 +8,14 @@
 //! [`engine`] strings the stages together for one expression; [`run`]
 //! does one whole file for the command line.
 
+pub mod budget;
 pub mod charset;
 pub mod context;
 pub mod derive;
 pub mod diagnostic;
 pub mod egraph;
 pub mod engine;
+pub mod files;
 pub mod lower;
 pub mod normal;
 pub mod numeric;

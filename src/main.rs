@@ -119,8 +119,27 @@ fn main() -> ExitCode {
     };
     match result {
         Ok(outcome) => {
-            print!("{}", outcome.report);
-            ExitCode::from(outcome.code as u8)
+            // Control characters of the input (in file names, say) are
+            // printed escaped; JSON escapes its own.
+            let report = if args.json {
+                outcome.report.as_str().into()
+            } else {
+                wardsmith::charset::escape_controls(&outcome.report)
+            };
+            match print_report(&report) {
+                Ok(()) => ExitCode::from(outcome.code as u8),
+                // The reader stopped reading (`| head`): nothing to say.
+                Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => {
+                    ExitCode::from(outcome.code as u8)
+                }
+                Err(e) => {
+                    let _ = writeln!(
+                        std::io::stderr(),
+                        "error[io]: cannot write the report to standard output: {e}"
+                    );
+                    ExitCode::from(2)
+                }
+            }
         }
         Err(e) => {
             let color = std::io::stderr().is_terminal();
@@ -128,4 +147,13 @@ fn main() -> ExitCode {
             ExitCode::from(2)
         }
     }
+}
+
+/// Writes the report to standard output and flushes it, returning the
+/// error instead of panicking as `print!` would (a closed pipe, a full
+/// disk).
+fn print_report(report: &str) -> std::io::Result<()> {
+    let mut out = std::io::stdout().lock();
+    out.write_all(report.as_bytes())?;
+    out.flush()
 }

@@ -327,30 +327,31 @@ fn small_fraction(x: f64) -> Option<(i64, i64)> {
     None
 }
 
-/// Writes `stem.csv` and `stem.svg` beside the file, each through a
-/// temporary file and a rename, so a failure never leaves half a file.
+/// Writes `stem.csv` and `stem.svg` inside the file's folder, both or
+/// neither (see [`crate::files::replace_together`]).
 fn write_scan(
     scan: &crate::numeric::session::Scan,
     base: &Path,
     stem: &str,
     title: &str,
 ) -> Result<String> {
-    let csv = base.join(format!("{stem}.csv"));
-    let svg = base.join(format!("{stem}.svg"));
-    for (path, text) in [
-        (&csv, crate::plot::csv(scan)),
-        (&svg, crate::plot::svg(scan, title)),
-    ] {
-        let temporary = path.with_extension("partial");
-        let io = |e: std::io::Error| {
-            Error::new(
-                ErrorKind::Io,
-                format!("cannot write `{}`: {e}", path.display()),
-            )
-        };
-        std::fs::write(&temporary, text).map_err(io)?;
-        std::fs::rename(&temporary, path).map_err(io)?;
-    }
+    let refuse = |why: String| Error::new(ErrorKind::Io, format!("cannot write the scan: {why}"));
+    let csv = crate::files::output_path(base, stem, "csv").map_err(refuse)?;
+    let svg = crate::files::output_path(base, stem, "svg").map_err(refuse)?;
+    crate::files::replace_together(&[
+        (csv.clone(), crate::plot::csv(scan)),
+        (svg.clone(), crate::plot::svg(scan, title)),
+    ])
+    .map_err(|e| {
+        Error::new(
+            ErrorKind::Io,
+            format!(
+                "cannot write `{}` and `{}`: {e}; neither was changed",
+                csv.display(),
+                svg.display()
+            ),
+        )
+    })?;
     Ok(format!("{}, {}", csv.display(), svg.display()))
 }
 
@@ -375,28 +376,27 @@ fn numeric_session<'s, 'a>(
 /// file, then `N passed, M failed`. A file passes when all its claims hold;
 /// an input error fails it with the diagnostic's first line.
 pub fn run_folder(dir: &Path, opts: &Options) -> Result<Outcome> {
-    let mut files = Vec::new();
-    collect_ward_files(dir, &mut files)?;
-    files.sort();
+    let files = crate::files::ward_files(dir)?;
     let (mut passed, mut failed) = (0, 0);
     let mut report = String::new();
     for path in &files {
-        let line = match run_path(path, Mode::Check, opts).and_then(|out| accept(path, out, opts)) {
-            Ok(out) if out.code == 0 => {
-                passed += 1;
-                let summary = out.report.lines().last().unwrap_or("").to_string();
-                format!("pass  {}  ({summary})", path.display())
-            }
-            Ok(out) => {
-                failed += 1;
-                let summary = out.report.lines().last().unwrap_or("").to_string();
-                format!("FAIL  {}  ({summary})", path.display())
-            }
-            Err(e) => {
-                failed += 1;
-                format!("FAIL  {}  ({})", path.display(), e)
-            }
-        };
+        let line =
+            match run_path(path, Mode::Check, opts).and_then(|out| accept(dir, path, out, opts)) {
+                Ok(out) if out.code == 0 => {
+                    passed += 1;
+                    let summary = out.report.lines().last().unwrap_or("").to_string();
+                    format!("pass  {}  ({summary})", path.display())
+                }
+                Ok(out) => {
+                    failed += 1;
+                    let summary = out.report.lines().last().unwrap_or("").to_string();
+                    format!("FAIL  {}  ({summary})", path.display())
+                }
+                Err(e) => {
+                    failed += 1;
+                    format!("FAIL  {}  ({})", path.display(), e)
+                }
+            };
         report.push_str(&line);
         report.push('\n');
     }
@@ -409,19 +409,22 @@ pub fn run_folder(dir: &Path, opts: &Options) -> Result<Outcome> {
 }
 
 /// Under `--accept`, runs the file with its new expected results and writes
-/// them in place (all other bytes kept, through a temporary file and a
-/// rename); otherwise, and when nothing changes, returns `out` as it is.
-fn accept(path: &Path, out: Outcome, opts: &Options) -> Result<Outcome> {
+/// them in place (all other bytes kept, through an exclusive temporary file
+/// with the file's permissions, synced, and a rename; a link is followed to
+/// its file only inside `root`); otherwise, and when nothing changes,
+/// returns `out` as it is.
+fn accept(root: &Path, path: &Path, out: Outcome, opts: &Options) -> Result<Outcome> {
     if !opts.accept || out.edits.is_empty() {
         return Ok(out);
     }
-    let io = |e: std::io::Error| {
+    let io = |e: String| {
         Error::new(
             ErrorKind::Io,
             format!("cannot rewrite `{}`: {e}", path.display()),
         )
     };
-    let mut text = std::fs::read_to_string(path).map_err(io)?;
+    let real = crate::files::real_file_inside(root, path).map_err(io)?;
+    let mut text = crate::files::read_text(&real)?.text.clone();
     let mut edits = out.edits;
     edits.sort_by_key(|(span, _)| std::cmp::Reverse(span.start));
     for (span, new) in &edits {
@@ -448,9 +451,7 @@ fn accept(path: &Path, out: Outcome, opts: &Options) -> Result<Outcome> {
         ..opts.clone()
     };
     let mut again = run_source(&source, &base, Mode::Check, &once)?;
-    let temporary = path.with_extension("ward.partial");
-    std::fs::write(&temporary, &text).map_err(io)?;
-    std::fs::rename(&temporary, path).map_err(io)?;
+    crate::files::replace_together(&[(real, text)]).map_err(|e| io(e.to_string()))?;
     // The file's summary line names what was rewritten.
     again.report = format!(
         "{}; accepted {} new expected result(s)\n",
@@ -458,24 +459,6 @@ fn accept(path: &Path, out: Outcome, opts: &Options) -> Result<Outcome> {
         edits.len()
     );
     Ok(again)
-}
-
-fn collect_ward_files(dir: &Path, out: &mut Vec<PathBuf>) -> Result<()> {
-    let entries = std::fs::read_dir(dir).map_err(|e| {
-        Error::new(
-            ErrorKind::Io,
-            format!("cannot read the folder `{}`: {e}", dir.display()),
-        )
-    })?;
-    for entry in entries.flatten() {
-        let path = entry.path();
-        if path.is_dir() {
-            collect_ward_files(&path, out)?;
-        } else if path.extension().is_some_and(|x| x == "ward") {
-            out.push(path);
-        }
-    }
-    Ok(())
 }
 
 /// Reads a file from disk and runs it.
@@ -486,16 +469,29 @@ pub fn run_path(path: &Path, mode: Mode, opts: &Options) -> Result<Outcome> {
 }
 
 /// Runs a file's text; `base` is the folder its `rules "…"` paths are
-/// relative to.
+/// relative to. The work runs on a thread with a large stack (see
+/// [`crate::budget::MAX_DEPTH`]).
 pub fn run_source(
     source: &Arc<Source>,
     base: &Path,
     mode: Mode,
     opts: &Options,
 ) -> Result<Outcome> {
+    crate::budget::on_checker_stack(|| check_source(source, base, mode, opts))
+}
+
+fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -> Result<Outcome> {
     let program = lower::lower(source, &syntax::parse_file(source)?)?;
     let book = load_rules(&program, base, opts)?;
     check_citations(source, &program, &book)?;
+    if program.items.is_empty() && !opts.json {
+        // Declarations alone are valid, but silence would read as a pass.
+        return Ok(Outcome {
+            report: "nothing to check: no statement to simplify, prove or evaluate\n".into(),
+            code: 0,
+            edits: Vec::new(),
+        });
+    }
     let engine = Engine::new(program.ctx.clone(), Arc::new(book), opts.limits)?;
     let mut reporter = if opts.json {
         Reporter::json(&program.ctx)
@@ -748,13 +744,7 @@ pub fn run_source(
 }
 
 fn read_source(path: &Path) -> Result<Arc<Source>> {
-    let text = std::fs::read_to_string(path).map_err(|e| {
-        Error::new(
-            ErrorKind::Io,
-            format!("cannot read `{}`: {e}", path.display()),
-        )
-    })?;
-    Ok(Source::new(path.display().to_string(), text))
+    crate::files::read_text(path)
 }
 
 /// The shipped rules, then `--rules` files, then the file's `rules "…"`.
@@ -768,7 +758,12 @@ fn load_rules(program: &Program, base: &Path, opts: &Options) -> Result<RuleBook
         let source = read_source(&path).map_err(|e| {
             Error::at(ErrorKind::Io, &program.source, *span, e.message).with_label("this rule file")
         })?;
-        book.load(&source)?;
+        book.load(&source).map_err(|e| match e.at {
+            Some(_) => e,
+            None => e
+                .with_span(&program.source, *span)
+                .with_label("this rule file"),
+        })?;
     }
     Ok(book)
 }

@@ -36,6 +36,10 @@ impl Analysis<Ward> for Fold {
                         return Some(BigRational::zero());
                     }
                     acc *= v;
+                    // Not folded past the size budget.
+                    if crate::budget::bits(&acc) > crate::budget::MAX_BITS {
+                        return None;
+                    }
                 }
                 Some(acc)
             }
@@ -46,7 +50,10 @@ impl Analysis<Ward> for Fold {
                     return None;
                 }
                 let n = e.to_i32()?;
-                if n.unsigned_abs() > 4096 || (b.is_zero() && n < 0) {
+                if n.unsigned_abs() > 4096
+                    || (b.is_zero() && n < 0)
+                    || !crate::budget::power_fits(&b, u64::from(n.unsigned_abs()))
+                {
                     return None;
                 }
                 let p = num_traits::pow(b, n.unsigned_abs() as usize);

@@ -753,7 +753,7 @@ impl Lowerer {
             );
         }
         let defined = self.scope.lets.get(&n.text)?;
-        let line = self.source.line_col(defined.start).0;
+        let line = self.source.line(defined.start);
         Some(
             self.err(
                 ErrorKind::Name,

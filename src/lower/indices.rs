@@ -68,6 +68,12 @@ pub fn collect(e: &Expr, names: &mut BTreeSet<String>) {
     };
     match &e.kind {
         ExprKind::Neg(a) => collect(a, names),
+        ExprKind::Chain { first, rest } => {
+            collect(first, names);
+            for (_, e) in rest {
+                collect(e, names);
+            }
+        }
         ExprKind::Binary { lhs, rhs, .. } => {
             collect(lhs, names);
             collect(rhs, names);
@@ -126,71 +132,14 @@ fn walk(e: &Expr) -> Result<Usage, Violation> {
             Ok(Usage::default())
         }
         ExprKind::Neg(a) => walk(a),
-        ExprKind::Binary { op, lhs, rhs } => {
-            let l = walk(lhs)?;
-            let r = walk(rhs)?;
-            match op {
-                BinOp::Add | BinOp::Sub => {
-                    let lk: BTreeSet<&String> = l.free.keys().collect();
-                    let rk: BTreeSet<&String> = r.free.keys().collect();
-                    if lk != rk {
-                        return Err(Violation::new(
-                            rhs.span,
-                            format!(
-                                "the terms of this sum have different free indices: {} and {}",
-                                describe(&lk),
-                                describe(&rk)
-                            ),
-                            if rk.is_empty() {
-                                "this term has no free index".to_string()
-                            } else {
-                                format!("this term has free indices {}", describe(&rk))
-                            },
-                        )
-                        .with_note(SUM_NOTE));
-                    }
-                    let mut dummies = l.dummies;
-                    dummies.extend(r.dummies);
-                    Ok(Usage {
-                        free: l.free,
-                        dummies,
-                    })
-                }
-                BinOp::Mul => product(vec![l, r]),
-                BinOp::Div | BinOp::Pow => {
-                    // A numerator may carry free indices (`x1[mu]/|x1 - x2|^2`);
-                    // a denominator, a base or an exponent may not.
-                    let scalars: &[&Usage] = match op {
-                        BinOp::Div => &[&r],
-                        _ => &[&r, &l],
-                    };
-                    for usage in scalars {
-                        if let Some((name, span)) = usage.free.iter().next() {
-                            return Err(Violation::new(
-                                *span,
-                                format!("index `{name}` is free inside a power or a denominator"),
-                                "a free index",
-                            ));
-                        }
-                    }
-                    if matches!(op, BinOp::Pow) && !l.dummies.is_empty() {
-                        return Err(Violation::new(
-                            lhs.span,
-                            "a power of a contracted expression is ambiguous; write the product out".into(),
-                            "contains a summed index",
-                        ));
-                    }
-                    if matches!(op, BinOp::Div) {
-                        // A numerator's free index may not be summed in the
-                        // denominator too.
-                        return product(vec![l, r]);
-                    }
-                    let mut usage = l;
-                    usage.dummies.extend(r.dummies);
-                    Ok(usage)
-                }
+        ExprKind::Chain { first, rest } => {
+            let mut usage = walk(first)?;
+            for (op, rhs) in rest {
+                usage = combine(*op, usage, walk(rhs)?, first.span, rhs)?;
             }
+            Ok(usage)
         }
+        ExprKind::Binary { op, lhs, rhs } => combine(*op, walk(lhs)?, walk(rhs)?, lhs.span, rhs),
         ExprKind::Corr(items) => {
             let mut parts = Vec::new();
             for item in items {
@@ -206,6 +155,72 @@ fn walk(e: &Expr) -> Result<Usage, Violation> {
         }
         ExprKind::Kron(i, j) => names(&[i.clone(), j.clone()]),
         ExprKind::Normal(i) => names(std::slice::from_ref(i)),
+    }
+}
+
+/// Combines the usage of `l` and of `rhs` (usage `r`) joined by `op`;
+/// `lhs_span` is where the left operand is written.
+fn combine(op: BinOp, l: Usage, r: Usage, lhs_span: Span, rhs: &Expr) -> Result<Usage, Violation> {
+    match op {
+        BinOp::Add | BinOp::Sub => {
+            let lk: BTreeSet<&String> = l.free.keys().collect();
+            let rk: BTreeSet<&String> = r.free.keys().collect();
+            if lk != rk {
+                return Err(Violation::new(
+                    rhs.span,
+                    format!(
+                        "the terms of this sum have different free indices: {} and {}",
+                        describe(&lk),
+                        describe(&rk)
+                    ),
+                    if rk.is_empty() {
+                        "this term has no free index".to_string()
+                    } else {
+                        format!("this term has free indices {}", describe(&rk))
+                    },
+                )
+                .with_note(SUM_NOTE));
+            }
+            let mut dummies = l.dummies;
+            dummies.extend(r.dummies);
+            Ok(Usage {
+                free: l.free,
+                dummies,
+            })
+        }
+        BinOp::Mul => product(vec![l, r]),
+        BinOp::Div | BinOp::Pow => {
+            // A numerator may carry free indices (`x1[mu]/|x1 - x2|^2`);
+            // a denominator, a base or an exponent may not.
+            let scalars: &[&Usage] = match op {
+                BinOp::Div => &[&r],
+                _ => &[&r, &l],
+            };
+            for usage in scalars {
+                if let Some((name, span)) = usage.free.iter().next() {
+                    return Err(Violation::new(
+                        *span,
+                        format!("index `{name}` is free inside a power or a denominator"),
+                        "a free index",
+                    ));
+                }
+            }
+            if matches!(op, BinOp::Pow) && !l.dummies.is_empty() {
+                return Err(Violation::new(
+                    lhs_span,
+                    "a power of a contracted expression is ambiguous; write the product out".into(),
+                    "contains a summed index",
+                ));
+            }
+            if matches!(op, BinOp::Div) {
+                // A numerator's free index may not be summed in the
+                // denominator too.
+                return product(vec![l, r]);
+            }
+            let mut usage = l;
+            usage.dummies.extend(r.dummies);
+            Ok(usage)
+        }
     }
 }
 

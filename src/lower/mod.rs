@@ -19,6 +19,7 @@ use std::sync::Arc;
 use num_rational::BigRational;
 use num_traits::{Signed, Zero};
 
+use crate::budget::{MAX_BITS, MAX_DEPTH, MAX_NODES};
 use crate::context::{
     Context, IndexKind, OperatorDecl, PointDecl, DIMENSION, DISPLACEMENT, NORMAL, STRESS_TENSOR,
 };
@@ -131,6 +132,8 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
         declared: BTreeMap::new(),
         lets: BTreeMap::new(),
         fresh: std::cell::Cell::new(0),
+        depth: std::cell::Cell::new(0),
+        nodes: std::cell::Cell::new(0),
         numeric: NumericSpec::default(),
         scope: explicit::Scope::new(file),
     };
@@ -140,6 +143,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
     let mut rule_files = Vec::new();
     let mut seen_expression = false;
     for stmt in &file.stmts {
+        lowerer.nodes.set(0);
         match stmt {
             Stmt::Simplify { expr, expect, span } => {
                 let expect_expr = expect;
@@ -164,7 +168,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         expect_span: expect_expr.as_ref().map(|e| e.span),
                     },
                     span: *span,
-                    line: source.line_col(span.start).0,
+                    line: source.line(span.start),
                 });
             }
             Stmt::Claim { lhs, rhs, span } => {
@@ -184,7 +188,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         rhs: lowerer.expr(rhs)?,
                     },
                     span: *span,
-                    line: source.line_col(span.start).0,
+                    line: source.line(span.start),
                 });
             }
             Stmt::Rules { path, span } => rule_files.push((path.clone(), *span)),
@@ -197,7 +201,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         free,
                     },
                     span: *span,
-                    line: source.line_col(span.start).0,
+                    line: source.line(span.start),
                 });
             }
             Stmt::Solve {
@@ -223,7 +227,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         free: profile.into_iter().collect(),
                     },
                     span: *span,
-                    line: source.line_col(span.start).0,
+                    line: source.line(span.start),
                 });
             }
             Stmt::Flux {
@@ -263,7 +267,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         free: profile.into_iter().collect(),
                     },
                     span: *span,
-                    line: source.line_col(span.start).0,
+                    line: source.line(span.start),
                 });
             }
             Stmt::Scan {
@@ -318,13 +322,14 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                     })?;
                 if let Some((name, span)) = output {
                     let plain = !name.is_empty()
+                        && !name.starts_with('/')
                         && name.chars().all(|c| {
                             c.is_alphanumeric() || c == '-' || c == '_' || c == '/' || c == '.'
                         })
                         && !name.contains("..");
                     if !plain {
                         return Err(lowerer
-                            .err(ErrorKind::Syntax, *span, "an output name is a relative path of letters, digits, `-`, `_`, `/` and `.`")
+                            .err(ErrorKind::Syntax, *span, "an output name is a relative path inside the file's folder, of letters, digits, `-`, `_`, `/` and `.` (no `..`)")
                             .with_label("not a plain name"));
                     }
                 }
@@ -342,7 +347,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         output: output.as_ref().map(|(n, _)| n.clone()),
                     },
                     span: *span,
-                    line: source.line_col(span.start).0,
+                    line: source.line(span.start),
                 });
             }
             Stmt::Derivation {
@@ -362,7 +367,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                     )?;
                     lowered.push(Step {
                         expr: lowerer.expr(step)?,
-                        line: source.line_col(step.span.start).0,
+                        line: source.line(step.span.start),
                         cited: why.iter().map(|w| (w.text.clone(), w.span)).collect(),
                     });
                 }
@@ -374,7 +379,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         free: profile.into_iter().collect(),
                     },
                     span: *span,
-                    line: source.line_col(span.start).0,
+                    line: source.line(span.start),
                 });
             }
             Stmt::Compare { lhs, rhs, span } => {
@@ -388,7 +393,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         free: profile.into_iter().collect(),
                     },
                     span: *span,
-                    line: source.line_col(span.start).0,
+                    line: source.line(span.start),
                 });
             }
             Stmt::Classify { name, span } => {
@@ -401,7 +406,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         normal_component,
                     },
                     span: *span,
-                    line: source.line_col(span.start).0,
+                    line: source.line(span.start),
                 });
             }
             Stmt::Dimension(e) if seen_expression => {
@@ -470,6 +475,11 @@ struct Lowerer {
     lets: BTreeMap<String, Expr>,
     /// Counter for fresh summation indices inside Killing vectors.
     fresh: std::cell::Cell<u32>,
+    /// How deeply the expression being lowered nests, named expressions
+    /// substituted (see [`MAX_DEPTH`]).
+    depth: std::cell::Cell<usize>,
+    /// Nodes lowered for the current statement (see [`MAX_NODES`]).
+    nodes: std::cell::Cell<usize>,
     /// Where the expression being lowered stands (see [`explicit::Scope`]).
     scope: explicit::Scope,
     /// Numeric set-up gathered from `model`, `coefficient` and `values`.
@@ -702,7 +712,7 @@ impl Lowerer {
                 .with_note("the names T, D, d and n are reserved; choose another name"));
         }
         if let Some((kind, first)) = self.declared.get(&name.text) {
-            let line = self.source.line_col(first.start).0;
+            let line = self.source.line(first.start);
             return Err(self
                 .err(
                     ErrorKind::Name,
@@ -737,6 +747,12 @@ impl Lowerer {
                 self.ctx.parameters.insert(n.text.clone());
             }
             ExprKind::Neg(a) => self.declare_parameters_in(a)?,
+            ExprKind::Chain { first, rest } => {
+                self.declare_parameters_in(first)?;
+                for (_, e) in rest {
+                    self.declare_parameters_in(e)?;
+                }
+            }
             ExprKind::Binary { lhs, rhs, .. } => {
                 self.declare_parameters_in(lhs)?;
                 self.declare_parameters_in(rhs)?;
@@ -838,7 +854,63 @@ impl Lowerer {
 
     // ───────────────────────── expressions ──────────────────────────
 
+    /// Lowers an expression, within the depth and size budgets: the
+    /// parser bounds each expression as written, this bounds them with
+    /// named expressions substituted.
     fn expr(&self, e: &Expr) -> Result<Term> {
+        let nodes = self.nodes.get() + 1;
+        self.nodes.set(nodes);
+        if nodes > MAX_NODES {
+            return Err(self
+                .err(
+                    ErrorKind::Limit,
+                    e.span,
+                    format!("expression too large: more than {MAX_NODES} terms once named expressions are substituted"),
+                )
+                .with_label("the limit is reached here")
+                .with_note("a named expression (`let`) is copied wherever it is used"));
+        }
+        // The constructs the parser counts (brackets aside).
+        let nests = matches!(
+            e.kind,
+            ExprKind::Neg(_)
+                | ExprKind::Binary { .. }
+                | ExprKind::Call { .. }
+                | ExprKind::Deriv { .. }
+                | ExprKind::Integral { .. }
+                | ExprKind::Sum { .. }
+        );
+        if nests {
+            self.descend(e.span, || self.lower_expr(e))
+        } else {
+            self.lower_expr(e)
+        }
+    }
+
+    /// Runs `f` one level deeper, or fails at `span` past [`MAX_DEPTH`].
+    fn descend<T>(&self, span: Span, f: impl FnOnce() -> Result<T>) -> Result<T> {
+        let depth = self.depth.get();
+        if depth >= MAX_DEPTH {
+            let first = self.source.text[span.start..]
+                .chars()
+                .next()
+                .map_or(0, char::len_utf8);
+            return Err(self
+                .err(
+                    ErrorKind::Limit,
+                    Span::new(span.start, span.start + first),
+                    format!("nested too deeply (limit {MAX_DEPTH})"),
+                )
+                .with_label("this level is one too many")
+                .with_note(format!("brackets, calls, derivatives, signs and powers nest at most {MAX_DEPTH} deep, counting named expressions (`let`) where they are used")));
+        }
+        self.depth.set(depth + 1);
+        let out = f();
+        self.depth.set(depth);
+        out
+    }
+
+    fn lower_expr(&self, e: &Expr) -> Result<Term> {
         Ok(match &e.kind {
             ExprKind::Num(c) => Term::Num(c.clone()),
             ExprKind::Name(n) => self.scalar_name(n)?,
@@ -859,6 +931,25 @@ impl Lowerer {
                 body,
             } => self.integral(var, region, *surface, body)?,
             ExprKind::Neg(a) => self.expr(a)?.negated(),
+            ExprKind::Chain { first, rest } => {
+                let mut parts = vec![self.expr(first)?];
+                for (op, rhs) in rest {
+                    let r = self.expr(rhs)?;
+                    parts.push(match op {
+                        BinOp::Sub => r.negated(),
+                        BinOp::Div => {
+                            self.nonzero_divisor(rhs)?;
+                            Term::Pow(Box::new(r), Box::new(Term::int(-1)))
+                        }
+                        _ => r,
+                    });
+                }
+                if matches!(rest.first(), Some((BinOp::Add | BinOp::Sub, _))) {
+                    Term::Add(parts)
+                } else {
+                    Term::Mul(parts)
+                }
+            }
             ExprKind::Binary { op, lhs, rhs } => {
                 let l = self.expr(lhs)?;
                 let r = self.expr(rhs)?;
@@ -867,13 +958,7 @@ impl Lowerer {
                     BinOp::Sub => Term::Add(vec![l, r.negated()]),
                     BinOp::Mul => Term::Mul(vec![l, r]),
                     BinOp::Div => {
-                        if let Some(v) = constant_value(rhs) {
-                            if v.is_zero() {
-                                return Err(self
-                                    .err(ErrorKind::Arithmetic, rhs.span, "division by zero")
-                                    .with_label("this is zero"));
-                            }
-                        }
+                        self.nonzero_divisor(rhs)?;
                         Term::Mul(vec![l, Term::Pow(Box::new(r), Box::new(Term::int(-1)))])
                     }
                     BinOp::Pow => {
@@ -1012,6 +1097,16 @@ impl Lowerer {
         })
     }
 
+    /// A division by an expression that is the number zero is an error.
+    fn nonzero_divisor(&self, rhs: &Expr) -> Result<()> {
+        match constant_value(rhs) {
+            Some(v) if v.is_zero() => Err(self
+                .err(ErrorKind::Arithmetic, rhs.span, "division by zero")
+                .with_label("this is zero")),
+            _ => Ok(()),
+        }
+    }
+
     fn rule_syntax(&self, span: Span) -> Error {
         self.err(
             ErrorKind::Syntax,
@@ -1049,7 +1144,16 @@ impl Lowerer {
             Some((Declared::Parameter, _)) => Ok(Term::Sym(n.text.clone())),
             Some((Declared::Function, _)) => Err(self.function_without_argument(n)),
             Some((Declared::Let, _)) => match self.lets.get(&n.text) {
-                Some(e) => self.expr(e),
+                // A limit met inside the definition is reported where the
+                // outermost named expression is used.
+                Some(e) => self.descend(n.span, || self.expr(e)).map_err(|mut err| {
+                    if err.kind == ErrorKind::Limit {
+                        err = err
+                            .with_span(&self.source, n.span)
+                            .with_label(format!("`{}` is substituted here", n.text));
+                    }
+                    err
+                }),
                 None => Err(self.err(
                     ErrorKind::Name,
                     n.span,
@@ -1238,11 +1342,29 @@ fn is_zero(e: &Expr) -> bool {
     constant_value(e).is_some_and(|v| v.is_zero())
 }
 
-/// The exact value of an expression made of numbers only.
+/// The exact value of an expression made of numbers only (`None` also when
+/// it would take more than [`MAX_BITS`] bits).
 fn constant_value(e: &Expr) -> Option<BigRational> {
     match &e.kind {
         ExprKind::Num(c) => Some(c.clone()),
         ExprKind::Neg(a) => constant_value(a).map(|v| -v),
+        ExprKind::Chain { first, rest } => {
+            let mut acc = constant_value(first)?;
+            for (op, e) in rest {
+                let r = constant_value(e)?;
+                acc = match op {
+                    BinOp::Add => acc + r,
+                    BinOp::Sub => acc - r,
+                    BinOp::Mul => acc * r,
+                    BinOp::Div => (!r.is_zero()).then(|| acc / r)?,
+                    BinOp::Pow => return None,
+                };
+                if crate::budget::bits(&acc) > MAX_BITS {
+                    return None;
+                }
+            }
+            Some(acc)
+        }
         ExprKind::Binary { op, lhs, rhs } => {
             let l = constant_value(lhs)?;
             let r = constant_value(rhs)?;

@@ -41,6 +41,7 @@ pub fn normalize(ctx: &Context, t: &Term) -> Result<Term> {
 /// The monomials of a term's normal form, each with its exact
 /// coefficient, atoms and factors (for callers that split a sum by kind).
 pub fn monomials(ctx: &Context, t: &Term) -> Result<Vec<Mono>> {
+    let _work = crate::budget::Work::enter();
     let cx = Norm::new(ctx);
     Ok(merge(canonical(&cx, expand(&cx, t)?)))
 }
@@ -147,6 +148,7 @@ impl std::ops::Deref for Norm<'_> {
 
 /// Normalisation inside the pipeline, sharing the caveats of `cx`.
 pub(crate) fn normalize_in(ctx: &Norm, t: &Term) -> Result<Term> {
+    let _work = crate::budget::Work::enter();
     Ok(collect(merge(canonical(ctx, expand(ctx, t)?))))
 }
 
@@ -268,6 +270,7 @@ pub(super) fn merge(monos: Vec<Mono>) -> Vec<Mono> {
 
 /// Expands a term into a list of monomials (not yet collected).
 fn expand(ctx: &Norm, t: &Term) -> Result<Vec<Mono>> {
+    crate::budget::spend(1)?;
     Ok(match t {
         Term::Num(c) => {
             if c.is_zero() {
@@ -288,12 +291,14 @@ fn expand(ctx: &Norm, t: &Term) -> Result<Vec<Mono>> {
             let mut acc = vec![Mono::scalar(BigRational::one())];
             for t in ts {
                 let factor = expand(ctx, t)?;
+                crate::budget::spend(acc.len().saturating_mul(factor.len()))?;
                 let mut next = Vec::with_capacity(acc.len() * factor.len());
                 for a in &acc {
                     for b in &factor {
                         next.push(a.mul(b));
                     }
                 }
+                crate::budget::coefficients(&next)?;
                 acc = next;
                 if acc.is_empty() {
                     break;
@@ -319,7 +324,11 @@ fn expand(ctx: &Norm, t: &Term) -> Result<Vec<Mono>> {
             ops.sort();
             vec![Mono::factor(Term::Corr(ops))]
         }
-        Term::Der(i, p, body) => distribution::differentiate(ctx, i, p, expand(ctx, body)?)?,
+        Term::Der(i, p, body) => {
+            let d = distribution::differentiate(ctx, i, p, expand(ctx, body)?)?;
+            crate::budget::spend(d.len())?;
+            d
+        }
         Term::Dist(p, q) => {
             if p.name == q.name && p.par == q.par {
                 vec![]
@@ -449,7 +458,7 @@ fn power(ctx: &Norm, b: &Term, e: &Term) -> Result<Vec<Mono>> {
         // Powers of correlators and δ-functions are not distributions.
         if q.is_integer() && q.is_positive() {
             if let Some(n) = q.to_u32().filter(|n| *n <= MAX_EXPANDED_POWER) {
-                return Ok(repeat_product(&base, n));
+                return repeat_product(&base, n);
             }
         }
         return Err(unsupported_power());
@@ -469,7 +478,7 @@ fn power(ctx: &Norm, b: &Term, e: &Term) -> Result<Vec<Mono>> {
     }
     if q.is_integer() && q.is_positive() {
         if let Some(n) = q.to_u32().filter(|n| *n <= MAX_EXPANDED_POWER) {
-            return Ok(repeat_product(&base, n));
+            return repeat_product(&base, n);
         }
     }
     // The monomial every term shares comes out first, with negative powers
@@ -676,7 +685,12 @@ fn unsupported_power() -> Error {
     )
 }
 
-fn repeat_product(base: &[Mono], n: u32) -> Vec<Mono> {
+fn repeat_product(base: &[Mono], n: u32) -> Result<Vec<Mono>> {
+    // The whole expansion is counted before it starts: len + len² + … + lenⁿ.
+    let rounds = (1..=n).fold(0usize, |total, k| {
+        total.saturating_add(base.len().saturating_pow(k))
+    });
+    crate::budget::spend(rounds)?;
     let mut acc = vec![Mono::scalar(BigRational::one())];
     for _ in 0..n {
         let mut next = Vec::new();
@@ -685,9 +699,10 @@ fn repeat_product(base: &[Mono], n: u32) -> Vec<Mono> {
                 next.push(a.mul(b));
             }
         }
+        crate::budget::coefficients(&next)?;
         acc = next;
     }
-    acc
+    Ok(acc)
 }
 
 /// Collects like terms and builds the normal-form term.

@@ -95,7 +95,10 @@ impl Mono {
             };
         }
         match q.is_integer().then(|| q.to_i32()).flatten() {
-            Some(n) if n.unsigned_abs() <= 4096 => {
+            Some(n)
+                if n.unsigned_abs() <= 4096
+                    && crate::budget::power_fits(&self.coef, u64::from(n.unsigned_abs())) =>
+            {
                 let p = num_traits::pow(self.coef.clone(), n.unsigned_abs() as usize);
                 out.coef = if n < 0 { p.recip() } else { p };
             }

@@ -95,7 +95,7 @@ impl RuleBook {
                 let (from, to, conditions) = pattern::lower_rule(source, rule)?;
                 let mut bound = pattern::Bound::default();
                 pattern::collect_bound(&from, &mut bound);
-                let line = source.line_col(rule.span.start).0;
+                let line = source.line(rule.span.start);
                 self.rules.push(Arc::new(Rule {
                     name: rule.name.text.clone(),
                     ruleset: set.name.text.clone(),

@@ -206,25 +206,15 @@ impl Lowering<'_> {
                 Pat::Num(BigRational::from_integer((-1).into())),
                 self.pat(a, template)?,
             ]),
-            ExprKind::Binary { op, lhs, rhs } => {
-                let l = self.pat(lhs, template)?;
-                let r = self.pat(rhs, template)?;
-                match op {
-                    BinOp::Add => Pat::Add(flatten_add(l, r)),
-                    BinOp::Sub => Pat::Add(flatten_add(
-                        l,
-                        Pat::Mul(vec![Pat::Num(BigRational::from_integer((-1).into())), r]),
-                    )),
-                    BinOp::Mul => Pat::Mul(flatten_mul(l, r)),
-                    BinOp::Div => Pat::Mul(flatten_mul(
-                        l,
-                        Pat::Pow(
-                            Box::new(r),
-                            Box::new(Pat::Num(BigRational::from_integer((-1).into()))),
-                        ),
-                    )),
-                    BinOp::Pow => Pat::Pow(Box::new(l), Box::new(r)),
+            ExprKind::Chain { first, rest } => {
+                let mut acc = self.pat(first, template)?;
+                for (op, rhs) in rest {
+                    acc = binary(*op, acc, self.pat(rhs, template)?);
                 }
+                acc
+            }
+            ExprKind::Binary { op, lhs, rhs } => {
+                binary(*op, self.pat(lhs, template)?, self.pat(rhs, template)?)
             }
             ExprKind::Corr(items) => {
                 let mut ops = Vec::new();
@@ -455,6 +445,9 @@ fn var_span(e: &Expr, v: &str) -> Option<Span> {
         ExprKind::Var(n) => name(n),
         ExprKind::Attr { var, .. } => name(var),
         ExprKind::Neg(a) => var_span(a, v),
+        ExprKind::Chain { first, rest } => {
+            var_span(first, v).or_else(|| rest.iter().find_map(|(_, e)| var_span(e, v)))
+        }
         ExprKind::Binary { lhs, rhs, .. } => var_span(lhs, v).or_else(|| var_span(rhs, v)),
         ExprKind::Corr(items) => items.iter().find_map(|item| match item {
             Insertion::Op(op) => name(&op.name)
@@ -493,6 +486,19 @@ fn var_span(e: &Expr, v: &str) -> Option<Span> {
         ExprKind::Call { args, .. } => args.iter().find_map(|a| var_span(a, v)),
         ExprKind::Integral { var: p, body, .. } => point(p).or_else(|| var_span(body, v)),
         ExprKind::Num(_) | ExprKind::Name(_) => None,
+    }
+}
+
+/// `l op r` as a pattern, a left sum or product flattened: `a + b + c` is
+/// one n-ary sum.
+fn binary(op: BinOp, l: Pat, r: Pat) -> Pat {
+    let minus_one = || Pat::Num(BigRational::from_integer((-1).into()));
+    match op {
+        BinOp::Add => Pat::Add(flatten_add(l, r)),
+        BinOp::Sub => Pat::Add(flatten_add(l, Pat::Mul(vec![minus_one(), r]))),
+        BinOp::Mul => Pat::Mul(flatten_mul(l, r)),
+        BinOp::Div => Pat::Mul(flatten_mul(l, Pat::Pow(Box::new(r), Box::new(minus_one())))),
+        BinOp::Pow => Pat::Pow(Box::new(l), Box::new(r)),
     }
 }
 

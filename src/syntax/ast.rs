@@ -85,6 +85,15 @@ pub enum ExprKind {
         key: Name,
     },
     Neg(Box<Expr>),
+    /// Operands joined left to right by operators of one precedence: `a +
+    /// b - c` (`Add`, `Sub`) or `2 a / b` (`Mul`, `Div`; juxtaposition is
+    /// `Mul`). N-ary, so that a long sum is not a deep tree.
+    Chain {
+        first: Box<Expr>,
+        rest: Vec<(BinOp, Expr)>,
+    },
+    /// A power `a ^ b` (the only binary operator left nested: it is
+    /// right-associative, and a tower of powers is deep as written).
     Binary {
         op: BinOp,
         lhs: Box<Expr>,

@@ -8,14 +8,14 @@
 pub mod ast;
 
 use std::str::FromStr;
-use std::sync::{Arc, OnceLock};
+use std::sync::Arc;
 
 use num_bigint::BigInt;
 use num_rational::BigRational;
 use pest::iterators::Pair;
-use pest::pratt_parser::{Assoc, Op, PrattParser};
 use pest::Parser as _;
 
+use crate::budget::{MAX_DEPTH, MAX_DIGITS};
 use crate::diagnostic::{Error, ErrorKind, Result, Source};
 use ast::*;
 
@@ -39,8 +39,22 @@ pub fn parse_file(source: &Arc<Source>) -> Result<File> {
     Ok(File { stmts })
 }
 
-/// Parses a `.rules` file.
+/// Parses a `.rules` file. A text that does not start with `ruleset`
+/// (after blank lines and comments) is not taken for a rules file, and its
+/// text is not shown: it may be any file named by mistake.
 pub fn parse_rule_file(source: &Arc<Source>) -> Result<RuleFile> {
+    if !starts_with_ruleset(&source.text) {
+        return Err(Error::new(
+            ErrorKind::Rule,
+            format!(
+                "`{}` is not a rules file: it does not start with `ruleset`",
+                source.name
+            ),
+        )
+        .with_note(
+            "a rules file holds `ruleset NAME` followed by `rule NAME … from … to …` blocks",
+        ));
+    }
     let mut pairs = parse_rule(source, Rule::rule_file)?;
     let file = pairs
         .next()
@@ -48,7 +62,7 @@ pub fn parse_rule_file(source: &Arc<Source>) -> Result<RuleFile> {
     let mut sets = Vec::new();
     for pair in file.into_inner() {
         if pair.as_rule() == Rule::ruleset {
-            sets.push(parse_ruleset(pair));
+            sets.push(parse_ruleset(source, pair)?);
         }
     }
     Ok(RuleFile { sets })
@@ -64,7 +78,7 @@ pub fn parse_expr(source: &Arc<Source>) -> Result<Expr> {
         .into_inner()
         .next()
         .expect("expr_only holds an expression");
-    Ok(build_expr(expr))
+    build_expr(source, expr, 0)
 }
 
 // ───────────────────────────── errors ─────────────────────────────
@@ -73,8 +87,20 @@ fn parse_rule<'i>(
     source: &'i Arc<Source>,
     start: Rule,
 ) -> Result<pest::iterators::Pairs<'i, Rule>> {
-    pest::set_error_detail(true);
-    WardParser::parse(start, &source.text).map_err(|e| syntax_error(source, e))
+    check_nesting(source)?;
+    // Tracking every attempt for the error message costs most of the
+    // parse: a text that parses is parsed without it, and one that does
+    // not is parsed again with it.
+    pest::set_error_detail(false);
+    match WardParser::parse(start, &source.text) {
+        Ok(pairs) => Ok(pairs),
+        Err(plain) => {
+            pest::set_error_detail(true);
+            let detailed = WardParser::parse(start, &source.text).err();
+            pest::set_error_detail(false);
+            Err(syntax_error(source, detailed.unwrap_or(plain)))
+        }
+    }
 }
 
 fn syntax_error(source: &Arc<Source>, e: pest::error::Error<Rule>) -> Error {
@@ -86,7 +112,18 @@ fn syntax_error(source: &Arc<Source>, e: pest::error::Error<Rule>) -> Error {
     .min(text.len());
     let positives = match &e.variant {
         pest::error::ErrorVariant::ParsingError { positives, .. } => positives.clone(),
-        pest::error::ErrorVariant::CustomError { .. } => Vec::new(),
+        // pest stops on its own budgets: the stack left to it, or a call
+        // limit set by the caller.
+        pest::error::ErrorVariant::CustomError { message } => {
+            return Error::at(
+                ErrorKind::Limit,
+                source,
+                Span::new(classic, classic),
+                format!("the parser stopped here: {message}"),
+            )
+            .with_label("stopped here")
+            .with_note("parse on a thread with a larger stack, as `wardsmith::run` does (`budget::on_checker_stack`)");
+        }
     };
     if positives.contains(&Rule::string) && text[classic..].starts_with('"') {
         return unterminated_string(source, classic);
@@ -175,6 +212,77 @@ const EXPRESSION_WORDS: &[&str] = &[
 /// statement at once.
 fn at_statement_start(rules: &[Rule]) -> bool {
     rules.iter().filter(|r| STATEMENT_RULES.contains(r)).count() >= 2
+}
+
+/// True when the first word, after white space and comments, is
+/// `ruleset`, or there is none.
+fn starts_with_ruleset(text: &str) -> bool {
+    let mut rest = text;
+    loop {
+        rest = rest.trim_start();
+        match rest.strip_prefix('#') {
+            Some(comment) => rest = comment.split_once('\n').map_or("", |(_, after)| after),
+            None => break,
+        }
+    }
+    rest.is_empty()
+        || rest
+            .strip_prefix("ruleset")
+            .is_some_and(|after| !after.starts_with(is_ident_char))
+}
+
+/// Refuses text whose brackets nest more than [`MAX_DEPTH`] deep before
+/// the grammar sees it, so that the parser's recursion stays bounded: `(`
+/// and `{` open, `)` and `}` close; comments and quoted paths are skipped.
+fn check_nesting(source: &Arc<Source>) -> Result<()> {
+    let mut depth = 0usize;
+    let mut chars = source.text.char_indices();
+    while let Some((i, c)) = chars.next() {
+        match c {
+            '#' => {
+                for (_, c) in chars.by_ref() {
+                    if c == '\n' {
+                        break;
+                    }
+                }
+            }
+            '"' => {
+                for (_, c) in chars.by_ref() {
+                    if c == '"' || c == '\n' {
+                        break;
+                    }
+                }
+            }
+            '(' | '{' => {
+                depth += 1;
+                if depth > MAX_DEPTH {
+                    return Err(too_deep(source, i));
+                }
+            }
+            ')' | '}' => depth = depth.saturating_sub(1),
+            _ => {}
+        }
+    }
+    Ok(())
+}
+
+/// The error for a construct that starts at `offset` one level past
+/// [`MAX_DEPTH`].
+fn too_deep(source: &Arc<Source>, offset: usize) -> Error {
+    let len = source.text[offset..]
+        .chars()
+        .next()
+        .map_or(0, char::len_utf8);
+    Error::at(
+        ErrorKind::Limit,
+        source,
+        Span::new(offset, offset + len),
+        format!("nested too deeply (limit {MAX_DEPTH})"),
+    )
+    .with_label("this level is one too many")
+    .with_note(format!(
+        "brackets, calls, derivatives, signs and powers nest at most {MAX_DEPTH} deep"
+    ))
 }
 
 /// A quoted path whose closing quote is missing on its line.
@@ -317,7 +425,7 @@ fn hints(rules: &[Rule]) -> Vec<&'static str> {
             continue;
         }
         let hint = match r {
-            Rule::deriv => "a derivative takes a bracketed body: `∂[mu](x) <…>`, `∂[mu](x) { … }`, `∂[mu](x) ( … )` or another `∂`",
+            Rule::deriv | Rule::deriv_head => "a derivative takes a bracketed body: `∂[mu](x) <…>`, `∂[mu](x) { … }`, `∂[mu](x) ( … )` or another `∂`",
             Rule::halfspace_decl => "a half-space is declared as `halfspace y >= 0`, naming the normal coordinate",
             Rule::key | Rule::attribute | Rule::operator_decl => {
                 "an operator is declared with its attributes, e.g. `scalar O dim Delta`"
@@ -417,7 +525,7 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
     let kind = pair.as_rule();
     let mut inner = pair.into_inner().peekable();
     Ok(match kind {
-        Rule::dimension_decl => Stmt::Dimension(parse_expr_pair(source, next(&mut inner))?),
+        Rule::dimension_decl => Stmt::Dimension(build_expr(source, next(&mut inner), 0)?),
         Rule::halfspace_decl => Stmt::Halfspace {
             coord: parse_name(next(&mut inner)),
         },
@@ -435,7 +543,7 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
             for attr in inner {
                 let mut parts = attr.into_inner();
                 let key = parse_name(next(&mut parts));
-                let value = parse_expr_pair(source, next(&mut parts))?;
+                let value = build_expr(source, next(&mut parts), 0)?;
                 attrs.push((key, value));
             }
             Stmt::Operator {
@@ -467,9 +575,9 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
             }
         }
         Rule::simplify_stmt => {
-            let expr = parse_expr_pair(source, next(&mut inner))?;
+            let expr = build_expr(source, next(&mut inner), 0)?;
             let expect = match inner.next() {
-                Some(p) => Some(parse_expr_pair(source, p)?),
+                Some(p) => Some(build_expr(source, p, 0)?),
                 None => None,
             };
             Stmt::Simplify { expr, expect, span }
@@ -477,7 +585,7 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
         Rule::function_decl => Stmt::Functions(inner.map(parse_name).collect()),
         Rule::let_stmt => {
             let name = parse_name(next(&mut inner));
-            let expr = parse_expr_pair(source, next(&mut inner))?;
+            let expr = build_expr(source, next(&mut inner), 0)?;
             Stmt::Let { name, expr }
         }
         Rule::classify_stmt => Stmt::Classify {
@@ -491,7 +599,7 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                 let region_span = span_of(&ball);
                 let mut parts = ball.into_inner();
                 let center = parse_point(next(&mut parts));
-                let radius = build_expr(next(&mut parts));
+                let radius = build_expr(source, next(&mut parts), 0)?;
                 return Ok(Stmt::PlaceBall {
                     region: RegionRef {
                         kind: RegionKind::Ball(center, Box::new(radius)),
@@ -505,7 +613,10 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
             if what.as_rule() == Rule::place_at {
                 return Ok(Stmt::Position {
                     point,
-                    coords: what.into_inner().map(build_expr).collect(),
+                    coords: what
+                        .into_inner()
+                        .map(|p| build_expr(source, p, 0))
+                        .collect::<Result<_>>()?,
                     span,
                 });
             }
@@ -514,7 +625,7 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                 "outside" => PlaceKind::Outside,
                 _ => PlaceKind::On,
             };
-            let region = parse_region(next(&mut inner));
+            let region = parse_region(source, next(&mut inner), 0)?;
             Stmt::Place {
                 point,
                 kind,
@@ -561,7 +672,7 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
             for part in inner {
                 match part.as_rule() {
                     Rule::ident => names.push(parse_name(part)),
-                    Rule::expr => value = Some(build_expr(part)),
+                    Rule::expr => value = Some(build_expr(source, part, 0)?),
                     _ => {}
                 }
             }
@@ -575,22 +686,25 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                     let name = parse_name(next(&mut kv));
                     let value = next(&mut kv);
                     let exprs = if value.as_rule() == Rule::value_tuple {
-                        value.into_inner().map(build_expr).collect()
+                        value
+                            .into_inner()
+                            .map(|p| build_expr(source, p, 0))
+                            .collect::<Result<_>>()?
                     } else {
-                        vec![build_expr(value)]
+                        vec![build_expr(source, value, 0)?]
                     };
-                    (name, exprs)
+                    Ok((name, exprs))
                 })
-                .collect(),
+                .collect::<Result<_>>()?,
         ),
         Rule::evaluate_stmt => Stmt::Evaluate {
-            expr: parse_expr_pair(source, next(&mut inner))?,
+            expr: build_expr(source, next(&mut inner), 0)?,
             span,
         },
         Rule::solve_stmt => {
             let unknown = parse_name(next(&mut inner));
-            let lhs = parse_expr_pair(source, next(&mut inner))?;
-            let rhs = parse_expr_pair(source, next(&mut inner))?;
+            let lhs = build_expr(source, next(&mut inner), 0)?;
+            let rhs = build_expr(source, next(&mut inner), 0)?;
             Stmt::Solve {
                 unknown,
                 lhs,
@@ -600,11 +714,11 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
         }
         Rule::scan_stmt => {
             let param = parse_name(next(&mut inner));
-            let from = parse_expr_pair(source, next(&mut inner))?;
-            let to = parse_expr_pair(source, next(&mut inner))?;
-            let steps = parse_primary(next(&mut inner));
-            let lhs = parse_expr_pair(source, next(&mut inner))?;
-            let rhs = parse_expr_pair(source, next(&mut inner))?;
+            let from = build_expr(source, next(&mut inner), 0)?;
+            let to = build_expr(source, next(&mut inner), 0)?;
+            let steps = parse_primary(source, next(&mut inner), 0)?;
+            let lhs = build_expr(source, next(&mut inner), 0)?;
+            let rhs = build_expr(source, next(&mut inner), 0)?;
             let output = inner.next().map(|string| {
                 let span = span_of(&string);
                 let body = string.into_inner().next().map_or("", |p| p.as_str());
@@ -623,11 +737,11 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
         }
         Rule::derivation_stmt => {
             let name = parse_name(next(&mut inner));
-            let start = parse_expr_pair(source, next(&mut inner))?;
+            let start = build_expr(source, next(&mut inner), 0)?;
             let mut steps = Vec::new();
             for step in inner {
                 let mut parts = step.into_inner();
-                let expr = parse_expr_pair(source, next(&mut parts))?;
+                let expr = build_expr(source, next(&mut parts), 0)?;
                 steps.push((expr, parts.map(parse_name).collect()));
             }
             Stmt::Derivation {
@@ -638,14 +752,14 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
             }
         }
         Rule::sample_stmt => {
-            let count = parse_primary(next(&mut inner));
-            let seed = parse_primary(next(&mut inner));
+            let count = parse_primary(source, next(&mut inner), 0)?;
+            let seed = parse_primary(source, next(&mut inner), 0)?;
             Stmt::Sample { count, seed, span }
         }
         Rule::flux_stmt => {
-            let lhs = parse_expr_pair(source, next(&mut inner))?;
-            let rhs = parse_expr_pair(source, next(&mut inner))?;
-            let radius = parse_expr_pair(source, next(&mut inner))?;
+            let lhs = build_expr(source, next(&mut inner), 0)?;
+            let rhs = build_expr(source, next(&mut inner), 0)?;
+            let radius = build_expr(source, next(&mut inner), 0)?;
             Stmt::Flux {
                 lhs,
                 rhs,
@@ -654,8 +768,8 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
             }
         }
         Rule::compare_stmt => {
-            let lhs = parse_expr_pair(source, next(&mut inner))?;
-            let rhs = parse_expr_pair(source, next(&mut inner))?;
+            let lhs = build_expr(source, next(&mut inner), 0)?;
+            let rhs = build_expr(source, next(&mut inner), 0)?;
             Stmt::Compare { lhs, rhs, span }
         }
         Rule::killing_decl => {
@@ -668,22 +782,24 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
             }
         }
         Rule::claim_stmt => {
-            let lhs = parse_expr_pair(source, next(&mut inner))?;
-            let rhs = parse_expr_pair(source, next(&mut inner))?;
+            let lhs = build_expr(source, next(&mut inner), 0)?;
+            let rhs = build_expr(source, next(&mut inner), 0)?;
             Stmt::Claim { lhs, rhs, span }
         }
         other => unreachable_rule(other),
     })
 }
 
-fn parse_ruleset(pair: Pair<Rule>) -> RuleSet {
+fn parse_ruleset(source: &Arc<Source>, pair: Pair<Rule>) -> Result<RuleSet> {
     let mut inner = pair.into_inner();
     let name = parse_name(next(&mut inner));
-    let rules = inner.map(parse_rule_def).collect();
-    RuleSet { name, rules }
+    let rules = inner
+        .map(|p| parse_rule_def(source, p))
+        .collect::<Result<_>>()?;
+    Ok(RuleSet { name, rules })
 }
 
-fn parse_rule_def(pair: Pair<Rule>) -> ast::Rule {
+fn parse_rule_def(source: &Arc<Source>, pair: Pair<Rule>) -> Result<ast::Rule> {
     let span = span_of(&pair);
     let mut inner = pair.into_inner().peekable();
     let name = parse_name(next(&mut inner));
@@ -693,17 +809,15 @@ fn parse_rule_def(pair: Pair<Rule>) -> ast::Rule {
             conditions.push(parse_condition(c));
         }
     }
-    // Rule bodies are parsed with a throwaway source: errors inside them are
-    // reported by lowering, which has the real one.
-    let from = build_expr(next(&mut inner));
-    let to = build_expr(next(&mut inner));
-    ast::Rule {
+    let from = build_expr(source, next(&mut inner), 0)?;
+    let to = build_expr(source, next(&mut inner), 0)?;
+    Ok(ast::Rule {
         name,
         conditions,
         from,
         to,
         span,
-    }
+    })
 }
 
 fn parse_condition(pair: Pair<Rule>) -> Condition {
@@ -739,59 +853,116 @@ fn parse_condition(pair: Pair<Rule>) -> Condition {
 
 // ─────────────────────────── expressions ───────────────────────────
 
-fn pratt() -> &'static PrattParser<Rule> {
-    static PRATT: OnceLock<PrattParser<Rule>> = OnceLock::new();
-    PRATT.get_or_init(|| {
-        PrattParser::new()
-            .op(Op::infix(Rule::add, Assoc::Left) | Op::infix(Rule::sub, Assoc::Left))
-            .op(Op::prefix(Rule::neg))
-            .op(Op::infix(Rule::mul, Assoc::Left)
-                | Op::infix(Rule::div, Assoc::Left)
-                | Op::infix(Rule::implicit, Assoc::Left))
-            .op(Op::infix(Rule::pow, Assoc::Right))
-    })
-}
-
-fn parse_expr_pair(_source: &Arc<Source>, pair: Pair<Rule>) -> Result<Expr> {
-    Ok(build_expr(pair))
-}
-
-/// Builds an expression from an `expr` pair (or any primary).
-fn build_expr(pair: Pair<Rule>) -> Expr {
-    if pair.as_rule() != Rule::expr {
-        return parse_primary(pair);
+/// Binding power and operator of an infix token. The numbers are those of
+/// a Pratt parser: sums 10, negation 20 (prefix), products and
+/// juxtaposition 30, powers 40 (right-associative); `-a b` is `-(a b)`.
+fn infix(token: Rule) -> Option<(u8, BinOp)> {
+    match token {
+        Rule::add => Some((10, BinOp::Add)),
+        Rule::sub => Some((10, BinOp::Sub)),
+        Rule::mul | Rule::implicit => Some((30, BinOp::Mul)),
+        Rule::div => Some((30, BinOp::Div)),
+        Rule::pow => Some((40, BinOp::Pow)),
+        _ => None,
     }
-    pratt()
-        .map_primary(parse_primary)
-        .map_prefix(|op, rhs| Expr {
-            span: span_of(&op).to(rhs.span),
-            kind: ExprKind::Neg(Box::new(rhs)),
-        })
-        .map_infix(|lhs, op, rhs| {
-            let op = match op.as_rule() {
-                Rule::add => BinOp::Add,
-                Rule::sub => BinOp::Sub,
-                Rule::div => BinOp::Div,
-                Rule::pow => BinOp::Pow,
-                _ => BinOp::Mul,
-            };
-            Expr {
-                span: lhs.span.to(rhs.span),
+}
+
+/// Binding power of the prefix `-`.
+const NEG: u8 = 20;
+
+/// One level deeper, or an error at `span` past [`MAX_DEPTH`].
+fn deeper(source: &Arc<Source>, depth: usize, span: Span) -> Result<usize> {
+    if depth >= MAX_DEPTH {
+        return Err(too_deep(source, span.start));
+    }
+    Ok(depth + 1)
+}
+
+/// Builds an expression from an `expr` pair (or any primary). Sums and
+/// products are n-ary chains built in a loop, so a long sum is not a deep
+/// tree; what does nest (brackets, calls, derivatives, negations, powers)
+/// counts towards [`MAX_DEPTH`].
+fn build_expr(source: &Arc<Source>, pair: Pair<Rule>, depth: usize) -> Result<Expr> {
+    if pair.as_rule() != Rule::expr {
+        return parse_primary(source, pair, depth);
+    }
+    climb(source, &mut pair.into_inner().peekable(), 0, depth)
+}
+
+/// Precedence climbing over the flat list of operands and operators of an
+/// `expr`: the operand at the front and every operator that binds more
+/// tightly than `min`.
+fn climb<'i>(
+    source: &Arc<Source>,
+    tokens: &mut std::iter::Peekable<pest::iterators::Pairs<'i, Rule>>,
+    min: u8,
+    depth: usize,
+) -> Result<Expr> {
+    let first = tokens
+        .next()
+        .expect("the grammar puts an operand after every operator");
+    let mut lhs = if first.as_rule() == Rule::neg {
+        let sign = span_of(&first);
+        let operand = climb(source, tokens, NEG - 1, deeper(source, depth, sign)?)?;
+        Expr {
+            span: sign.to(operand.span),
+            kind: ExprKind::Neg(Box::new(operand)),
+        }
+    } else {
+        parse_primary(source, first, depth)?
+    };
+    // The binding power of the chain `lhs` is, when this loop built it.
+    let mut open: Option<u8> = None;
+    while let Some((power, op)) = tokens.peek().and_then(|t| infix(t.as_rule())) {
+        if power <= min {
+            break;
+        }
+        let token = tokens.next().expect("peeked");
+        if op == BinOp::Pow {
+            let exponent = climb(
+                source,
+                tokens,
+                power - 1,
+                deeper(source, depth, span_of(&token))?,
+            )?;
+            lhs = Expr {
+                span: lhs.span.to(exponent.span),
                 kind: ExprKind::Binary {
                     op,
                     lhs: Box::new(lhs),
-                    rhs: Box::new(rhs),
+                    rhs: Box::new(exponent),
                 },
+            };
+            open = None;
+            continue;
+        }
+        let rhs = climb(source, tokens, power, depth)?;
+        let span = lhs.span.to(rhs.span);
+        match (&mut lhs.kind, open) {
+            (ExprKind::Chain { rest, .. }, Some(p)) if p == power => {
+                rest.push((op, rhs));
+                lhs.span = span;
             }
-        })
-        .parse(pair.into_inner())
+            _ => {
+                lhs = Expr {
+                    span,
+                    kind: ExprKind::Chain {
+                        first: Box::new(lhs),
+                        rest: vec![(op, rhs)],
+                    },
+                };
+                open = Some(power);
+            }
+        }
+    }
+    Ok(lhs)
 }
 
-fn parse_primary(pair: Pair<Rule>) -> Expr {
+fn parse_primary(source: &Arc<Source>, pair: Pair<Rule>, depth: usize) -> Result<Expr> {
     let span = span_of(&pair);
     let which = pair.as_rule();
     let kind = match which {
-        Rule::number => ExprKind::Num(parse_number(pair.as_str())),
+        Rule::number => ExprKind::Num(parse_number(source, span)?),
         Rule::name => ExprKind::Name(parse_name(pair.into_inner().next().expect("name"))),
         Rule::var => ExprKind::Var(parse_name(pair)),
         Rule::attr => {
@@ -800,8 +971,11 @@ fn parse_primary(pair: Pair<Rule>) -> Expr {
             let key = parse_name(next(&mut inner));
             ExprKind::Attr { var, key }
         }
-        Rule::group | Rule::brace => return build_expr(pair.into_inner().next().expect("body")),
-        Rule::expr => return build_expr(pair),
+        Rule::group | Rule::brace => {
+            let depth = deeper(source, depth, span)?;
+            return build_expr(source, pair.into_inner().next().expect("body"), depth);
+        }
+        Rule::expr => return build_expr(source, pair, depth),
         Rule::corr => ExprKind::Corr(
             pair.into_inner()
                 .filter(|p| p.as_rule() != Rule::corr_close)
@@ -837,6 +1011,7 @@ fn parse_primary(pair: Pair<Rule>) -> Expr {
             }
         }
         Rule::call => {
+            let depth = deeper(source, depth, span)?;
             let mut inner = pair.into_inner().peekable();
             let name = parse_name(next(&mut inner));
             let mut primes = 0;
@@ -844,17 +1019,25 @@ fn parse_primary(pair: Pair<Rule>) -> Expr {
                 inner.next();
                 primes += 1;
             }
-            let args = inner.flat_map(|p| p.into_inner()).map(build_expr).collect();
+            let args = inner
+                .flat_map(|p| p.into_inner())
+                .map(|p| build_expr(source, p, depth))
+                .collect::<Result<_>>()?;
             ExprKind::Call { name, primes, args }
         }
         Rule::integral | Rule::surface => {
+            let depth = deeper(source, depth, span)?;
             let surface = which == Rule::surface;
             let mut inner = pair
                 .into_inner()
                 .filter(|p| p.as_rule() != Rule::surface_on);
             let var = parse_point(next(&mut inner));
-            let region = parse_region(next(&mut inner));
-            let body = build_expr(next(&mut inner).into_inner().next().expect("integral body"));
+            let region = parse_region(source, next(&mut inner), depth)?;
+            let body = build_expr(
+                source,
+                next(&mut inner).into_inner().next().expect("integral body"),
+                depth,
+            )?;
             ExprKind::Integral {
                 var,
                 region,
@@ -863,15 +1046,35 @@ fn parse_primary(pair: Pair<Rule>) -> Expr {
             }
         }
         Rule::deriv => {
-            let mut inner = pair.into_inner();
-            let index = parse_name(next(&mut inner));
-            let point = parse_point(next(&mut inner));
-            let body = parse_primary(next(&mut inner));
-            ExprKind::Deriv {
-                index,
-                point,
-                body: Box::new(body),
+            // ∂[mu](x) ∂[nu](y) <…>: the heads in order, each one level
+            // deeper, around the body.
+            let mut heads = Vec::new();
+            let mut body = None;
+            let mut depth = depth;
+            for part in pair.into_inner() {
+                if part.as_rule() == Rule::deriv_head {
+                    let head = span_of(&part);
+                    depth = deeper(source, depth, head)?;
+                    let mut inner = part.into_inner();
+                    let index = parse_name(next(&mut inner));
+                    let point = parse_point(next(&mut inner));
+                    heads.push((head.start, index, point));
+                } else {
+                    body = Some(parse_primary(source, part, depth)?);
+                }
             }
+            let mut expr = body.expect("a derivative has a body");
+            for (start, index, point) in heads.into_iter().rev() {
+                expr = Expr {
+                    span: Span::new(start, span.end),
+                    kind: ExprKind::Deriv {
+                        index,
+                        point,
+                        body: Box::new(expr),
+                    },
+                };
+            }
+            return Ok(expr);
         }
         Rule::kron => {
             let mut inner = pair.into_inner();
@@ -889,6 +1092,7 @@ fn parse_primary(pair: Pair<Rule>) -> Expr {
             ExprKind::DeltaNormal { coord, point }
         }
         Rule::sum_over => {
+            let depth = deeper(source, depth, span)?;
             let mut inner = pair.into_inner();
             let op = parse_name(next(&mut inner));
             let point = parse_name(next(&mut inner));
@@ -904,15 +1108,15 @@ fn parse_primary(pair: Pair<Rule>) -> Expr {
                 point,
                 splice,
                 filter,
-                body: Box::new(build_expr(rest)),
+                body: Box::new(build_expr(source, rest, depth)?),
             }
         }
         other => unreachable_rule(other),
     };
-    Expr { kind, span }
+    Ok(Expr { kind, span })
 }
 
-fn parse_region(pair: Pair<Rule>) -> RegionRef {
+fn parse_region(source: &Arc<Source>, pair: Pair<Rule>, depth: usize) -> Result<RegionRef> {
     let span = span_of(&pair);
     let inner = pair
         .into_inner()
@@ -925,11 +1129,11 @@ fn parse_region(pair: Pair<Rule>) -> RegionRef {
         _ => {
             let mut parts = inner.into_inner();
             let center = parse_point(next(&mut parts));
-            let radius = build_expr(next(&mut parts));
+            let radius = build_expr(source, next(&mut parts), deeper(source, depth, span)?)?;
             RegionKind::Ball(center, Box::new(radius))
         }
     };
-    RegionRef { kind, span }
+    Ok(RegionRef { kind, span })
 }
 
 fn parse_generator(pair: Pair<Rule>) -> Generator {
@@ -1039,9 +1243,20 @@ fn parse_name(pair: Pair<Rule>) -> Name {
     }
 }
 
-/// Reads `12` or `1.25` exactly.
-fn parse_number(text: &str) -> BigRational {
-    match text.split_once('.') {
+/// Reads `12` or `1.25` exactly; at most [`MAX_DIGITS`] digits.
+fn parse_number(source: &Arc<Source>, span: Span) -> Result<BigRational> {
+    let text = &source.text[span.start..span.end];
+    let digits = text.len() - usize::from(text.contains('.'));
+    if digits > MAX_DIGITS {
+        return Err(Error::at(
+            ErrorKind::Limit,
+            source,
+            span,
+            format!("number too long: {digits} digits (limit {MAX_DIGITS})"),
+        )
+        .with_label("this number"));
+    }
+    Ok(match text.split_once('.') {
         None => BigRational::from_integer(BigInt::from_str(text).unwrap_or_default()),
         Some((int, frac)) => {
             let digits = format!("{int}{frac}");
@@ -1049,7 +1264,7 @@ fn parse_number(text: &str) -> BigRational {
             let denom = num_traits::pow(BigInt::from(10), frac.len());
             BigRational::new(numer, denom)
         }
-    }
+    })
 }
 
 fn next<'i>(inner: &mut impl Iterator<Item = Pair<'i, Rule>>) -> Pair<'i, Rule> {

@@ -1,0 +1,143 @@
+//! Budgets: how large an input may make the work. Each limit, when met,
+//! ends the statement with an input error (exit 2) that names the limit and
+//! points at the construct, instead of a stack overflow, an exhausted memory
+//! or hours of work. The limits are far above what a hand derivation needs;
+//! DEVELOPERS.md lists them with the reasons for their values.
+
+use num_rational::BigRational;
+
+use crate::diagnostic::{Error, ErrorKind, Result};
+
+/// How deeply an expression may nest: brackets, calls, derivatives, signs
+/// and powers, as written and with named expressions substituted. Every
+/// recursive pass (parsing, lowering, normalisation, printing, e-graph
+/// conversion) stays within [`CHECKER_STACK`] at this depth: measured at 200
+/// levels, the whole pipeline takes about 1.4 MiB of stack in a release
+/// build and 8.5 MiB in a debug build, so 1000 levels take about 7 and 43
+/// MiB.
+pub const MAX_DEPTH: usize = 1000;
+
+/// Stack of the thread a file is checked on ([`on_checker_stack`]): reserved
+/// address space, of which only what the recursion touches is used.
+pub const CHECKER_STACK: usize = 256 << 20;
+
+/// Digits of one number literal.
+pub const MAX_DIGITS: usize = 1000;
+
+/// Size in bits of an exact rational (numerator and denominator together)
+/// that arithmetic may build; a larger power is not folded.
+pub const MAX_BITS: u64 = 1 << 16;
+
+/// Nodes of one lowered expression, with its named expressions substituted.
+pub const MAX_NODES: usize = 100_000;
+
+/// Monomials (and expansion steps) that one normalisation may produce; the
+/// largest shipped case, the Neumann C_D derivation, takes about 99,000.
+/// A monomial takes up to 2 KiB, so this also bounds memory.
+pub const MAX_TERMS: usize = 500_000;
+
+/// Bytes of one input file (`.ward` or `.rules`).
+pub const MAX_FILE_BYTES: u64 = 16 << 20;
+
+/// The error for an expression whose expansion passes [`MAX_TERMS`].
+pub fn too_many_terms(n: usize) -> Error {
+    Error::new(
+        ErrorKind::Limit,
+        format!("expression too large: {n} terms (limit {MAX_TERMS})"),
+    )
+    .with_note("its expansion grows past what can be checked; split it into smaller statements")
+}
+
+thread_local! {
+    /// (nested normalisations running on this thread, monomials they have
+    /// produced since the outermost one began).
+    static WORK: std::cell::Cell<(usize, usize)> = const { std::cell::Cell::new((0, 0)) };
+}
+
+/// The span of one normalisation, for [`spend`]: the outermost one on a
+/// thread starts the count from zero; nested ones share it.
+pub struct Work(());
+
+impl Work {
+    pub fn enter() -> Work {
+        WORK.with(|w| {
+            let (depth, spent) = w.get();
+            w.set((depth + 1, if depth == 0 { 0 } else { spent }));
+        });
+        Work(())
+    }
+}
+
+impl Drop for Work {
+    fn drop(&mut self) {
+        WORK.with(|w| {
+            let (depth, spent) = w.get();
+            w.set((depth.saturating_sub(1), spent));
+        });
+    }
+}
+
+/// Counts `n` monomials produced (or about to be) by the normalisation
+/// running on this thread; past [`MAX_TERMS`] the normalisation ends with
+/// [`too_many_terms`]. Outside a [`Work`] span nothing is counted.
+pub fn spend(n: usize) -> Result<()> {
+    WORK.with(|w| {
+        let (depth, spent) = w.get();
+        if depth == 0 {
+            return Ok(());
+        }
+        let spent = spent.saturating_add(n);
+        w.set((depth, spent));
+        if spent > MAX_TERMS {
+            Err(too_many_terms(spent))
+        } else {
+            Ok(())
+        }
+    })
+}
+
+/// `Ok` when every coefficient of `monos` fits in [`MAX_BITS`]; otherwise
+/// "number too large".
+pub fn coefficients(monos: &[crate::normal::Mono]) -> Result<()> {
+    match monos.iter().map(|m| bits(&m.coef)).max() {
+        Some(b) if b > MAX_BITS => Err(Error::new(
+            ErrorKind::Limit,
+            format!("number too large: a coefficient of {b} bits (limit {MAX_BITS})"),
+        )),
+        _ => Ok(()),
+    }
+}
+
+/// Size in bits of an exact rational.
+pub fn bits(q: &BigRational) -> u64 {
+    q.numer().bits() + q.denom().bits()
+}
+
+/// True when `base^n` stays within [`MAX_BITS`].
+pub fn power_fits(base: &BigRational, n: u64) -> bool {
+    bits(base).saturating_mul(n) <= MAX_BITS
+}
+
+/// Runs `f` on a thread with a [`CHECKER_STACK`] stack, so that the depth a
+/// file may reach does not depend on the caller's stack (8 MiB for a main
+/// thread, 2 MiB for a test thread). A panic in `f` is passed on. When no
+/// thread can be started, `f` runs on the caller's thread.
+pub fn on_checker_stack<T: Send>(f: impl FnOnce() -> T + Send) -> T {
+    let mut f = Some(f);
+    let outcome = std::thread::scope(|scope| {
+        let spawned = std::thread::Builder::new()
+            .name("wardsmith-check".into())
+            .stack_size(CHECKER_STACK)
+            .spawn_scoped(scope, || f.take().map(|f| f()));
+        spawned.map(|handle| handle.join())
+    });
+    match outcome {
+        Ok(Ok(Some(value))) => value,
+        Ok(Err(panic)) => std::panic::resume_unwind(panic),
+        // The thread did not start (or never ran `f`): run here.
+        Ok(Ok(None)) | Err(_) => match f.take() {
+            Some(f) => f(),
+            None => unreachable!("`f` ran on the checker thread"),
+        },
+    }
+}
