@@ -295,13 +295,18 @@ mod tests {
 
     #[test]
     fn exact_quotients_cancel_and_others_stay() {
-        // (d - 2) as the atom's base.
-        let base = Term::Add(vec![sym("d"), Term::Num(q(-2))]);
-        let inv = |mut a: Atoms| {
-            a.insert(base.clone(), q(-1));
+        // (d - 2) as the atom's base; plain functions rather than closures
+        // (a closure capturing the base here miscompiled at opt-level 2 with
+        // this toolchain: the test crashed in release builds only).
+        fn inv(mut a: Atoms) -> Atoms {
+            a.insert(Term::Add(vec![sym("d"), Term::Num(q(-2))]), q(-1));
             a
-        };
-        let d = |e: i64| Atoms::from([(sym("d"), q(e))]);
+        }
+        fn d(e: i64) -> Atoms {
+            let mut a = Atoms::new();
+            a.insert(sym("d"), q(e));
+            a
+        }
         // (d^2 - 4)/(d - 2) = d + 2
         let p = Poly::from([(inv(d(2)), q(1)), (inv(Atoms::new()), q(-4))]);
         assert_eq!(
