@@ -747,8 +747,9 @@ fn read_source(path: &Path) -> Result<Arc<Source>> {
     crate::files::read_text(path)
 }
 
-/// The shipped rules, then `--rules` files, then the file's `rules "…"`.
-fn load_rules(program: &Program, base: &Path, opts: &Options) -> Result<RuleBook> {
+/// The shipped rules, then `--rules` files, then the file's `rules "…"`
+/// (relative to `base`).
+pub fn load_rules(program: &Program, base: &Path, opts: &Options) -> Result<RuleBook> {
     let mut book = RuleBook::shipped()?;
     for path in &opts.rules {
         book.load(&read_source(path)?)?;

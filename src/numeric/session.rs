@@ -685,7 +685,15 @@ fn coincident(t: &Term, values: &Values) -> Option<(String, String)> {
     }
 }
 
-fn build_model(ctx: &Context, choice: &ModelChoice, spec: &NumericSpec) -> Result<Box<dyn Model>> {
+/// The model a file's `model` line chooses, with the file's declared
+/// coefficients and operator mapping. A session builds its model with it;
+/// tests that evaluate model correlators by a route of their own
+/// (`tests/sweep.rs`) build it directly.
+pub fn build_model(
+    ctx: &Context,
+    choice: &ModelChoice,
+    spec: &NumericSpec,
+) -> Result<Box<dyn Model>> {
     Ok(match choice {
         ModelChoice::Conformal { y_convention } => {
             let convention = if *y_convention {
