@@ -372,6 +372,159 @@ impl<'a> Reporter<'a> {
         }
     }
 
+    /// `line N: decompose` with the coefficients (exact fractions where
+    /// they fit one), the residual and where the files went; true when the
+    /// expansion holds to the tolerance.
+    pub fn decomposed(
+        &mut self,
+        line: usize,
+        input: &str,
+        found: &crate::numeric::decompose::Decomposition,
+        written: Option<&str>,
+    ) -> bool {
+        use crate::lower::Channel;
+        let ok = found.holds();
+        let (channel, name, coefficient) = match found.channel {
+            Channel::Bulk => ("bulk", "Δ", "λa"),
+            Channel::Boundary => ("boundary", "Δ̂", "μ²"),
+        };
+        // A coefficient with its uncertainty; a fraction only when it is
+        // determined far better than the fraction's own precision.
+        let largest = found
+            .coefficients
+            .iter()
+            .chain(found.identity.iter())
+            .fold(0.0f64, |m, c| m.max(c.abs()));
+        let value = |v: f64, spread: f64| {
+            let scale = v.abs().max(1e-300);
+            if spread <= 1e-6 * largest && v.abs() <= 3.0 * spread + 1e-12 * largest {
+                return format!("0 (|{v:.1e}| within its uncertainty {spread:.1e})");
+            }
+            if spread > 1e-3 * scale {
+                return format!("{v:.6e} (not determined: moves by {spread:.1e} with the range)");
+            }
+            let fraction = if spread <= 1e-11 * scale {
+                crate::run::small_fraction(v)
+                    .filter(|(p, q)| ((*p as f64 / *q as f64) - v).abs() <= 1e-11 * scale)
+            } else {
+                None
+            };
+            match fraction {
+                Some((p, 1)) => format!("{p} ({v:.12e})"),
+                Some((p, q)) => format!("{p}/{q} ({v:.12e})"),
+                None if spread <= 1e-12 * scale => format!("{v:.12e}"),
+                None => format!("{v:.12e} ± {spread:.1e}"),
+            }
+        };
+        // In units of the identity's coefficient, where the fit has one.
+        let relative = |v: f64| match found.identity {
+            Some(c) if c != 0.0 => {
+                let r = v / c;
+                match crate::run::small_fraction(r)
+                    .filter(|(p, q)| ((*p as f64 / *q as f64) - r).abs() <= 1e-11 * r.abs())
+                {
+                    Some((p, 1)) => format!(" = {p} × the identity's"),
+                    Some((p, q)) => format!(" = {p}/{q} × the identity's"),
+                    None => format!(" = {r:.10e} × the identity's"),
+                }
+            }
+            _ => String::new(),
+        };
+        let spread = |k: usize| found.spread.get(k).copied().unwrap_or(0.0);
+        let shift = usize::from(found.identity.is_some());
+        let fields = [
+            ("line", line.to_string()),
+            ("kind", js("decompose")),
+            ("input", js(input)),
+            ("channel", js(channel)),
+            ("delta", json_number(found.delta)),
+            (
+                "identity",
+                found.identity.map_or("null".into(), json_number),
+            ),
+            (
+                "dimensions",
+                format!(
+                    "[{}]",
+                    found
+                        .dims
+                        .iter()
+                        .map(|v| json_number(*v))
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                ),
+            ),
+            (
+                "coefficients",
+                format!(
+                    "[{}]",
+                    found
+                        .coefficients
+                        .iter()
+                        .map(|v| json_number(*v))
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                ),
+            ),
+            (
+                "uncertainties",
+                format!(
+                    "[{}]",
+                    found
+                        .spread
+                        .iter()
+                        .map(|v| json_number(*v))
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                ),
+            ),
+            ("residual", json_number(found.residual)),
+            ("holds", ok.to_string()),
+        ];
+        self.entry(&fields);
+        let _ = writeln!(
+            self.out,
+            "line {line}: decompose {}",
+            abbreviate(input, INPUT_WIDTH)
+        );
+        let _ = writeln!(
+            self.out,
+            "  {channel} channel, Δ = {}: {} block{} fitted at {} values of ξ in [{}, {}], checked at {} others",
+            found.delta,
+            found.dims.len(),
+            if found.dims.len() == 1 { "" } else { "s" },
+            found.fitted_at,
+            found.range.0,
+            found.range.1,
+            found.checked_at
+        );
+        if let Some(c) = found.identity {
+            let _ = writeln!(self.out, "  identity: {}", value(c, spread(0)));
+        }
+        for (k, (dim, c)) in found.dims.iter().zip(&found.coefficients).enumerate() {
+            let _ = writeln!(
+                self.out,
+                "  {name} = {dim}: {coefficient} = {}{}",
+                value(*c, spread(k + shift)),
+                relative(*c)
+            );
+        }
+        let _ = writeln!(
+            self.out,
+            "  {}: largest difference {:.1e} of the largest |G|",
+            if ok {
+                "the expansion holds"
+            } else {
+                "NOT an expansion in these blocks"
+            },
+            found.residual
+        );
+        if let Some(files) = written {
+            let _ = writeln!(self.out, "  written: {files}");
+        }
+        ok
+    }
+
     /// A derivation step by step; returns the steps proved, confirmed
     /// numerically, and neither.
     pub fn derivation(

@@ -295,7 +295,7 @@ fn common_ratio(ratios: &[f64]) -> Option<f64> {
 }
 
 /// p/q with q ≤ 1000 within 1e-9 (relative) of x, by continued fractions.
-fn small_fraction(x: f64) -> Option<(i64, i64)> {
+pub(crate) fn small_fraction(x: f64) -> Option<(i64, i64)> {
     if !x.is_finite() || x.abs() > 1e6 {
         return None;
     }
@@ -685,6 +685,44 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
                     None => None,
                 };
                 reporter.scanned(item.line, input, &scan, written.as_deref());
+            }
+            (
+                ItemKind::Decompose {
+                    corr,
+                    channel,
+                    dims,
+                    output,
+                },
+                _,
+            ) => {
+                let s = numeric_session(&mut session, &program, &engine, &mut reporter)
+                    .map_err(at_item)?;
+                let found = s.decompose(corr, *channel, dims).map_err(at_item)?;
+                let input = text.strip_prefix("decompose ").unwrap_or(&text);
+                let written = match output {
+                    Some(stem) => {
+                        let scan = crate::numeric::session::Scan {
+                            param: "xi".into(),
+                            labels: vec![String::new()],
+                            rows: found
+                                .rows
+                                .iter()
+                                .map(|(x, g, e)| (*x, vec![*g], vec![*e]))
+                                .collect(),
+                        };
+                        let title = format!("{input}: G(ξ) and its expansion");
+                        Some(write_scan(&scan, base, stem, &title).map_err(at_item)?)
+                    }
+                    None => None,
+                };
+                let ok = reporter.decomposed(item.line, input, &found, written.as_deref());
+                if mode == Mode::Check {
+                    if ok {
+                        confirmed += 1
+                    } else {
+                        failed += 1
+                    }
+                }
             }
             (
                 ItemKind::Evaluate { .. }

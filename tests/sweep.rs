@@ -844,7 +844,12 @@ fn shipped_proofs_agree_numerically() {
         eprintln!("skipped ({}): {why}: {}", at.len(), at.join(", "));
     }
     assert!(wrong.is_empty(), "proved but false:\n{}", wrong.join("\n"));
-    assert!(checked > 0);
+    // Not vacuous: most of what is proved is checked (53 of 100 when the
+    // sweep was written; the rest needs correlators no model has).
+    assert!(
+        checked >= 50,
+        "only {checked} of {total} proved statements checked"
+    );
 }
 
 /// Claims an earlier version proved although they are false (each with why

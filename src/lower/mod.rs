@@ -24,8 +24,9 @@ use crate::context::{
     Context, IndexKind, OperatorDecl, PointDecl, DIMENSION, DISPLACEMENT, NORMAL, STRESS_TENSOR,
 };
 use crate::diagnostic::{Error, ErrorKind, Result, Source};
+pub use crate::syntax::ast::Channel;
 use crate::syntax::ast::{
-    self, BinOp, Expr, ExprKind, Insertion, Name, OpKind, PointRef, Span, Stmt,
+    self, BinOp, BlockDims, Expr, ExprKind, Insertion, Name, OpKind, PointRef, Span, Stmt,
 };
 use crate::term::{Index, Op, Point, Term};
 
@@ -97,6 +98,15 @@ pub enum ItemKind {
         lhs: Term,
         rhs: Term,
         free: Vec<String>,
+        /// File stem for the CSV and SVG output, as written.
+        output: Option<String>,
+    },
+    /// `decompose ⟨O(x1) O(x2)⟩ in CHANNEL blocks …`: the two-point
+    /// function expanded in the blocks of one channel.
+    Decompose {
+        corr: Term,
+        channel: Channel,
+        dims: Dims,
         /// File stem for the CSV and SVG output, as written.
         output: Option<String>,
     },
@@ -321,17 +331,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                             .with_label("not a step count")
                     })?;
                 if let Some((name, span)) = output {
-                    let plain = !name.is_empty()
-                        && !name.starts_with('/')
-                        && name.chars().all(|c| {
-                            c.is_alphanumeric() || c == '-' || c == '_' || c == '/' || c == '.'
-                        })
-                        && !name.contains("..");
-                    if !plain {
-                        return Err(lowerer
-                            .err(ErrorKind::Syntax, *span, "an output name is a relative path inside the file's folder, of letters, digits, `-`, `_`, `/` and `.` (no `..`)")
-                            .with_label("not a plain name"));
-                    }
+                    check_output_name(&lowerer, name, *span)?;
                 }
                 let profile = lowerer.free_indices(lhs)?;
                 lowerer.same_free_indices(&profile, rhs, ("the left side", "the right side"))?;
@@ -344,6 +344,71 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         lhs: lowerer.expr(lhs)?,
                         rhs: lowerer.expr(rhs)?,
                         free: profile.into_iter().collect(),
+                        output: output.as_ref().map(|(n, _)| n.clone()),
+                    },
+                    span: *span,
+                    line: source.line(span.start),
+                });
+            }
+            Stmt::Decompose {
+                corr,
+                channel,
+                dims,
+                output,
+                span,
+            } => {
+                seen_expression = true;
+                if !lowerer.ctx.has_halfspace() {
+                    return Err(lowerer
+                        .err(
+                            ErrorKind::Syntax,
+                            *span,
+                            "block expansions are of two-point functions next to a wall",
+                        )
+                        .with_note("declare the wall: `halfspace y >= 0`"));
+                }
+                let lowered = lowerer.expr(corr)?;
+                let two_bulk_scalars = match &lowered {
+                    Term::Corr(ops) => {
+                        ops.len() == 2
+                            && ops.iter().all(|o| {
+                                o.indices.is_empty() && !lowerer.ctx.is_boundary_point(&o.point)
+                            })
+                    }
+                    _ => false,
+                };
+                if !two_bulk_scalars {
+                    return Err(lowerer
+                        .err(
+                            ErrorKind::Syntax,
+                            corr.span,
+                            "a block expansion takes a correlator of two bulk scalars, e.g. `<O(x1) O(x2)>`",
+                        )
+                        .with_label("not a two-point function of bulk scalars"));
+                }
+                let dims = match dims {
+                    BlockDims::List(list) => Dims::List(
+                        list.iter()
+                            .map(|e| lowerer.scalar_parameter_expr(e))
+                            .collect::<Result<_>>()?,
+                    ),
+                    BlockDims::Tower(from, to, step) => Dims::Tower {
+                        from: lowerer.scalar_parameter_expr(from)?,
+                        to: lowerer.scalar_parameter_expr(to)?,
+                        step: step
+                            .as_ref()
+                            .map(|s| lowerer.scalar_parameter_expr(s))
+                            .transpose()?,
+                    },
+                };
+                if let Some((name, span)) = output {
+                    check_output_name(&lowerer, name, *span)?;
+                }
+                items.push(Item {
+                    kind: ItemKind::Decompose {
+                        corr: lowered,
+                        channel: *channel,
+                        dims,
                         output: output.as_ref().map(|(n, _)| n.clone()),
                     },
                     span: *span,
@@ -684,6 +749,7 @@ impl Lowerer {
             | Stmt::Solve { .. }
             | Stmt::Flux { .. }
             | Stmt::Scan { .. }
+            | Stmt::Decompose { .. }
             | Stmt::Derivation { .. }
             | Stmt::Compare { .. } => {}
         }
@@ -857,6 +923,22 @@ impl Lowerer {
     /// Lowers an expression, within the depth and size budgets: the
     /// parser bounds each expression as written, this bounds them with
     /// named expressions substituted.
+    /// A dimension or other number written with parameters: no points, no
+    /// indices.
+    fn scalar_parameter_expr(&self, e: &Expr) -> Result<Term> {
+        let t = self.expr(e)?;
+        if is_constant_term(&t) {
+            return Ok(t);
+        }
+        Err(self
+            .err(
+                ErrorKind::Syntax,
+                e.span,
+                "a dimension is a number or an expression in parameters (`Delta + 2`, `d/2 - 1`)",
+            )
+            .with_label("mentions points, indices or correlators"))
+    }
+
     fn expr(&self, e: &Expr) -> Result<Term> {
         let nodes = self.nodes.get() + 1;
         self.nodes.set(nodes);
@@ -1344,6 +1426,48 @@ fn is_zero(e: &Expr) -> bool {
 
 /// The exact value of an expression made of numbers only (`None` also when
 /// it would take more than [`MAX_BITS`] bits).
+/// An output name is a relative path inside the file's folder.
+fn check_output_name(lowerer: &Lowerer, name: &str, span: Span) -> Result<()> {
+    let plain = !name.is_empty()
+        && !name.starts_with('/')
+        && name
+            .chars()
+            .all(|c| c.is_alphanumeric() || c == '-' || c == '_' || c == '/' || c == '.')
+        && !name.contains("..");
+    if plain {
+        return Ok(());
+    }
+    Err(lowerer
+        .err(
+            ErrorKind::Syntax,
+            span,
+            "an output name is a relative path inside the file's folder, of letters, digits, `-`, `_`, `/` and `.` (no `..`)",
+        )
+        .with_label("not a plain name"))
+}
+
+/// The exchanged dimensions of a block expansion, as lowered.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Dims {
+    List(Vec<Term>),
+    /// from, to, step (1 when not written): from, from + step, … ≤ to.
+    Tower {
+        from: Term,
+        to: Term,
+        step: Option<Term>,
+    },
+}
+
+/// True for a term of numbers and scalar parameters only.
+fn is_constant_term(t: &Term) -> bool {
+    match t {
+        Term::Num(_) | Term::Sym(_) => true,
+        Term::Add(ts) | Term::Mul(ts) => ts.iter().all(is_constant_term),
+        Term::Pow(a, b) => is_constant_term(a) && is_constant_term(b),
+        _ => false,
+    }
+}
+
 fn constant_value(e: &Expr) -> Option<BigRational> {
     match &e.kind {
         ExprKind::Num(c) => Some(c.clone()),

@@ -196,6 +196,95 @@ impl<'a> Session<'a> {
         self.engine.solve_linear(unknown, &l, &r)
     }
 
+    /// The expansion of the two-point function `corr` (two bulk scalars of
+    /// equal dimension) in the blocks of `channel` with exchanged dimensions
+    /// `dims` ([`super::decompose`]). The points are placed at height 1,
+    /// a distance 2√ξ apart along the wall, so that ξ takes the fit values.
+    pub fn decompose(
+        &self,
+        corr: &Term,
+        channel: crate::lower::Channel,
+        dims: &crate::lower::Dims,
+    ) -> Result<super::decompose::Decomposition> {
+        use crate::lower::Dims;
+        let Term::Corr(ops) = corr else {
+            return Err(Error::new(
+                ErrorKind::Numeric,
+                "a block expansion takes a correlator",
+            ));
+        };
+        let values = self.values().clone();
+        let number = |t: &Term| -> Result<f64> { Ok(self.value(t, &[], &values)?.value) };
+        let dim_of = |op: &crate::term::Op| -> Result<f64> {
+            let dim = self
+                .ctx
+                .operator(&op.name)
+                .and_then(|o| o.attrs.get("dim"))
+                .ok_or_else(|| {
+                    Error::new(
+                        ErrorKind::Numeric,
+                        format!("`{}` has no declared dimension", op.name),
+                    )
+                    .with_note(format!("declare it: `scalar {} dim …`", op.name))
+                })?;
+            number(dim)
+        };
+        let (d1, d2) = (dim_of(&ops[0])?, dim_of(&ops[1])?);
+        if (d1 - d2).abs() > 1e-12 * d1.abs().max(1.0) {
+            return Err(Error::new(
+                ErrorKind::Numeric,
+                format!(
+                    "the two operators have different dimensions ({d1} and {d2}); the blocks here are those of two operators of one dimension"
+                ),
+            ));
+        }
+        let (list, tower) = match dims {
+            Dims::List(ts) => (ts.iter().map(number).collect::<Result<Vec<f64>>>()?, false),
+            Dims::Tower { from, to, step } => {
+                let (a, b) = (number(from)?, number(to)?);
+                let s = match step {
+                    Some(s) => number(s)?,
+                    None => 1.0,
+                };
+                let count = ((b - a) / s + 1e-9).floor();
+                if !(s > 0.0) || !count.is_finite() || count < 0.0 {
+                    return Err(Error::new(
+                        ErrorKind::Numeric,
+                        format!("the tower from {a} to {b} in steps of {s} is empty"),
+                    )
+                    .with_note("write `blocks FIRST to LAST step S` with LAST ≥ FIRST and S > 0"));
+                }
+                if count as usize >= super::decompose::MAX_BLOCKS {
+                    return Err(Error::new(
+                        ErrorKind::Numeric,
+                        format!(
+                            "the tower has {} dimensions; at most {} are fitted",
+                            count as usize + 1,
+                            super::decompose::MAX_BLOCKS
+                        ),
+                    ));
+                }
+                (
+                    (0..=count as usize).map(|k| a + s * k as f64).collect(),
+                    true,
+                )
+            }
+        };
+        let dim = values.dim;
+        let g = |xi: f64| -> Result<f64> {
+            let mut v = values.clone();
+            let mut p1 = vec![0.0; dim];
+            p1[dim - 1] = 1.0;
+            let mut p2 = p1.clone();
+            p2[0] = 2.0 * xi.sqrt();
+            v.points.insert(ops[0].point.name.to_string(), p1);
+            v.points.insert(ops[1].point.name.to_string(), p2);
+            let c = self.value(corr, &[], &v)?.value;
+            Ok(c * (4.0 * xi).powf(d1))
+        };
+        super::decompose::fit(channel, dim as f64, d1, &list, tower, &g)
+    }
+
     /// The values of `t` for every assignment of its free indices.
     pub fn evaluate(&self, t: &Term, free: &[String]) -> Result<Evaluation> {
         self.evaluate_with(t, free, self.values())

@@ -5,6 +5,23 @@
 
 use num_rational::BigRational;
 
+/// The channel of a block expansion next to a wall.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Channel {
+    /// Bulk operators exchanged (x1 → x2): the identity and bulk blocks.
+    Bulk,
+    /// Boundary operators exchanged (each point → the wall).
+    Boundary,
+}
+
+/// The exchanged dimensions of a block expansion.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum BlockDims {
+    List(Vec<Expr>),
+    /// first, last and step (1 when not written).
+    Tower(Expr, Expr, Option<Expr>),
+}
+
 /// A byte range in one source text.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Hash, Default)]
 pub struct Span {
@@ -316,6 +333,14 @@ pub enum Stmt {
     /// `evaluate EXPR`: its numeric value(s) in the model.
     Evaluate {
         expr: Expr,
+        span: Span,
+    },
+    /// `decompose ⟨O(x1) O(x2)⟩ in bulk|boundary blocks … [into "name"]`.
+    Decompose {
+        corr: Expr,
+        channel: Channel,
+        dims: BlockDims,
+        output: Option<(String, Span)>,
         span: Span,
     },
     /// `solve a from L = R`: the value of a parameter that makes both sides

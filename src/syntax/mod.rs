@@ -355,6 +355,7 @@ const STATEMENT_STARTS: &[&str] = &[
     "flux",
     "sample",
     "scan",
+    "decompose",
     "derivation",
 ];
 /// Infix operators.
@@ -709,6 +710,44 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                 unknown,
                 lhs,
                 rhs,
+                span,
+            }
+        }
+        Rule::decompose_stmt => {
+            let corr = build_expr(source, next(&mut inner), 0)?;
+            let channel = match next(&mut inner).as_str() {
+                "bulk" => Channel::Bulk,
+                _ => Channel::Boundary,
+            };
+            let dims_pair = next(&mut inner);
+            let mut parts = dims_pair.into_inner();
+            let first = next(&mut parts);
+            let dims = if first.as_rule() == Rule::block_tower {
+                let mut t = first.into_inner();
+                let from = build_expr(source, next(&mut t), 0)?;
+                let to = build_expr(source, next(&mut t), 0)?;
+                let step = match t.next() {
+                    Some(p) => Some(build_expr(source, p, 0)?),
+                    None => None,
+                };
+                BlockDims::Tower(from, to, step)
+            } else {
+                let mut list = vec![build_expr(source, first, 0)?];
+                for p in parts {
+                    list.push(build_expr(source, p, 0)?);
+                }
+                BlockDims::List(list)
+            };
+            let output = inner.next().map(|string| {
+                let span = span_of(&string);
+                let body = string.into_inner().next().map_or("", |p| p.as_str());
+                (body.to_string(), span)
+            });
+            Stmt::Decompose {
+                corr,
+                channel,
+                dims,
+                output,
                 span,
             }
         }
