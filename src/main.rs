@@ -12,14 +12,7 @@ use wardsmith::egraph::Limits;
 use wardsmith::run::{run_folder, run_path, Mode, Options};
 use wardsmith::term::print::Style;
 
-const CONVENTIONS: &str = "\
-Conventions: Euclidean R^d with metric δ_{μν}, path-integral weight e^{-S};
-T^{μν} = -(2/√g) δS/δg_{μν}; minimal contact-term scheme. With `halfspace y >= 0`
-the boundary is y = 0, n is the unit normal pointing into the bulk, x∥ is the
-projection of x onto the boundary, and D(x∥) = T_nn(x∥, y → 0+) is the
-displacement operator.
-
-Exit codes: 0 every claim holds, 1 some claim is not proved, 2 the input is wrong.";
+use wardsmith::help::CONVENTIONS;
 
 /// Simplify and check conformal Ward identities written in .ward files.
 #[derive(Parser, Debug)]
@@ -34,13 +27,29 @@ enum Command {
     /// Print every `simplify` statement of FILE in contact-term normal form.
     #[command(after_help = CONVENTIONS)]
     Simplify(FileArgs),
-    /// Prove or fail every `claim` and every `simplify … expect …` in FILE.
+    /// Check every statement of FILE that states something: each `claim`,
+    /// each `simplify … expect …`, each step of a `derivation`, and on the
+    /// file's model each `compare` and `flux`; print what `simplify`,
+    /// `evaluate`, `classify`, `solve` and `scan` find.
+    ///
+    /// Statements: dimension, halfspace, scalar, vector, boundary, points,
+    /// parameters, positive, parallel, function, let, rules, killing,
+    /// classify, simplify, claim, derivation, place, model, coefficient,
+    /// values, sample, evaluate, compare, flux, solve, scan. One example
+    /// each: `wardsmith help language`.
     #[command(after_help = CONVENTIONS)]
     Check(FileArgs),
-    /// Check every .ward file below FILE (a folder): one line per file, then
-    /// `N passed, M failed`.
-    #[command(after_help = CONVENTIONS)]
+    /// Check every .ward file below FOLDER (links are not followed): one
+    /// line per file, then `N passed, M failed`.
+    #[command(
+        after_help = CONVENTIONS,
+        mut_arg("file", |a| a.value_name("FOLDER").help("The folder whose .ward files are checked"))
+    )]
     Test(TestArgs),
+    /// The .ward language: every statement kind with an example, then the
+    /// forms of expressions. Also `wardsmith help language`.
+    #[command(after_help = wardsmith::help::language())]
+    Language,
 }
 
 #[derive(Args, Debug)]
@@ -87,6 +96,13 @@ fn main() -> ExitCode {
         Command::Simplify(a) => (Mode::Simplify, a, false, false),
         Command::Check(a) => (Mode::Check, a, false, false),
         Command::Test(t) => (Mode::Check, t.common, true, t.accept),
+        Command::Language => {
+            return match print_report(&wardsmith::help::language()) {
+                Ok(()) => ExitCode::SUCCESS,
+                Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => ExitCode::SUCCESS,
+                Err(_) => ExitCode::from(2),
+            }
+        }
     };
     let opts = Options {
         rules: args.rules,

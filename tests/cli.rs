@@ -31,10 +31,39 @@ fn help_texts() {
         &["--help"][..],
         &["simplify", "--help"],
         &["check", "--help"],
+        &["test", "--help"],
+        &["help", "language"],
     ] {
         let (code, stdout, _) = wardsmith(args);
         assert_eq!(code, 0);
         insta::assert_snapshot!(format!("help-{}", args.join("-")), stdout);
+    }
+}
+
+#[test]
+fn check_help_names_every_statement_and_test_help_a_folder() {
+    let (_, check, _) = wardsmith(&["check", "--help"]);
+    let flat = check.split_whitespace().collect::<Vec<_>>().join(" ");
+    for entry in wardsmith::help::STATEMENTS {
+        assert!(
+            flat.contains(&format!(" {},", entry.keyword))
+                || flat.contains(&format!(" {}.", entry.keyword)),
+            "`check --help` does not name `{}`:\n{check}",
+            entry.keyword
+        );
+    }
+    let (_, test, _) = wardsmith(&["test", "--help"]);
+    assert!(test.contains("<FOLDER>"), "{test}");
+    assert!(!test.contains("The .ward file"), "{test}");
+    // The convention the wall rules rely on is stated where people look.
+    assert!(
+        check.contains("∂_n at a\nboundary point is zero"),
+        "{check}"
+    );
+    let (code, page, _) = wardsmith(&["help", "language"]);
+    assert_eq!(code, 0);
+    for entry in wardsmith::help::STATEMENTS {
+        assert!(page.contains(entry.example), "{page}");
     }
 }
 

@@ -328,7 +328,7 @@ const OPERAND_STARTS: &[&str] = &[
     "int", "∮", "oint", "par",
 ];
 /// Keywords that start a statement of a `.ward` file.
-const STATEMENT_STARTS: &[&str] = &[
+pub(crate) const STATEMENT_STARTS: &[&str] = &[
     "dimension",
     "halfspace",
     "boundary",
@@ -1243,10 +1243,15 @@ fn parse_name(pair: Pair<Rule>) -> Name {
     }
 }
 
-/// Reads `12` or `1.25` exactly; at most [`MAX_DIGITS`] digits.
+/// Reads `12`, `1.25` or `1.59e-1` exactly; at most [`MAX_DIGITS`] digits
+/// and a power of ten at most [`MAX_DIGITS`] either way.
 fn parse_number(source: &Arc<Source>, span: Span) -> Result<BigRational> {
     let text = &source.text[span.start..span.end];
-    let digits = text.len() - usize::from(text.contains('.'));
+    let (mantissa, exponent) = match text.find(['e', 'E']) {
+        Some(i) => (&text[..i], Some(&text[i + 1..])),
+        None => (text, None),
+    };
+    let digits = mantissa.len() - usize::from(mantissa.contains('.'));
     if digits > MAX_DIGITS {
         return Err(Error::at(
             ErrorKind::Limit,
@@ -1256,15 +1261,38 @@ fn parse_number(source: &Arc<Source>, span: Span) -> Result<BigRational> {
         )
         .with_label("this number"));
     }
-    Ok(match text.split_once('.') {
-        None => BigRational::from_integer(BigInt::from_str(text).unwrap_or_default()),
+    let mut value = match mantissa.split_once('.') {
+        None => BigRational::from_integer(BigInt::from_str(mantissa).unwrap_or_default()),
         Some((int, frac)) => {
             let digits = format!("{int}{frac}");
             let numer = BigInt::from_str(&digits).unwrap_or_default();
             let denom = num_traits::pow(BigInt::from(10), frac.len());
             BigRational::new(numer, denom)
         }
-    })
+    };
+    if let Some(exponent) = exponent {
+        let power = exponent
+            .trim_start_matches('+')
+            .parse::<i64>()
+            .ok()
+            .filter(|p| p.unsigned_abs() <= MAX_DIGITS as u64);
+        let Some(power) = power else {
+            return Err(Error::at(
+                ErrorKind::Limit,
+                source,
+                span,
+                format!("power of ten too large: {exponent} (limit ±{MAX_DIGITS})"),
+            )
+            .with_label("this number"));
+        };
+        let scale = num_traits::pow(BigInt::from(10), power.unsigned_abs() as usize);
+        value = if power >= 0 {
+            value * BigRational::from_integer(scale)
+        } else {
+            value / BigRational::from_integer(scale)
+        };
+    }
+    Ok(value)
 }
 
 fn next<'i>(inner: &mut impl Iterator<Item = Pair<'i, Rule>>) -> Pair<'i, Rule> {
