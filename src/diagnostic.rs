@@ -114,8 +114,9 @@ pub struct Error {
     /// Further lines (`= note: …`).
     pub notes: Vec<String>,
     /// Other places in the same source, each with its label (where an
-    /// unclosed bracket ran into the next statement, say).
-    pub secondary: Vec<(Span, String)>,
+    /// unclosed bracket ran into the next statement, say). A boxed slice,
+    /// not a `Vec`, to keep `Error` small: every `Result` carries it.
+    pub secondary: Box<[(Span, String)]>,
 }
 
 impl Error {
@@ -126,7 +127,7 @@ impl Error {
             at: None,
             label: String::new(),
             notes: Vec::new(),
-            secondary: Vec::new(),
+            secondary: Box::new([]),
         }
     }
 
@@ -152,7 +153,9 @@ impl Error {
 
     /// Another place in the same source, underlined with `label`.
     pub fn with_secondary(mut self, span: Span, label: impl Into<String>) -> Error {
-        self.secondary.push((span, label.into()));
+        let mut all = std::mem::take(&mut self.secondary).into_vec();
+        all.push((span, label.into()));
+        self.secondary = all.into_boxed_slice();
         self
     }
 
@@ -198,7 +201,7 @@ impl Error {
                 let end = span.end.min(source.text.len());
                 let mut ranges = vec![span.start.min(end), end];
                 // Every position is mapped in one call: escaping shifts them.
-                for (other, _) in &self.secondary {
+                for (other, _) in self.secondary.iter() {
                     let end = other.end.min(source.text.len());
                     ranges.extend([other.start.min(end), end]);
                 }

@@ -104,6 +104,11 @@ pub const STATEMENTS: &[Entry] = &[
         meaning: "a hand derivation, one `= STEP [by RULE]` per line; each step checked",
     },
     Entry {
+        keyword: "slip",
+        example: "slip claim <T[mu,mu](x) O(x1)> = δ(x - x1) <O(x1)>",
+        meaning: "before `claim` or `derivation`: a slip kept on purpose; passes when refuted",
+    },
+    Entry {
         keyword: "place",
         example: "place x2 outside ball(x1, r)",
         meaning: "where a point lies (`inside`, `on`); `place x1 at (0, 1/2, 3)` for numbers",

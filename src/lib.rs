@@ -8,6 +8,7 @@
 //! [`engine`] strings the stages together for one expression; [`run`]
 //! does one whole file for the command line.
 
+pub mod accept;
 pub mod budget;
 pub mod charset;
 pub mod context;

@@ -34,9 +34,9 @@ enum Command {
     ///
     /// Statements: dimension, halfspace, scalar, vector, boundary, points,
     /// parameters, positive, parallel, function, let, rules, killing,
-    /// classify, simplify, claim, derivation, place, model, coefficient,
-    /// values, sample, evaluate, compare, flux, solve, scan. One example
-    /// each: `wardsmith help language`.
+    /// classify, simplify, claim, derivation, slip, place, model,
+    /// coefficient, values, sample, evaluate, compare, flux, solve, scan.
+    /// One example each: `wardsmith help language`.
     #[command(after_help = CONVENTIONS)]
     Check(FileArgs),
     /// Check every .ward file below FOLDER (links are not followed): one
@@ -60,6 +60,10 @@ struct TestArgs {
     /// finds, in place; every other byte of the file is kept.
     #[arg(long)]
     accept: bool,
+    /// Also write the CSV and SVG files of each `scan … into`, as `check`
+    /// does; without it `test` leaves them as they are.
+    #[arg(long)]
+    write_scans: bool,
 }
 
 #[derive(Args, Debug)]
@@ -92,10 +96,14 @@ struct FileArgs {
 
 fn main() -> ExitCode {
     let cli = Cli::parse();
+    let mut keep_scan_files = false;
     let (mode, args, folder, accept) = match cli.command {
         Command::Simplify(a) => (Mode::Simplify, a, false, false),
         Command::Check(a) => (Mode::Check, a, false, false),
-        Command::Test(t) => (Mode::Check, t.common, true, t.accept),
+        Command::Test(t) => {
+            keep_scan_files = !t.write_scans;
+            (Mode::Check, t.common, true, t.accept)
+        }
         Command::Language => {
             return match print_report(&wardsmith::help::language()) {
                 Ok(()) => ExitCode::SUCCESS,
@@ -127,6 +135,7 @@ fn main() -> ExitCode {
         progress: std::io::stderr().is_terminal(),
         json: args.json,
         accept,
+        keep_scan_files,
     };
     let result = if folder {
         run_folder(&args.file, &opts)

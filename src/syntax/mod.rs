@@ -504,6 +504,7 @@ pub(crate) const STATEMENT_STARTS: &[&str] = &[
     "sample",
     "scan",
     "derivation",
+    "slip",
 ];
 /// Infix operators.
 const INFIX: &[&str] = &["+", "-", "*", "/", "^"];
@@ -884,6 +885,7 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
             }
         }
         Rule::derivation_stmt => {
+            let slip = inner.next_if(|p| p.as_rule() == Rule::slip_kw).is_some();
             let name = parse_name(next(&mut inner));
             let start = build_expr(source, next(&mut inner), 0)?;
             let mut steps = Vec::new();
@@ -896,6 +898,7 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                 name,
                 start,
                 steps,
+                slip,
                 span,
             }
         }
@@ -930,9 +933,15 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
             }
         }
         Rule::claim_stmt => {
+            let slip = inner.next_if(|p| p.as_rule() == Rule::slip_kw).is_some();
             let lhs = build_expr(source, next(&mut inner), 0)?;
             let rhs = build_expr(source, next(&mut inner), 0)?;
-            Stmt::Claim { lhs, rhs, span }
+            Stmt::Claim {
+                lhs,
+                rhs,
+                slip,
+                span,
+            }
         }
         other => unreachable_rule(other),
     })
