@@ -1389,7 +1389,13 @@ fn parse_op(pair: Pair<Rule>) -> OpRef {
     let mut inner = pair
         .into_inner()
         .flat_map(|p| match p.as_rule() {
-            Rule::op_tail => p.into_inner().collect::<Vec<_>>(),
+            Rule::op_tail => p
+                .into_inner()
+                .flat_map(|q| match q.as_rule() {
+                    Rule::op_at => q.into_inner().collect::<Vec<_>>(),
+                    _ => vec![q],
+                })
+                .collect::<Vec<_>>(),
             _ => vec![p],
         })
         .peekable();
