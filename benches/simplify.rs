@@ -104,7 +104,7 @@ fn verify_special_conformal_engine(bencher: divan::Bencher) {
         wardsmith::egraph::Limits::default(),
     )
     .expect("engine");
-    let Some(ItemKind::Claim { lhs, rhs }) = program.items.last().map(|i| &i.kind) else {
+    let Some(ItemKind::Claim { lhs, rhs, .. }) = program.items.last().map(|i| &i.kind) else {
         panic!("the benchmark file ends with a claim");
     };
     bencher.bench(|| {

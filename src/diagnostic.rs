@@ -113,6 +113,10 @@ pub struct Error {
     pub label: String,
     /// Further lines (`= note: …`).
     pub notes: Vec<String>,
+    /// Other places in the same source, each with its label (where an
+    /// unclosed bracket ran into the next statement, say). A boxed slice,
+    /// not a `Vec`, to keep `Error` small: every `Result` carries it.
+    pub secondary: Box<[(Span, String)]>,
 }
 
 impl Error {
@@ -123,6 +127,7 @@ impl Error {
             at: None,
             label: String::new(),
             notes: Vec::new(),
+            secondary: Box::new([]),
         }
     }
 
@@ -143,6 +148,14 @@ impl Error {
 
     pub fn with_label(mut self, label: impl Into<String>) -> Error {
         self.label = label.into();
+        self
+    }
+
+    /// Another place in the same source, underlined with `label`.
+    pub fn with_secondary(mut self, span: Span, label: impl Into<String>) -> Error {
+        let mut all = std::mem::take(&mut self.secondary).into_vec();
+        all.push((span, label.into()));
+        self.secondary = all.into_boxed_slice();
         self
     }
 
@@ -186,12 +199,21 @@ impl Error {
         let file = match &self.at {
             Some((source, span)) => {
                 let end = span.end.min(source.text.len());
-                let mut range = [span.start.min(end), end];
-                let text = crate::charset::escape_controls_at(&source.text, &mut range);
-                diagnostic =
-                    diagnostic
-                        .with_labels(vec![Label::primary((), range[0]..range[1])
-                            .with_message(escape(&self.label))]);
+                let mut ranges = vec![span.start.min(end), end];
+                // Every position is mapped in one call: escaping shifts them.
+                for (other, _) in self.secondary.iter() {
+                    let end = other.end.min(source.text.len());
+                    ranges.extend([other.start.min(end), end]);
+                }
+                let text = crate::charset::escape_controls_at(&source.text, &mut ranges);
+                let mut labels = vec![
+                    Label::primary((), ranges[0]..ranges[1]).with_message(escape(&self.label))
+                ];
+                for (k, (_, label)) in self.secondary.iter().enumerate() {
+                    let (a, b) = (ranges[2 + 2 * k], ranges[3 + 2 * k]);
+                    labels.push(Label::secondary((), a..b).with_message(escape(label)));
+                }
+                diagnostic = diagnostic.with_labels(labels);
                 SimpleFile::new(escape(&source.name), text.into_owned())
             }
             None => SimpleFile::new(String::new(), String::new()),

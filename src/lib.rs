@@ -8,6 +8,7 @@
 //! [`engine`] strings the stages together for one expression; [`run`]
 //! does one whole file for the command line.
 
+pub mod accept;
 pub mod budget;
 pub mod charset;
 pub mod context;
@@ -16,6 +17,7 @@ pub mod diagnostic;
 pub mod egraph;
 pub mod engine;
 pub mod files;
+pub mod help;
 pub mod lower;
 pub mod normal;
 pub mod numeric;

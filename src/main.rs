@@ -12,14 +12,7 @@ use wardsmith::egraph::Limits;
 use wardsmith::run::{run_folder, run_path, Mode, Options};
 use wardsmith::term::print::Style;
 
-const CONVENTIONS: &str = "\
-Conventions: Euclidean R^d with metric δ_{μν}, path-integral weight e^{-S};
-T^{μν} = -(2/√g) δS/δg_{μν}; minimal contact-term scheme. With `halfspace y >= 0`
-the boundary is y = 0, n is the unit normal pointing into the bulk, x∥ is the
-projection of x onto the boundary, and D(x∥) = T_nn(x∥, y → 0+) is the
-displacement operator.
-
-Exit codes: 0 every claim holds, 1 some claim is not proved, 2 the input is wrong.";
+use wardsmith::help::CONVENTIONS;
 
 /// Simplify and check conformal Ward identities written in .ward files.
 #[derive(Parser, Debug)]
@@ -34,13 +27,29 @@ enum Command {
     /// Print every `simplify` statement of FILE in contact-term normal form.
     #[command(after_help = CONVENTIONS)]
     Simplify(FileArgs),
-    /// Prove or fail every `claim` and every `simplify … expect …` in FILE.
+    /// Check every statement of FILE that states something: each `claim`,
+    /// each `simplify … expect …`, each step of a `derivation`, and on the
+    /// file's model each `compare` and `flux`; print what `simplify`,
+    /// `evaluate`, `classify`, `solve` and `scan` find.
+    ///
+    /// Statements: dimension, halfspace, scalar, vector, boundary, points,
+    /// parameters, positive, parallel, function, let, rules, killing,
+    /// classify, simplify, claim, derivation, slip, place, model,
+    /// coefficient, values, sample, evaluate, compare, flux, solve, scan.
+    /// One example each: `wardsmith help language`.
     #[command(after_help = CONVENTIONS)]
     Check(FileArgs),
-    /// Check every .ward file below FILE (a folder): one line per file, then
-    /// `N passed, M failed`.
-    #[command(after_help = CONVENTIONS)]
+    /// Check every .ward file below FOLDER (links are not followed): one
+    /// line per file, then `N passed, M failed`.
+    #[command(
+        after_help = CONVENTIONS,
+        mut_arg("file", |a| a.value_name("FOLDER").help("The folder whose .ward files are checked"))
+    )]
     Test(TestArgs),
+    /// The .ward language: every statement kind with an example, then the
+    /// forms of expressions. Also `wardsmith help language`.
+    #[command(after_help = wardsmith::help::language())]
+    Language,
 }
 
 #[derive(Args, Debug)]
@@ -51,6 +60,10 @@ struct TestArgs {
     /// finds, in place; every other byte of the file is kept.
     #[arg(long)]
     accept: bool,
+    /// Also write the CSV and SVG files of each `scan … into`, as `check`
+    /// does; without it `test` leaves them as they are.
+    #[arg(long)]
+    write_scans: bool,
 }
 
 #[derive(Args, Debug)]
@@ -83,10 +96,21 @@ struct FileArgs {
 
 fn main() -> ExitCode {
     let cli = Cli::parse();
+    let mut keep_scan_files = false;
     let (mode, args, folder, accept) = match cli.command {
         Command::Simplify(a) => (Mode::Simplify, a, false, false),
         Command::Check(a) => (Mode::Check, a, false, false),
-        Command::Test(t) => (Mode::Check, t.common, true, t.accept),
+        Command::Test(t) => {
+            keep_scan_files = !t.write_scans;
+            (Mode::Check, t.common, true, t.accept)
+        }
+        Command::Language => {
+            return match print_report(&wardsmith::help::language()) {
+                Ok(()) => ExitCode::SUCCESS,
+                Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => ExitCode::SUCCESS,
+                Err(_) => ExitCode::from(2),
+            }
+        }
     };
     let opts = Options {
         rules: args.rules,
@@ -111,6 +135,7 @@ fn main() -> ExitCode {
         progress: std::io::stderr().is_terminal(),
         json: args.json,
         accept,
+        keep_scan_files,
     };
     let result = if folder {
         run_folder(&args.file, &opts)

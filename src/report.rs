@@ -102,6 +102,8 @@ pub struct Reporter<'a> {
     /// (proved, proved away from coincident points, confirmed numerically,
     /// not proved).
     counts: (usize, usize, usize, usize),
+    /// Statements marked `slip` that were refuted, as marked.
+    caught: usize,
     printer: Printer<'a>,
     out: String,
 }
@@ -112,6 +114,7 @@ impl<'a> Reporter<'a> {
             json: None,
             latex: Printer::new(ctx, Style::Latex),
             counts: (0, 0, 0, 0),
+            caught: 0,
             printer: Printer::new(ctx, style),
             out: String::new(),
         }
@@ -130,11 +133,12 @@ impl<'a> Reporter<'a> {
             None if self.printer.style == Style::Ascii => crate::charset::to_ascii(&self.out),
             None => self.out,
             Some(entries) => format!(
-                "{{\"items\": [\n{}\n], \"proved\": {}, \"proved_away\": {}, \"confirmed\": {}, \"not_proved\": {}}}\n",
+                "{{\"items\": [\n{}\n], \"proved\": {}, \"proved_away\": {}, \"confirmed\": {}, \"slips_caught\": {}, \"not_proved\": {}}}\n",
                 entries.join(",\n"),
                 self.counts.0,
                 self.counts.1,
                 self.counts.2,
+                self.caught,
                 self.counts.3
             ),
         }
@@ -926,15 +930,50 @@ impl<'a> Reporter<'a> {
         all
     }
 
+    /// The line under a statement marked `slip`: caught (refuted, as
+    /// marked), or not, and why (`held`: it holds after all).
+    pub fn slip(&mut self, caught: bool, held: bool) {
+        let line = if caught {
+            "marked `slip`: refuted, as marked; the slip is caught"
+        } else if held {
+            "marked `slip`, but it holds: nothing is caught (remove `slip` if it is right)"
+        } else {
+            "marked `slip`, but a limit stopped the search before it was refuted: nothing is caught"
+        };
+        if let Some(entries) = &mut self.json {
+            if let Some(last) = entries.last_mut() {
+                if last.ends_with('}') {
+                    last.pop();
+                    last.push_str(&format!(
+                        ", \"slip\": {}}}",
+                        js(if caught { "caught" } else { "not caught" })
+                    ));
+                }
+            }
+        }
+        let _ = writeln!(self.out, "  {line}");
+    }
+
     /// The closing count of a check.
-    pub fn summary(&mut self, proved: usize, away: usize, confirmed: usize, failed: usize) {
+    pub fn summary(
+        &mut self,
+        proved: usize,
+        away: usize,
+        confirmed: usize,
+        caught: usize,
+        failed: usize,
+    ) {
         self.counts = (proved, away, confirmed, failed);
+        self.caught = caught;
         let mut parts = vec![format!("{proved} proved")];
         if away > 0 {
             parts.push(format!("{away} proved away from coincident points"));
         }
         if confirmed > 0 {
             parts.push(format!("{confirmed} confirmed numerically"));
+        }
+        if caught > 0 {
+            parts.push(format!("{caught} slip(s) caught"));
         }
         parts.push(format!("{failed} not proved"));
         let _ = writeln!(self.out, "{}", parts.join(", "));

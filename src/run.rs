@@ -40,6 +40,9 @@ pub struct Options {
     pub json: bool,
     /// `test --accept`: rewrite the expected results that do not hold.
     pub accept: bool,
+    /// Leave the files of `scan … into` as they are: `test` computes the
+    /// tables but writes them only under `--write-scans`.
+    pub keep_scan_files: bool,
 }
 
 /// The printed report and the exit code (0: all claims hold, 1: some do not).
@@ -374,10 +377,11 @@ fn numeric_session<'s, 'a>(
 
 /// Checks every `.ward` file below `dir` (sorted by path): one line per
 /// file, then `N passed, M failed`. A file passes when all its claims hold;
-/// an input error fails it with the diagnostic's first line.
+/// an input error fails it with the diagnostic's first line, and makes the
+/// exit code 2 (as `check` would), not 1.
 pub fn run_folder(dir: &Path, opts: &Options) -> Result<Outcome> {
     let files = crate::files::ward_files(dir)?;
-    let (mut passed, mut failed) = (0, 0);
+    let (mut passed, mut failed, mut wrong_input) = (0, 0, false);
     let mut report = String::new();
     for path in &files {
         let line =
@@ -394,6 +398,7 @@ pub fn run_folder(dir: &Path, opts: &Options) -> Result<Outcome> {
                 }
                 Err(e) => {
                     failed += 1;
+                    wrong_input = true;
                     format!("FAIL  {}  ({})", path.display(), e)
                 }
             };
@@ -403,7 +408,11 @@ pub fn run_folder(dir: &Path, opts: &Options) -> Result<Outcome> {
     report.push_str(&format!("{passed} passed, {failed} failed\n"));
     Ok(Outcome {
         report,
-        code: i32::from(failed > 0),
+        code: if wrong_input {
+            2
+        } else {
+            i32::from(failed > 0)
+        },
         edits: Vec::new(),
     })
 }
@@ -501,6 +510,8 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
     // Built on the first numeric statement, so files without one need no model.
     let mut session: Option<Session> = None;
     let (mut proved, mut away, mut confirmed, mut failed) = (0, 0, 0, 0);
+    // Statements marked `slip` that were refuted, as marked.
+    let mut caught = 0;
     let mut edits = Vec::new();
     for item in &program.items {
         let text = collapse(&source.text[item.span.start..item.span.end]);
@@ -534,10 +545,16 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
                 let away_only = matches!(v, crate::engine::Verdict::ProvedAway(_));
                 if let (false, true, Some(span)) = (ok, opts.accept, expect_span) {
                     // Record the normal form in the input syntax, which
-                    // parses back to the same expression.
+                    // parses back to the same expression, spelt and laid
+                    // out as the old one.
                     let s = engine.simplify(expr).map_err(at_item)?;
-                    let printer = crate::term::print::Printer::new(&program.ctx, Style::Unicode);
-                    edits.push((*span, printer.term(&s.term)));
+                    let old = &source.text[span.start..span.end];
+                    let statement = &source.text[item.span.start..item.span.end];
+                    let around = [statement, source.text.as_str()];
+                    let new = crate::accept::in_layout_of(old, &around, |style| {
+                        crate::term::print::Printer::new(&program.ctx, style).term(&s.term)
+                    });
+                    edits.push((*span, new));
                 }
                 if away_only {
                     away += 1
@@ -547,15 +564,27 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
                     failed += 1
                 }
             }
-            (ItemKind::Claim { lhs, rhs }, Mode::Check) => {
+            (ItemKind::Claim { lhs, rhs, slip }, Mode::Check) => {
                 let v = engine.check(lhs, rhs).map_err(at_item)?;
+                let input = text.strip_prefix("slip ").unwrap_or(&text);
                 let ok = reporter.verdict(
                     item.line,
                     "claim",
-                    text.strip_prefix("claim ").unwrap_or(&text),
+                    input.strip_prefix("claim ").unwrap_or(input),
                     &v,
                 );
-                if matches!(v, crate::engine::Verdict::ProvedAway(_)) {
+                if *slip {
+                    // Caught only when refuted: a search stopped on a limit
+                    // catches nothing.
+                    let refuted =
+                        matches!(&v, crate::engine::Verdict::NotProved(s) if s.stop.is_saturated());
+                    reporter.slip(refuted, ok);
+                    if refuted {
+                        caught += 1
+                    } else {
+                        failed += 1
+                    }
+                } else if matches!(v, crate::engine::Verdict::ProvedAway(_)) {
                     away += 1
                 } else if ok {
                     proved += 1
@@ -570,6 +599,7 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
                     start,
                     steps,
                     free,
+                    slip,
                 },
                 _,
             ) => {
@@ -637,7 +667,25 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
                 }
                 let (ok, pointwise, numerically, bad) =
                     reporter.derivation(item.line, name, start, &report);
-                if mode == Mode::Check {
+                if *slip && mode == Mode::Check {
+                    // Caught when some step is refuted and none is left
+                    // open by a limit.
+                    let refuted = report
+                        .iter()
+                        .any(|r| matches!(r.verdict, crate::derive::StepVerdict::Refuted { .. }));
+                    let open = report
+                        .iter()
+                        .any(|r| matches!(r.verdict, crate::derive::StepVerdict::Unknown { .. }));
+                    reporter.slip(refuted && !open, bad == 0);
+                    proved += ok;
+                    away += pointwise;
+                    confirmed += numerically;
+                    if refuted && !open {
+                        caught += bad;
+                    } else {
+                        failed += bad.max(1);
+                    }
+                } else if mode == Mode::Check {
                     proved += ok;
                     away += pointwise;
                     confirmed += numerically;
@@ -681,8 +729,10 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
                     }
                 };
                 let written = match output {
-                    Some(stem) => Some(write_scan(&scan, base, stem, &title).map_err(at_item)?),
-                    None => None,
+                    Some(stem) if !opts.keep_scan_files => {
+                        Some(write_scan(&scan, base, stem, &title).map_err(at_item)?)
+                    }
+                    _ => None,
                 };
                 reporter.scanned(item.line, input, &scan, written.as_deref());
             }
@@ -772,7 +822,7 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
         }
     }
     if mode == Mode::Check {
-        reporter.summary(proved, away, confirmed, failed);
+        reporter.summary(proved, away, confirmed, caught, failed);
     }
     Ok(Outcome {
         report: reporter.finish(),

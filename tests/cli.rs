@@ -31,10 +31,39 @@ fn help_texts() {
         &["--help"][..],
         &["simplify", "--help"],
         &["check", "--help"],
+        &["test", "--help"],
+        &["help", "language"],
     ] {
         let (code, stdout, _) = wardsmith(args);
         assert_eq!(code, 0);
         insta::assert_snapshot!(format!("help-{}", args.join("-")), stdout);
+    }
+}
+
+#[test]
+fn check_help_names_every_statement_and_test_help_a_folder() {
+    let (_, check, _) = wardsmith(&["check", "--help"]);
+    let flat = check.split_whitespace().collect::<Vec<_>>().join(" ");
+    for entry in wardsmith::help::STATEMENTS {
+        assert!(
+            flat.contains(&format!(" {},", entry.keyword))
+                || flat.contains(&format!(" {}.", entry.keyword)),
+            "`check --help` does not name `{}`:\n{check}",
+            entry.keyword
+        );
+    }
+    let (_, test, _) = wardsmith(&["test", "--help"]);
+    assert!(test.contains("<FOLDER>"), "{test}");
+    assert!(!test.contains("The .ward file"), "{test}");
+    // The convention the wall rules rely on is stated where people look.
+    assert!(
+        check.contains("∂_n at a\nboundary point is zero"),
+        "{check}"
+    );
+    let (code, page, _) = wardsmith(&["help", "language"]);
+    assert_eq!(code, 0);
+    for entry in wardsmith::help::STATEMENTS {
+        assert!(page.contains(entry.example), "{page}");
     }
 }
 
@@ -142,6 +171,16 @@ fn test_runs_every_file_of_a_folder() {
         "{stdout}"
     );
     assert!(stdout.ends_with("1 passed, 1 failed\n"), "{stdout}");
+
+    // A file with an input error makes the exit code 2, as `check` does.
+    std::fs::write(dir.join("typo.ward"), "dimension 3\nscalr O dim 1\n").expect("write");
+    let (code, stdout, _) = wardsmith(&["test", dir.to_str().expect("utf-8 path")]);
+    assert_eq!(code, 2, "{stdout}");
+    assert!(
+        stdout.contains("typo.ward") && stdout.contains("did you mean `scalar`?"),
+        "{stdout}"
+    );
+    assert!(stdout.ends_with("1 passed, 2 failed\n"), "{stdout}");
 }
 
 #[test]
@@ -369,9 +408,74 @@ fn accept_rewrites_only_the_expected_results_that_fail() {
         .collect();
     assert_eq!(broken.lines().count(), accepted.lines().count());
     assert_eq!(changed.len(), 1, "{accepted}");
-    // The same normal form as the hand-written line, in the printed syntax.
-    let written = expect_line.trim().replace('<', "⟨").replace('>', "⟩");
+    // The same normal form as the hand-written line, with its brackets:
+    // the file writes correlators `<…>`.
+    let written = expect_line.trim();
     assert_eq!(changed[0].1, format!("  {written}   # to be filled in"));
     assert_eq!(wardsmith(&["test", folder]).0, 0);
     assert!(!dir.join("bulk-ward.ward.partial").exists());
+}
+
+#[test]
+fn accept_keeps_the_layout_and_brackets_of_the_expect_it_replaces() {
+    let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("accept-layout");
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).expect("scratch dir");
+    // The trace identity (ward-trace, docs/conventions.md §2) with the
+    // second contact term written at the wrong point, over two lines, and
+    // once more on one line in ASCII.
+    let file = dir.join("trace.ward");
+    std::fs::write(
+        &file,
+        "dimension d\nscalar O dim Delta\npoints x x1 x2\n\n\
+         simplify <T[mu,mu](x) O(x1) O(x2)>\n\
+         \x20 expect - Delta δ(x - x1) <O(x1) O(x2)>\n\
+         \x20        - Delta δ(x - x1) <O(x1) O(x2)>   # the slip\n\
+         simplify del[mu](x) <T[mu,nu](x) O(x1)>\n\
+         \x20 expect 0\n",
+    )
+    .expect("write");
+    let folder = dir.to_str().expect("utf-8 path");
+    let (code, stdout, stderr) = wardsmith(&["test", "--accept", folder]);
+    assert_eq!(code, 0, "{stdout}{stderr}");
+    let accepted = std::fs::read_to_string(&file).expect("read");
+    assert_eq!(
+        accepted,
+        "dimension d\nscalar O dim Delta\npoints x x1 x2\n\n\
+         simplify <T[mu,mu](x) O(x1) O(x2)>\n\
+         \x20 expect - Delta δ(x - x1) <O(x1) O(x2)>\n\
+         \x20        - Delta δ(x - x2) <O(x1) O(x2)>   # the slip\n\
+         simplify del[mu](x) <T[mu,nu](x) O(x1)>\n\
+         \x20 expect - delta(x - x1) del[nu](x1) <O(x1)>\n"
+    );
+}
+
+#[test]
+fn test_leaves_scan_files_alone_unless_asked() {
+    let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("test-scans");
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).expect("scratch dir");
+    std::fs::write(
+        dir.join("s.ward"),
+        "dimension 3\nscalar O dim Delta\npoints x1 x2\nplace x1 at (0, 0, 1)\nplace x2 at (0, 1, 1)\n\
+         model conformal\ncoefficient <O O> = 1\nvalues Delta = 1\n\
+         scan Delta from 1 to 2 steps 3: <O(x1) O(x2)> = <O(x1) O(x2)> into \"plot\"\n",
+    )
+    .expect("write");
+    std::fs::write(dir.join("plot.csv"), "kept\n").expect("write");
+    let folder = dir.to_str().expect("utf-8 path");
+    let (code, stdout, stderr) = wardsmith(&["test", folder]);
+    assert_eq!(code, 0, "{stdout}{stderr}");
+    assert_eq!(
+        std::fs::read_to_string(dir.join("plot.csv")).expect("read"),
+        "kept\n"
+    );
+    assert!(!dir.join("plot.svg").exists());
+    let (code, stdout, stderr) = wardsmith(&["test", "--write-scans", folder]);
+    assert_eq!(code, 0, "{stdout}{stderr}");
+    assert_ne!(
+        std::fs::read_to_string(dir.join("plot.csv")).expect("read"),
+        "kept\n"
+    );
+    assert!(dir.join("plot.svg").exists());
 }

@@ -36,7 +36,7 @@ fn claims(text: &str) -> Vec<Found> {
         .items
         .iter()
         .filter_map(|item| match &item.kind {
-            ItemKind::Claim { lhs, rhs } => Some(
+            ItemKind::Claim { lhs, rhs, .. } => Some(
                 match engine
                     .check(lhs, rhs)
                     .unwrap_or_else(|e| panic!("{}", e.render()))

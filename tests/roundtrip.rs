@@ -71,7 +71,7 @@ fn check_file(path: &str) {
             ItemKind::Simplify { expr, expect, .. } => {
                 std::iter::once(expr).chain(expect).collect()
             }
-            ItemKind::Claim { lhs, rhs }
+            ItemKind::Claim { lhs, rhs, .. }
             | ItemKind::Compare { lhs, rhs, .. }
             | ItemKind::Solve { lhs, rhs, .. }
             | ItemKind::Scan { lhs, rhs, .. } => vec![lhs, rhs],

@@ -69,8 +69,8 @@ pub enum ItemKind {
         expect: Option<Term>,
         expect_span: Option<Span>,
     },
-    /// `claim L = R`.
-    Claim { lhs: Term, rhs: Term },
+    /// `claim L = R`; `slip`: marked as a slip, expected to be refuted.
+    Claim { lhs: Term, rhs: Term, slip: bool },
     /// `evaluate E`: numeric values in the file's model, one per value of
     /// the free indices.
     Evaluate { expr: Term, free: Vec<String> },
@@ -118,6 +118,8 @@ pub enum ItemKind {
         steps: Vec<Step>,
         /// Free indices shared by every step, for numeric checks.
         free: Vec<String>,
+        /// Marked `slip`: some step is expected to be refuted.
+        slip: bool,
     },
     /// `solve a from L = R`.
     Solve {
@@ -181,7 +183,12 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                     line: source.line(span.start),
                 });
             }
-            Stmt::Claim { lhs, rhs, span } => {
+            Stmt::Claim {
+                lhs,
+                rhs,
+                slip,
+                span,
+            } => {
                 seen_expression = true;
                 // `L = 0` and `0 = R` hold for tensors of any index structure.
                 if !is_zero(lhs) {
@@ -196,6 +203,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                     kind: ItemKind::Claim {
                         lhs: lowerer.expr(lhs)?,
                         rhs: lowerer.expr(rhs)?,
+                        slip: *slip,
                     },
                     span: *span,
                     line: source.line(span.start),
@@ -419,6 +427,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                 name,
                 start,
                 steps,
+                slip,
                 span,
             } => {
                 seen_expression = true;
@@ -442,6 +451,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         start: lowerer.expr(start)?,
                         steps: lowered,
                         free: profile.into_iter().collect(),
+                        slip: *slip,
                     },
                     span: *span,
                     line: source.line(span.start),

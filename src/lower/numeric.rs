@@ -200,14 +200,37 @@ impl Lowerer {
                 || self.ctx.params.contains_key(&name.text)
                 || name.text == crate::context::DIMENSION;
             if !known {
-                return Err(self
+                let n = &name.text;
+                let what = if self.ctx.operators.contains_key(n) {
+                    Some("an operator")
+                } else if self.ctx.points.iter().any(|p| &p.name == n) {
+                    Some("a point (its coordinates are given with `place … at (…)`)")
+                } else if self.ctx.functions.contains(n) {
+                    Some("a function")
+                } else if self.ctx.killing.contains_key(n) {
+                    Some("a Killing vector (values go to its parameter)")
+                } else {
+                    None
+                };
+                let mut e = self
                     .err(
                         ErrorKind::Name,
                         name.span,
-                        format!("`{}` is not a parameter", name.text),
+                        format!("`{n}` is not a parameter"),
                     )
-                    .with_label("no such parameter")
-                    .with_note("values are given to parameters, e.g. `values Delta = 1.3`"));
+                    .with_label("no such parameter");
+                e = match what {
+                    Some(what) => e.with_note(format!("`{n}` is declared as {what}")),
+                    None if exprs.len() > 1 => e.with_note(format!(
+                        "`{n}` is not declared; a vector of values belongs to the parameter of a \
+                         Killing vector: declare `killing eps translation {n}` (or `special {n}`) first"
+                    )),
+                    None => e.with_note(format!(
+                        "`{n}` is not declared: add `parameters {n}` before this line, or name it \
+                         in an operator's dimension (`scalar O dim {n}`)"
+                    )),
+                };
+                return Err(e);
             }
             let mut components = Vec::with_capacity(exprs.len());
             for e in exprs {

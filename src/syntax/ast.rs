@@ -290,6 +290,8 @@ pub enum Stmt {
     Claim {
         lhs: Expr,
         rhs: Expr,
+        /// Marked `slip`: expected to be refuted.
+        slip: bool,
         span: Span,
     },
     /// `function F G`: unknown functions of one variable.
@@ -375,6 +377,8 @@ pub enum Stmt {
         name: Name,
         start: Expr,
         steps: Vec<(Expr, Vec<Name>)>,
+        /// Marked `slip`: some step is expected to be refuted.
+        slip: bool,
         span: Span,
     },
     /// `sample N seed S`: N sets of seeded random positions.

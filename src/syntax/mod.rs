@@ -98,12 +98,16 @@ fn parse_rule<'i>(
             pest::set_error_detail(true);
             let detailed = WardParser::parse(start, &source.text).err();
             pest::set_error_detail(false);
-            Err(syntax_error(source, detailed.unwrap_or(plain)))
+            let ward = start != Rule::rule_file;
+            Err(syntax_error(source, detailed.unwrap_or(plain), ward))
         }
     }
 }
 
-fn syntax_error(source: &Arc<Source>, e: pest::error::Error<Rule>) -> Error {
+/// The error for text that does not follow the grammar; `ward` for a
+/// `.ward` file (or a lone expression), whose expected tokens never name
+/// the pattern forms of rule files.
+fn syntax_error(source: &Arc<Source>, e: pest::error::Error<Rule>, ward: bool) -> Error {
     let text = source.text.as_str();
     let classic = match e.location {
         pest::error::InputLocation::Pos(p) => p,
@@ -149,7 +153,7 @@ fn syntax_error(source: &Arc<Source>, e: pest::error::Error<Rule>) -> Error {
                 .collect();
             (!expected.is_empty()).then_some((a.max_position, expected, rules))
         });
-    let (offset, expected, rules) = farthest.unwrap_or_else(|| {
+    let (offset, mut expected, rules) = farthest.unwrap_or_else(|| {
         let mut expected: Vec<String> = positives
             .iter()
             .filter_map(|r| describe(*r))
@@ -162,7 +166,18 @@ fn syntax_error(source: &Arc<Source>, e: pest::error::Error<Rule>) -> Error {
         expected.dedup();
         (classic, expected, positives.clone())
     });
+    if ward {
+        expected.retain(|w| !RULE_FILE_ONLY.contains(&w.as_str()));
+    }
     let (found, end) = found_at(text, offset);
+    if ward {
+        if let Some(error) = misspelt_keyword(source, offset) {
+            return error;
+        }
+        if let Some(error) = unclosed_bracket(source, offset, end) {
+            return error;
+        }
+    }
     let stray_expression =
         at_statement_start(&rules) && EXPRESSION_WORDS.contains(&&text[offset..end]);
     let message = if expected.is_empty() {
@@ -174,6 +189,18 @@ fn syntax_error(source: &Arc<Source>, e: pest::error::Error<Rule>) -> Error {
         .with_label("not expected here");
     for note in hints(&rules) {
         error = error.with_note(note);
+    }
+    let before = &text[..offset];
+    if text[offset..].starts_with('_') {
+        if before.ends_with('∂') || before.ends_with("del") {
+            error = error.with_note(
+                "a derivative is written with its index in brackets and the point it acts on: `∂[mu](x) <…>` (ASCII `del[mu](x)`), not `∂_mu`",
+            );
+        } else if before.ends_with('δ') || before.ends_with("delta") {
+            error = error.with_note(
+                "the Kronecker delta is written `δ[mu,nu]`, a δ-function `δ(x - x1)` (ASCII `delta`)",
+            );
+        }
     }
     if stray_expression {
         error = error.with_note(
@@ -202,6 +229,127 @@ const STATEMENT_RULES: &[Rule] = &[
     Rule::place_stmt,
     Rule::derivation_stmt,
 ];
+
+/// Expected tokens that belong to rule files only (pattern variables,
+/// splices, sums over insertions): never offered in a `.ward` file.
+const RULE_FILE_ONLY: &[&str] = &["`...`", "`?`", "`sum`", "a rule variable like `?x`"];
+
+/// A word that starts a line, is no keyword, and is one or two letters from
+/// a statement keyword (`scalr O dim 1`), on the line of the error or on a
+/// line above it back to the last line that starts with a keyword: the
+/// parser read it as a name and stopped later, so the error says what it
+/// probably is.
+fn misspelt_keyword(source: &Arc<Source>, offset: usize) -> Option<Error> {
+    let text = source.text.as_str();
+    let mut start = text[..offset].rfind('\n').map_or(0, |i| i + 1);
+    loop {
+        let line = &text[start..];
+        let indent = line.len() - line.trim_start_matches([' ', '\t']).len();
+        let word_start = start + indent;
+        let word_len = text[word_start..]
+            .find(|c: char| !is_ident_char(c))
+            .unwrap_or(text.len() - word_start);
+        let word = &text[word_start..word_start + word_len];
+        if STATEMENT_STARTS.contains(&word) {
+            return None;
+        }
+        let allowed = if word.chars().count() <= 5 { 1 } else { 2 };
+        let nearest = (word.chars().count() >= 3)
+            .then(|| {
+                STATEMENT_STARTS
+                    .iter()
+                    .map(|k| (crate::derive::edit_distance(word, k), *k))
+                    .filter(|(d, _)| *d <= allowed)
+                    .min()
+            })
+            .flatten();
+        if let Some((_, keyword)) = nearest {
+            let (line, col) = source.line_col(offset);
+            return Some(
+                Error::at(
+                    ErrorKind::Syntax,
+                    source,
+                    Span::new(word_start, word_start + word.len()),
+                    format!("`{word}` is not a statement; did you mean `{keyword}`?"),
+                )
+                .with_label(format!("did you mean `{keyword}`?"))
+                .with_note(format!(
+                    "read as a name, `{word}` made this line part of the statement before, and the parser stopped at line {line}, column {col}"
+                )),
+            );
+        }
+        if start == 0 {
+            return None;
+        }
+        start = text[..start - 1].rfind('\n').map_or(0, |i| i + 1);
+    }
+}
+
+/// A bracket (`<`, `⟨`, `{`, `(`) still open where the parser met the next
+/// statement or the end of the file: the error is reported at the opener,
+/// where the fix goes, with the place the parser stopped underlined too.
+fn unclosed_bracket(source: &Arc<Source>, offset: usize, end: usize) -> Option<Error> {
+    let text = source.text.as_str();
+    let rest = &text[offset..end];
+    if !(rest.is_empty() || STATEMENT_STARTS.contains(&rest)) {
+        return None;
+    }
+    let mut open: Vec<(usize, char)> = Vec::new();
+    let mut chars = text[..offset].char_indices();
+    while let Some((i, c)) = chars.next() {
+        match c {
+            '#' => {
+                for (_, c) in chars.by_ref() {
+                    if c == '\n' {
+                        break;
+                    }
+                }
+            }
+            '"' => {
+                for (_, c) in chars.by_ref() {
+                    if c == '"' || c == '\n' {
+                        break;
+                    }
+                }
+            }
+            '<' | '⟨' | '{' | '(' => open.push((i, c)),
+            '>' | '⟩' | '}' | ')' => {
+                let opener = match c {
+                    '>' | '⟩' => ['<', '⟨'],
+                    '}' => ['{', '{'],
+                    _ => ['(', '('],
+                };
+                if open.last().is_some_and(|(_, o)| opener.contains(o)) {
+                    open.pop();
+                }
+            }
+            _ => {}
+        }
+    }
+    let (at, c) = *open.last()?;
+    let (what, close) = match c {
+        '<' => ("correlator", ">"),
+        '⟨' => ("correlator", "⟩"),
+        '{' => ("body", "}"),
+        _ => ("bracket", ")"),
+    };
+    let there = if rest.is_empty() {
+        "the file ends here".to_string()
+    } else {
+        format!("the next statement, `{rest}`, starts here")
+    };
+    Some(
+        Error::at(
+            ErrorKind::Syntax,
+            source,
+            Span::new(at, at + c.len_utf8()),
+            format!("this {what} is never closed: `{close}` is missing"),
+        )
+        .with_label(format!("`{c}` opened here"))
+        .with_secondary(Span::new(offset, end), there)
+        .with_note(format!("close it with `{close}` where the {what} ends")),
+    )
+}
 
 /// Tokens that start an expression but never a statement.
 const EXPRESSION_WORDS: &[&str] = &[
@@ -328,7 +476,7 @@ const OPERAND_STARTS: &[&str] = &[
     "int", "∮", "oint", "par",
 ];
 /// Keywords that start a statement of a `.ward` file.
-const STATEMENT_STARTS: &[&str] = &[
+pub(crate) const STATEMENT_STARTS: &[&str] = &[
     "dimension",
     "halfspace",
     "boundary",
@@ -357,6 +505,7 @@ const STATEMENT_STARTS: &[&str] = &[
     "scan",
     "decompose",
     "derivation",
+    "slip",
 ];
 /// Infix operators.
 const INFIX: &[&str] = &["+", "-", "*", "/", "^"];
@@ -775,6 +924,7 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
             }
         }
         Rule::derivation_stmt => {
+            let slip = inner.next_if(|p| p.as_rule() == Rule::slip_kw).is_some();
             let name = parse_name(next(&mut inner));
             let start = build_expr(source, next(&mut inner), 0)?;
             let mut steps = Vec::new();
@@ -787,6 +937,7 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                 name,
                 start,
                 steps,
+                slip,
                 span,
             }
         }
@@ -821,9 +972,15 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
             }
         }
         Rule::claim_stmt => {
+            let slip = inner.next_if(|p| p.as_rule() == Rule::slip_kw).is_some();
             let lhs = build_expr(source, next(&mut inner), 0)?;
             let rhs = build_expr(source, next(&mut inner), 0)?;
-            Stmt::Claim { lhs, rhs, span }
+            Stmt::Claim {
+                lhs,
+                rhs,
+                slip,
+                span,
+            }
         }
         other => unreachable_rule(other),
     })
@@ -1015,17 +1172,20 @@ fn parse_primary(source: &Arc<Source>, pair: Pair<Rule>, depth: usize) -> Result
             return build_expr(source, pair.into_inner().next().expect("body"), depth);
         }
         Rule::expr => return build_expr(source, pair, depth),
-        Rule::corr => ExprKind::Corr(
-            pair.into_inner()
-                .filter(|p| p.as_rule() != Rule::corr_close)
-                .map(|p| match p.as_rule() {
-                    Rule::splice => {
-                        Insertion::Splice(parse_name(p.into_inner().next().expect("var")))
-                    }
-                    _ => Insertion::Op(parse_op(p)),
-                })
-                .collect(),
-        ),
+        Rule::corr => {
+            mixed_brackets(source, &pair)?;
+            ExprKind::Corr(
+                pair.into_inner()
+                    .filter(|p| p.as_rule() != Rule::corr_close)
+                    .map(|p| match p.as_rule() {
+                        Rule::splice => {
+                            Insertion::Splice(parse_name(p.into_inner().next().expect("var")))
+                        }
+                        _ => Insertion::Op(parse_op(p)),
+                    })
+                    .collect(),
+            )
+        }
         Rule::op => ExprKind::Op(parse_op(pair)),
         Rule::distance => {
             let mut inner = pair.into_inner();
@@ -1155,6 +1315,45 @@ fn parse_primary(source: &Arc<Source>, pair: Pair<Rule>, depth: usize) -> Result
     Ok(Expr { kind, span })
 }
 
+/// A correlator opened with `<` and closed with `⟩`, or the other way: an
+/// error, so that a file keeps to one spelling and a stray `>` is not
+/// taken for the end of a `⟨`.
+fn mixed_brackets(source: &Arc<Source>, pair: &Pair<Rule>) -> Result<()> {
+    let opener = pair.as_str().chars().next();
+    let Some(close) = pair
+        .clone()
+        .into_inner()
+        .find(|p| p.as_rule() == Rule::corr_close)
+    else {
+        return Ok(());
+    };
+    let want = match opener {
+        Some('<') => ">",
+        Some('⟨') => "⟩",
+        _ => return Ok(()),
+    };
+    if close.as_str() == want {
+        return Ok(());
+    }
+    let start = pair.as_span().start();
+    Err(Error::at(
+        ErrorKind::Syntax,
+        source,
+        span_of(&close),
+        format!(
+            "a correlator opened with `{}` is closed with `{}`",
+            opener.unwrap_or('<'),
+            close.as_str()
+        ),
+    )
+    .with_label(format!("expected `{want}`"))
+    .with_secondary(
+        Span::new(start, start + opener.map_or(1, char::len_utf8)),
+        "opened here",
+    )
+    .with_note("write `<…>` or `⟨…⟩`: the two spellings do not mix"))
+}
+
 fn parse_region(source: &Arc<Source>, pair: Pair<Rule>, depth: usize) -> Result<RegionRef> {
     let span = span_of(&pair);
     let inner = pair
@@ -1229,7 +1428,13 @@ fn parse_op(pair: Pair<Rule>) -> OpRef {
     let mut inner = pair
         .into_inner()
         .flat_map(|p| match p.as_rule() {
-            Rule::op_tail => p.into_inner().collect::<Vec<_>>(),
+            Rule::op_tail => p
+                .into_inner()
+                .flat_map(|q| match q.as_rule() {
+                    Rule::op_at => q.into_inner().collect::<Vec<_>>(),
+                    _ => vec![q],
+                })
+                .collect::<Vec<_>>(),
             _ => vec![p],
         })
         .peekable();
@@ -1282,10 +1487,15 @@ fn parse_name(pair: Pair<Rule>) -> Name {
     }
 }
 
-/// Reads `12` or `1.25` exactly; at most [`MAX_DIGITS`] digits.
+/// Reads `12`, `1.25` or `1.59e-1` exactly; at most [`MAX_DIGITS`] digits
+/// and a power of ten at most [`MAX_DIGITS`] either way.
 fn parse_number(source: &Arc<Source>, span: Span) -> Result<BigRational> {
     let text = &source.text[span.start..span.end];
-    let digits = text.len() - usize::from(text.contains('.'));
+    let (mantissa, exponent) = match text.find(['e', 'E']) {
+        Some(i) => (&text[..i], Some(&text[i + 1..])),
+        None => (text, None),
+    };
+    let digits = mantissa.len() - usize::from(mantissa.contains('.'));
     if digits > MAX_DIGITS {
         return Err(Error::at(
             ErrorKind::Limit,
@@ -1295,15 +1505,38 @@ fn parse_number(source: &Arc<Source>, span: Span) -> Result<BigRational> {
         )
         .with_label("this number"));
     }
-    Ok(match text.split_once('.') {
-        None => BigRational::from_integer(BigInt::from_str(text).unwrap_or_default()),
+    let mut value = match mantissa.split_once('.') {
+        None => BigRational::from_integer(BigInt::from_str(mantissa).unwrap_or_default()),
         Some((int, frac)) => {
             let digits = format!("{int}{frac}");
             let numer = BigInt::from_str(&digits).unwrap_or_default();
             let denom = num_traits::pow(BigInt::from(10), frac.len());
             BigRational::new(numer, denom)
         }
-    })
+    };
+    if let Some(exponent) = exponent {
+        let power = exponent
+            .trim_start_matches('+')
+            .parse::<i64>()
+            .ok()
+            .filter(|p| p.unsigned_abs() <= MAX_DIGITS as u64);
+        let Some(power) = power else {
+            return Err(Error::at(
+                ErrorKind::Limit,
+                source,
+                span,
+                format!("power of ten too large: {exponent} (limit ±{MAX_DIGITS})"),
+            )
+            .with_label("this number"));
+        };
+        let scale = num_traits::pow(BigInt::from(10), power.unsigned_abs() as usize);
+        value = if power >= 0 {
+            value * BigRational::from_integer(scale)
+        } else {
+            value / BigRational::from_integer(scale)
+        };
+    }
+    Ok(value)
 }
 
 fn next<'i>(inner: &mut impl Iterator<Item = Pair<'i, Rule>>) -> Pair<'i, Rule> {

@@ -129,6 +129,15 @@ impl<'a> Printer<'a> {
             }
         }
         if !denom.is_empty() {
+            // `1/(2 y)`, not `1/2/y`: the denominator of a fraction joins
+            // the others below the line.
+            if let Some(Term::Num(c)) = numer.first() {
+                if !c.is_integer() {
+                    let (p, q) = (c.numer().clone(), c.denom().clone());
+                    numer[0] = Term::Num(BigRational::from_integer(p));
+                    denom.insert(0, Term::Num(BigRational::from_integer(q)));
+                }
+            }
             // `|x|^2/4`, not `1 |x|^2/4`.
             if numer.len() > 1 && matches!(numer.first(), Some(Term::Num(c)) if c.is_one()) {
                 numer.remove(0);
@@ -147,9 +156,30 @@ impl<'a> Printer<'a> {
             sep(out);
             self.factor(f, out);
         }
-        for f in &denom {
-            out.push('/');
-            self.factor(f, out);
+        // One `/`: a product below the line is bracketed, `/(2 g y^2)`;
+        // but not one with a sum, which would read back as the inverse of
+        // the expanded product: `/(g + 1)/(g - 1)` stays a chain.
+        let has_sum = denom.iter().any(|f| {
+            matches!(f, Term::Add(_)) || matches!(f, Term::Pow(b, _) if matches!(**b, Term::Add(_)))
+        });
+        match denom.len() {
+            0 => {}
+            _ if denom.len() == 1 || has_sum => {
+                for f in &denom {
+                    out.push('/');
+                    self.factor(f, out);
+                }
+            }
+            _ => {
+                out.push_str("/(");
+                for (k, f) in denom.iter().enumerate() {
+                    if k > 0 {
+                        out.push(' ');
+                    }
+                    self.factor(f, out);
+                }
+                out.push(')');
+            }
         }
         for f in rest {
             sep(out);
