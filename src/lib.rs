@@ -16,6 +16,7 @@ pub mod diagnostic;
 pub mod egraph;
 pub mod engine;
 pub mod files;
+pub mod jobs;
 pub mod lower;
 pub mod normal;
 pub mod numeric;
