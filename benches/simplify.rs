@@ -61,6 +61,23 @@ fn simplify_divergence(bencher: divan::Bencher, n: usize) {
     });
 }
 
+/// 128 insertions, in each output form: at this size printing the report
+/// is a large part of the run, so only the form asked for is built.
+#[divan::bench(args = ["text", "json", "latex"], sample_count = 5, sample_size = 1)]
+fn simplify_divergence_128(bencher: divan::Bencher, form: &str) {
+    let source = Source::new("bench.ward", file(128));
+    let opts = Options {
+        json: form == "json",
+        style: if form == "latex" {
+            wardsmith::term::print::Style::Latex
+        } else {
+            wardsmith::term::print::Style::Unicode
+        },
+        ..Options::default()
+    };
+    bencher.bench(|| run_source(&source, Path::new("."), Mode::Simplify, &opts).expect("valid"));
+}
+
 /// The special conformal Ward identity on the scalar three-point function
 /// with symbolic dimensions in d = 4 (tests/cases/integrated/three-point-special.ward).
 const SPECIAL: &str = "dimension 4

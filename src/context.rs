@@ -102,7 +102,11 @@ pub struct Context {
     pub halfspace: Option<String>,
     pub operators: BTreeMap<String, OperatorDecl>,
     /// Points in declaration order; a point's rank is its position here.
+    /// Add them with [`Context::add_point`], which indexes them by name.
     pub points: Vec<PointDecl>,
+    /// Rank of each point by name, so that a lookup does not search
+    /// `points` (a file may have a hundred points).
+    pub point_ranks: std::collections::HashMap<String, u32>,
     pub parameters: BTreeSet<String>,
     /// Parameters declared positive (`positive r`).
     pub positive: BTreeSet<String>,
@@ -142,7 +146,21 @@ impl Context {
         self.halfspace.as_deref().unwrap_or("y")
     }
 
+    /// Declares a point after the others.
+    pub fn add_point(&mut self, decl: PointDecl) {
+        self.point_ranks
+            .insert(decl.name.clone(), self.points.len() as u32);
+        self.points.push(decl);
+    }
+
+    /// A declared point's rank and declaration, by name.
     pub fn point(&self, name: &str) -> Option<(u32, &PointDecl)> {
+        if let Some(&rank) = self.point_ranks.get(name) {
+            if let Some(p) = self.points.get(rank as usize).filter(|p| p.name == name) {
+                return Some((rank, p));
+            }
+        }
+        // Points pushed without the index.
         self.points
             .iter()
             .enumerate()
@@ -164,7 +182,14 @@ impl Context {
 
     /// True if the point lies on the boundary (declared there, or a `par(x)`).
     pub fn is_boundary_point(&self, p: &Point) -> bool {
-        p.par || self.point(&p.name).is_some_and(|(_, d)| d.boundary)
+        if p.par {
+            return true;
+        }
+        // By rank first: a term's point carries its declaration's place.
+        match self.points.get(p.rank as usize) {
+            Some(d) if *d.name == *p.name => d.boundary,
+            _ => self.point(&p.name).is_some_and(|(_, d)| d.boundary),
+        }
     }
 
     pub fn index_kind(&self, name: &str) -> IndexKind {

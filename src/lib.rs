@@ -18,6 +18,7 @@ pub mod egraph;
 pub mod engine;
 pub mod files;
 pub mod help;
+pub mod jobs;
 pub mod lower;
 pub mod normal;
 pub mod numeric;

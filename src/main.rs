@@ -92,6 +92,11 @@ struct FileArgs {
     /// Stop the e-graph after this many iterations.
     #[arg(long, value_name = "N", default_value_t = Limits::default().iterations)]
     iter_limit: usize,
+    /// Run on N threads: the files of `test`, the steps of a `scan`, the
+    /// configurations of `sample` [default: the cores available]. The output
+    /// is the same with any N.
+    #[arg(long, value_name = "N", value_parser = clap::value_parser!(u32).range(1..))]
+    jobs: Option<u32>,
 }
 
 fn main() -> ExitCode {
@@ -136,6 +141,9 @@ fn main() -> ExitCode {
         json: args.json,
         accept,
         keep_scan_files,
+        jobs: args
+            .jobs
+            .map_or_else(wardsmith::jobs::available, |n| n as usize),
     };
     let result = if folder {
         run_folder(&args.file, &opts)

@@ -94,9 +94,11 @@ fn abbreviate(text: &str, width: usize) -> String {
 /// Longest normal form printed on a single line.
 const LINE_WIDTH: usize = 100;
 
-/// Writes report lines for one file.
+/// Writes report lines for one file, in the one form asked for: text
+/// (Unicode, ASCII or LaTeX) or JSON. The other forms are never built.
 pub struct Reporter<'a> {
-    /// JSON objects, one per statement, when the output is JSON.
+    /// JSON objects, one per statement, when the output is JSON (then no
+    /// text is written).
     json: Option<Vec<String>>,
     latex: Printer<'a>,
     /// (proved, proved away from coincident points, confirmed numerically,
@@ -144,45 +146,57 @@ impl<'a> Reporter<'a> {
         }
     }
 
-    /// Records a JSON object for one statement (no-op for text output).
-    fn entry(&mut self, fields: &[(&str, String)]) {
+    /// True when the output is text (then no JSON is built).
+    fn text(&self) -> bool {
+        self.json.is_none()
+    }
+
+    /// Records a JSON object for one statement; `fields` is called only
+    /// when the output is JSON.
+    fn entry(&mut self, fields: impl FnOnce(&Self) -> Vec<(&'static str, String)>) {
+        if self.json.is_none() {
+            return;
+        }
+        let body: Vec<String> = fields(self)
+            .iter()
+            .map(|(k, v)| format!("{}: {v}", js(k)))
+            .collect();
         if let Some(entries) = &mut self.json {
-            let body: Vec<String> = fields
-                .iter()
-                .map(|(k, v)| format!("{}: {v}", js(k)))
-                .collect();
             entries.push(format!("{{{}}}", body.join(", ")));
         }
     }
 
     /// `line N: simplify` with the input and its normal form.
     pub fn simplified(&mut self, line: usize, input: &str, s: &Simplified) {
-        let _ = writeln!(self.out, "line {line}: simplify {input}");
-        let _ = writeln!(self.out, "  = {}", self.layout(&s.term, "    "));
-        if !s.caveats.is_empty() {
-            let _ = writeln!(
-                self.out,
-                "  (holds where {}: there, derivatives of explicit functions were taken pointwise)",
-                self.coincidences(&s.caveats).join(", ")
-            );
+        if self.text() {
+            let _ = writeln!(self.out, "line {line}: simplify {input}");
+            let _ = writeln!(self.out, "  = {}", self.layout(&s.term, "    "));
+            if !s.caveats.is_empty() {
+                let _ = writeln!(
+                    self.out,
+                    "  (holds where {}: there, derivatives of explicit functions were taken pointwise)",
+                    self.coincidences(&s.caveats).join(", ")
+                );
+            }
+            let _ = writeln!(self.out, "  [{}]", stats(s));
         }
-        let _ = writeln!(self.out, "  [{}]", stats(s));
-        let rules: Vec<String> = s
-            .applied
-            .iter()
-            .map(|(n, k)| format!("{}: {k}", js(n)))
-            .collect();
-        let fields = [
-            ("line", line.to_string()),
-            ("kind", js("simplify")),
-            ("input", js(input)),
-            ("result", js(&self.printer.term(&s.term))),
-            ("latex", js(&self.latex.term(&s.term))),
-            ("stop", js(&s.stop.describe())),
-            ("e_nodes", s.nodes.to_string()),
-            ("rules", format!("{{{}}}", rules.join(", "))),
-        ];
-        self.entry(&fields);
+        self.entry(|r| {
+            let rules: Vec<String> = s
+                .applied
+                .iter()
+                .map(|(n, k)| format!("{}: {k}", js(n)))
+                .collect();
+            vec![
+                ("line", line.to_string()),
+                ("kind", js("simplify")),
+                ("input", js(input)),
+                ("result", js(&r.printer.term(&s.term))),
+                ("latex", js(&r.latex.term(&s.term))),
+                ("stop", js(&s.stop.describe())),
+                ("e_nodes", s.nodes.to_string()),
+                ("rules", format!("{{{}}}", rules.join(", "))),
+            ]
+        });
     }
 
     /// Whether a conformal Killing vector is preserved by the boundary.
@@ -193,15 +207,19 @@ impl<'a> Reporter<'a> {
         family: &str,
         normal: &crate::term::Term,
     ) {
-        let fields = [
-            ("line", line.to_string()),
-            ("kind", js("classify")),
-            ("generator", js(name)),
-            ("family", js(family)),
-            ("preserved", normal.is_zero().to_string()),
-            ("normal_component", js(&self.printer.term(normal))),
-        ];
-        self.entry(&fields);
+        self.entry(|r| {
+            vec![
+                ("line", line.to_string()),
+                ("kind", js("classify")),
+                ("generator", js(name)),
+                ("family", js(family)),
+                ("preserved", normal.is_zero().to_string()),
+                ("normal_component", js(&r.printer.term(normal))),
+            ]
+        });
+        if !self.text() {
+            return;
+        }
         if normal.is_zero() {
             let _ = writeln!(
                 self.out,
@@ -224,22 +242,22 @@ impl<'a> Reporter<'a> {
             Verdict::NotProved(s) if s.stop.is_saturated() => ("not proved", s),
             Verdict::NotProved(s) => ("unknown", s),
         };
-        let away: Vec<String> = self
-            .coincidences(&s.caveats)
-            .iter()
-            .map(|c| js(c))
-            .collect();
-        let fields = [
-            ("line", line.to_string()),
-            ("kind", js(what)),
-            ("input", js(input)),
-            ("status", js(status)),
-            ("away_from", format!("[{}]", away.join(", "))),
-            ("remainder", js(&self.printer.term(&s.term))),
-            ("stop", js(&s.stop.describe())),
-            ("e_nodes", s.nodes.to_string()),
-        ];
-        self.entry(&fields);
+        self.entry(|r| {
+            let away: Vec<String> = r.coincidences(&s.caveats).iter().map(|c| js(c)).collect();
+            vec![
+                ("line", line.to_string()),
+                ("kind", js(what)),
+                ("input", js(input)),
+                ("status", js(status)),
+                ("away_from", format!("[{}]", away.join(", "))),
+                ("remainder", js(&r.printer.term(&s.term))),
+                ("stop", js(&s.stop.describe())),
+                ("e_nodes", s.nodes.to_string()),
+            ]
+        });
+        if !self.text() {
+            return !matches!(v, Verdict::NotProved(_));
+        }
         let input = abbreviate(input, INPUT_WIDTH);
         let input = input.as_str();
         match v {
@@ -539,7 +557,10 @@ impl<'a> Reporter<'a> {
         steps: &[crate::derive::StepReport],
     ) -> (usize, usize, usize, usize) {
         use crate::derive::StepVerdict;
-        let _ = writeln!(self.out, "line {line}: derivation {name}");
+        let text = self.text();
+        if text {
+            let _ = writeln!(self.out, "line {line}: derivation {name}");
+        }
         let (mut ok, mut pointwise, mut confirmed, mut bad) = (0, 0, 0, 0);
         let mut objects = Vec::new();
         for (k, step) in steps.iter().enumerate() {
@@ -587,21 +608,25 @@ impl<'a> Reporter<'a> {
                         );
                     }
                     if away.is_empty() {
-                        let _ = writeln!(
-                            self.out,
-                            "  step {} (line {}): proved by {by}{claimed}",
-                            k + 1,
-                            step.line
-                        );
+                        if text {
+                            let _ = writeln!(
+                                self.out,
+                                "  step {} (line {}): proved by {by}{claimed}",
+                                k + 1,
+                                step.line
+                            );
+                        }
                         ("proved", by)
                     } else {
-                        let _ = writeln!(
+                        if text {
+                            let _ = writeln!(
                             self.out,
                             "  step {} (line {}): proved away from coincident points ({}) by {by}{claimed}",
                             k + 1,
                             step.line,
                             self.coincidences(away).join(", ")
                         );
+                        }
                         ("proved away from coincident points", by)
                     }
                 }
@@ -618,35 +643,44 @@ impl<'a> Reporter<'a> {
                         StepVerdict::Unknown { .. } => ("unknown", "UNKNOWN: the e-graph "),
                         _ => ("not proved", "NOT PROVED: "),
                     };
-                    let _ = writeln!(
-                        self.out,
-                        "  step {} (line {}): {head}{why}{claimed}",
-                        k + 1,
-                        step.line
-                    );
-                    let _ = writeln!(
-                        self.out,
-                        "    step before minus this step: {}",
-                        self.layout_capped(remainder, "      ", REMAINDER_TERMS)
-                    );
+                    if text {
+                        let _ = writeln!(
+                            self.out,
+                            "  step {} (line {}): {head}{why}{claimed}",
+                            k + 1,
+                            step.line
+                        );
+                    }
+                    if text {
+                        let _ = writeln!(
+                            self.out,
+                            "    step before minus this step: {}",
+                            self.layout_capped(remainder, "      ", REMAINDER_TERMS)
+                        );
+                    }
                     (status, why.clone())
                 }
                 StepVerdict::Confirmed { samples } => {
                     confirmed += 1;
                     let by = format!("numerically on {samples} configuration(s) of the model");
-                    let _ = writeln!(
-                        self.out,
-                        "  step {} (line {}): confirmed {by}, not by the rules{claimed}",
-                        k + 1,
-                        step.line
-                    );
+                    if text {
+                        let _ = writeln!(
+                            self.out,
+                            "  step {} (line {}): confirmed {by}, not by the rules{claimed}",
+                            k + 1,
+                            step.line
+                        );
+                    }
                     ("confirmed", by)
                 }
             };
             if let Some(note) = &step.numeric {
-                let _ = writeln!(self.out, "    numerically: {note}");
+                if text {
+                    let _ = writeln!(self.out, "    numerically: {note}");
+                }
             }
-            objects.push(format!(
+            if !text {
+                objects.push(format!(
                 "{{\"step\": {}, \"line\": {}, \"status\": {}, \"detail\": {}, \"numeric\": {}}}",
                 k + 1,
                 step.line,
@@ -656,20 +690,25 @@ impl<'a> Reporter<'a> {
                     .as_deref()
                     .map_or_else(|| "null".to_string(), js)
             ));
+            }
         }
-        let _ = writeln!(
-            self.out,
-            "  {} of {} steps hold",
-            ok + pointwise + confirmed,
-            steps.len()
-        );
-        if self.printer.style == Style::Latex {
-            // The chain itself, ready to paste into a paper.
+        if text {
             let _ = writeln!(
                 self.out,
-                "\\begin{{align*}}\n  & {}",
-                self.latex.term(start)
+                "  {} of {} steps hold",
+                ok + pointwise + confirmed,
+                steps.len()
             );
+        }
+        if text && self.printer.style == Style::Latex {
+            // The chain itself, ready to paste into a paper.
+            if text {
+                let _ = writeln!(
+                    self.out,
+                    "\\begin{{align*}}\n  & {}",
+                    self.latex.term(start)
+                );
+            }
             for step in steps {
                 let mut note = step.claimed.join(", ");
                 let status = match &step.verdict {
@@ -690,17 +729,22 @@ impl<'a> Reporter<'a> {
                 } else {
                     format!(" && \\text{{{note}}}")
                 };
-                let _ = writeln!(self.out, "  \\\\ &= {}{note}", self.latex.term(&step.expr));
+                if text {
+                    let _ = writeln!(self.out, "  \\\\ &= {}{note}", self.latex.term(&step.expr));
+                }
             }
-            let _ = writeln!(self.out, "\\end{{align*}}");
+            if text {
+                let _ = writeln!(self.out, "\\end{{align*}}");
+            }
         }
-        let fields = [
-            ("line", line.to_string()),
-            ("kind", js("derivation")),
-            ("name", js(name)),
-            ("steps", format!("[{}]", objects.join(", "))),
-        ];
-        self.entry(&fields);
+        self.entry(|_| {
+            vec![
+                ("line", line.to_string()),
+                ("kind", js("derivation")),
+                ("name", js(name)),
+                ("steps", format!("[{}]", objects.join(", "))),
+            ]
+        });
         (ok, pointwise, confirmed, bad)
     }
 
@@ -723,18 +767,22 @@ impl<'a> Reporter<'a> {
 
     /// `line N: evaluate` with one value per component.
     pub fn evaluated(&mut self, line: usize, input: &str, e: &Evaluation) {
-        let v: Vec<String> = e
-            .components
-            .iter()
-            .map(|(_, v)| json_number(v.value))
-            .collect();
-        let fields = [
-            ("line", line.to_string()),
-            ("kind", js("evaluate")),
-            ("input", js(input)),
-            ("values", format!("[{}]", v.join(", "))),
-        ];
-        self.entry(&fields);
+        self.entry(|_| {
+            let v: Vec<String> = e
+                .components
+                .iter()
+                .map(|(_, v)| json_number(v.value))
+                .collect();
+            vec![
+                ("line", line.to_string()),
+                ("kind", js("evaluate")),
+                ("input", js(input)),
+                ("values", format!("[{}]", v.join(", "))),
+            ]
+        });
+        if !self.text() {
+            return;
+        }
         let _ = writeln!(
             self.out,
             "line {line}: evaluate {}",
@@ -755,19 +803,23 @@ impl<'a> Reporter<'a> {
         s: &Solution,
         exact: Option<&crate::engine::Solved>,
     ) {
-        let fields = [
-            ("line", line.to_string()),
-            ("kind", js("solve")),
-            ("input", js(input)),
-            ("unknown", js(unknown)),
-            ("value", json_number(s.value)),
-            ("residual", json_number(s.residual)),
-            (
-                "exact",
-                exact.map_or_else(|| "null".to_string(), |e| js(&self.printer.term(&e.value))),
-            ),
-        ];
-        self.entry(&fields);
+        self.entry(|r| {
+            vec![
+                ("line", line.to_string()),
+                ("kind", js("solve")),
+                ("input", js(input)),
+                ("unknown", js(unknown)),
+                ("value", json_number(s.value)),
+                ("residual", json_number(s.residual)),
+                (
+                    "exact",
+                    exact.map_or_else(|| "null".to_string(), |e| js(&r.printer.term(&e.value))),
+                ),
+            ]
+        });
+        if !self.text() {
+            return;
+        }
         let _ = writeln!(
             self.out,
             "line {line}: solve {}",
@@ -847,26 +899,29 @@ impl<'a> Reporter<'a> {
             );
         }
         let verdict = if all { "holds" } else { "FAILS" };
-        let failing: Vec<String> = r
-            .around
-            .iter()
-            .filter(|c| !agree(&c.flux, &c.contact))
-            .map(|c| js(&c.point))
-            .collect();
-        let fields = [
-            ("line", line.to_string()),
-            ("kind", js("flux")),
-            ("input", js(input)),
-            ("status", js(if all { "holds" } else { "fails" })),
-            ("failing_insertions", format!("[{}]", failing.join(", "))),
-        ];
-        self.entry(&fields);
-        let _ = writeln!(
-            self.out,
-            "line {line}: flux {verdict}: {}",
-            abbreviate(input, INPUT_WIDTH)
-        );
-        self.out.push_str(&rows);
+        self.entry(|_| {
+            let failing: Vec<String> = r
+                .around
+                .iter()
+                .filter(|c| !agree(&c.flux, &c.contact))
+                .map(|c| js(&c.point))
+                .collect();
+            vec![
+                ("line", line.to_string()),
+                ("kind", js("flux")),
+                ("input", js(input)),
+                ("status", js(if all { "holds" } else { "fails" })),
+                ("failing_insertions", format!("[{}]", failing.join(", "))),
+            ]
+        });
+        if self.text() {
+            let _ = writeln!(
+                self.out,
+                "line {line}: flux {verdict}: {}",
+                abbreviate(input, INPUT_WIDTH)
+            );
+            self.out.push_str(&rows);
+        }
         all
     }
 
@@ -912,21 +967,24 @@ impl<'a> Reporter<'a> {
                 .collect();
             format!("[{}]", v.join(", "))
         };
-        let fields = [
-            ("line", line.to_string()),
-            ("kind", js("compare")),
-            ("input", js(input)),
-            ("status", js(if all { "agree" } else { "disagree" })),
-            ("left", values(left)),
-            ("right", values(right)),
-        ];
-        self.entry(&fields);
-        let _ = writeln!(
-            self.out,
-            "line {line}: compare {verdict}: {}",
-            abbreviate(input, INPUT_WIDTH)
-        );
-        self.out.push_str(&rows);
+        self.entry(|_| {
+            vec![
+                ("line", line.to_string()),
+                ("kind", js("compare")),
+                ("input", js(input)),
+                ("status", js(if all { "agree" } else { "disagree" })),
+                ("left", values(left)),
+                ("right", values(right)),
+            ]
+        });
+        if self.text() {
+            let _ = writeln!(
+                self.out,
+                "line {line}: compare {verdict}: {}",
+                abbreviate(input, INPUT_WIDTH)
+            );
+            self.out.push_str(&rows);
+        }
         all
     }
 

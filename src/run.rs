@@ -43,6 +43,10 @@ pub struct Options {
     /// Leave the files of `scan … into` as they are: `test` computes the
     /// tables but writes them only under `--write-scans`.
     pub keep_scan_files: bool,
+    /// Threads for independent work: the files of `test`, the steps of a
+    /// `scan`, the configurations of `sample` (0 and 1 run serially). The
+    /// output is the same with any number.
+    pub jobs: usize,
 }
 
 /// The printed report and the exit code (0: all claims hold, 1: some do not).
@@ -55,22 +59,27 @@ pub struct Outcome {
     pub edits: Vec<(Span, String)>,
 }
 
-/// Runs one numeric statement on the current sample; `Some(verdict)` for
-/// statements that check something.
-fn numeric_item(
-    s: &Session,
-    kind: &ItemKind,
-    line: usize,
-    text: &str,
-    reporter: &mut Reporter,
-) -> Result<Option<bool>> {
-    let input = |keyword: &str| text.strip_prefix(keyword).unwrap_or(text).to_string();
+/// What one numeric statement gives on one configuration, before it is
+/// reported (configurations may run on several threads; reports are
+/// written in order).
+enum Numeric {
+    Evaluated(crate::numeric::session::Evaluation),
+    Solved(
+        crate::numeric::session::Solution,
+        Option<crate::engine::Solved>,
+    ),
+    Flux(crate::numeric::session::FluxReport),
+    Compared(
+        crate::numeric::session::Evaluation,
+        crate::numeric::session::Evaluation,
+    ),
+    Nothing,
+}
+
+/// Runs one numeric statement on the session's current sample.
+fn numeric_item(s: &Session, kind: &ItemKind) -> Result<Numeric> {
     Ok(match kind {
-        ItemKind::Evaluate { expr, free } => {
-            let values = s.evaluate(expr, free)?;
-            reporter.evaluated(line, &input("evaluate "), &values);
-            None
-        }
+        ItemKind::Evaluate { expr, free } => Numeric::Evaluated(s.evaluate(expr, free)?),
         ItemKind::Solve {
             unknown,
             lhs,
@@ -80,8 +89,7 @@ fn numeric_item(
             let solution = s.solve(unknown, lhs, rhs, free)?;
             // The exact value too, when the algebra settles it.
             let exact = s.solve_exact(unknown, lhs, rhs).ok().flatten();
-            reporter.solved(line, &input("solve "), unknown, &solution, exact.as_ref());
-            None
+            Numeric::Solved(solution, exact)
         }
         ItemKind::Flux {
             index,
@@ -90,17 +98,41 @@ fn numeric_item(
             rhs,
             radius,
             free,
-        } => {
-            let report = s.flux(index, var, body, rhs, radius, free)?;
-            Some(reporter.flux(line, &input("flux "), &report))
-        }
+        } => Numeric::Flux(s.flux(index, var, body, rhs, radius, free)?),
         ItemKind::Compare { lhs, rhs, free } => {
             let left = s.evaluate(lhs, free)?;
             let right = s.evaluate(rhs, free)?;
-            Some(reporter.compared(line, &input("compare "), &left, &right))
+            Numeric::Compared(left, right)
+        }
+        _ => Numeric::Nothing,
+    })
+}
+
+/// Reports what [`numeric_item`] gave; `Some(verdict)` for statements that
+/// check something.
+fn numeric_report(
+    result: &Numeric,
+    kind: &ItemKind,
+    line: usize,
+    text: &str,
+    reporter: &mut Reporter,
+) -> Option<bool> {
+    let input = |keyword: &str| text.strip_prefix(keyword).unwrap_or(text).to_string();
+    match (result, kind) {
+        (Numeric::Evaluated(values), _) => {
+            reporter.evaluated(line, &input("evaluate "), values);
+            None
+        }
+        (Numeric::Solved(solution, exact), ItemKind::Solve { unknown, .. }) => {
+            reporter.solved(line, &input("solve "), unknown, solution, exact.as_ref());
+            None
+        }
+        (Numeric::Flux(report), _) => Some(reporter.flux(line, &input("flux "), report)),
+        (Numeric::Compared(left, right), _) => {
+            Some(reporter.compared(line, &input("compare "), left, right))
         }
         _ => None,
-    })
+    }
 }
 
 /// Evaluates a step the rules did not prove against the one before it at
@@ -109,22 +141,43 @@ fn numeric_item(
 /// steps mention, both values), and, when the two differ by the same
 /// factor everywhere, that factor (a fraction when one with a small
 /// denominator matches to 1e-9).
+#[allow(clippy::too_many_arguments)]
 fn numeric_step(
     s: &Session,
     ctx: &crate::context::Context,
     before: &crate::term::Term,
     after: &crate::term::Term,
     free: &[String],
+    jobs: usize,
     step: &mut crate::derive::StepReport,
 ) {
     let samples = s.sample_count();
     let mut first_difference: Option<String> = None;
     let mut ratios: Vec<f64> = Vec::new();
-    for k in 0..samples {
-        let points = s.select(k);
-        let (left, right) = match (s.evaluate(before, free), s.evaluate(after, free)) {
-            (Ok(l), Ok(r)) => (l, r),
-            (Err(e), _) | (_, Err(e)) => {
+    // Every configuration on its own copy of the session (in parallel),
+    // then read in order, as a serial loop would.
+    let configurations: Vec<usize> = (0..samples).collect();
+    let values = crate::jobs::map_ordered(
+        jobs,
+        &configurations,
+        true,
+        |_, &k| {
+            let view = s.on_sample(k);
+            let points = view.select(k);
+            match (view.evaluate(before, free), view.evaluate(after, free)) {
+                (Ok(l), Ok(r)) => Ok((points, l, r)),
+                (Err(e), _) | (_, Err(e)) => Err(e),
+            }
+        },
+        &mut |_, _| {},
+    );
+    // The statements after this one see the last configuration.
+    s.select(samples.saturating_sub(1));
+    for (k, value) in values.into_iter().enumerate() {
+        let (points, left, right) = match value {
+            Ok(v) => v,
+            Err(e) => {
+                s.select(k);
                 // A distribution: a divergence against its contact terms is
                 // checked by flux instead.
                 if flux_step(s, ctx, before, after, free, step) {
@@ -378,30 +431,55 @@ fn numeric_session<'s, 'a>(
 /// Checks every `.ward` file below `dir` (sorted by path): one line per
 /// file, then `N passed, M failed`. A file passes when all its claims hold;
 /// an input error fails it with the diagnostic's first line, and makes the
-/// exit code 2 (as `check` would), not 1.
+/// exit code 2 (as `check` would), not 1. Files run on up to `opts.jobs`
+/// threads; the lines come in path order all the same.
 pub fn run_folder(dir: &Path, opts: &Options) -> Result<Outcome> {
     let files = crate::files::ward_files(dir)?;
+    let parallel = opts.jobs > 1 && files.len() > 1;
+    // Several files at once would interleave their progress lines: the
+    // folder counts files instead.
+    let each = Options {
+        progress: opts.progress && !parallel,
+        ..opts.clone()
+    };
+    let mut progress = |done: usize, total: usize| {
+        if opts.progress && parallel {
+            eprint!("\rtest: {done}/{total} files");
+            if done == total {
+                eprintln!();
+            }
+        }
+    };
+    let lines = crate::jobs::map_ordered(
+        opts.jobs,
+        &files,
+        false,
+        |_, path| {
+            let checked =
+                run_path(path, Mode::Check, &each).and_then(|out| accept(dir, path, out, &each));
+            Ok::<_, std::convert::Infallible>(match checked {
+                Ok(out) => {
+                    let summary = out.report.lines().last().unwrap_or("").to_string();
+                    if out.code == 0 {
+                        (true, false, format!("pass  {}  ({summary})", path.display()))
+                    } else {
+                        (false, false, format!("FAIL  {}  ({summary})", path.display()))
+                    }
+                }
+                Err(e) => (false, true, format!("FAIL  {}  ({})", path.display(), e)),
+            })
+        },
+        &mut progress,
+    );
     let (mut passed, mut failed, mut wrong_input) = (0, 0, false);
     let mut report = String::new();
-    for path in &files {
-        let line =
-            match run_path(path, Mode::Check, opts).and_then(|out| accept(dir, path, out, opts)) {
-                Ok(out) if out.code == 0 => {
-                    passed += 1;
-                    let summary = out.report.lines().last().unwrap_or("").to_string();
-                    format!("pass  {}  ({summary})", path.display())
-                }
-                Ok(out) => {
-                    failed += 1;
-                    let summary = out.report.lines().last().unwrap_or("").to_string();
-                    format!("FAIL  {}  ({summary})", path.display())
-                }
-                Err(e) => {
-                    failed += 1;
-                    wrong_input = true;
-                    format!("FAIL  {}  ({})", path.display(), e)
-                }
-            };
+    for (ok, input_error, line) in lines.into_iter().flatten() {
+        wrong_input |= input_error;
+        if ok {
+            passed += 1;
+        } else {
+            failed += 1;
+        }
         report.push_str(&line);
         report.push('\n');
     }
@@ -639,7 +717,7 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
                             } => {
                                 let contact = contact.clone();
                                 let proved = r.verdict.clone();
-                                numeric_step(s, &program.ctx, before, after, free, r);
+                                numeric_step(s, &program.ctx, before, after, free, opts.jobs, r);
                                 match &r.verdict {
                                     crate::derive::StepVerdict::Confirmed { .. } => {
                                         r.numeric = Some(format!(
@@ -660,7 +738,7 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
                                     _ => r.verdict = proved,
                                 }
                             }
-                            _ => numeric_step(s, &program.ctx, before, after, free, r),
+                            _ => numeric_step(s, &program.ctx, before, after, free, opts.jobs, r),
                         }
                         before = after;
                     }
@@ -716,7 +794,17 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
                     }
                 };
                 let scan = s
-                    .scan(param, *from, *to, *steps, lhs, rhs, free, &mut progress)
+                    .scan(
+                        param,
+                        *from,
+                        *to,
+                        *steps,
+                        lhs,
+                        rhs,
+                        free,
+                        opts.jobs,
+                        &mut progress,
+                    )
                     .map_err(at_item)?;
                 let input = text.strip_prefix("scan ").unwrap_or(&text);
                 let title: String = {
@@ -783,25 +871,37 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
             ) => {
                 let s = numeric_session(&mut session, &program, &engine, &mut reporter)
                     .map_err(at_item)?;
-                for k in 0..s.sample_count() {
-                    let points = s.select(k);
-                    if s.sample_count() > 1 {
-                        reporter.sample(k + 1, &points);
-                        if opts.progress {
-                            eprint!(
-                                "\rline {}: sample {}/{}",
-                                item.line,
-                                k + 1,
-                                s.sample_count()
-                            );
-                            if k + 1 == s.sample_count() {
-                                eprintln!();
-                            }
+                let count = s.sample_count();
+                let mut progress = |done: usize, total: usize| {
+                    if opts.progress && total > 1 {
+                        eprint!("\rline {}: sample {done}/{total}", item.line);
+                        if done == total {
+                            eprintln!();
                         }
                     }
-                    match numeric_item(s, &item.kind, item.line, &text, &mut reporter)
-                        .map_err(at_item)?
-                    {
+                };
+                // Configurations on their own copies of the session (in
+                // parallel), reported in order.
+                let configurations: Vec<usize> = (0..count).collect();
+                let results = crate::jobs::map_ordered(
+                    opts.jobs,
+                    &configurations,
+                    true,
+                    |_, &k| {
+                        let view = s.on_sample(k);
+                        let points = view.select(k);
+                        numeric_item(&view, &item.kind).map(|r| (points, r))
+                    },
+                    &mut progress,
+                );
+                // The statements after this one see the last configuration.
+                s.select(count.saturating_sub(1));
+                for (k, result) in results.into_iter().enumerate() {
+                    let (points, result) = result.map_err(at_item)?;
+                    if count > 1 {
+                        reporter.sample(k + 1, &points);
+                    }
+                    match numeric_report(&result, &item.kind, item.line, &text, &mut reporter) {
                         Some(true) if mode == Mode::Check => confirmed += 1,
                         Some(false) if mode == Mode::Check => failed += 1,
                         _ => {}

@@ -16,6 +16,48 @@ fn wardsmith(args: &[&str]) -> (i32, String, String) {
     )
 }
 
+/// The shipped examples that take seconds (Wick contractions with
+/// derivatives, a sphere integral in closed form). Each is checked once, by
+/// `test_runs_every_file_of_a_folder` (serially and in parallel), and its
+/// report is pinned by its LaTeX snapshot (tests/latex.rs); the tests of
+/// other features here run on the quick examples.
+const SLOW_EXAMPLES: [&str; 2] = ["coupling-derivation.ward", "displacement-neumann.ward"];
+
+/// The `.ward` files of `examples/`, sorted; without the slow ones unless
+/// `all`.
+fn examples(all: bool) -> Vec<PathBuf> {
+    let mut files: Vec<PathBuf> = std::fs::read_dir("examples")
+        .expect("examples/")
+        .filter_map(|e| e.ok().map(|e| e.path()))
+        .filter(|p| p.extension().is_some_and(|x| x == "ward"))
+        .filter(|p| {
+            all || !SLOW_EXAMPLES
+                .iter()
+                .any(|s| p.file_name().is_some_and(|n| n == *s))
+        })
+        .collect();
+    files.sort();
+    files
+}
+
+/// The quick examples and the rule file one of them loads.
+fn quick_examples() -> Vec<PathBuf> {
+    let mut files = examples(false);
+    files.push(PathBuf::from("examples/u1-current.rules"));
+    files
+}
+
+/// A fresh folder under the target directory holding copies of `files`.
+fn copies(name: &str, files: &[PathBuf]) -> PathBuf {
+    let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join(name);
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).expect("scratch dir");
+    for path in files {
+        std::fs::copy(path, dir.join(path.file_name().expect("file name"))).expect("copy");
+    }
+    dir
+}
+
 /// Writes `text` to a fresh file under the target directory.
 fn scratch(name: &str, text: &str) -> PathBuf {
     let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("cli");
@@ -122,7 +164,7 @@ fn ascii_output_is_plain() {
     for (mode, file) in [
         ("simplify", "examples/bulk-ward.ward"),
         ("check", "examples/wall-derivation.ward"),
-        ("check", "examples/displacement-neumann.ward"),
+        ("check", "examples/displacement-dirichlet.ward"),
         ("check", "tests/cases/simplify/derivation-slips.ward"),
     ] {
         let (_, stdout, stderr) = wardsmith(&[mode, "--ascii", file]);
@@ -138,21 +180,27 @@ fn ascii_output_is_plain() {
     assert!(stdout.contains("int[par(x) in boundary]"), "{stdout}");
 }
 
+/// Every shipped example checks clean — the one place the slow ones are
+/// checked — and the report of `test` is the same byte for byte on one
+/// thread and on two (the files run in parallel, the lines come in order).
 #[test]
 fn test_runs_every_file_of_a_folder() {
-    let (code, stdout, _) = wardsmith(&["test", "examples"]);
-    assert_eq!(code, 0, "{stdout}");
-    let files = std::fs::read_dir("examples")
-        .expect("examples/")
-        .filter(|e| {
-            e.as_ref()
-                .is_ok_and(|e| e.path().extension().is_some_and(|x| x == "ward"))
-        })
-        .count();
+    let (code, serial, stderr) = wardsmith(&["test", "--jobs", "1", "examples"]);
+    assert_eq!(code, 0, "{serial}{stderr}");
+    let files = examples(true).len();
     assert!(
-        stdout.ends_with(&format!("{files} passed, 0 failed\n")),
-        "{stdout}"
+        serial.ends_with(&format!("{files} passed, 0 failed\n")),
+        "{serial}"
     );
+    let (code, parallel, stderr) = wardsmith(&["test", "--jobs", "2", "examples"]);
+    assert_eq!(code, 0, "{parallel}{stderr}");
+    assert_eq!(parallel, serial);
+    for slow in SLOW_EXAMPLES {
+        assert!(
+            serial.contains(&format!("pass  examples/{slow}")),
+            "{serial}"
+        );
+    }
 
     let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("cli-folder");
     let _ = std::fs::remove_dir_all(&dir);
@@ -185,13 +233,7 @@ fn test_runs_every_file_of_a_folder() {
 
 #[test]
 fn json_output_parses_and_counts_the_claims() {
-    let mut files: Vec<PathBuf> = std::fs::read_dir("examples")
-        .expect("examples/")
-        .filter_map(|e| e.ok().map(|e| e.path()))
-        .filter(|p| p.extension().is_some_and(|x| x == "ward"))
-        .collect();
-    files.sort();
-    for path in files {
+    for path in examples(false) {
         let file = path.to_str().expect("utf-8 path");
         for mode in ["simplify", "check"] {
             let (code, stdout, stderr) = wardsmith(&[mode, "--json", file]);
@@ -320,8 +362,10 @@ fn a_flipped_displacement_sign_fails_exactly_the_files_that_use_it() {
     );
     let flipped = flipped.to_str().expect("utf-8 path");
 
-    let mut files: Vec<PathBuf> = std::fs::read_dir("examples")
-        .expect("examples/")
+    // The quick examples (the slow ones use no shipped rule).
+    let folder = copies("flipped", &quick_examples());
+    let mut files: Vec<PathBuf> = std::fs::read_dir(&folder)
+        .expect("scratch dir")
         .filter_map(|e| e.ok().map(|e| e.path()))
         .filter(|p| p.extension().is_some_and(|x| x == "ward"))
         .collect();
@@ -337,7 +381,8 @@ fn a_flipped_displacement_sign_fails_exactly_the_files_that_use_it() {
         .collect();
     assert!(uses.len() >= 2, "{uses:?}");
 
-    let (code, stdout, stderr) = wardsmith(&["test", "--rules", flipped, "examples"]);
+    let folder = folder.to_str().expect("utf-8 path");
+    let (code, stdout, stderr) = wardsmith(&["test", "--rules", flipped, folder]);
     assert_eq!(code, 1, "{stderr}");
     let failed: Vec<String> = stdout
         .lines()
@@ -361,16 +406,15 @@ fn a_flipped_displacement_sign_fails_exactly_the_files_that_use_it() {
 /// the folder passes afterwards.
 #[test]
 fn accept_rewrites_only_the_expected_results_that_fail() {
-    let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("accept");
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).expect("scratch dir");
-    let mut originals = Vec::new();
-    for entry in std::fs::read_dir("examples").expect("examples/").flatten() {
-        let path = entry.path();
-        let copy = dir.join(path.file_name().expect("file name"));
-        std::fs::copy(&path, &copy).expect("copy");
-        originals.push((copy, std::fs::read(&path).expect("read")));
-    }
+    let files = quick_examples();
+    let dir = copies("accept", &files);
+    let originals: Vec<(PathBuf, Vec<u8>)> = files
+        .iter()
+        .map(|p| {
+            let copy = dir.join(p.file_name().expect("file name"));
+            (copy, std::fs::read(p).expect("read"))
+        })
+        .collect();
     let folder = dir.to_str().expect("utf-8 path");
     let (code, stdout, _) = wardsmith(&["test", "--accept", folder]);
     assert_eq!(code, 0, "{stdout}");
@@ -478,4 +522,61 @@ fn test_leaves_scan_files_alone_unless_asked() {
         "kept\n"
     );
     assert!(dir.join("plot.svg").exists());
+
+/// `--jobs` spreads work over threads and never changes what is printed:
+/// the configurations of `sample` (numeric statements, and a derivation
+/// step checked on the model), the steps of a `scan` and the files it
+/// writes are the same byte for byte on one thread and on three, in text
+/// and in JSON. Generalised free fields with ⟨O O⟩ = 1/|x - x'|^(2Δ)
+/// (common practice); the sign slip, Δ and the seed are invented.
+#[test]
+fn jobs_do_not_change_the_report() {
+    let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("jobs");
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).expect("scratch dir");
+    let file = dir.join("jobs.ward");
+    std::fs::write(
+        &file,
+        "dimension 3\nscalar O dim Delta, norm 1\npoints x1 x2\nsample 4 seed 11\nmodel gff\n\
+         killing dil dilatation lambda\nvalues Delta = 0.77, lambda = 1\n\
+         evaluate <O(x1) O(x2)>\n\
+         compare <O(x1) O(x2)> = |x1 - x2|^(-2 Delta)\n\
+         derivation wrong-sign\n\
+         \x20   dil[mu](x1) ∂[mu](x1) <O(x1) O(x2)> + dil[mu](x2) ∂[mu](x2) <O(x1) O(x2)>\n\
+         \x20 = 2 Delta lambda <O(x1) O(x2)>\n\
+         end\n\
+         scan Delta from 1/2 to 2 steps 9: <O(x1) O(x2)> = |x1 - x2|^(-2 Delta) into \"table\"\n",
+    )
+    .expect("write");
+    let file = file.to_str().expect("utf-8 path");
+    let run = |jobs: &str, json: bool| {
+        let mut args = vec!["check", "--jobs", jobs, file];
+        if json {
+            args.insert(1, "--json");
+        }
+        let (code, stdout, stderr) = wardsmith(&args);
+        let csv = std::fs::read(dir.join("table.csv")).expect("the scan's table");
+        let svg = std::fs::read(dir.join("table.svg")).expect("the scan's plot");
+        (code, stdout, stderr, csv, svg)
+    };
+    for json in [false, true] {
+        let serial = run("1", json);
+        assert_eq!(serial.0, 1, "{}{}", serial.1, serial.2);
+        let parallel = run("3", json);
+        assert_eq!(parallel, serial);
+    }
+    let (_, report, ..) = run("3", false);
+    assert_eq!(report.matches("sample ").count(), 8, "{report}");
+    assert!(report.contains("step before is -1"), "{report}");
+    assert!(report.contains("written: "), "{report}");
+
+    // A flux around each insertion on three configurations.
+    let case = "tests/cases/numeric/sampled-flux-d3.ward";
+    let serial = wardsmith(&["check", "--jobs", "1", case]);
+    assert_eq!(serial.0, 0, "{}{}", serial.1, serial.2);
+    assert_eq!(wardsmith(&["check", "--jobs", "2", case]), serial);
+
+    let (code, _, stderr) = wardsmith(&["check", "--jobs", "0", case]);
+    assert_eq!(code, 2);
+    assert!(stderr.contains("--jobs"), "{stderr}");
 }

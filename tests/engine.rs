@@ -202,23 +202,6 @@ fn user_rule_file_for_a_conserved_current() {
 }
 
 #[test]
-fn shipped_examples_check_clean() {
-    let mut files: Vec<std::path::PathBuf> = std::fs::read_dir("examples")
-        .expect("examples/ exists")
-        .filter_map(|e| e.ok().map(|e| e.path()))
-        .filter(|p| p.extension().is_some_and(|x| x == "ward"))
-        .collect();
-    files.sort();
-    assert!(files.len() >= 6, "{files:?}");
-    for path in files {
-        let path = path.display().to_string();
-        let out = wardsmith::run::run_path(Path::new(&path), Mode::Check, &Options::default())
-            .expect("runs");
-        assert_eq!(out.code, 0, "{path}:\n{}", out.report);
-    }
-}
-
-#[test]
 fn zero_stands_for_a_tensor_of_any_rank() {
     // Away from the boundary and with no insertions T is conserved: the
     // divergence of <T> alone is zero, written `= 0` with nu free.

@@ -685,7 +685,7 @@ impl Lowerer {
                 }
                 for name in names {
                     self.new_name(name, Declared::Point)?;
-                    self.ctx.points.push(PointDecl {
+                    self.ctx.add_point(PointDecl {
                         name: name.text.clone(),
                         boundary: *boundary,
                     });

@@ -11,6 +11,8 @@
 //! check of the local identities (docs/conventions.md §8).
 
 use std::cell::RefCell;
+use std::sync::atomic::{AtomicUsize, Ordering};
+use std::sync::{Arc, Mutex};
 
 use num_traits::ToPrimitive;
 
@@ -36,17 +38,20 @@ const QUADRATURE_FLOOR: f64 = 1e-12;
 /// Largest number of integrand evaluations for one integral.
 const QUADRATURE_BUDGET: usize = 400_000;
 
-/// The numeric set-up of one file.
+/// The numeric set-up of one file. It may be shared between threads (a
+/// scan's steps run in parallel), and [`Session::on_sample`] gives each
+/// thread of a `sample` its own configuration with the same model and the
+/// same cache of symbolic work.
 pub struct Session<'a> {
     ctx: &'a Context,
     engine: &'a Engine,
-    model: Box<dyn Model>,
+    model: Arc<dyn Model + Send + Sync>,
     /// One set of values per sample (declared positions, plus seeded random
     /// ones for points without a position); statements run on each.
-    samples: Vec<Values>,
-    current: std::cell::Cell<usize>,
+    samples: Arc<Vec<Values>>,
+    current: AtomicUsize,
     /// Explicit normal forms already worked out, by input term.
-    explicit_cache: RefCell<std::collections::HashMap<Term, Term>>,
+    explicit_cache: Arc<Mutex<std::collections::HashMap<Term, Term>>>,
 }
 
 /// One numeric value with its error estimate (0 when no quadrature was
@@ -129,11 +134,26 @@ impl<'a> Session<'a> {
         Ok(Session {
             ctx,
             engine,
-            model,
-            samples,
-            current: std::cell::Cell::new(0),
-            explicit_cache: RefCell::new(std::collections::HashMap::new()),
+            model: Arc::from(model),
+            samples: Arc::new(samples),
+            current: AtomicUsize::new(0),
+            explicit_cache: Arc::new(Mutex::new(std::collections::HashMap::new())),
         })
+    }
+
+    /// The same session on sample `k`, sharing the model and the symbolic
+    /// work done so far (for running configurations on several threads).
+    pub fn on_sample(&self, k: usize) -> Session<'a> {
+        let view = Session {
+            ctx: self.ctx,
+            engine: self.engine,
+            model: Arc::clone(&self.model),
+            samples: Arc::clone(&self.samples),
+            current: AtomicUsize::new(0),
+            explicit_cache: Arc::clone(&self.explicit_cache),
+        };
+        view.select(k);
+        view
     }
 
     /// How many sets of values statements run on.
@@ -143,8 +163,10 @@ impl<'a> Session<'a> {
 
     /// Makes sample `k` the current one; returns its point positions.
     pub fn select(&self, k: usize) -> Vec<(String, Vec<f64>)> {
-        self.current
-            .set(k.min(self.samples.len().saturating_sub(1)));
+        self.current.store(
+            k.min(self.samples.len().saturating_sub(1)),
+            Ordering::Relaxed,
+        );
         self.values()
             .points
             .iter()
@@ -153,7 +175,7 @@ impl<'a> Session<'a> {
     }
 
     fn values(&self) -> &Values {
-        &self.samples[self.current.get()]
+        &self.samples[self.current.load(Ordering::Relaxed)]
     }
 
     /// One line saying which model is in force.
@@ -466,7 +488,8 @@ impl<'a> Session<'a> {
     }
 
     /// Both sides of `lhs = rhs` as `param` runs from `from` to `to` in
-    /// `steps` equal steps; `progress(done, total)` after each step.
+    /// `steps` equal steps, on up to `jobs` threads (the rows in order,
+    /// the same with any number); `progress(done, total)` after each step.
     #[allow(clippy::too_many_arguments)]
     pub fn scan(
         &self,
@@ -477,16 +500,30 @@ impl<'a> Session<'a> {
         lhs: &Term,
         rhs: &Term,
         free: &[String],
+        jobs: usize,
         progress: &mut dyn FnMut(usize, usize),
     ) -> Result<Scan> {
+        let xs: Vec<f64> = (0..steps)
+            .map(|k| from + (to - from) * k as f64 / (steps - 1).max(1) as f64)
+            .collect();
+        let base = self.values();
+        let results = crate::jobs::map_ordered(
+            jobs,
+            &xs,
+            true,
+            |_, &x| {
+                let mut values = base.clone();
+                values.scalars.insert(param.to_string(), x);
+                let l = self.evaluate_with(lhs, free, &values)?;
+                let r = self.evaluate_with(rhs, free, &values)?;
+                Ok::<_, Error>((x, l, r))
+            },
+            progress,
+        );
         let mut rows = Vec::with_capacity(steps);
         let mut labels = Vec::new();
-        for k in 0..steps {
-            let x = from + (to - from) * k as f64 / (steps - 1).max(1) as f64;
-            let mut values = self.values().clone();
-            values.scalars.insert(param.to_string(), x);
-            let l = self.evaluate_with(lhs, free, &values)?;
-            let r = self.evaluate_with(rhs, free, &values)?;
+        for result in results {
+            let (x, l, r) = result?;
             if labels.is_empty() {
                 labels = l
                     .components
@@ -504,7 +541,6 @@ impl<'a> Session<'a> {
                 l.components.iter().map(|(_, v)| v.value).collect(),
                 r.components.iter().map(|(_, v)| v.value).collect(),
             ));
-            progress(k + 1, steps);
         }
         Ok(Scan {
             param: param.to_string(),
@@ -581,16 +617,21 @@ impl<'a> Session<'a> {
     /// Rules, normalisation, the model, normalisation, compilation.
     fn explicit(&self, t: &Term, free: &[(String, usize)]) -> Result<super::eval::Program> {
         // The symbolic work is the same for every component and sample.
-        let cached = self.explicit_cache.borrow().get(t).cloned();
+        // Threads that miss at once both do the work; the results are equal.
+        let cached = self
+            .explicit_cache
+            .lock()
+            .ok()
+            .and_then(|c| c.get(t).cloned());
         let explicit = match cached {
             Some(e) => e,
             None => {
                 let simplified = self.engine.simplify(t)?.term;
                 let modelled = apply(self.model.as_ref(), self.ctx, &simplified)?;
                 let e = normalize(self.ctx, &modelled)?;
-                self.explicit_cache
-                    .borrow_mut()
-                    .insert(t.clone(), e.clone());
+                if let Ok(mut cache) = self.explicit_cache.lock() {
+                    cache.insert(t.clone(), e.clone());
+                }
                 e
             }
         };
@@ -782,7 +823,7 @@ pub fn build_model(
     ctx: &Context,
     choice: &ModelChoice,
     spec: &NumericSpec,
-) -> Result<Box<dyn Model>> {
+) -> Result<Box<dyn Model + Send + Sync>> {
     Ok(match choice {
         ModelChoice::Conformal { y_convention } => {
             let convention = if *y_convention {
