@@ -11,6 +11,7 @@ use crate::diagnostic::{Error, ErrorKind, Result, Source};
 use crate::egraph::Limits;
 use crate::engine::Engine;
 use crate::lower::{self, ItemKind, Program};
+use crate::numeric::agreement::Agreement;
 use crate::numeric::session::Session;
 use crate::report::Reporter;
 use crate::rules::RuleBook;
@@ -53,20 +54,22 @@ pub struct Outcome {
 }
 
 /// Runs one numeric statement on the current sample; `Some(verdict)` for
-/// statements that check something.
+/// statements that check something (and for an evaluation whose value is
+/// not known).
 fn numeric_item(
     s: &Session,
     kind: &ItemKind,
     line: usize,
     text: &str,
     reporter: &mut Reporter,
-) -> Result<Option<bool>> {
+) -> Result<Option<Agreement>> {
     let input = |keyword: &str| text.strip_prefix(keyword).unwrap_or(text).to_string();
     Ok(match kind {
         ItemKind::Evaluate { expr, free } => {
             let values = s.evaluate(expr, free)?;
-            reporter.evaluated(line, &input("evaluate "), &values);
-            None
+            reporter
+                .evaluated(line, &input("evaluate "), &values)
+                .map(Agreement::Unknown)
         }
         ItemKind::Solve {
             unknown,
@@ -137,8 +140,17 @@ fn numeric_step(
                 ratios.push(l.value / r.value);
             }
         }
-        if crate::report::agree(&left, &right) || first_difference.is_some() {
-            continue;
+        match crate::report::agreement(&left, &right) {
+            Agreement::Agree => continue,
+            Agreement::Unknown(why) => {
+                step.numeric = Some(format!(
+                    "not decided on the model at configuration {}: {why}",
+                    k + 1
+                ));
+                return;
+            }
+            Agreement::Disagree if first_difference.is_some() => continue,
+            Agreement::Disagree => {}
         }
         let at = points
             .iter()
@@ -240,7 +252,16 @@ fn flux_step(
             }
         };
         for check in &report.around {
-            if !crate::report::agree(&check.flux, &check.contact) {
+            let verdict = crate::report::agreement(&check.flux, &check.contact);
+            if let Agreement::Unknown(why) = verdict {
+                step.numeric = Some(format!(
+                    "not checked by flux on the model: around {} at configuration {}, {why}",
+                    check.point,
+                    k + 1
+                ));
+                return true;
+            }
+            if !verdict.agrees() {
                 let pair = check
                     .flux
                     .components
@@ -261,18 +282,26 @@ fn flux_step(
                 return true;
             }
         }
-        if let Some(c) = report
-            .away
-            .iter()
-            .find(|c| c.largest > 1e-8 * c.scale.max(f64::MIN_POSITIVE))
-        {
-            step.numeric = Some(format!(
-                "by flux at configuration {}: the divergence is {:.3e} away from the insertions, \
-                 not 0",
-                k + 1,
-                c.largest
-            ));
-            return true;
+        for c in &report.away {
+            match crate::numeric::agreement::vanishes(&c.largest, c.scale) {
+                Agreement::Agree => {}
+                Agreement::Unknown(why) => {
+                    step.numeric = Some(format!(
+                        "not checked by flux on the model at configuration {}: {why}",
+                        k + 1
+                    ));
+                    return true;
+                }
+                Agreement::Disagree => {
+                    step.numeric = Some(format!(
+                        "by flux at configuration {}: the divergence is {:.3e} away from the insertions, \
+                         not 0",
+                        k + 1,
+                        c.largest.value
+                    ));
+                    return true;
+                }
+            }
         }
     }
     step.verdict = crate::derive::StepVerdict::Confirmed { samples };
@@ -501,6 +530,8 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
     // Built on the first numeric statement, so files without one need no model.
     let mut session: Option<Session> = None;
     let (mut proved, mut away, mut confirmed, mut failed) = (0, 0, 0, 0);
+    // Numeric statements that could not be decided (exit 1, not a refutation).
+    let mut unknown = 0;
     let mut edits = Vec::new();
     for item in &program.items {
         let text = collapse(&source.text[item.span.start..item.span.end]);
@@ -667,10 +698,16 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
                         }
                     }
                 };
-                let scan = s
-                    .scan(param, *from, *to, *steps, lhs, rhs, free, &mut progress)
-                    .map_err(at_item)?;
                 let input = text.strip_prefix("scan ").unwrap_or(&text);
+                let scan = match s.scan(param, *from, *to, *steps, lhs, rhs, free, &mut progress) {
+                    Ok(scan) => scan,
+                    Err(e) if e.kind == ErrorKind::Numeric => {
+                        reporter.numeric_unknown(item.line, "scan", input, &numeric_reason(&e));
+                        unknown += 1;
+                        continue;
+                    }
+                    Err(e) => return Err(at_item(e)),
+                };
                 let title: String = {
                     let body = input.split(" into ").next().unwrap_or(input);
                     let cut: String = body.chars().take(90).collect();
@@ -684,7 +721,14 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
                     Some(stem) => Some(write_scan(&scan, base, stem, &title).map_err(at_item)?),
                     None => None,
                 };
-                reporter.scanned(item.line, input, &scan, written.as_deref());
+                let verdict = reporter.scanned(item.line, input, &scan, written.as_deref());
+                if mode == Mode::Check {
+                    match verdict {
+                        Agreement::Agree => confirmed += 1,
+                        Agreement::Disagree => failed += 1,
+                        Agreement::Unknown(_) => unknown += 1,
+                    }
+                }
             }
             (
                 ItemKind::Evaluate { .. }
@@ -711,12 +755,21 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
                             }
                         }
                     }
-                    match numeric_item(s, &item.kind, item.line, &text, &mut reporter)
-                        .map_err(at_item)?
-                    {
-                        Some(true) if mode == Mode::Check => confirmed += 1,
-                        Some(false) if mode == Mode::Check => failed += 1,
-                        _ => {}
+                    // A numeric failure (no real value, quadrature that did
+                    // not converge, …) leaves this statement unknown; the
+                    // rest of the file is still checked.
+                    match numeric_item(s, &item.kind, item.line, &text, &mut reporter) {
+                        Ok(Some(Agreement::Agree)) if mode == Mode::Check => confirmed += 1,
+                        Ok(Some(Agreement::Disagree)) if mode == Mode::Check => failed += 1,
+                        Ok(Some(Agreement::Unknown(_))) if mode == Mode::Check => unknown += 1,
+                        Ok(_) => {}
+                        Err(e) if e.kind == ErrorKind::Numeric => {
+                            let kind = text.split_whitespace().next().unwrap_or("statement");
+                            let input = text.strip_prefix(kind).unwrap_or(&text).trim_start();
+                            reporter.numeric_unknown(item.line, kind, input, &numeric_reason(&e));
+                            unknown += 1;
+                        }
+                        Err(e) => return Err(at_item(e)),
                     }
                 }
             }
@@ -734,13 +787,20 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
         }
     }
     if mode == Mode::Check {
-        reporter.summary(proved, away, confirmed, failed);
+        reporter.summary(proved, away, confirmed, failed, unknown);
     }
     Ok(Outcome {
         report: reporter.finish(),
-        code: i32::from(failed > 0),
+        code: i32::from(failed + unknown > 0),
         edits,
     })
+}
+
+/// A numeric error's message and notes, for an unknown verdict.
+fn numeric_reason(e: &Error) -> String {
+    let mut lines = vec![e.message.clone()];
+    lines.extend(e.notes.iter().cloned());
+    lines.join("\n")
 }
 
 fn read_source(path: &Path) -> Result<Arc<Source>> {
