@@ -428,7 +428,7 @@ fn check_tensor(
 /// Unit roundoff of f64 (half the machine epsilon).
 const EPS: f64 = f64::EPSILON / 2.0;
 /// The absolute error of rounding a result in the subnormal range.
-const TINY: f64 = f64::from_bits(1);
+const TINY: f64 = 5e-324;
 
 /// A value with what is known about its accuracy: a running bound on the
 /// rounding error (first order, Wilkinson's running error analysis: each
