@@ -158,6 +158,11 @@ pub const STATEMENTS: &[Entry] = &[
         example: "scan Delta from 1 to 2 steps 11: <O(x1) O(x2)> = |x1 - x2|^(-2 Delta) into \"two-point\"",
         meaning: "both sides as a parameter runs; a table, and two-point.csv/.svg",
     },
+    Entry {
+        keyword: "decompose",
+        example: "decompose <O(x1) O(x2)> in boundary blocks Delta to Delta + 8 step 2 into \"channel\"",
+        meaning: "a two-point function next to the wall in one channel's blocks (bulk: a list of dimensions, identity included; boundary: a list or a tower)",
+    },
 ];
 
 /// What `wardsmith help language` prints after the statements.

@@ -29,13 +29,14 @@ enum Command {
     Simplify(FileArgs),
     /// Check every statement of FILE that states something: each `claim`,
     /// each `simplify … expect …`, each step of a `derivation`, and on the
-    /// file's model each `compare` and `flux`; print what `simplify`,
-    /// `evaluate`, `classify`, `solve` and `scan` find.
+    /// file's model each `compare`, `flux`, `scan` and `decompose`; print
+    /// what `simplify`, `evaluate`, `classify` and `solve` find.
     ///
     /// Statements: dimension, halfspace, scalar, vector, boundary, points,
     /// parameters, positive, parallel, function, let, rules, killing,
     /// classify, simplify, claim, derivation, slip, place, model,
-    /// coefficient, values, sample, evaluate, compare, flux, solve, scan.
+    /// coefficient, values, sample, evaluate, compare, flux, solve, scan,
+    /// decompose.
     /// One example each: `wardsmith help language`.
     #[command(after_help = CONVENTIONS)]
     Check(FileArgs),

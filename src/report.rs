@@ -6,6 +6,7 @@ use std::fmt::Write as _;
 
 use crate::context::Context;
 use crate::engine::{Simplified, Verdict};
+use crate::numeric::agreement::{self, Agreement};
 use crate::numeric::session::{Evaluation, FluxReport, Scan, Solution, Value};
 use crate::term::print::{Printer, Style};
 use crate::term::Term;
@@ -37,18 +38,14 @@ fn json_number(v: f64) -> String {
     }
 }
 
-/// Relative tolerance of `compare`, on top of quadrature error estimates.
-const COMPARE_TOLERANCE: f64 = 1e-9;
-
-/// True if two evaluations agree component by component within the
-/// relative tolerance plus the quadrature error estimates.
-pub(crate) fn agree(left: &Evaluation, right: &Evaluation) -> bool {
+/// Two evaluations together, component by component, by the numeric
+/// layer's one agreement rule.
+pub(crate) fn agreement(left: &Evaluation, right: &Evaluation) -> Agreement {
     left.components
         .iter()
         .zip(&right.components)
-        .all(|((_, l), (_, r))| {
-            let scale = l.value.abs().max(r.value.abs()).max(f64::MIN_POSITIVE);
-            (l.value - r.value).abs() <= COMPARE_TOLERANCE * scale + 10.0 * (l.error + r.error)
+        .fold(Agreement::Agree, |all, ((_, l), (_, r))| {
+            all.and(crate::numeric::agreement::agreement(l, r))
         })
 }
 
@@ -64,8 +61,31 @@ fn components(assignment: &[(String, usize)]) -> String {
     format!("{}: ", parts.join(", "))
 }
 
-/// `0.123456789012` or `0.1234567 ± 3.0e-12 (quadrature, 1234 evaluations)`.
+/// `0.123456789012` or `0.1234567 ± 3.0e-12 (quadrature, 1234 evaluations)`;
+/// a value that is not known says so instead of showing digits it does not
+/// have.
 fn number(v: &Value) -> String {
+    if let Some(loss) = v.loss() {
+        return if no_digit(v) {
+            format!(
+                "{:.3e} ± {:.1e} (not known: {loss})",
+                v.value,
+                v.rounding + v.error
+            )
+        } else {
+            // Some digits are left: as many as the bound allows.
+            let digits = (v.value.abs() / v.rounding)
+                .log10()
+                .floor()
+                .clamp(0.0, 12.0) as usize;
+            format!(
+                "{:.*e} ± {:.1e} (rounding: digits lost to cancellation)",
+                digits,
+                v.value,
+                v.rounding + v.error
+            )
+        };
+    }
     if v.nodes == 0 {
         format!("{:.12e}", v.value)
     } else {
@@ -73,6 +93,16 @@ fn number(v: &Value) -> String {
             "{:.12e} ± {:.1e} ({} evaluations)",
             v.value, v.error, v.nodes
         )
+    }
+}
+
+/// True if a value has no digit left: it overflowed, underflowed, or its
+/// rounding bound is as large as it.
+fn no_digit(v: &Value) -> bool {
+    match v.loss() {
+        None => false,
+        Some(agreement::Loss::Cancellation) => v.rounding >= v.value.abs(),
+        Some(_) => true,
     }
 }
 
@@ -106,6 +136,8 @@ pub struct Reporter<'a> {
     counts: (usize, usize, usize, usize),
     /// Statements marked `slip` that were refuted, as marked.
     caught: usize,
+    /// Numeric statements that could not be decided.
+    unknown: usize,
     printer: Printer<'a>,
     out: String,
 }
@@ -117,6 +149,7 @@ impl<'a> Reporter<'a> {
             latex: Printer::new(ctx, Style::Latex),
             counts: (0, 0, 0, 0),
             caught: 0,
+            unknown: 0,
             printer: Printer::new(ctx, style),
             out: String::new(),
         }
@@ -135,13 +168,14 @@ impl<'a> Reporter<'a> {
             None if self.printer.style == Style::Ascii => crate::charset::to_ascii(&self.out),
             None => self.out,
             Some(entries) => format!(
-                "{{\"items\": [\n{}\n], \"proved\": {}, \"proved_away\": {}, \"confirmed\": {}, \"slips_caught\": {}, \"not_proved\": {}}}\n",
+                "{{\"items\": [\n{}\n], \"proved\": {}, \"proved_away\": {}, \"confirmed\": {}, \"slips_caught\": {}, \"not_proved\": {}, \"unknown\": {}}}\n",
                 entries.join(",\n"),
                 self.counts.0,
                 self.counts.1,
                 self.counts.2,
                 self.caught,
-                self.counts.3
+                self.counts.3,
+                self.unknown
             ),
         }
     }
@@ -359,11 +393,64 @@ impl<'a> Reporter<'a> {
     }
 
     /// `line N: scan` with its table (every row up to 21, else 21 evenly
-    /// spaced rows) and where the files went.
-    pub fn scanned(&mut self, line: usize, input: &str, scan: &Scan, written: Option<&str>) {
+    /// spaced rows; both sides and their relative difference) and where the
+    /// files went. Judged like `compare`: the sides must agree at every row.
+    pub fn scanned(
+        &mut self,
+        line: usize,
+        input: &str,
+        scan: &Scan,
+        written: Option<&str>,
+    ) -> Agreement {
+        let all = scan
+            .judged
+            .iter()
+            .flatten()
+            .fold(Agreement::Agree, |all, (_, v)| all.and(v.clone()));
+        // The first row where the sides differ, else the first not known.
+        let first = |unknown: bool| {
+            scan.rows
+                .iter()
+                .zip(&scan.judged)
+                .find_map(|((x, _, _), row)| {
+                    row.iter()
+                        .find(|(_, v)| !v.agrees() && v.is_unknown() == unknown)
+                        .map(|(_, v)| (*x, v.clone()))
+                })
+        };
+        let first_bad = first(false).or_else(|| first(true));
+        let (verdict, status) = match &all {
+            Agreement::Agree => ("agree", "agree"),
+            Agreement::Disagree => ("DISAGREE", "disagree"),
+            Agreement::Unknown(_) => ("UNKNOWN", "unknown"),
+        };
+        let rows: Vec<String> = scan
+            .rows
+            .iter()
+            .zip(&scan.judged)
+            .map(|((x, l, r), j)| {
+                let diffs: Vec<String> = j.iter().map(|(d, _)| json_number(*d)).collect();
+                format!(
+                    "{{\"{}\": {}, \"left\": [{}], \"right\": [{}], \"relative_difference\": [{}]}}",
+                    scan.param,
+                    json_number(*x),
+                    l.iter().map(|v| json_number(*v)).collect::<Vec<_>>().join(", "),
+                    r.iter().map(|v| json_number(*v)).collect::<Vec<_>>().join(", "),
+                    diffs.join(", ")
+                )
+            })
+            .collect();
+        let fields = [
+            ("line", line.to_string()),
+            ("kind", js("scan")),
+            ("input", js(input)),
+            ("status", js(status)),
+            ("rows", format!("[{}]", rows.join(", "))),
+        ];
+        self.entry(|_| fields.to_vec());
         let _ = writeln!(
             self.out,
-            "line {line}: scan {}",
+            "line {line}: scan {verdict}: {}",
             abbreviate(input, INPUT_WIDTH)
         );
         let n = scan.rows.len();
@@ -374,24 +461,39 @@ impl<'a> Reporter<'a> {
         };
         for k in shown {
             let (x, left, right) = &scan.rows[k];
+            let judged = &scan.judged[k];
             let pairs: Vec<String> = left
                 .iter()
                 .zip(right)
                 .zip(&scan.labels)
-                .map(|((l, r), label)| {
+                .zip(judged)
+                .map(|(((l, r), label), (d, v))| {
                     let label = if label.is_empty() {
                         String::new()
                     } else {
                         format!("{label}: ")
                     };
-                    format!("{label}{l:.10e} | {r:.10e}")
+                    let mark = match v {
+                        Agreement::Agree => "",
+                        Agreement::Disagree => " ← disagree",
+                        Agreement::Unknown(_) => " ← unknown",
+                    };
+                    format!("{label}{l:.10e} | {r:.10e} | {d:.1e}{mark}")
                 })
                 .collect();
             let _ = writeln!(self.out, "  {} = {x:.6}: {}", scan.param, pairs.join(";  "));
         }
+        if let Some((x, v)) = first_bad {
+            let why = match v {
+                Agreement::Unknown(why) => format!("not known: {why}"),
+                _ => "the two sides differ".to_string(),
+            };
+            let _ = writeln!(self.out, "  first at {} = {x:.6}: {why}", scan.param);
+        }
         if let Some(files) = written {
             let _ = writeln!(self.out, "  written: {files}");
         }
+        all
     }
 
     /// `line N: decompose` with the coefficients (exact fractions where
@@ -503,7 +605,10 @@ impl<'a> Reporter<'a> {
             ("residual", json_number(found.residual)),
             ("holds", ok.to_string()),
         ];
-        self.entry(&fields);
+        self.entry(|_| fields.to_vec());
+        if !self.text() {
+            return ok;
+        }
         let _ = writeln!(
             self.out,
             "line {line}: decompose {}",
@@ -765,8 +870,9 @@ impl<'a> Reporter<'a> {
         let _ = writeln!(self.out, "model: {description}");
     }
 
-    /// `line N: evaluate` with one value per component.
-    pub fn evaluated(&mut self, line: usize, input: &str, e: &Evaluation) {
+    /// `line N: evaluate` with one value per component; the reason when a
+    /// value is not known (its digits are not shown).
+    pub fn evaluated(&mut self, line: usize, input: &str, e: &Evaluation) -> Option<String> {
         self.entry(|_| {
             let v: Vec<String> = e
                 .components
@@ -780,8 +886,13 @@ impl<'a> Reporter<'a> {
                 ("values", format!("[{}]", v.join(", "))),
             ]
         });
+        let lost = e.components.iter().find_map(|(_, v)| {
+            v.loss().filter(|_| no_digit(v)).map(|loss| {
+                agreement::describe_loss("evaluated", v, loss).replacen(" side", " value", 1)
+            })
+        });
         if !self.text() {
-            return;
+            return lost;
         }
         let _ = writeln!(
             self.out,
@@ -791,6 +902,7 @@ impl<'a> Reporter<'a> {
         for (assignment, v) in &e.components {
             let _ = writeln!(self.out, "  {}{}", components(assignment), number(v));
         }
+        lost
     }
 
     /// `line N: solve` with the value found, exact when the algebra
@@ -855,24 +967,29 @@ impl<'a> Reporter<'a> {
         );
     }
 
-    /// `line N: flux` insertion by insertion; true if every flux matches its
-    /// contact terms and the current is conserved away from insertions.
-    pub fn flux(&mut self, line: usize, input: &str, r: &FluxReport) -> bool {
+    /// `line N: flux` insertion by insertion, judged by the agreement rule:
+    /// each flux against its contact terms, and the divergence away from
+    /// insertions against the size of the current there.
+    pub fn flux(&mut self, line: usize, input: &str, r: &FluxReport) -> Agreement {
         let mut rows = String::new();
-        let mut all = true;
+        let mut all = Agreement::Agree;
+        let mut failing = Vec::new();
         for check in &r.around {
-            let ok = agree(&check.flux, &check.contact);
-            all &= ok;
+            let verdict = agreement(&check.flux, &check.contact);
             let _ = writeln!(
                 rows,
                 "  around {}: {}",
                 check.point,
-                if ok {
-                    "flux = contact terms"
-                } else {
-                    "flux ≠ contact terms  ← disagree"
+                match &verdict {
+                    Agreement::Agree => "flux = contact terms".to_string(),
+                    Agreement::Disagree => "flux ≠ contact terms  ← disagree".to_string(),
+                    Agreement::Unknown(why) => format!("unknown: {why}"),
                 }
             );
+            if !verdict.agrees() {
+                failing.push(js(&check.point));
+            }
+            all = all.and(verdict);
             for ((assignment, f), (_, c)) in
                 check.flux.components.iter().zip(&check.contact.components)
             {
@@ -886,31 +1003,33 @@ impl<'a> Reporter<'a> {
             }
         }
         for c in &r.away {
-            let ok = c.largest <= 1e-8 * c.scale.max(f64::MIN_POSITIVE);
-            all &= ok;
+            let verdict = agreement::vanishes(&c.largest, c.scale);
             let at: Vec<String> = c.at.iter().map(|x| format!("{x:.3}")).collect();
             let _ = writeln!(
                 rows,
                 "  away from insertions, at ({}): |divergence| {:.1e} against |current|/r {:.1e}{}",
                 at.join(", "),
-                c.largest,
+                c.largest.value.abs(),
                 c.scale,
-                if ok { "" } else { "  ← not conserved" }
+                match &verdict {
+                    Agreement::Agree => String::new(),
+                    Agreement::Disagree => "  ← not conserved".to_string(),
+                    Agreement::Unknown(why) => format!("  ← unknown: {why}"),
+                }
             );
+            all = all.and(verdict);
         }
-        let verdict = if all { "holds" } else { "FAILS" };
+        let (verdict, status) = match &all {
+            Agreement::Agree => ("holds", "holds"),
+            Agreement::Disagree => ("FAILS", "fails"),
+            Agreement::Unknown(_) => ("UNKNOWN", "unknown"),
+        };
         self.entry(|_| {
-            let failing: Vec<String> = r
-                .around
-                .iter()
-                .filter(|c| !agree(&c.flux, &c.contact))
-                .map(|c| js(&c.point))
-                .collect();
             vec![
                 ("line", line.to_string()),
                 ("kind", js("flux")),
                 ("input", js(input)),
-                ("status", js(if all { "holds" } else { "fails" })),
+                ("status", js(status)),
                 ("failing_insertions", format!("[{}]", failing.join(", "))),
             ]
         });
@@ -925,40 +1044,39 @@ impl<'a> Reporter<'a> {
         all
     }
 
-    /// `line N: compare` with both sides per component; true if they agree
-    /// within the relative tolerance (and the quadrature error estimates).
+    /// `line N: compare` with both sides per component, judged by the
+    /// agreement rule (`numeric::agreement`).
     pub fn compared(
         &mut self,
         line: usize,
         input: &str,
         left: &Evaluation,
         right: &Evaluation,
-    ) -> bool {
-        let mut all = true;
+    ) -> Agreement {
+        let mut all = Agreement::Agree;
         let mut rows = String::new();
         for ((assignment, l), (_, r)) in left.components.iter().zip(&right.components) {
-            let scale = l
-                .value
-                .abs()
-                .max(r.value.abs())
-                .max(l.scale)
-                .max(r.scale)
-                .max(f64::MIN_POSITIVE);
-            let difference = (l.value - r.value).abs();
-            let allowed = COMPARE_TOLERANCE * scale + 10.0 * (l.error + r.error);
-            let ok = difference <= allowed;
-            all &= ok;
+            let verdict = agreement::agreement(l, r);
             let _ = writeln!(
                 rows,
                 "  {}left {}, right {}, relative difference {:.1e}{}",
                 components(assignment),
                 number(l),
                 number(r),
-                difference / scale,
-                if ok { "" } else { "  ← disagree" }
+                agreement::relative_difference(l, r),
+                match &verdict {
+                    Agreement::Agree => String::new(),
+                    Agreement::Disagree => "  ← disagree".into(),
+                    Agreement::Unknown(why) => format!("  ← unknown: {why}"),
+                }
             );
+            all = all.and(verdict);
         }
-        let verdict = if all { "agree" } else { "DISAGREE" };
+        let (verdict, status) = match &all {
+            Agreement::Agree => ("agree", "agree"),
+            Agreement::Disagree => ("DISAGREE", "disagree"),
+            Agreement::Unknown(_) => ("UNKNOWN", "unknown"),
+        };
         let values = |e: &Evaluation| -> String {
             let v: Vec<String> = e
                 .components
@@ -972,7 +1090,7 @@ impl<'a> Reporter<'a> {
                 ("line", line.to_string()),
                 ("kind", js("compare")),
                 ("input", js(input)),
-                ("status", js(if all { "agree" } else { "disagree" })),
+                ("status", js(status)),
                 ("left", values(left)),
                 ("right", values(right)),
             ]
@@ -986,6 +1104,34 @@ impl<'a> Reporter<'a> {
             self.out.push_str(&rows);
         }
         all
+    }
+
+    /// `line N: <statement> UNKNOWN` for a numeric statement that could not
+    /// be carried out (quadrature that did not converge, a value without a
+    /// real value, a dimension without integrals); the rest of the file is
+    /// still checked.
+    pub fn numeric_unknown(&mut self, line: usize, kind: &str, input: &str, why: &str) {
+        self.entry(|_| {
+            vec![
+                ("line", line.to_string()),
+                ("kind", js(kind)),
+                ("input", js(input)),
+                ("status", js("unknown")),
+                ("reason", js(why)),
+            ]
+        });
+        if !self.text() {
+            return;
+        }
+        let _ = writeln!(
+            self.out,
+            "line {line}: {kind} UNKNOWN: {}",
+            abbreviate(input, INPUT_WIDTH)
+        );
+        for (k, text) in why.lines().enumerate() {
+            let head = if k == 0 { "numerically: " } else { "  " };
+            let _ = writeln!(self.out, "  {head}{text}");
+        }
     }
 
     /// The line under a statement marked `slip`: caught (refuted, as
@@ -1020,9 +1166,11 @@ impl<'a> Reporter<'a> {
         confirmed: usize,
         caught: usize,
         failed: usize,
+        unknown: usize,
     ) {
         self.counts = (proved, away, confirmed, failed);
         self.caught = caught;
+        self.unknown = unknown;
         let mut parts = vec![format!("{proved} proved")];
         if away > 0 {
             parts.push(format!("{away} proved away from coincident points"));
@@ -1034,6 +1182,9 @@ impl<'a> Reporter<'a> {
             parts.push(format!("{caught} slip(s) caught"));
         }
         parts.push(format!("{failed} not proved"));
+        if unknown > 0 {
+            parts.push(format!("{unknown} unknown"));
+        }
         let _ = writeln!(self.out, "{}", parts.join(", "));
     }
 }

@@ -11,6 +11,7 @@ use crate::diagnostic::{Error, ErrorKind, Result, Source};
 use crate::egraph::Limits;
 use crate::engine::Engine;
 use crate::lower::{self, ItemKind, Program};
+use crate::numeric::agreement::Agreement;
 use crate::numeric::session::Session;
 use crate::report::Reporter;
 use crate::rules::RuleBook;
@@ -116,13 +117,12 @@ fn numeric_report(
     line: usize,
     text: &str,
     reporter: &mut Reporter,
-) -> Option<bool> {
+) -> Option<Agreement> {
     let input = |keyword: &str| text.strip_prefix(keyword).unwrap_or(text).to_string();
     match (result, kind) {
-        (Numeric::Evaluated(values), _) => {
-            reporter.evaluated(line, &input("evaluate "), values);
-            None
-        }
+        (Numeric::Evaluated(values), _) => reporter
+            .evaluated(line, &input("evaluate "), values)
+            .map(Agreement::Unknown),
         (Numeric::Solved(solution, exact), ItemKind::Solve { unknown, .. }) => {
             reporter.solved(line, &input("solve "), unknown, solution, exact.as_ref());
             None
@@ -193,8 +193,17 @@ fn numeric_step(
                 ratios.push(l.value / r.value);
             }
         }
-        if crate::report::agree(&left, &right) || first_difference.is_some() {
-            continue;
+        match crate::report::agreement(&left, &right) {
+            Agreement::Agree => continue,
+            Agreement::Unknown(why) => {
+                step.numeric = Some(format!(
+                    "not decided on the model at configuration {}: {why}",
+                    k + 1
+                ));
+                return;
+            }
+            Agreement::Disagree if first_difference.is_some() => continue,
+            Agreement::Disagree => {}
         }
         let at = points
             .iter()
@@ -296,7 +305,16 @@ fn flux_step(
             }
         };
         for check in &report.around {
-            if !crate::report::agree(&check.flux, &check.contact) {
+            let verdict = crate::report::agreement(&check.flux, &check.contact);
+            if let Agreement::Unknown(why) = verdict {
+                step.numeric = Some(format!(
+                    "not checked by flux on the model: around {} at configuration {}, {why}",
+                    check.point,
+                    k + 1
+                ));
+                return true;
+            }
+            if !verdict.agrees() {
                 let pair = check
                     .flux
                     .components
@@ -317,18 +335,26 @@ fn flux_step(
                 return true;
             }
         }
-        if let Some(c) = report
-            .away
-            .iter()
-            .find(|c| c.largest > 1e-8 * c.scale.max(f64::MIN_POSITIVE))
-        {
-            step.numeric = Some(format!(
-                "by flux at configuration {}: the divergence is {:.3e} away from the insertions, \
-                 not 0",
-                k + 1,
-                c.largest
-            ));
-            return true;
+        for c in &report.away {
+            match crate::numeric::agreement::vanishes(&c.largest, c.scale) {
+                Agreement::Agree => {}
+                Agreement::Unknown(why) => {
+                    step.numeric = Some(format!(
+                        "not checked by flux on the model at configuration {}: {why}",
+                        k + 1
+                    ));
+                    return true;
+                }
+                Agreement::Disagree => {
+                    step.numeric = Some(format!(
+                        "by flux at configuration {}: the divergence is {:.3e} away from the insertions, \
+                         not 0",
+                        k + 1,
+                        c.largest.value
+                    ));
+                    return true;
+                }
+            }
         }
     }
     step.verdict = crate::derive::StepVerdict::Confirmed { samples };
@@ -461,9 +487,17 @@ pub fn run_folder(dir: &Path, opts: &Options) -> Result<Outcome> {
                 Ok(out) => {
                     let summary = out.report.lines().last().unwrap_or("").to_string();
                     if out.code == 0 {
-                        (true, false, format!("pass  {}  ({summary})", path.display()))
+                        (
+                            true,
+                            false,
+                            format!("pass  {}  ({summary})", path.display()),
+                        )
                     } else {
-                        (false, false, format!("FAIL  {}  ({summary})", path.display()))
+                        (
+                            false,
+                            false,
+                            format!("FAIL  {}  ({summary})", path.display()),
+                        )
                     }
                 }
                 Err(e) => (false, true, format!("FAIL  {}  ({})", path.display(), e)),
@@ -590,6 +624,8 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
     let (mut proved, mut away, mut confirmed, mut failed) = (0, 0, 0, 0);
     // Statements marked `slip` that were refuted, as marked.
     let mut caught = 0;
+    // Numeric statements that could not be decided (exit 1, not a refutation).
+    let mut unknown = 0;
     let mut edits = Vec::new();
     for item in &program.items {
         let text = collapse(&source.text[item.span.start..item.span.end]);
@@ -793,20 +829,26 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
                         }
                     }
                 };
-                let scan = s
-                    .scan(
-                        param,
-                        *from,
-                        *to,
-                        *steps,
-                        lhs,
-                        rhs,
-                        free,
-                        opts.jobs,
-                        &mut progress,
-                    )
-                    .map_err(at_item)?;
                 let input = text.strip_prefix("scan ").unwrap_or(&text);
+                let scan = match s.scan(
+                    param,
+                    *from,
+                    *to,
+                    *steps,
+                    lhs,
+                    rhs,
+                    free,
+                    opts.jobs,
+                    &mut progress,
+                ) {
+                    Ok(scan) => scan,
+                    Err(e) if e.kind == ErrorKind::Numeric => {
+                        reporter.numeric_unknown(item.line, "scan", input, &numeric_reason(&e));
+                        unknown += 1;
+                        continue;
+                    }
+                    Err(e) => return Err(at_item(e)),
+                };
                 let title: String = {
                     let body = input.split(" into ").next().unwrap_or(input);
                     let cut: String = body.chars().take(90).collect();
@@ -822,7 +864,14 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
                     }
                     _ => None,
                 };
-                reporter.scanned(item.line, input, &scan, written.as_deref());
+                let verdict = reporter.scanned(item.line, input, &scan, written.as_deref());
+                if mode == Mode::Check {
+                    match verdict {
+                        Agreement::Agree => confirmed += 1,
+                        Agreement::Disagree => failed += 1,
+                        Agreement::Unknown(_) => unknown += 1,
+                    }
+                }
             }
             (
                 ItemKind::Decompose {
@@ -838,7 +887,7 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
                 let found = s.decompose(corr, *channel, dims).map_err(at_item)?;
                 let input = text.strip_prefix("decompose ").unwrap_or(&text);
                 let written = match output {
-                    Some(stem) => {
+                    Some(stem) if !opts.keep_scan_files => {
                         let scan = crate::numeric::session::Scan {
                             param: "xi".into(),
                             labels: vec![String::new()],
@@ -847,11 +896,26 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
                                 .iter()
                                 .map(|(x, g, e)| (*x, vec![*g], vec![*e]))
                                 .collect(),
+                            judged: found
+                                .rows
+                                .iter()
+                                .map(|(_, g, e)| {
+                                    let size = g.abs().max(e.abs()).max(f64::MIN_POSITIVE);
+                                    let r = (g - e).abs() / size;
+                                    let verdict =
+                                        if r <= crate::numeric::decompose::DECOMPOSE_TOLERANCE {
+                                            Agreement::Agree
+                                        } else {
+                                            Agreement::Disagree
+                                        };
+                                    vec![(r, verdict)]
+                                })
+                                .collect(),
                         };
                         let title = format!("{input}: G(ξ) and its expansion");
                         Some(write_scan(&scan, base, stem, &title).map_err(at_item)?)
                     }
-                    None => None,
+                    _ => None,
                 };
                 let ok = reporter.decomposed(item.line, input, &found, written.as_deref());
                 if mode == Mode::Check {
@@ -890,21 +954,34 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
                     |_, &k| {
                         let view = s.on_sample(k);
                         let points = view.select(k);
-                        numeric_item(&view, &item.kind).map(|r| (points, r))
+                        Ok::<_, std::convert::Infallible>((points, numeric_item(&view, &item.kind)))
                     },
                     &mut progress,
                 );
                 // The statements after this one see the last configuration.
                 s.select(count.saturating_sub(1));
-                for (k, result) in results.into_iter().enumerate() {
-                    let (points, result) = result.map_err(at_item)?;
+                for (k, result) in results.into_iter().flatten().enumerate() {
+                    let (points, result) = result;
                     if count > 1 {
                         reporter.sample(k + 1, &points);
                     }
-                    match numeric_report(&result, &item.kind, item.line, &text, &mut reporter) {
-                        Some(true) if mode == Mode::Check => confirmed += 1,
-                        Some(false) if mode == Mode::Check => failed += 1,
-                        _ => {}
+                    // A numeric failure (no real value, quadrature that did
+                    // not converge, …) leaves this statement unknown; the
+                    // rest of the file is still checked.
+                    match result
+                        .map(|r| numeric_report(&r, &item.kind, item.line, &text, &mut reporter))
+                    {
+                        Ok(Some(Agreement::Agree)) if mode == Mode::Check => confirmed += 1,
+                        Ok(Some(Agreement::Disagree)) if mode == Mode::Check => failed += 1,
+                        Ok(Some(Agreement::Unknown(_))) if mode == Mode::Check => unknown += 1,
+                        Ok(_) => {}
+                        Err(e) if e.kind == ErrorKind::Numeric => {
+                            let kind = text.split_whitespace().next().unwrap_or("statement");
+                            let input = text.strip_prefix(kind).unwrap_or(&text).trim_start();
+                            reporter.numeric_unknown(item.line, kind, input, &numeric_reason(&e));
+                            unknown += 1;
+                        }
+                        Err(e) => return Err(at_item(e)),
                     }
                 }
             }
@@ -922,13 +999,20 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
         }
     }
     if mode == Mode::Check {
-        reporter.summary(proved, away, confirmed, caught, failed);
+        reporter.summary(proved, away, confirmed, caught, failed, unknown);
     }
     Ok(Outcome {
         report: reporter.finish(),
-        code: i32::from(failed > 0),
+        code: i32::from(failed + unknown > 0),
         edits,
     })
+}
+
+/// A numeric error's message and notes, for an unknown verdict.
+fn numeric_reason(e: &Error) -> String {
+    let mut lines = vec![e.message.clone()];
+    lines.extend(e.notes.iter().cloned());
+    lines.join("\n")
 }
 
 fn read_source(path: &Path) -> Result<Arc<Source>> {

@@ -23,7 +23,7 @@
 mod compile;
 mod program;
 
-pub use program::Program;
+pub use program::{Bounded, Program};
 
 use crate::context::Context;
 use crate::diagnostic::Result;

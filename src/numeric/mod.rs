@@ -8,6 +8,7 @@
 //! [`quadrature`] integrates such programs over spheres, hemispheres and the
 //! boundary plane with an error estimate. Floating point appears only here.
 
+pub mod agreement;
 pub mod decompose;
 pub mod eval;
 pub mod models;

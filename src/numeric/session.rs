@@ -16,11 +16,14 @@ use std::sync::{Arc, Mutex};
 
 use num_traits::ToPrimitive;
 
+use super::agreement::{
+    agreement, describe_loss, relative_difference, Agreement, ERROR_SAFETY, RESOLUTION,
+};
 use super::eval::compile;
 use super::models::conformal::{Conformal, Convention};
 use super::models::free_scalar::{Composite, FreeScalar, Mapping, Wall};
 use super::models::{apply, pointwise_pairs, sphere_area, Model, SPHERE_AREA};
-use super::quadrature::{integrate, Surface, Tolerance};
+use super::quadrature::{integrate, Surface, Tolerance, MAX_DIM, MIN_DIM};
 use super::Values;
 use crate::context::{Context, IndexKind, DIMENSION, STRESS_TENSOR};
 use crate::diagnostic::{Error, ErrorKind, Result};
@@ -37,6 +40,11 @@ const QUADRATURE_TOLERANCE: f64 = 1e-11;
 const QUADRATURE_FLOOR: f64 = 1e-12;
 /// Largest number of integrand evaluations for one integral.
 const QUADRATURE_BUDGET: usize = 400_000;
+/// How far (relative) a third evaluation of `solve` may be off the line
+/// through the first two.
+const LINEARITY_TOLERANCE: f64 = 1e-8;
+/// Every this many integrand evaluations, one carries a rounding bound.
+const ROUNDING_SAMPLE: usize = 16;
 
 /// The numeric set-up of one file. It may be shared between threads (a
 /// scan's steps run in parallel), and [`Session::on_sample`] gives each
@@ -54,17 +62,7 @@ pub struct Session<'a> {
     explicit_cache: Arc<Mutex<std::collections::HashMap<Term, Term>>>,
 }
 
-/// One numeric value with its error estimate (0 when no quadrature was
-/// involved) and the number of integrand evaluations.
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub struct Value {
-    pub value: f64,
-    pub error: f64,
-    pub nodes: usize,
-    /// The size of the parts the value was summed from (Σ|part|), for
-    /// judging a value that should vanish.
-    pub scale: f64,
-}
+pub use super::agreement::Value;
 
 /// The solution of a linear equation for one parameter.
 #[derive(Clone, Debug, PartialEq)]
@@ -84,6 +82,9 @@ pub struct Scan {
     pub labels: Vec<String>,
     /// (parameter, left components, right components).
     pub rows: Vec<(f64, Vec<f64>, Vec<f64>)>,
+    /// Per row, per component: the relative difference of the two sides
+    /// and the agreement rule's verdict.
+    pub judged: Vec<Vec<(f64, Agreement)>>,
 }
 
 /// A local identity checked insertion by insertion.
@@ -107,7 +108,9 @@ pub struct FluxCheck {
 #[derive(Clone, Debug, PartialEq)]
 pub struct Conservation {
     pub at: Vec<f64>,
-    pub largest: f64,
+    /// The component of the divergence largest in size, with the largest
+    /// rounding bound of any component.
+    pub largest: Value,
     pub scale: f64,
 }
 
@@ -331,19 +334,42 @@ impl<'a> Session<'a> {
         rhs: &Term,
         free: &[String],
     ) -> Result<Solution> {
-        let residual = |a: f64| -> Result<Vec<f64>> {
+        // Per component: left - right, and its noise (error estimates and
+        // rounding bounds); a side that is not known stops the solve.
+        let residual_noise = |a: f64| -> Result<Vec<(f64, f64)>> {
             let mut values = self.values().clone();
             values.scalars.insert(unknown.to_string(), a);
             let l = self.evaluate_with(lhs, free, &values)?;
             let r = self.evaluate_with(rhs, free, &values)?;
-            Ok(l.components
+            l.components
                 .iter()
                 .zip(&r.components)
-                .map(|((_, x), (_, y))| x.value - y.value)
-                .collect())
+                .map(|((_, x), (_, y))| {
+                    for (side, v) in [("left", x), ("right", y)] {
+                        if let Some(loss) = v.loss() {
+                            return Err(Error::new(
+                                ErrorKind::Numeric,
+                                format!(
+                                    "cannot solve with `{unknown}` = {a}: {}",
+                                    describe_loss(side, v, loss)
+                                ),
+                            ));
+                        }
+                    }
+                    Ok((
+                        x.value - y.value,
+                        x.error + y.error + x.rounding + y.rounding,
+                    ))
+                })
+                .collect()
         };
-        let f0 = residual(0.0)?;
-        let f1 = residual(1.0)?;
+        let residual = |a: f64| -> Result<Vec<f64>> {
+            Ok(residual_noise(a)?.into_iter().map(|(f, _)| f).collect())
+        };
+        let g0 = residual_noise(0.0)?;
+        let g1 = residual_noise(1.0)?;
+        let f0: Vec<f64> = g0.iter().map(|(f, _)| *f).collect();
+        let f1: Vec<f64> = g1.iter().map(|(f, _)| *f).collect();
         let Some(k) =
             (0..f0.len()).max_by(|&i, &j| (f1[i] - f0[i]).abs().total_cmp(&(f1[j] - f0[j]).abs()))
         else {
@@ -356,12 +382,22 @@ impl<'a> Session<'a> {
                 format!("neither side depends on `{unknown}`"),
             ));
         }
+        let noise = ERROR_SAFETY * (g0[k].1 + g1[k].1);
+        if noise > RESOLUTION * slope.abs() {
+            return Err(Error::new(
+                ErrorKind::Numeric,
+                format!(
+                    "cannot solve for `{unknown}`: the equation changes by {slope:.3e} between `{unknown}` = 0 and 1, \
+                     and its values are known only to {noise:.1e} (rounding and quadrature)"
+                ),
+            ));
+        }
         let solution = -f0[k] / slope;
         // A line through f(0) and f(1) must also pass through f(2).
         let f2 = residual(2.0)?;
         let predicted = f0[k] + 2.0 * slope;
         let scale = f0[k].abs().max(slope.abs());
-        if (f2[k] - predicted).abs() > 1e-8 * scale {
+        if (f2[k] - predicted).abs() > LINEARITY_TOLERANCE * scale + noise {
             return Err(Error::new(
                 ErrorKind::Numeric,
                 format!("the equation is not linear in `{unknown}`; solve only finds coefficients that enter linearly"),
@@ -401,7 +437,7 @@ impl<'a> Session<'a> {
             }
             if !self.values().points.contains_key(&decl.name) {
                 return Err(Error::new(
-                    ErrorKind::Numeric,
+                    ErrorKind::Placement,
                     format!("`{}` has no position", decl.name),
                 )
                 .with_note(format!("give one: `place {} at (…)`", decl.name)));
@@ -461,14 +497,21 @@ impl<'a> Session<'a> {
             }
             let mut values = self.values().clone();
             values.points.insert(var.name.to_string(), at.clone());
-            let mut largest: f64 = 0.0;
+            let mut largest = Value::exact(0.0);
             let mut scale: f64 = 0.0;
             for assignment in assignments(self.ctx, free, values.dim) {
-                largest = largest.max(
-                    compile(self.ctx, &divergence, &assignment, values.dim)?
-                        .eval(&values)?
-                        .abs(),
-                );
+                let b = compile(self.ctx, &divergence, &assignment, values.dim)?
+                    .eval_bounded(&values)?;
+                if b.value.abs() >= largest.value.abs() {
+                    largest.value = b.value;
+                }
+                largest.rounding = largest.rounding.max(if b.overflow {
+                    f64::INFINITY
+                } else {
+                    b.rounding
+                });
+                largest.scale = largest.scale.max(b.scale);
+                largest.underflow |= b.underflow;
                 for k in 0..values.dim {
                     let mut with_index = assignment.clone();
                     if let Index::Named(name) = index {
@@ -521,6 +564,7 @@ impl<'a> Session<'a> {
             progress,
         );
         let mut rows = Vec::with_capacity(steps);
+        let mut judged = Vec::with_capacity(steps);
         let mut labels = Vec::new();
         for result in results {
             let (x, l, r) = result?;
@@ -541,29 +585,35 @@ impl<'a> Session<'a> {
                 l.components.iter().map(|(_, v)| v.value).collect(),
                 r.components.iter().map(|(_, v)| v.value).collect(),
             ));
+            judged.push(
+                l.components
+                    .iter()
+                    .zip(&r.components)
+                    .map(|((_, a), (_, b))| (relative_difference(a, b), agreement(a, b)))
+                    .collect(),
+            );
         }
         Ok(Scan {
             param: param.to_string(),
             labels,
             rows,
+            judged,
         })
     }
 
     fn value(&self, t: &Term, free: &[(String, usize)], values: &Values) -> Result<Value> {
         match t {
             Term::Add(ts) => {
-                let mut total = Value {
-                    value: 0.0,
-                    error: 0.0,
-                    nodes: 0,
-                    scale: 0.0,
-                };
+                let mut total = Value::exact(0.0);
                 for t in ts {
                     let v = self.value(t, free, values)?;
                     total.value += v.value;
                     total.error += v.error;
                     total.nodes += v.nodes;
                     total.scale += v.scale;
+                    total.rounding += v.rounding + f64::EPSILON * total.value.abs();
+                    total.underflow |= v.underflow;
+                    total.terms = total.terms.max(v.terms);
                 }
                 Ok(total)
             }
@@ -577,25 +627,27 @@ impl<'a> Session<'a> {
                     |f| matches!(f, Term::Integral(i) if i.surface || i.region == Region::Boundary),
                 ) =>
             {
-                let mut total = Value {
-                    value: 1.0,
-                    error: 0.0,
-                    nodes: 0,
-                    scale: 0.0,
-                };
+                let mut total = Value::exact(1.0);
                 for f in fs {
                     let v = self.value(f, free, values)?;
                     total.error = (total.error * v.value).abs() + (v.error * total.value).abs();
+                    total.rounding = (total.rounding * v.value).abs()
+                        + (v.rounding * total.value).abs()
+                        + total.rounding * v.rounding
+                        + f64::EPSILON * (total.value * v.value).abs();
+                    total.scale *= v.scale;
+                    total.underflow |= v.underflow;
+                    total.terms = total.terms.max(v.terms);
                     total.value *= v.value;
                     total.nodes += v.nodes;
                 }
-                total.scale = total.value.abs();
+                total.scale = total.scale.max(total.value.abs());
                 Ok(total)
             }
             _ => {
                 if let Some((a, b)) = coincident(t, values) {
                     return Err(Error::new(
-                        ErrorKind::Numeric,
+                        ErrorKind::Placement,
                         format!(
                             "a correlator is evaluated with `{a}` and `{b}` at the same position, \
                              where it has no value"
@@ -603,12 +655,22 @@ impl<'a> Session<'a> {
                     )
                     .with_note("place the points apart"));
                 }
-                let value = self.explicit(t, free)?.eval(values)?;
+                let b = self.explicit(t, free)?.eval_bounded(values)?;
+                let rounding = if b.overflow {
+                    f64::INFINITY
+                } else {
+                    b.rounding
+                };
                 Ok(Value {
-                    value,
+                    value: b.value,
                     error: 0.0,
                     nodes: 0,
-                    scale: value.abs(),
+                    // One part: what cancels inside it is judged against
+                    // the value itself.
+                    scale: b.value.abs(),
+                    rounding,
+                    underflow: b.underflow,
+                    terms: b.scale,
                 })
             }
         }
@@ -639,6 +701,20 @@ impl<'a> Session<'a> {
     }
 
     fn integral(&self, i: &Integral, free: &[(String, usize)], values: &Values) -> Result<Value> {
+        if !(MIN_DIM..=MAX_DIM).contains(&values.dim) {
+            return Err(Error::new(
+                ErrorKind::Numeric,
+                format!(
+                    "numeric integrals over spheres and the boundary plane are done in dimensions \
+                     {MIN_DIM} to {MAX_DIM}, and this file is in dimension {}",
+                    values.dim
+                ),
+            )
+            .with_note(format!(
+                "the product rules grow as n^(d-1) nodes; check this identity in d ≤ {MAX_DIM}, \
+                 or without an integral (the local form, with `compare`)"
+            )));
+        }
         let (surface, body) = match (&i.region, i.surface) {
             (Region::Ball(center, radius), true) => {
                 let c = self.position(center)?;
@@ -654,7 +730,7 @@ impl<'a> Session<'a> {
                 let height = c.last().copied().unwrap_or(0.0);
                 if self.ctx.has_halfspace() && !on_wall && height - r <= 1e-6 * r {
                     return Err(Error::new(
-                        ErrorKind::Numeric,
+                        ErrorKind::Placement,
                         format!(
                             "the sphere of radius {r} around `{}` reaches the wall: `{}` is only {height} from it",
                             center.name, center.name
@@ -690,7 +766,7 @@ impl<'a> Session<'a> {
             }
             _ => {
                 return Err(Error::new(
-                    ErrorKind::Numeric,
+                    ErrorKind::Placement,
                     "numerically, integrals run over spheres `∮[x on ball(c, r)]` and the boundary plane `∫[x∥ in boundary]`",
                 ))
             }
@@ -706,20 +782,41 @@ impl<'a> Session<'a> {
             .map(|(n, p)| (n.as_str(), p.as_slice()))
             .collect();
         if let Region::Ball(..) = i.region {
+            // A surface through an insertion is the input's mistake.
             surface
                 .check_clear(&avoid_refs, 1e-6)
-                .map_err(quadrature_error)?;
+                .map_err(|e| Error::new(ErrorKind::Placement, e.to_string()))?;
         }
         let program = self.explicit(&body, free)?;
         let values = RefCell::new(values.clone());
         let failure = RefCell::new(None);
+        // The integrand's rounding, at every ROUNDING_SAMPLE-th node: the
+        // largest bound and the largest value seen there.
+        let count = std::cell::Cell::new(0usize);
+        let noise = std::cell::Cell::new((0.0f64, 0.0f64, false));
         let estimate = integrate(
             &surface,
             |x, normal| {
                 let mut v = values.borrow_mut();
                 v.points.insert(i.var.name.to_string(), x.to_vec());
                 v.tensors.insert(NORMAL_VALUE.to_string(), normal.to_vec());
-                match program.eval(&v) {
+                let k = count.get();
+                count.set(k + 1);
+                let result = if k % ROUNDING_SAMPLE == 0 {
+                    program.eval_bounded(&v).map(|b| {
+                        let (e, f, under) = noise.get();
+                        let e = if b.overflow {
+                            f64::INFINITY
+                        } else {
+                            e.max(b.rounding)
+                        };
+                        noise.set((e, f.max(b.value.abs()), under || b.underflow));
+                        b.value
+                    })
+                } else {
+                    program.eval(&v)
+                };
+                match result {
                     Ok(f) => f,
                     Err(e) => {
                         failure.borrow_mut().get_or_insert(e);
@@ -744,11 +841,27 @@ impl<'a> Session<'a> {
             )
             .with_note("move the surface away from the insertions, or change its size"));
         }
+        // The integral inherits the integrand's relative rounding, against
+        // Σ|w f|.
+        let (largest_rounding, largest_value, underflow) = noise.get();
+        let magnitude = estimate.magnitude.max(estimate.value.abs());
+        let rounding = if largest_value > 0.0 {
+            largest_rounding / largest_value * magnitude
+        } else {
+            largest_rounding
+        };
         Ok(Value {
             value: estimate.value,
             error: estimate.error,
             nodes: estimate.nodes,
-            scale: estimate.value.abs(),
+            scale: magnitude,
+            rounding: if rounding.is_nan() {
+                f64::INFINITY
+            } else {
+                rounding
+            },
+            underflow,
+            terms: magnitude,
         })
     }
 
@@ -773,7 +886,7 @@ impl<'a> Session<'a> {
         }
         best.ok_or_else(|| {
             Error::new(
-                ErrorKind::Numeric,
+                ErrorKind::Placement,
                 "an integral over the boundary plane needs a bulk insertion with a position (`place x1 at (…)`)",
             )
         })
@@ -781,8 +894,11 @@ impl<'a> Session<'a> {
 
     fn position(&self, p: &Point) -> Result<Vec<f64>> {
         self.values().points.get(&*p.name).cloned().ok_or_else(|| {
-            Error::new(ErrorKind::Numeric, format!("`{}` has no position", p.name))
-                .with_note(format!("give one: `place {} at (…)`", p.name))
+            Error::new(
+                ErrorKind::Placement,
+                format!("`{}` has no position", p.name),
+            )
+            .with_note(format!("give one: `place {} at (…)`", p.name))
         })
     }
 }

@@ -161,6 +161,42 @@ impl Program {
         self.finite(regs[self.output as usize], None)
     }
 
+    /// The value at `values` with a bound on its rounding error and the
+    /// size of the terms it was summed from (see [`Bounded`]). Slower than
+    /// [`Program::eval`]: use it for values that are judged, not for the
+    /// inner loop of quadrature.
+    pub fn eval_bounded(&self, values: &Values) -> Result<Bounded> {
+        let mut regs = self.template.clone();
+        self.load(values, &mut regs, None)?;
+        // Constants were rounded once when folded; inputs are taken as exact.
+        let mut err: Vec<f64> = self.template.iter().map(|c| EPS * c.abs()).collect();
+        let mut mag: Vec<f64> = regs.iter().map(|v| v.abs()).collect();
+        let mut loss = Loss::default();
+        run_bounded(
+            &self.code, &mut regs, &mut err, &mut mag, self.dim, &mut loss,
+        )
+        .map_err(|f| self.fault(&f, &regs, None))?;
+        let out = self.output as usize;
+        let value = regs[out];
+        if !value.is_finite() {
+            return Err(Error::new(
+                ErrorKind::Numeric,
+                format!("the value is {value}: the arithmetic overflowed"),
+            ));
+        }
+        Ok(Bounded {
+            value,
+            rounding: if err[out].is_nan() {
+                f64::INFINITY
+            } else {
+                err[out]
+            },
+            scale: mag[out].max(value.abs()),
+            underflow: loss.underflow,
+            overflow: loss.overflow,
+        })
+    }
+
     /// The values at `values` with the point `point` moved to each of
     /// `coords` in turn (its entry in `values.points`, if any, is not
     /// read). The part of the code that does not depend on `point` runs
@@ -385,6 +421,166 @@ fn check_tensor(
                 }
             }
         }
+    }
+    Ok(())
+}
+
+/// Unit roundoff of f64 (half the machine epsilon).
+const EPS: f64 = f64::EPSILON / 2.0;
+/// The absolute error of rounding a result in the subnormal range.
+const TINY: f64 = 5e-324;
+
+/// A value with what is known about its accuracy: a running bound on the
+/// rounding error (first order, Wilkinson's running error analysis: each
+/// operation adds its own rounding to the errors of its operands carried
+/// through it; common practice) and the size of the terms it was summed
+/// from (sums add the sizes of their operands, products multiply them;
+/// roots, reciprocals and powers start afresh from their value). A value
+/// much smaller than its terms was cancelled; a value whose rounding bound
+/// is not small against it is not known.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Bounded {
+    pub value: f64,
+    /// Bound on |computed - exact| from rounding (infinite when an
+    /// intermediate result overflowed).
+    pub rounding: f64,
+    /// Size of the terms, ≥ |value|.
+    pub scale: f64,
+    /// Some intermediate result fell below the normal range of f64
+    /// (its exact value was not 0).
+    pub underflow: bool,
+    /// Some intermediate result was infinite.
+    pub overflow: bool,
+}
+
+#[derive(Default)]
+struct Loss {
+    underflow: bool,
+    overflow: bool,
+}
+
+/// Runs `code` as [`run`] does, carrying a rounding bound `err` and a term
+/// size `mag` per register.
+fn run_bounded(
+    code: &[Instr],
+    regs: &mut [f64],
+    err: &mut [f64],
+    mag: &mut [f64],
+    dim: usize,
+    loss: &mut Loss,
+) -> std::result::Result<(), Fault> {
+    for ins in code {
+        let (v, e, m, exact_nonzero) = match ins.op {
+            Op::Add(a, b) | Op::Sub(a, b) => {
+                let (x, y) = (regs[a as usize], regs[b as usize]);
+                let v = if matches!(ins.op, Op::Add(..)) {
+                    x + y
+                } else {
+                    x - y
+                };
+                // A sum of floats that is subnormal is exact.
+                (
+                    v,
+                    err[a as usize] + err[b as usize] + EPS * v.abs(),
+                    mag[a as usize] + mag[b as usize],
+                    false,
+                )
+            }
+            Op::Mul(a, b) => {
+                let (x, y) = (regs[a as usize], regs[b as usize]);
+                let (ex, ey) = (err[a as usize], err[b as usize]);
+                let v = x * y;
+                let e = x.abs() * ey + y.abs() * ex + ex * ey + EPS * v.abs();
+                (
+                    v,
+                    e,
+                    mag[a as usize] * mag[b as usize],
+                    x != 0.0 && y != 0.0,
+                )
+            }
+            Op::Dist2 {
+                p,
+                q,
+                p_wall,
+                q_wall,
+            } => {
+                let (p, q) = (p as usize, q as usize);
+                let v = dist2(regs, p, q, dim, p_wall, q_wall);
+                // Each difference and square rounds once, the sum dim times.
+                let e = (dim as f64 + 3.0) * EPS * v;
+                (v, e, v, false)
+            }
+            Op::Sqrt(a) => {
+                let x = regs[a as usize];
+                if x < 0.0 {
+                    return Err(Fault(*ins));
+                }
+                let v = x.sqrt();
+                let ex = err[a as usize];
+                let carried = if x > 0.0 {
+                    (ex / v).min(ex.sqrt())
+                } else {
+                    ex.sqrt()
+                };
+                (v, carried + EPS * v, v, false)
+            }
+            Op::Recip(a) => {
+                let x = regs[a as usize];
+                if x == 0.0 {
+                    return Err(Fault(*ins));
+                }
+                let v = 1.0 / x;
+                let ex = err[a as usize];
+                let carried = if ex < x.abs() {
+                    ex / (x.abs() * (x.abs() - ex))
+                } else {
+                    f64::INFINITY
+                };
+                (v, carried + EPS * v.abs(), v.abs(), true)
+            }
+            Op::Pow(a, b) => {
+                let (x, y) = (regs[a as usize], regs[b as usize]);
+                if x <= 0.0 && ((x == 0.0 && y < 0.0) || (x < 0.0 && y.fract() != 0.0)) {
+                    return Err(Fault(*ins));
+                }
+                let v = x.powf(y);
+                let (ex, ey) = (err[a as usize], err[b as usize]);
+                // d(x^y) = x^y (y dx/x + ln|x| dy); powf is within a few ulps.
+                let relative = if x == 0.0 {
+                    if ex == 0.0 {
+                        0.0
+                    } else {
+                        f64::INFINITY
+                    }
+                } else if ex < x.abs() {
+                    // Both ends of [x - ex, x + ex] for large exponents.
+                    let lo = ((x.abs() - ex) / x.abs()).powf(y);
+                    let hi = ((x.abs() + ex) / x.abs()).powf(y);
+                    (lo - 1.0).abs().max((hi - 1.0).abs())
+                } else {
+                    f64::INFINITY
+                };
+                let e = v.abs() * (relative + x.abs().ln().abs() * ey + 4.0 * EPS);
+                (v, e, v.abs(), x != 0.0)
+            }
+        };
+        if !v.is_finite() {
+            loss.overflow = true;
+        }
+        let mut e = e;
+        if exact_nonzero && v.abs() < f64::MIN_POSITIVE {
+            // Below the normal range only absolute accuracy is left.
+            loss.underflow = true;
+            e += TINY;
+        }
+        let out = ins.out as usize;
+        regs[out] = v;
+        err[out] = if e.is_nan() || !v.is_finite() {
+            f64::INFINITY
+        } else {
+            e
+        };
+        mag[out] = if m.is_nan() { f64::INFINITY } else { m };
     }
     Ok(())
 }

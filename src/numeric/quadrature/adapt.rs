@@ -13,9 +13,12 @@
 //! one variable refines that one only. Variables far below their share are
 //! not probed again until the estimate meets the tolerance; then one more
 //! round probes them at the final resolutions, so the estimate returned as
-//! converged always rests on probes of every variable. The driver never
-//! evaluates a rule that would take the total past the node budget: it then
-//! returns what it has, flagged as not converged.
+//! converged rests on probes of every variable — unless the node budget
+//! runs out in that last round: the estimate, which met the tolerance with
+//! the settled variables' indicators from their earlier probes, is then
+//! returned as converged. The driver never evaluates a rule that would take
+//! the total past the node budget: otherwise it returns what it has,
+//! flagged as not converged.
 
 use super::surface::{Compensated, Patch, Surface};
 
@@ -82,6 +85,9 @@ pub struct Estimate {
     pub error: f64,
     /// How many times the integrand was evaluated.
     pub nodes: usize,
+    /// Σ|w f| over the last rule summed: the size of the integrand's
+    /// contributions, against which a vanishing integral is judged.
+    pub magnitude: f64,
     /// Whether the error estimate met the tolerance. When false the driver
     /// stopped on the node budget, on a value that was not finite (NaN or
     /// infinite at some node: refining cannot help), on the round-off floor,
@@ -120,6 +126,7 @@ pub fn integrate(surface: &Surface, f: impl Fn(&[f64], &[f64]) -> f64, tol: Tole
         f: &f,
         nodes: 0,
         max_nodes: tol.max_nodes,
+        magnitude: 0.0,
     }
     .run(tol)
 }
@@ -158,6 +165,8 @@ struct Driver<'a> {
     f: &'a dyn Fn(&[f64], &[f64]) -> f64,
     nodes: usize,
     max_nodes: usize,
+    /// Σ|w f| of the current rules.
+    magnitude: f64,
 }
 
 impl Driver<'_> {
@@ -199,6 +208,13 @@ impl Driver<'_> {
                     let probe = match self.eval(patch, &res) {
                         Some(probe) if probe.value.is_finite() => probe,
                         Some(probe) => return self.stop(probe.value, f64::INFINITY),
+                        // The budget ran out in the round that re-probes the
+                        // settled variables: the estimate already met the
+                        // tolerance (their indicators are from earlier
+                        // probes), so it stands.
+                        None if best.1 <= tol.target(best.0) => {
+                            return self.done(best.0, best.1);
+                        }
                         None => return self.stop(best.0, best.1),
                     };
                     state.vars[j].probe = Some(probe);
@@ -222,15 +238,11 @@ impl Driver<'_> {
             }
             let error = indicators + ROUND_OFF * f64::EPSILON * abs;
             best = (value, error);
+            self.magnitude = abs;
             let target = tol.target(value);
             if error <= target {
                 if complete {
-                    return Estimate {
-                        value,
-                        error,
-                        nodes: self.nodes,
-                        converged: true,
-                    };
+                    return self.done(value, error);
                 }
                 // Check the settled variables at the final resolutions.
                 for state in &mut states {
@@ -303,7 +315,15 @@ impl Driver<'_> {
             value,
             error,
             nodes: self.nodes,
+            magnitude: self.magnitude,
             converged: false,
+        }
+    }
+
+    fn done(&self, value: f64, error: f64) -> Estimate {
+        Estimate {
+            converged: true,
+            ..self.stop(value, error)
         }
     }
 }
