@@ -31,6 +31,13 @@
 //! normaliser), and then every auxiliary point is set equal to the
 //! insertion point. For a boundary insertion this sets y → 0 after the
 //! normal derivatives are taken.
+//!
+//! Work done once: each contraction is computed (and normalised) once per
+//! pair of insertions and derivative structure, whatever the names of the
+//! indices (renamed on use); terms of a composite with the same fields and
+//! derivatives are merged before contraction; two interchangeable fields of
+//! one insertion are paired once, with weight 2. The pairings are
+//! enumerated depth first within [`crate::budget::MAX_WICK`].
 
 use std::collections::{BTreeMap, BTreeSet};
 
@@ -579,9 +586,12 @@ impl Model for FreeScalar {
 /// sum of their coefficients: ∂_iφ∂_jφ and -2ξ ∂_iφ∂_jφ of the improved T
 /// are contracted once, not twice.
 fn merge_products(products: Vec<Product>) -> Vec<Product> {
-    let mut out: Vec<(Vec<Vec<Index>>, Vec<Term>, Vec<Vec<Index>>)> = Vec::new();
+    // (the legs with the composite's dummies renamed, the coefficients,
+    // the first product's own legs)
+    type Group = (Vec<Vec<Index>>, Vec<Term>, Vec<Vec<Index>>);
+    let mut out: Vec<Group> = Vec::new();
     for p in products {
-        let shape = shape(&p.legs, &[]).0;
+        let shape = shape(&p.legs).0;
         match out.iter_mut().find(|(s, _, _)| *s == shape) {
             Some((_, coefs, _)) => coefs.push(p.coef),
             None => out.push((shape, vec![p.coef], p.legs)),
@@ -600,9 +610,8 @@ fn merge_products(products: Vec<Product>) -> Vec<Product> {
 }
 
 /// Derivative lists with their named indices renamed to `κs1`, `κs2`, … in
-/// order of first appearance (`prefix` lists come first and are not
-/// returned), and the names in that order.
-fn shape(legs: &[Vec<Index>], prefix: &[&[Index]]) -> (Vec<Vec<Index>>, Vec<String>) {
+/// order of first appearance, and the names in that order.
+fn shape(legs: &[Vec<Index>]) -> (Vec<Vec<Index>>, Vec<String>) {
     let mut names: Vec<String> = Vec::new();
     let mut rename = |i: &Index| match i {
         Index::Named(n) => {
@@ -617,11 +626,6 @@ fn shape(legs: &[Vec<Index>], prefix: &[&[Index]]) -> (Vec<Vec<Index>>, Vec<Stri
         }
         Index::N => Index::N,
     };
-    for derivs in prefix {
-        derivs.iter().for_each(|i| {
-            rename(i);
-        });
-    }
     let out = legs
         .iter()
         .map(|derivs| derivs.iter().map(&mut rename).collect())
@@ -710,7 +714,7 @@ impl Wick<'_> {
     /// it (`position` tells the factors of one product apart). `None` when
     /// the contraction is dropped.
     fn factor(&mut self, a: &Leg, b: &Leg, position: usize) -> Result<Option<Term>> {
-        let (shape, names) = shape(&[a.derivs.clone(), b.derivs.clone()], &[]);
+        let (shape, names) = shape(&[a.derivs.clone(), b.derivs.clone()]);
         let key: Key = (a.op, b.op, shape);
         if !self.cache.contains_key(&key) {
             let boundary = self.composites[a.op].on_boundary();
