@@ -141,3 +141,130 @@ pub fn on_checker_stack<T: Send>(f: impl FnOnce() -> T + Send) -> T {
         },
     }
 }
+
+/// Steps of rule matching that one e-graph run may take (and, apart, the
+/// search for unapplied redexes after it): every binding the matcher tries
+/// is a step. A user rule with many insertion patterns on a long correlator
+/// has a number of matches that grows like a falling factorial (six
+/// patterns on forty insertions: 2.8·10⁹); the run stops at this limit with
+/// "unknown", whatever the e-node limit. Measured: the largest shipped
+/// case takes 1,426 steps in one run, the divergence identity with 128
+/// insertions 21,641; a million steps take about a second.
+pub const MAX_MATCH_STEPS: usize = 1_000_000;
+
+thread_local! {
+    /// (limit, steps taken) of the rule matching running on this thread.
+    static MATCHING: std::cell::Cell<(usize, usize)> =
+        const { std::cell::Cell::new((usize::MAX, 0)) };
+}
+
+/// The span of one budgeted rule search on this thread ([`match_step`]):
+/// it starts the count from zero with its own limit, and restores the
+/// enclosing span's count when dropped.
+pub struct Matching {
+    outer: (usize, usize),
+}
+
+impl Matching {
+    pub fn enter(limit: usize) -> Matching {
+        let outer = MATCHING.with(|m| m.replace((limit, 0)));
+        Matching { outer }
+    }
+
+    /// Steps taken so far in this span.
+    pub fn spent(&self) -> usize {
+        MATCHING.with(|m| m.get().1)
+    }
+
+    /// True when the span's limit was reached.
+    pub fn exhausted(&self) -> bool {
+        matching_exhausted()
+    }
+}
+
+impl Drop for Matching {
+    fn drop(&mut self) {
+        MATCHING.with(|m| m.set(self.outer));
+    }
+}
+
+/// Takes one step of rule matching; false once the running [`Matching`]
+/// span has reached its limit (then every later step is refused as well).
+/// Outside a span nothing is limited.
+pub fn match_step() -> bool {
+    MATCHING.with(|m| {
+        let (limit, spent) = m.get();
+        if spent >= limit {
+            // Past the limit: remembered, so that `matching_exhausted`
+            // tells a search that ran out from one that took exactly
+            // `limit` steps.
+            m.set((limit, limit.saturating_add(1)));
+            return false;
+        }
+        m.set((limit, spent + 1));
+        true
+    })
+}
+
+/// True when the running [`Matching`] span has reached its limit.
+pub fn matching_exhausted() -> bool {
+    MATCHING.with(|m| {
+        let (limit, spent) = m.get();
+        spent > limit
+    })
+}
+
+/// Work a model's Wick expansion may do for one correlator: every pair of
+/// fields it tries (kept or pruned) counts one, and every product it keeps
+/// counts the nodes of its terms. Each pairing is one product in the sum
+/// the normaliser then expands, so this bounds both the time of the
+/// enumeration and the memory of the sum (a node takes about 100 bytes).
+/// Measured: ⟨D D D⟩ of the free scalar with a Neumann wall takes 24,628,
+/// ⟨T T⟩ in d = 3 3,854; twelve insertions of one generalised free field
+/// 534,413 (whose sum then passes [`MAX_TERMS`] in the normaliser); sixteen
+/// would take about 10⁸.
+pub const MAX_WICK: usize = 1_000_000;
+
+/// The error for a Wick expansion that reaches [`MAX_WICK`].
+pub fn too_many_pairings() -> Error {
+    Error::new(
+        ErrorKind::Limit,
+        format!("Wick contraction limit reached (limit {MAX_WICK}: pairs tried and terms built)"),
+    )
+    .with_note(
+        "the correlator has too many ways to pair its fields to sum them all; \
+         use fewer insertions in one correlator",
+    )
+}
+
+/// Counts the work of one Wick expansion against [`MAX_WICK`].
+#[derive(Debug, Default)]
+pub struct Pairings {
+    spent: usize,
+}
+
+impl Pairings {
+    /// One pair of fields tried; past [`MAX_WICK`], the limit error.
+    pub fn place(&mut self) -> Result<()> {
+        self.spend(1)
+    }
+
+    /// A product of `nodes` nodes kept; past [`MAX_WICK`], the limit error.
+    pub fn build(&mut self, nodes: usize) -> Result<()> {
+        self.spend(nodes)
+    }
+
+    fn spend(&mut self, n: usize) -> Result<()> {
+        self.spent = self.spent.saturating_add(n);
+        if self.spent > MAX_WICK {
+            Err(too_many_pairings())
+        } else {
+            Ok(())
+        }
+    }
+
+    /// Work counted so far.
+    pub fn spent(&self) -> usize {
+        self.spent
+    }
+}

@@ -132,7 +132,19 @@ impl Engine {
                 *out.applied.entry(name).or_insert(0) += n;
             }
             out.stop = report.stop;
-            let redexes = self.book.redexes(&eg, &self.ctx);
+            let redexes = {
+                let _matching = crate::budget::Matching::enter(self.limits.matches);
+                match self.book.redexes(&eg, &self.ctx) {
+                    Some(redexes) => redexes,
+                    None => {
+                        // Extraction then prefers smaller forms only; the
+                        // run is reported as stopped, so nothing is proved
+                        // that the rules did not prove.
+                        out.stop = Stop::MatchLimit(self.limits.matches);
+                        Default::default()
+                    }
+                }
+            };
             let extractor = egg::Extractor::new(&eg, WardCost { redexes });
             let (_, best) = extractor.find_best(eg.find(root));
             let normal = normal_form_with(

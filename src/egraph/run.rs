@@ -8,7 +8,9 @@
 use std::collections::BTreeMap;
 use std::time::Duration;
 
-use egg::{Rewrite, Runner, SimpleScheduler, StopReason};
+use egg::{
+    Rewrite, RewriteScheduler, Runner, RunnerLimits, RunnerResult, SearchMatches, StopReason,
+};
 
 use super::{EGraph, Fold, Ward};
 
@@ -17,6 +19,9 @@ use super::{EGraph, Fold, Ward};
 pub struct Limits {
     pub nodes: usize,
     pub iterations: usize,
+    /// Steps of rule matching in one run, and again in the search for
+    /// unapplied redexes after it (`budget::match_step`).
+    pub matches: usize,
     /// A safety net only; tests never depend on it.
     pub time: Duration,
     /// Record explanations (named rules) for proofs.
@@ -28,6 +33,7 @@ impl Default for Limits {
         Limits {
             nodes: 100_000,
             iterations: 40,
+            matches: crate::budget::MAX_MATCH_STEPS,
             time: Duration::from_secs(60),
             explanations: false,
         }
@@ -41,6 +47,8 @@ pub enum Stop {
     Saturated,
     IterationLimit(usize),
     NodeLimit(usize),
+    /// The rule matching took its whole budget of steps.
+    MatchLimit(usize),
     TimeLimit,
     Other(String),
 }
@@ -55,6 +63,9 @@ impl Stop {
             Stop::Saturated => "saturated".into(),
             Stop::IterationLimit(n) => format!("stopped at the iteration limit ({n})"),
             Stop::NodeLimit(n) => format!("stopped at the e-node limit ({n})"),
+            Stop::MatchLimit(n) => {
+                format!("stopped: rule matching reached its limit (limit {n} steps)")
+            }
             Stop::TimeLimit => "stopped at the time limit".into(),
             Stop::Other(s) => format!("stopped: {s}"),
         }
@@ -72,24 +83,29 @@ pub struct RunReport {
     pub applied: BTreeMap<String, usize>,
 }
 
-/// Runs `rules` on `egraph` until saturation or a limit.
+/// Runs `rules` on `egraph` until saturation or a limit. The rules'
+/// searches share one budget of `limits.matches` matching steps; the run
+/// stops when it is spent, after the rule whose search spent it, without
+/// applying that iteration's matches.
 pub fn run_rules(
     egraph: EGraph,
     rules: &[Rewrite<Ward, Fold>],
     limits: &Limits,
 ) -> (EGraph, RunReport) {
+    let _matching = crate::budget::Matching::enter(limits.matches);
     let runner = Runner::<Ward, Fold, ()>::new(Fold::default())
         .with_egraph(egraph)
         .with_node_limit(limits.nodes)
         .with_iter_limit(limits.iterations)
         .with_time_limit(limits.time)
-        .with_scheduler(SimpleScheduler)
+        .with_scheduler(Budgeted)
         .run(rules);
     let stop = match &runner.stop_reason {
         Some(StopReason::Saturated) | None => Stop::Saturated,
         Some(StopReason::IterationLimit(n)) => Stop::IterationLimit(*n),
         Some(StopReason::NodeLimit(n)) => Stop::NodeLimit(*n),
         Some(StopReason::TimeLimit(_)) => Stop::TimeLimit,
+        Some(StopReason::Other(s)) if s == MATCH_LIMIT => Stop::MatchLimit(limits.matches),
         Some(StopReason::Other(s)) => Stop::Other(s.clone()),
     };
     let mut applied = BTreeMap::new();
@@ -106,4 +122,31 @@ pub fn run_rules(
         applied,
     };
     (runner.egraph, report)
+}
+
+/// The stop reason the scheduler gives egg when the matching budget is spent.
+const MATCH_LIMIT: &str = "match limit";
+
+/// egg's simple schedule (every rule searched on the whole e-graph each
+/// iteration), stopping the run as soon as the matching budget is spent.
+struct Budgeted;
+
+impl RewriteScheduler<Ward, Fold> for Budgeted {
+    fn search_rewrites<'a>(
+        &mut self,
+        iteration: usize,
+        egraph: &EGraph,
+        rewrites: &[&'a Rewrite<Ward, Fold>],
+        limits: &RunnerLimits,
+    ) -> RunnerResult<Vec<Vec<SearchMatches<'a, Ward>>>> {
+        let mut matches = Vec::with_capacity(rewrites.len());
+        for rw in rewrites {
+            matches.push(rw.search(egraph));
+            if crate::budget::matching_exhausted() {
+                return Err(StopReason::Other(MATCH_LIMIT.into()));
+            }
+            limits.check_limits(iteration, egraph)?;
+        }
+        Ok(matches)
+    }
 }

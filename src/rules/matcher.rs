@@ -5,10 +5,19 @@
 //! and matches a correlator pattern `<A B ...?rest>` against a correlator
 //! e-node by choosing distinct children for A and B (in any position) and
 //! binding the remaining children, in order, to `?rest`.
+//!
+//! Matches are enumerated lazily: each complete binding is handed to a
+//! continuation, which may stop the search, and every binding tried is a
+//! step of the matching budget (`budget::match_step`), so a pattern with
+//! many insertion patterns on a long correlator stops at the limit instead
+//! of building its falling-factorial list of matches first.
+
+use std::ops::ControlFlow;
 
 use egg::{Id, Subst, Var};
 
 use super::pattern::{Cond, IdxPat, NamePat, OpPat, Pat, PtPat};
+use crate::budget;
 use crate::context::{Context, NORMAL};
 use crate::egraph::{EGraph, Ward};
 use crate::syntax::ast::Property;
@@ -30,17 +39,6 @@ impl Binding {
             .iter()
             .find(|(n, _)| n == name)
             .map(|(_, ids)| ids.as_slice())
-    }
-
-    /// Binds `name` to `id`, or checks that an earlier binding agrees.
-    fn bind(mut self, eg: &EGraph, name: &str, id: Id) -> Option<Binding> {
-        match self.var(name) {
-            Some(old) => (eg.find(old) == eg.find(id)).then_some(self),
-            None => {
-                self.vars.push((name.to_string(), id));
-                Some(self)
-            }
-        }
     }
 
     /// Encodes the binding as an egg substitution: `?x` for variables and
@@ -80,91 +78,118 @@ fn var(name: &str) -> Var {
     Var::from(egg::Symbol::from(format!("?{name}")))
 }
 
-/// All ways `pat` matches e-class `class`.
-pub fn match_class(eg: &EGraph, pat: &Pat, class: Id, b: &Binding) -> Vec<Binding> {
+/// What a continuation tells the matcher: go on enumerating, or stop.
+pub type Flow = ControlFlow<()>;
+
+/// The continuation called with each complete match, in order.
+pub type Found<'k> = dyn FnMut(&mut Binding) -> Flow + 'k;
+
+/// Calls `found` with every way `pat` matches e-class `class`, extending
+/// `b` (which is restored on return), until `found` or the matching budget
+/// ([`budget::match_step`]) says stop. Matches come in the order of the
+/// e-nodes and children, depth first; nothing is collected.
+pub fn match_class(
+    eg: &EGraph,
+    pat: &Pat,
+    class: Id,
+    b: &mut Binding,
+    found: &mut Found<'_>,
+) -> Flow {
     match pat {
-        Pat::Var(v) => b.clone().bind(eg, v, class).into_iter().collect(),
+        Pat::Var(v) => bind(eg, v, class, b, found),
         Pat::Num(c) => {
             if eg[class].data.as_ref() == Some(c) {
-                vec![b.clone()]
+                found(b)
             } else {
-                vec![]
+                Flow::Continue(())
             }
         }
-        _ => eg[class]
-            .nodes
-            .iter()
-            .flat_map(|node| match_node(eg, pat, node, b))
-            .collect(),
+        _ => {
+            for node in &eg[class].nodes {
+                match_node(eg, pat, node, b, found)?;
+            }
+            Flow::Continue(())
+        }
     }
 }
 
-/// All ways `pat` matches one e-node.
-pub fn match_node(eg: &EGraph, pat: &Pat, node: &Ward, b: &Binding) -> Vec<Binding> {
+/// Calls `found` with every way `pat` matches one e-node (as
+/// [`match_class`]).
+pub fn match_node(
+    eg: &EGraph,
+    pat: &Pat,
+    node: &Ward,
+    b: &mut Binding,
+    found: &mut Found<'_>,
+) -> Flow {
+    step()?;
     match (pat, node) {
-        (Pat::Var(_) | Pat::Num(_), _) => vec![],
-        (Pat::Sym(s), Ward::Name(n)) if n.as_str() == s => vec![b.clone()],
+        (Pat::Var(_) | Pat::Num(_), _) => Flow::Continue(()),
+        (Pat::Sym(s), Ward::Name(n)) if n.as_str() == s => found(b),
         (Pat::Add(ps), Ward::Add(ids)) | (Pat::Mul(ps), Ward::Mul(ids))
             if ps.len() == ids.len() =>
         {
-            match_children(eg, ps.iter().zip(ids.iter()), b)
+            let pairs: Vec<(&Pat, Id)> = ps.iter().zip(ids.iter().copied()).collect();
+            match_children(eg, &pairs, b, found)
         }
-        (Pat::Pow(x, y), Ward::Pow([a, e])) => {
-            match_children(eg, [(&**x, a), (&**y, e)].into_iter(), b)
-        }
+        (Pat::Pow(x, y), Ward::Pow([a, e])) => match_children(eg, &[(x, *a), (y, *e)], b, found),
         (Pat::Corr { items, splice }, Ward::Corr(children)) => {
-            let mut out = Vec::new();
             let mut used = vec![false; children.len()];
-            assign(
-                eg,
-                items,
-                splice.as_deref(),
-                children,
-                &mut used,
-                b,
-                &mut out,
-            );
-            out
+            assign(eg, items, splice.as_deref(), children, &mut used, b, found)
         }
-        (Pat::Der(i, p, body), Ward::Der([ci, cp, cb])) => {
-            let mut out = Vec::new();
-            for b1 in match_index(eg, i, *ci, b) {
-                for b2 in match_point(eg, p, *cp, &b1) {
-                    out.extend(match_class(eg, body, *cb, &b2));
-                }
-            }
-            out
+        (Pat::Der(i, p, body), Ward::Der([ci, cp, cb])) => match_index(eg, i, *ci, b, &mut |b| {
+            match_point(eg, p, *cp, b, &mut |b| match_class(eg, body, *cb, b, found))
+        }),
+        (Pat::Kron(i, j), Ward::Kron([ci, cj])) => {
+            match_index(eg, i, *ci, b, &mut |b| match_index(eg, j, *cj, b, found))
         }
-        (Pat::Kron(i, j), Ward::Kron([ci, cj])) => match_index(eg, i, *ci, b)
-            .iter()
-            .flat_map(|b1| match_index(eg, j, *cj, b1))
-            .collect(),
-        (Pat::Normal(i), Ward::Normal(ci)) => match_index(eg, i, *ci, b),
-        (Pat::DeltaFn(p, q), Ward::DeltaFn([cp, cq])) => match_point(eg, p, *cp, b)
-            .iter()
-            .flat_map(|b1| match_point(eg, q, *cq, b1))
-            .collect(),
-        (Pat::DeltaY(p), Ward::DeltaY(cp)) => match_point(eg, p, *cp, b),
-        _ => vec![],
+        (Pat::Normal(i), Ward::Normal(ci)) => match_index(eg, i, *ci, b, found),
+        (Pat::DeltaFn(p, q), Ward::DeltaFn([cp, cq])) => {
+            match_point(eg, p, *cp, b, &mut |b| match_point(eg, q, *cq, b, found))
+        }
+        (Pat::DeltaY(p), Ward::DeltaY(cp)) => match_point(eg, p, *cp, b, found),
+        _ => Flow::Continue(()),
     }
 }
 
-fn match_children<'p>(
-    eg: &EGraph,
-    pairs: impl Iterator<Item = (&'p Pat, &'p Id)>,
-    b: &Binding,
-) -> Vec<Binding> {
-    let mut acc = vec![b.clone()];
-    for (p, id) in pairs {
-        acc = acc
-            .iter()
-            .flat_map(|b| match_class(eg, p, *id, b))
-            .collect();
-        if acc.is_empty() {
-            break;
+/// One step of the matching budget: `Break` once it is spent.
+fn step() -> Flow {
+    if budget::match_step() {
+        Flow::Continue(())
+    } else {
+        Flow::Break(())
+    }
+}
+
+/// Binds `name` to `id` (or checks that an earlier binding agrees) for the
+/// duration of `found`.
+fn bind(eg: &EGraph, name: &str, id: Id, b: &mut Binding, found: &mut Found<'_>) -> Flow {
+    step()?;
+    match b.var(name) {
+        Some(old) if eg.find(old) == eg.find(id) => found(b),
+        Some(_) => Flow::Continue(()),
+        None => {
+            b.vars.push((name.to_string(), id));
+            let flow = found(b);
+            b.vars.pop();
+            flow
         }
     }
-    acc
+}
+
+/// Matches the patterns of `pairs` against their classes, left to right.
+fn match_children(
+    eg: &EGraph,
+    pairs: &[(&Pat, Id)],
+    b: &mut Binding,
+    found: &mut Found<'_>,
+) -> Flow {
+    match pairs.split_first() {
+        None => found(b),
+        Some(((p, id), rest)) => {
+            match_class(eg, p, *id, b, &mut |b| match_children(eg, rest, b, found))
+        }
+    }
 }
 
 /// Chooses distinct children for the fixed insertion patterns; the rest go
@@ -175,9 +200,9 @@ fn assign(
     splice: Option<&str>,
     children: &[Id],
     used: &mut [bool],
-    b: &Binding,
-    out: &mut Vec<Binding>,
-) {
+    b: &mut Binding,
+    found: &mut Found<'_>,
+) -> Flow {
     let Some((first, rest)) = items.split_first() else {
         let leftover: Vec<Id> = children
             .iter()
@@ -185,31 +210,33 @@ fn assign(
             .filter(|(_, u)| !**u)
             .map(|(id, _)| *id)
             .collect();
-        match splice {
+        return match splice {
             Some(name) => {
-                let mut b = b.clone();
                 b.splices.push((name.to_string(), leftover));
-                out.push(b);
+                let flow = found(b);
+                b.splices.pop();
+                flow
             }
-            None if leftover.is_empty() => out.push(b.clone()),
-            None => {}
-        }
-        return;
+            None if leftover.is_empty() => found(b),
+            None => Flow::Continue(()),
+        };
     };
     for k in 0..children.len() {
         if used[k] {
             continue;
         }
-        for b1 in match_op(eg, first, children[k], b) {
-            used[k] = true;
-            assign(eg, rest, splice, children, used, &b1, out);
-            used[k] = false;
-        }
+        step()?;
+        used[k] = true;
+        let flow = match_op(eg, first, children[k], b, &mut |b| {
+            assign(eg, rest, splice, children, used, b, found)
+        });
+        used[k] = false;
+        flow?;
     }
+    Flow::Continue(())
 }
 
-fn match_op(eg: &EGraph, pat: &OpPat, class: Id, b: &Binding) -> Vec<Binding> {
-    let mut out = Vec::new();
+fn match_op(eg: &EGraph, pat: &OpPat, class: Id, b: &mut Binding, found: &mut Found<'_>) -> Flow {
     for node in &eg[class].nodes {
         let Ward::Op(children) = node else { continue };
         let [name, point, indices @ ..] = &children[..] else {
@@ -218,45 +245,66 @@ fn match_op(eg: &EGraph, pat: &OpPat, class: Id, b: &Binding) -> Vec<Binding> {
         if indices.len() != pat.indices.len() {
             continue;
         }
-        let named: Vec<Binding> = match &pat.name {
-            NamePat::Var(v) => b.clone().bind(eg, v, *name).into_iter().collect(),
-            NamePat::Lit(s) if has_name(eg, *name, s) => vec![b.clone()],
-            NamePat::Lit(_) => vec![],
-        };
-        let mut acc: Vec<Binding> = named
-            .iter()
-            .flat_map(|b1| match_point(eg, &pat.point, *point, b1))
-            .collect();
-        for (ip, ic) in pat.indices.iter().zip(indices) {
-            acc = acc
-                .iter()
-                .flat_map(|b1| match_index(eg, ip, *ic, b1))
-                .collect();
-        }
-        out.extend(acc);
-    }
-    out
-}
-
-fn match_index(eg: &EGraph, pat: &IdxPat, class: Id, b: &Binding) -> Vec<Binding> {
-    match pat {
-        IdxPat::Var(v) => b.clone().bind(eg, v, class).into_iter().collect(),
-        IdxPat::N if has_name(eg, class, NORMAL) => vec![b.clone()],
-        IdxPat::N => vec![],
-    }
-}
-
-fn match_point(eg: &EGraph, pat: &PtPat, class: Id, b: &Binding) -> Vec<Binding> {
-    match pat {
-        PtPat::Var(v) => b.clone().bind(eg, v, class).into_iter().collect(),
-        PtPat::Par(v) => eg[class]
-            .nodes
-            .iter()
-            .filter_map(|n| match n {
-                Ward::Par(inner) => b.clone().bind(eg, v, *inner),
-                _ => None,
+        let mut rest = |b: &mut Binding| {
+            match_point(eg, &pat.point, *point, b, &mut |b| {
+                match_indices(eg, &pat.indices, indices, b, found)
             })
-            .collect(),
+        };
+        match &pat.name {
+            NamePat::Var(v) => bind(eg, v, *name, b, &mut rest)?,
+            NamePat::Lit(s) if has_name(eg, *name, s) => rest(b)?,
+            NamePat::Lit(_) => {}
+        }
+    }
+    Flow::Continue(())
+}
+
+fn match_indices(
+    eg: &EGraph,
+    pats: &[IdxPat],
+    classes: &[Id],
+    b: &mut Binding,
+    found: &mut Found<'_>,
+) -> Flow {
+    match (pats.split_first(), classes.split_first()) {
+        (Some((p, ps)), Some((c, cs))) => {
+            match_index(eg, p, *c, b, &mut |b| match_indices(eg, ps, cs, b, found))
+        }
+        _ => found(b),
+    }
+}
+
+fn match_index(
+    eg: &EGraph,
+    pat: &IdxPat,
+    class: Id,
+    b: &mut Binding,
+    found: &mut Found<'_>,
+) -> Flow {
+    match pat {
+        IdxPat::Var(v) => bind(eg, v, class, b, found),
+        IdxPat::N if has_name(eg, class, NORMAL) => found(b),
+        IdxPat::N => Flow::Continue(()),
+    }
+}
+
+fn match_point(
+    eg: &EGraph,
+    pat: &PtPat,
+    class: Id,
+    b: &mut Binding,
+    found: &mut Found<'_>,
+) -> Flow {
+    match pat {
+        PtPat::Var(v) => bind(eg, v, class, b, found),
+        PtPat::Par(v) => {
+            for n in &eg[class].nodes {
+                if let Ward::Par(inner) = n {
+                    bind(eg, v, *inner, b, found)?;
+                }
+            }
+            Flow::Continue(())
+        }
     }
 }
 

@@ -10,6 +10,7 @@ mod matcher;
 mod pattern;
 
 use std::collections::HashSet;
+use std::ops::ControlFlow;
 use std::sync::Arc;
 
 use egg::{Applier, Id, Rewrite, SearchMatches, Searcher, Subst, Symbol, Var};
@@ -138,26 +139,43 @@ impl RuleBook {
     }
 
     /// E-nodes that a rule's left side matches: unapplied redexes, which
-    /// extraction avoids.
-    pub fn redexes(&self, eg: &EGraph, ctx: &Context) -> HashSet<Ward> {
+    /// extraction avoids. Each node's search stops at its first match.
+    /// `None` when the matching budget of the running
+    /// [`budget::Matching`](crate::budget::Matching) span ran out first.
+    pub fn redexes(&self, eg: &EGraph, ctx: &Context) -> Option<HashSet<Ward>> {
         let mut out = HashSet::new();
         for rule in self.enabled(ctx) {
             for class in eg.classes() {
                 for node in &class.nodes {
-                    let matched = matcher::match_node(eg, &rule.from, node, &Binding::default())
-                        .iter()
-                        .any(|b| {
-                            rule.conditions
+                    let mut matched = false;
+                    let _ = matcher::match_node(
+                        eg,
+                        &rule.from,
+                        node,
+                        &mut Binding::default(),
+                        &mut |b| {
+                            if rule
+                                .conditions
                                 .iter()
                                 .all(|c| matcher::holds(eg, ctx, c, b))
-                        });
+                            {
+                                matched = true;
+                                ControlFlow::Break(())
+                            } else {
+                                ControlFlow::Continue(())
+                            }
+                        },
+                    );
+                    if crate::budget::matching_exhausted() {
+                        return None;
+                    }
                     if matched {
                         out.insert(node.clone());
                     }
                 }
             }
         }
-        out
+        Some(out)
     }
 }
 
@@ -169,24 +187,53 @@ struct WardRule {
 }
 
 impl Searcher<Ward, Fold> for WardRule {
+    /// Searches class after class until `limit` matches are found or the
+    /// matching budget runs out (the scheduler of `egraph::run_rules` then
+    /// stops the run with its reason).
+    fn search_with_limit(&self, eg: &EGraph, limit: usize) -> Vec<SearchMatches<'_, Ward>> {
+        let mut out = Vec::new();
+        let mut left = limit;
+        for class in eg.classes() {
+            if left == 0 || crate::budget::matching_exhausted() {
+                break;
+            }
+            if let Some(m) = self.search_eclass_with_limit(eg, class.id, left) {
+                left -= m.substs.len().min(left);
+                out.push(m);
+            }
+        }
+        out
+    }
+
     fn search_eclass_with_limit(
         &self,
         eg: &EGraph,
         eclass: Id,
         limit: usize,
     ) -> Option<SearchMatches<'_, Ward>> {
-        let substs: Vec<Subst> =
-            matcher::match_class(eg, &self.rule.from, eclass, &Binding::default())
-                .into_iter()
-                .filter(|b| {
-                    self.rule
+        let mut substs: Vec<Subst> = Vec::new();
+        if limit > 0 {
+            let _ = matcher::match_class(
+                eg,
+                &self.rule.from,
+                eclass,
+                &mut Binding::default(),
+                &mut |b| {
+                    if self
+                        .rule
                         .conditions
                         .iter()
                         .all(|c| matcher::holds(eg, &self.ctx, c, b))
-                })
-                .take(limit)
-                .map(|b| b.to_subst())
-                .collect();
+                    {
+                        substs.push(b.to_subst());
+                        if substs.len() >= limit {
+                            return ControlFlow::Break(());
+                        }
+                    }
+                    ControlFlow::Continue(())
+                },
+            );
+        }
         if substs.is_empty() {
             None
         } else {

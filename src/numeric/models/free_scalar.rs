@@ -31,11 +31,19 @@
 //! normaliser), and then every auxiliary point is set equal to the
 //! insertion point. For a boundary insertion this sets y → 0 after the
 //! normal derivatives are taken.
+//!
+//! Work done once: each contraction is computed (and normalised) once per
+//! pair of insertions and derivative structure, whatever the names of the
+//! indices (renamed on use); terms of a composite with the same fields and
+//! derivatives are merged before contraction; two interchangeable fields of
+//! one insertion are paired once, with weight 2. The pairings are
+//! enumerated depth first within [`crate::budget::MAX_WICK`].
 
 use std::collections::{BTreeMap, BTreeSet};
 
 use super::{add, dist_pow, inv, minus, mul, normal_coord, pow, rational, sphere, unknown, Model};
-use super::{describe_op, index_names, rename_indices, substitute_points};
+use super::{describe_op, index_names, node_count, rename_indices, substitute_points};
+use crate::budget::Pairings;
 use crate::context::{Context, DISPLACEMENT, STRESS_TENSOR};
 use crate::diagnostic::Result;
 use crate::normal::normalize_pointwise as normalize;
@@ -185,11 +193,10 @@ struct Product {
     legs: Vec<Vec<Index>>,
 }
 
-/// One field of one insertion.
+/// One field of one insertion, with the derivatives acting on it.
 #[derive(Clone, Debug)]
 struct Leg {
     op: usize,
-    point: Point,
     derivs: Vec<Index>,
 }
 
@@ -319,10 +326,28 @@ impl FreeScalar {
         &self,
         ctx: &Context,
         ops: &[Op],
-        a: &Leg,
-        b: &Leg,
+        (a_op, a_derivs): (usize, &[Index]),
+        (b_op, b_derivs): (usize, &[Index]),
         boundary_op: bool,
     ) -> Result<Option<Term>> {
+        // Auxiliary points; '#' cannot occur in a declared name.
+        let aux = |k: usize, end: &str| Point {
+            rank: ops[k].point.rank,
+            par: false,
+            name: format!("{}#{k}{end}", ops[k].point.name).into(),
+        };
+        let (a, b) = (
+            Leg2 {
+                op: a_op,
+                point: aux(a_op, "a"),
+                derivs: a_derivs,
+            },
+            Leg2 {
+                op: b_op,
+                point: aux(b_op, "b"),
+                derivs: b_derivs,
+            },
+        );
         let same = a.op == b.op;
         if same && boundary_op {
             return Ok(None);
@@ -457,21 +482,12 @@ impl FreeScalar {
     }
 }
 
-/// Every perfect matching of `legs`, as index pairs.
-fn matchings(legs: &[usize]) -> Vec<Vec<(usize, usize)>> {
-    let Some((&first, rest)) = legs.split_first() else {
-        return vec![vec![]];
-    };
-    let mut out = Vec::new();
-    for (k, &partner) in rest.iter().enumerate() {
-        let mut others: Vec<usize> = rest.to_vec();
-        others.remove(k);
-        for mut m in matchings(&others) {
-            m.insert(0, (first, partner));
-            out.push(m);
-        }
-    }
-    out
+/// One end of a contraction while its derivatives are taken: the
+/// insertion, the auxiliary point standing for it, the derivatives.
+struct Leg2<'a> {
+    op: usize,
+    point: Point,
+    derivs: &'a [Index],
 }
 
 impl Model for FreeScalar {
@@ -517,18 +533,16 @@ impl Model for FreeScalar {
             .iter()
             .zip(&composites)
             .enumerate()
-            .map(|(k, (op, c))| self.expansion(ctx, k, op, *c))
+            .map(|(k, (op, c))| merge_products(self.expansion(ctx, k, op, *c)))
             .collect();
-        // Auxiliary points: field `slot` of insertion `k`. '#' cannot occur
-        // in a declared name.
-        let aux = |k: usize, slot: usize| Point {
-            rank: ops[k].point.rank,
-            par: false,
-            name: format!("{}#{k}_{slot}", ops[k].point.name).into(),
+        let mut wick = Wick {
+            model: self,
+            ctx,
+            ops,
+            composites: &composites,
+            cache: BTreeMap::new(),
+            budget: Pairings::default(),
         };
-        // Contractions by (field, field, derivatives): many products share them.
-        type Key = (crate::term::Name, crate::term::Name, Vec<Index>, Vec<Index>);
-        let mut cache: BTreeMap<Key, Option<(Term, BTreeSet<String>)>> = BTreeMap::new();
         let mut sum = Vec::new();
         // Every choice of one product per insertion.
         let mut choice = vec![0usize; ops.len()];
@@ -538,50 +552,17 @@ impl Model for FreeScalar {
             for (k, products) in expansions.iter().enumerate() {
                 let p = &products[choice[k]];
                 coef.push(p.coef.clone());
-                for (slot, derivs) in p.legs.iter().enumerate() {
+                for derivs in &p.legs {
                     legs.push(Leg {
                         op: k,
-                        point: aux(k, slot),
                         derivs: derivs.clone(),
                     });
                 }
             }
             if legs.len() % 2 == 0 {
-                let all: Vec<usize> = (0..legs.len()).collect();
-                'matching: for m in matchings(&all) {
-                    let mut factors = coef.clone();
-                    let mut fresh = 0usize;
-                    for (a, b) in m {
-                        let (a, b) = (&legs[a], &legs[b]);
-                        let key = (
-                            a.point.name.clone(),
-                            b.point.name.clone(),
-                            a.derivs.clone(),
-                            b.derivs.clone(),
-                        );
-                        if !cache.contains_key(&key) {
-                            let boundary = composites[a.op].on_boundary();
-                            let value = self
-                                .contraction(ctx, ops, a, b, boundary)?
-                                .map(|t| (t.clone(), summed_names(&t, a, b)));
-                            cache.insert(key.clone(), value);
-                        }
-                        let Some(Some((t, summed))) = cache.get(&key) else {
-                            continue 'matching;
-                        };
-                        // Indices the normaliser summed inside this
-                        // propagator: rename them apart from the others.
-                        let map: BTreeMap<String, Index> = summed
-                            .iter()
-                            .map(|n| {
-                                fresh += 1;
-                                (n.clone(), Index::Named(format!("κf{fresh}")))
-                            })
-                            .collect();
-                        factors.push(rename_indices(t, &map));
-                    }
-                    sum.push(mul(factors));
-                }
+                let mut used = vec![false; legs.len()];
+                let mut factors = coef;
+                wick.pair(&legs, &mut used, 1, &mut factors, &mut sum)?;
             }
             // Next choice (odometer).
             let mut k = 0;
@@ -600,11 +581,173 @@ impl Model for FreeScalar {
     }
 }
 
+/// The terms of a composite with the same fields and derivatives, up to
+/// the names of the composite's own summed indices, as one term with the
+/// sum of their coefficients: ∂_iφ∂_jφ and -2ξ ∂_iφ∂_jφ of the improved T
+/// are contracted once, not twice.
+fn merge_products(products: Vec<Product>) -> Vec<Product> {
+    // (the legs with the composite's dummies renamed, the coefficients,
+    // the first product's own legs)
+    type Group = (Vec<Vec<Index>>, Vec<Term>, Vec<Vec<Index>>);
+    let mut out: Vec<Group> = Vec::new();
+    for p in products {
+        let shape = shape(&p.legs).0;
+        match out.iter_mut().find(|(s, _, _)| *s == shape) {
+            Some((_, coefs, _)) => coefs.push(p.coef),
+            None => out.push((shape, vec![p.coef], p.legs)),
+        }
+    }
+    out.into_iter()
+        .map(|(_, mut coefs, legs)| Product {
+            coef: if coefs.len() == 1 {
+                coefs.pop().unwrap_or_else(Term::one)
+            } else {
+                add(coefs)
+            },
+            legs,
+        })
+        .collect()
+}
+
+/// Derivative lists with their named indices renamed to `κs1`, `κs2`, … in
+/// order of first appearance, and the names in that order.
+fn shape(legs: &[Vec<Index>]) -> (Vec<Vec<Index>>, Vec<String>) {
+    let mut names: Vec<String> = Vec::new();
+    let mut rename = |i: &Index| match i {
+        Index::Named(n) => {
+            let k = match names.iter().position(|m| m == n) {
+                Some(k) => k,
+                None => {
+                    names.push(n.clone());
+                    names.len() - 1
+                }
+            };
+            Index::Named(format!("κs{}", k + 1))
+        }
+        Index::N => Index::N,
+    };
+    let out = legs
+        .iter()
+        .map(|derivs| derivs.iter().map(&mut rename).collect())
+        .collect();
+    (out, names)
+}
+
+/// What determines a contraction: the two insertions (by position) and the
+/// derivatives on each end, with index names replaced by their order of
+/// first appearance.
+type Key = (usize, usize, Vec<Vec<Index>>);
+
+/// A contraction computed once for its [`Key`]: the propagator with the
+/// derivatives taken, at the insertion points, written with the key's
+/// index names; and the names summed inside it.
+struct Contracted {
+    term: Term,
+    summed: BTreeSet<String>,
+}
+
+/// The Wick expansion of one correlator: the contraction cache and the
+/// contraction budget.
+struct Wick<'a> {
+    model: &'a FreeScalar,
+    ctx: &'a Context,
+    ops: &'a [Op],
+    composites: &'a [Composite],
+    cache: BTreeMap<Key, Option<Contracted>>,
+    budget: Pairings,
+}
+
+impl Wick<'_> {
+    /// Pairs the first free leg with each later free one, in order (a
+    /// dropped contraction ends the branch), and pushes one product per
+    /// complete pairing onto `sum`: `weight` times `factors` times the
+    /// propagators. Two free legs of one insertion with the same
+    /// derivatives are interchangeable: the pairings that differ by
+    /// swapping them give the same product, which is built once with their
+    /// number as its weight.
+    fn pair(
+        &mut self,
+        legs: &[Leg],
+        used: &mut [bool],
+        weight: i64,
+        factors: &mut Vec<Term>,
+        sum: &mut Vec<Term>,
+    ) -> Result<()> {
+        let Some(first) = used.iter().position(|u| !u) else {
+            let mut product = Vec::with_capacity(factors.len() + 1);
+            if weight != 1 {
+                product.push(Term::int(weight));
+            }
+            product.extend(factors.iter().cloned());
+            let product = mul(product);
+            self.budget.build(node_count(&product))?;
+            sum.push(product);
+            return Ok(());
+        };
+        used[first] = true;
+        let twins =
+            |p: usize, q: usize| legs[p].op == legs[q].op && legs[p].derivs == legs[q].derivs;
+        for partner in first + 1..legs.len() {
+            if used[partner] || (first + 1..partner).any(|q| !used[q] && twins(q, partner)) {
+                continue;
+            }
+            self.budget.place()?;
+            let Some(factor) = self.factor(&legs[first], &legs[partner], factors.len())? else {
+                continue;
+            };
+            let copies = (partner..legs.len())
+                .filter(|&q| !used[q] && twins(q, partner))
+                .count() as i64;
+            used[partner] = true;
+            factors.push(factor);
+            let done = self.pair(legs, used, weight * copies, factors, sum);
+            factors.pop();
+            used[partner] = false;
+            done?;
+        }
+        used[first] = false;
+        Ok(())
+    }
+
+    /// The contraction of two legs with its own indices: the derivative
+    /// indices of the legs, and fresh names `κf…` for the ones summed inside
+    /// it (`position` tells the factors of one product apart). `None` when
+    /// the contraction is dropped.
+    fn factor(&mut self, a: &Leg, b: &Leg, position: usize) -> Result<Option<Term>> {
+        let (shape, names) = shape(&[a.derivs.clone(), b.derivs.clone()]);
+        let key: Key = (a.op, b.op, shape);
+        if !self.cache.contains_key(&key) {
+            let boundary = self.composites[a.op].on_boundary();
+            let (da, db) = (&key.2[0], &key.2[1]);
+            let value = self
+                .model
+                .contraction(self.ctx, self.ops, (a.op, da), (b.op, db), boundary)?
+                .map(|term| {
+                    let summed = summed_names(&term, da, db);
+                    Contracted { term, summed }
+                });
+            self.cache.insert(key.clone(), value);
+        }
+        let Some(Some(c)) = self.cache.get(&key) else {
+            return Ok(None);
+        };
+        // The key's names back to the legs' own; summed names apart.
+        let mut map: BTreeMap<String, Index> = BTreeMap::new();
+        for (k, n) in names.iter().enumerate() {
+            map.insert(format!("κs{}", k + 1), Index::Named(n.clone()));
+        }
+        for (k, n) in c.summed.iter().enumerate() {
+            map.insert(n.clone(), Index::Named(format!("κf{position}_{}", k + 1)));
+        }
+        Ok(Some(rename_indices(&c.term, &map)))
+    }
+}
+
 /// The index names of a normalised propagator factor other than the free
 /// derivative indices of its two fields: the ones summed inside it.
-fn summed_names(t: &Term, a: &Leg, b: &Leg) -> BTreeSet<String> {
+fn summed_names(t: &Term, a: &[Index], b: &[Index]) -> BTreeSet<String> {
     let mut counts: BTreeMap<&str, usize> = BTreeMap::new();
-    for i in a.derivs.iter().chain(&b.derivs) {
+    for i in a.iter().chain(b) {
         if let Some(n) = i.name() {
             *counts.entry(n).or_insert(0) += 1;
         }

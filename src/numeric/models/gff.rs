@@ -8,8 +8,14 @@
 //! (normal ordering, as for the free scalar), so ⟨O(x) O(x)⟩ pairs at one
 //! point give ±C_O/(2y)^{2Δ}. There is no local stress tensor: T and D are
 //! refused.
+//!
+//! The pairings are enumerated depth first, a branch ending at a pair of
+//! distinct fields, within the contraction budget of
+//! [`crate::budget::MAX_WICK`]: a correlator with too many pairings is a
+//! limit error, not an exhausted memory.
 
-use super::{add, dist_pow, mul, normal_coord, pow, rational, unknown, Model};
+use super::{add, dist_pow, mul, node_count, normal_coord, pow, rational, unknown, Model};
+use crate::budget::Pairings;
 use crate::context::Context;
 use crate::diagnostic::Result;
 use crate::term::{Op, Term};
@@ -95,21 +101,21 @@ impl Model for Gff {
         if ops.is_empty() {
             return Ok(Term::one());
         }
-        // Sum over perfect matchings.
+        // Sum over perfect matchings, enumerated depth first; a pair of
+        // distinct fields ends its branch, and each pair's propagator is
+        // built once.
         let mut terms = Vec::new();
-        for pairing in pairings(ops.len()) {
-            let mut factors = Vec::new();
-            let mut vanishes = false;
-            for (i, j) in pairing {
-                if ops[i].name != ops[j].name {
-                    vanishes = true;
-                    break;
-                }
-                factors.push(self.pair(ctx, &ops[i], &ops[j])?);
-            }
-            if !vanishes {
-                terms.push(mul(factors));
-            }
+        if ops.len() % 2 == 0 {
+            let mut walk = Pairing {
+                model: self,
+                ctx,
+                ops,
+                pairs: vec![None; ops.len() * ops.len()],
+                used: vec![false; ops.len()],
+                factors: Vec::with_capacity(ops.len() / 2),
+                budget: Pairings::default(),
+            };
+            walk.next(&mut terms)?;
         }
         Ok(if terms.is_empty() {
             Term::zero()
@@ -119,24 +125,59 @@ impl Model for Gff {
     }
 }
 
-/// All perfect matchings of 0..n (none for odd n).
-fn pairings(n: usize) -> Vec<Vec<(usize, usize)>> {
-    fn go(rest: &[usize], acc: &mut Vec<(usize, usize)>, out: &mut Vec<Vec<(usize, usize)>>) {
-        let Some((&first, tail)) = rest.split_first() else {
-            out.push(acc.clone());
-            return;
+/// The depth-first walk over the pairings of one correlator.
+struct Pairing<'a> {
+    model: &'a Gff,
+    ctx: &'a Context,
+    ops: &'a [Op],
+    /// The propagator of insertions (i, j), i < j, at `i * n + j`, once built.
+    pairs: Vec<Option<Term>>,
+    used: Vec<bool>,
+    /// The propagators of the pairs placed so far.
+    factors: Vec<(usize, usize)>,
+    budget: Pairings,
+}
+
+impl Pairing<'_> {
+    /// Pairs the first free insertion with each later free one, in order,
+    /// and pushes one product per complete pairing.
+    fn next(&mut self, terms: &mut Vec<Term>) -> Result<()> {
+        let n = self.ops.len();
+        let Some(first) = self.used.iter().position(|u| !u) else {
+            let n = self.ops.len();
+            let factors = self
+                .factors
+                .iter()
+                .map(|&(i, j)| self.pairs[i * n + j].clone().unwrap_or_else(Term::zero))
+                .collect();
+            let product = mul(factors);
+            self.budget.build(node_count(&product))?;
+            terms.push(product);
+            return Ok(());
         };
-        for k in 0..tail.len() {
-            let mut remaining = tail.to_vec();
-            let partner = remaining.remove(k);
-            acc.push((first, partner));
-            go(&remaining, acc, out);
-            acc.pop();
+        self.used[first] = true;
+        for partner in first + 1..n {
+            if self.used[partner] {
+                continue;
+            }
+            self.budget.place()?;
+            if self.ops[first].name != self.ops[partner].name {
+                continue;
+            }
+            if self.pairs[first * n + partner].is_none() {
+                let t = self
+                    .model
+                    .pair(self.ctx, &self.ops[first], &self.ops[partner])?;
+                self.pairs[first * n + partner] = Some(t);
+            }
+            self.used[partner] = true;
+            self.factors.push((first, partner));
+            let done = self.next(terms);
+            self.factors.pop();
+            self.used[partner] = false;
+            done?;
         }
+        self.used[first] = false;
+        Ok(())
     }
-    let mut out = Vec::new();
-    if n % 2 == 0 {
-        go(&(0..n).collect::<Vec<_>>(), &mut Vec::new(), &mut out);
-    }
-    out
 }

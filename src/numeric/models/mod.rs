@@ -238,6 +238,19 @@ pub(crate) fn index_names(t: &Term, out: &mut BTreeSet<String>) {
     }
 }
 
+/// The number of nodes of a term (the measure of the Wick budget,
+/// [`crate::budget::MAX_WICK`]).
+pub(crate) fn node_count(t: &Term) -> usize {
+    1 + match t {
+        Term::Pow(a, b) => node_count(a) + node_count(b),
+        Term::Mul(ts) | Term::Add(ts) | Term::Fun(_, _, ts) => ts.iter().map(node_count).sum(),
+        Term::Der(_, _, body) => node_count(body),
+        Term::Integral(i) => node_count(&i.body),
+        Term::Corr(ops) => ops.len(),
+        _ => 0,
+    }
+}
+
 /// Renames named indices simultaneously, anywhere in a term.
 pub(crate) fn rename_indices(t: &Term, map: &BTreeMap<String, Index>) -> Term {
     if map.is_empty() {
