@@ -18,9 +18,11 @@
 //! a derivative, a δ-function, an integral, an unknown function).
 //!
 //! `eval/compile.rs` is the compiler, `eval/program.rs` the code and its
-//! interpreter.
+//! interpreter, `eval/double.rs` the double-double re-run for values that
+//! cancel in f64.
 
 mod compile;
+mod double;
 mod program;
 
 pub use program::{Bounded, Program};

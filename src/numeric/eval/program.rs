@@ -172,12 +172,29 @@ impl Program {
         let mut err: Vec<f64> = self.template.iter().map(|c| EPS * c.abs()).collect();
         let mut mag: Vec<f64> = regs.iter().map(|v| v.abs()).collect();
         let mut loss = Loss::default();
+        let loaded = regs.clone();
         run_bounded(
             &self.code, &mut regs, &mut err, &mut mag, self.dim, &mut loss,
         )
         .map_err(|f| self.fault(&f, &regs, None))?;
         let out = self.output as usize;
-        let value = regs[out];
+        let mut value = regs[out];
+        // Cancelled in f64: the same code again in double-double, whose
+        // value and bound replace these when they are better.
+        if !loss.underflow
+            && !loss.overflow
+            && value.is_finite()
+            && err[out] > CANCELLED * value.abs()
+        {
+            if let Some((v, e)) =
+                super::double::run(&self.code, &self.template, &loaded, self.dim, out)
+            {
+                if e < err[out] {
+                    value = v;
+                    err[out] = e;
+                }
+            }
+        }
         if !value.is_finite() {
             return Err(Error::new(
                 ErrorKind::Numeric,
@@ -427,6 +444,9 @@ fn check_tensor(
 
 /// Unit roundoff of f64 (half the machine epsilon).
 const EPS: f64 = f64::EPSILON / 2.0;
+/// A rounding bound above this fraction of the value sends the evaluation
+/// to double-double ([`super::double`]).
+const CANCELLED: f64 = 1e-9;
 /// The absolute error of rounding a result in the subnormal range.
 const TINY: f64 = 5e-324;
 

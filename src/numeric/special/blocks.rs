@@ -6,7 +6,7 @@
 //!
 //! Two identical bulk scalars of dimension Δ at heights y1, y2 above the
 //! wall y = 0 (McAvity & Osborn 1995, cond-mat/9505127; Liendo, Rastelli &
-//! van Rees 2012, arXiv:1210.4258; the project's the block conventions of src/numeric/special/blocks.rs):
+//! van Rees 2012, arXiv:1210.4258; docs/conventions.md §9):
 //!
 //!   ⟨O(x1) O(x2)⟩ = G(ξ) / ((2y1)^Δ (2y2)^Δ ξ^Δ),
 //!
