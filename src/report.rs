@@ -603,6 +603,7 @@ impl<'a> Reporter<'a> {
                 ),
             ),
             ("residual", json_number(found.residual)),
+            ("status", js(if ok { "agree" } else { "disagree" })),
             ("holds", ok.to_string()),
         ];
         self.entry(|_| fields.to_vec());

@@ -80,6 +80,7 @@ fn check_file(path: &str) {
             ItemKind::Derivation { start, steps, .. } => std::iter::once(start)
                 .chain(steps.iter().map(|s| &s.expr))
                 .collect(),
+            ItemKind::Decompose { corr, .. } => vec![corr],
             ItemKind::Classify { .. } => vec![],
         };
         for expr in exprs {

@@ -134,7 +134,7 @@ fn proofs(path: &Path) -> (Program, Vec<Proof>) {
         .map(|(choice, _)| build_model(&program.ctx, choice, &program.numeric).unwrap());
     for item in &program.items {
         match &item.kind {
-            ItemKind::Claim { lhs, rhs } => {
+            ItemKind::Claim { lhs, rhs, .. } => {
                 let v = engine.check(lhs, rhs).unwrap();
                 record(&mut out, item.line, lhs, rhs, &v);
             }
@@ -923,7 +923,7 @@ fn false_proofs_are_caught() {
     for (declarations, claim, holds) in cases {
         let text = format!("{declarations}{claim}\n");
         let program = program_of(Path::new("false-proofs.ward"), &text);
-        let Some(ItemKind::Claim { lhs, rhs }) = program.items.first().map(|i| &i.kind) else {
+        let Some(ItemKind::Claim { lhs, rhs, .. }) = program.items.first().map(|i| &i.kind) else {
             panic!("not a claim: {claim}");
         };
         let finding = check(&program, lhs, rhs, false);

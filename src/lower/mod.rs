@@ -400,10 +400,11 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                             .map(|e| lowerer.scalar_parameter_expr(e))
                             .collect::<Result<_>>()?,
                     ),
-                    BlockDims::Tower(from, to, step) => Dims::Tower {
-                        from: lowerer.scalar_parameter_expr(from)?,
-                        to: lowerer.scalar_parameter_expr(to)?,
-                        step: step
+                    BlockDims::Tower(tower) => Dims::Tower {
+                        from: lowerer.scalar_parameter_expr(&tower.0)?,
+                        to: lowerer.scalar_parameter_expr(&tower.1)?,
+                        step: tower
+                            .2
                             .as_ref()
                             .map(|s| lowerer.scalar_parameter_expr(s))
                             .transpose()?,

@@ -119,7 +119,8 @@ pub fn fit(
         }
         Ok(r)
     };
-    let solve = |r: (f64, f64)| -> Result<(Vec<f64>, Vec<(f64, f64)>)> {
+    type Fitted = (Vec<f64>, Vec<(f64, f64)>);
+    let solve = |r: (f64, f64)| -> Result<Fitted> {
         let xs: Vec<f64> = (0..n_fit).map(|k| sample(r, k as f64)).collect();
         let mut a: Vec<Vec<f64>> = xs.iter().map(|&x| row(x)).collect::<Result<_>>()?;
         let mut b: Vec<f64> = xs.iter().map(|&x| g(x)).collect::<Result<_>>()?;
@@ -171,6 +172,7 @@ pub fn fit(
 
 /// Least squares min |A x - b| by Householder QR, columns scaled to unit
 /// length first (common practice). `a` is rows × `n`.
+#[allow(clippy::needless_range_loop)] // the reflections read best as index loops
 fn least_squares(a: &mut [Vec<f64>], b: &mut [f64], n: usize) -> Result<Vec<f64>> {
     let m = a.len();
     let mut scale = vec![0.0; n];

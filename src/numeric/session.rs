@@ -272,7 +272,7 @@ impl<'a> Session<'a> {
                     None => 1.0,
                 };
                 let count = ((b - a) / s + 1e-9).floor();
-                if !(s > 0.0) || !count.is_finite() || count < 0.0 {
+                if s.is_nan() || s <= 0.0 || !count.is_finite() || count < 0.0 {
                     return Err(Error::new(
                         ErrorKind::Numeric,
                         format!("the tower from {a} to {b} in steps of {s} is empty"),

@@ -19,7 +19,7 @@ pub enum Channel {
 pub enum BlockDims {
     List(Vec<Expr>),
     /// first, last and step (1 when not written).
-    Tower(Expr, Expr, Option<Expr>),
+    Tower(Box<(Expr, Expr, Option<Expr>)>),
 }
 
 /// A byte range in one source text.

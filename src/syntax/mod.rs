@@ -879,7 +879,7 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                     Some(p) => Some(build_expr(source, p, 0)?),
                     None => None,
                 };
-                BlockDims::Tower(from, to, step)
+                BlockDims::Tower(Box::new((from, to, step)))
             } else {
                 let mut list = vec![build_expr(source, first, 0)?];
                 for p in parts {
