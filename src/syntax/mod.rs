@@ -887,11 +887,7 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                 }
                 BlockDims::List(list)
             };
-            let output = inner.next().map(|string| {
-                let span = span_of(&string);
-                let body = string.into_inner().next().map_or("", |p| p.as_str());
-                (body.to_string(), span)
-            });
+            let output = inner.next().map(|string| output_name(&string));
             Stmt::Decompose {
                 corr,
                 channel,
@@ -907,11 +903,7 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
             let steps = parse_primary(source, next(&mut inner), 0)?;
             let lhs = build_expr(source, next(&mut inner), 0)?;
             let rhs = build_expr(source, next(&mut inner), 0)?;
-            let output = inner.next().map(|string| {
-                let span = span_of(&string);
-                let body = string.into_inner().next().map_or("", |p| p.as_str());
-                (body.to_string(), span)
-            });
+            let output = inner.next().map(|string| output_name(&string));
             Stmt::Scan {
                 param,
                 from,
@@ -993,6 +985,16 @@ fn parse_ruleset(source: &Arc<Source>, pair: Pair<Rule>) -> Result<RuleSet> {
         .map(|p| parse_rule_def(source, p))
         .collect::<Result<_>>()?;
     Ok(RuleSet { name, rules })
+}
+
+/// The file stem of `into "name"`, with its span.
+fn output_name(string: &Pair<Rule>) -> (String, Span) {
+    let body = string
+        .clone()
+        .into_inner()
+        .next()
+        .map_or("", |p| p.as_str());
+    (body.to_string(), span_of(string))
 }
 
 fn parse_rule_def(source: &Arc<Source>, pair: Pair<Rule>) -> Result<ast::Rule> {
