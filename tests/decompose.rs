@@ -180,3 +180,21 @@ fn a_wrong_dimension_does_not_fit() {
     assert_eq!(items[0]["holds"], false);
     assert!(items[0]["residual"].as_f64().unwrap() > 0.1);
 }
+
+#[test]
+fn a_wrong_tower_does_not_fit() {
+    // The generalised free field's boundary channel needs Δ̂ = Δ; a tower
+    // without it, or one starting elsewhere, leaves a large residual
+    // however many members it has.
+    let text = "dimension 3\nhalfspace y >= 0\nscalar O dim Delta\nvalues Delta = 13/10\n\
+                points x1 x2\nmodel gff neumann\n\
+                decompose <O(x1) O(x2)> in boundary blocks Delta + 1 to Delta + 14\n\
+                decompose <O(x1) O(x2)> in boundary blocks 1/3 to 1/3 + 20\n\
+                decompose <O(x1) O(x2)> in bulk blocks 2 Delta + 1 to 2 Delta + 27 step 2\n";
+    let (items, code) = run(text);
+    assert_eq!(code, 1);
+    for item in &items {
+        assert_eq!(item["holds"], false, "{item}");
+        assert!(item["residual"].as_f64().unwrap() > 1e-3, "{item}");
+    }
+}

@@ -8,7 +8,7 @@
 //! common practice). The rounding bound is carried exactly as in f64
 //! (Wilkinson's running error analysis) with the unit roundoff of
 //! double-double, 2⁻¹⁰⁴, taken as 2⁻¹⁰⁰ for margin; constants that are not
-//! whole numbers keep the f64 rounding they were folded with.
+//! whole numbers below 2⁵³ keep the f64 rounding they were folded with.
 //!
 //! Powers are done in double-double only for whole and half-whole
 //! exponents (repeated squaring, one square root); any other exponent
@@ -141,7 +141,14 @@ pub(super) fn run(
     // Inputs are exact; constants that are not whole carry their rounding.
     let mut err: Vec<f64> = template
         .iter()
-        .map(|&c| if c.fract() == 0.0 { 0.0 } else { EPS * c.abs() })
+        .map(|&c| {
+            // Whole numbers below 2^53 are exact in f64.
+            if c.fract() == 0.0 && c.abs() < 9_007_199_254_740_992.0 {
+                0.0
+            } else {
+                EPS * c.abs()
+            }
+        })
         .collect();
     for ins in code {
         let (v, e) = match ins.op {
