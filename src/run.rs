@@ -884,8 +884,24 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
             ) => {
                 let s = numeric_session(&mut session, &program, &engine, &mut reporter)
                     .map_err(at_item)?;
-                let found = s.decompose(corr, *channel, dims).map_err(at_item)?;
                 let input = text.strip_prefix("decompose ").unwrap_or(&text);
+                // A numeric failure (a block without a value at some ξ, an
+                // empty tower) leaves this statement unknown; the rest of
+                // the file is still checked.
+                let found = match s.decompose(corr, *channel, dims) {
+                    Ok(found) => found,
+                    Err(e) if e.kind == ErrorKind::Numeric => {
+                        reporter.numeric_unknown(
+                            item.line,
+                            "decompose",
+                            input,
+                            &numeric_reason(&e),
+                        );
+                        unknown += 1;
+                        continue;
+                    }
+                    Err(e) => return Err(at_item(e)),
+                };
                 let written = match output {
                     Some(stem) if !opts.keep_scan_files => {
                         let scan = crate::numeric::session::Scan {

@@ -198,3 +198,15 @@ fn a_wrong_tower_does_not_fit() {
         assert!(item["residual"].as_f64().unwrap() > 1e-3, "{item}");
     }
 }
+
+#[test]
+fn an_empty_tower_is_unknown_and_the_file_goes_on() {
+    let text = "dimension 3\nhalfspace y >= 0\nscalar P dim 1/2\npoints x1 x2\n\
+                model free-scalar neumann with P = phi\n\
+                decompose <P(x1) P(x2)> in boundary blocks 5 to 1\n\
+                decompose <P(x1) P(x2)> in boundary blocks 1/2\n";
+    let (items, code) = run(text);
+    assert_eq!(code, 1);
+    assert_eq!(items[0]["status"], "unknown");
+    assert_eq!(items[1]["status"], "agree");
+}
