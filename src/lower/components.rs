@@ -171,7 +171,8 @@ impl Lowerer {
             } => {
                 let mut region = region.clone();
                 if let RegionKind::Ball(c, r) = &region.kind {
-                    region.kind = RegionKind::Ball(c.clone(), Box::new(self.numeric_components(r)?));
+                    region.kind =
+                        RegionKind::Ball(c.clone(), Box::new(self.numeric_components(r)?));
                 }
                 Expr {
                     kind: ExprKind::Integral {
@@ -241,7 +242,10 @@ impl Lowerer {
                     .err(
                         ErrorKind::Index,
                         n.span,
-                        format!("component `{}` does not exist: components run from {range}", n.text),
+                        format!(
+                            "component `{}` does not exist: components run from {range}",
+                            n.text
+                        ),
                     )
                     .with_label("out of range")
                     .with_note("components count from 0; the normal coordinate is the last"));
@@ -306,7 +310,9 @@ fn first_numeric(e: &Expr) -> Option<Span> {
             _ => None,
         }),
         ExprKind::Op(op) => among(&op.indices),
-        ExprKind::Deriv { index, body, .. } => among(std::slice::from_ref(index)).or_else(|| first_numeric(body)),
+        ExprKind::Deriv { index, body, .. } => {
+            among(std::slice::from_ref(index)).or_else(|| first_numeric(body))
+        }
         ExprKind::Kron(i, j) => among(&[i.clone(), j.clone()]),
         ExprKind::Normal(i) => among(std::slice::from_ref(i)),
         ExprKind::Neg(a) => first_numeric(a),

@@ -120,27 +120,49 @@ impl Lowerer {
     pub(super) fn declare_tensor_parameter(&mut self, name: &Name, indices: &[Name]) -> Result<()> {
         if indices.len() > 2 {
             return Err(self
-                .err(ErrorKind::Index, name.span, "a parameter has at most two indices")
+                .err(
+                    ErrorKind::Index,
+                    name.span,
+                    "a parameter has at most two indices",
+                )
                 .with_label("too many indices")
                 .with_note("declare a vector `a[mu]` or a tensor `omega[mu,nu]`"));
         }
         for (k, i) in indices.iter().enumerate() {
-            if i.is_var || i.text == crate::context::NORMAL || i.text.bytes().all(|b| b.is_ascii_digit()) {
+            if i.is_var
+                || i.text == crate::context::NORMAL
+                || i.text.bytes().all(|b| b.is_ascii_digit())
+            {
                 return Err(self
-                    .err(ErrorKind::Index, i.span, "the indices of a declared parameter are names")
+                    .err(
+                        ErrorKind::Index,
+                        i.span,
+                        "the indices of a declared parameter are names",
+                    )
                     .with_label("not an index name")
                     .with_note("write e.g. `parameters a[mu]`"));
             }
             if indices[..k].iter().any(|j| j.text == i.text) {
                 return Err(self
-                    .err(ErrorKind::Index, i.span, "the indices of a declared parameter are different names")
+                    .err(
+                        ErrorKind::Index,
+                        i.span,
+                        "the indices of a declared parameter are different names",
+                    )
                     .with_label("written twice"));
             }
         }
-        let parallel_names = indices.iter().filter(|i| self.ctx.parallel.contains(&i.text)).count();
+        let parallel_names = indices
+            .iter()
+            .filter(|i| self.ctx.parallel.contains(&i.text))
+            .count();
         if parallel_names != 0 && parallel_names != indices.len() {
             return Err(self
-                .err(ErrorKind::Index, name.span, "a parameter's indices are all parallel to the wall or none is")
+                .err(
+                    ErrorKind::Index,
+                    name.span,
+                    "a parameter's indices are all parallel to the wall or none is",
+                )
                 .with_label("parallel and bulk indices mixed"));
         }
         if self.declared.contains_key(&name.text) || self.ctx.params.contains_key(&name.text) {
@@ -254,7 +276,10 @@ impl Lowerer {
                 .err(
                     ErrorKind::Placement,
                     span,
-                    format!("the normal coordinate of `{}` must be 0 (a boundary point)", p.name),
+                    format!(
+                        "the normal coordinate of `{}` must be 0 (a boundary point)",
+                        p.name
+                    ),
                 )
                 .with_label("the last coordinate is the distance to the wall"));
         }

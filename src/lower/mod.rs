@@ -161,10 +161,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
         lowerer.nodes.set(0);
         lowerer.in_numeric.set(matches!(
             stmt,
-            Stmt::Evaluate { .. }
-                | Stmt::Solve { .. }
-                | Stmt::Scan { .. }
-                | Stmt::Compare { .. }
+            Stmt::Evaluate { .. } | Stmt::Solve { .. } | Stmt::Scan { .. } | Stmt::Compare { .. }
         ));
         match stmt {
             Stmt::Simplify { expr, expect, span } => {
@@ -246,7 +243,10 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         .with_label("cannot be solved for")
                         .with_note("solve for a scalar parameter, e.g. `parameters a` and `coefficient <T O O> = a`"));
                 }
-                let (lhs, rhs) = (&lowerer.numeric_components(lhs)?, &lowerer.numeric_components(rhs)?);
+                let (lhs, rhs) = (
+                    &lowerer.numeric_components(lhs)?,
+                    &lowerer.numeric_components(rhs)?,
+                );
                 let profile = lowerer.free_indices(lhs)?;
                 lowerer.same_free_indices(&profile, rhs, ("the left side", "the right side"))?;
                 items.push(Item {
@@ -353,7 +353,10 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                 if let Some((name, span)) = output {
                     check_output_name(&lowerer, name, *span)?;
                 }
-                let (lhs, rhs) = (&lowerer.numeric_components(lhs)?, &lowerer.numeric_components(rhs)?);
+                let (lhs, rhs) = (
+                    &lowerer.numeric_components(lhs)?,
+                    &lowerer.numeric_components(rhs)?,
+                );
                 let profile = lowerer.free_indices(lhs)?;
                 lowerer.same_free_indices(&profile, rhs, ("the left side", "the right side"))?;
                 items.push(Item {
@@ -473,7 +476,10 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
             }
             Stmt::Compare { lhs, rhs, span } => {
                 seen_expression = true;
-                let (lhs, rhs) = (&lowerer.numeric_components(lhs)?, &lowerer.numeric_components(rhs)?);
+                let (lhs, rhs) = (
+                    &lowerer.numeric_components(lhs)?,
+                    &lowerer.numeric_components(rhs)?,
+                );
                 let profile = lowerer.free_indices(lhs)?;
                 lowerer.same_free_indices(&profile, rhs, ("the left side", "the right side"))?;
                 items.push(Item {
