@@ -283,7 +283,7 @@ impl Lowerer {
                 )
                 .with_label("the last coordinate is the distance to the wall"));
         }
-        if self.ctx.has_halfspace() && !(normal_moves && !self.ctx.is_boundary_point(&p)) {
+        if self.ctx.has_halfspace() && (!normal_moves || self.ctx.is_boundary_point(&p)) {
             let y = values.last().cloned().unwrap_or_default();
             let on_wall = self.ctx.is_boundary_point(&p);
             if on_wall != y.is_zero() || y.is_negative() {

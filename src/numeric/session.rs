@@ -1099,7 +1099,7 @@ fn place_moving(ctx: &Context, values: &mut Values) -> Result<()> {
             ));
         }
         if let Some(y) = at.last().filter(|_| ctx.has_halfspace()) {
-            if !(*y > 0.0) {
+            if y.is_nan() || *y <= 0.0 {
                 return Err(Error::new(
                     ErrorKind::Placement,
                     format!("`{name}` is at distance {y} from the wall: a bulk point must be above it"),
