@@ -403,11 +403,13 @@ impl Axis {
     }
 
     /// Relative differences from `lo` to `hi` (both positive): whole
-    /// decades, at least four, extended upwards.
+    /// decades, at least four, extended upwards up to 1 (where two sides
+    /// have nothing in common) and then downwards.
     fn differences(lo: f64, hi: f64) -> Axis {
         let start = lo.log10().floor();
-        let end = hi.log10().ceil().max(start + 4.0);
-        Axis::logarithmic(start..end)
+        let end = hi.log10().ceil();
+        let end = end.max((start + 4.0).min(0.0));
+        Axis::logarithmic(start.min(end - 4.0)..end)
     }
 
     /// A straight axis over `range`, ticks every 1, 2 or 5 times a power
