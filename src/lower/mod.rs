@@ -7,6 +7,7 @@
 //! indices, an index used three times, rule syntax in a `.ward` file, and
 //! division by a literal zero.
 
+mod anomaly;
 mod explicit;
 mod indices;
 mod numeric;
