@@ -12,7 +12,7 @@ mod explicit;
 mod indices;
 mod numeric;
 
-pub use numeric::{ModelChoice, NumericSpec, ValueSpec};
+pub use numeric::{Family, ModelChoice, NumericSpec, ValueSpec};
 
 use std::collections::{BTreeMap, BTreeSet};
 use std::sync::Arc;
