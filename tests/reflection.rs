@@ -399,3 +399,44 @@ fn parallel_momentum_flux_is_one_minus_rho_squared() {
         assert!(!tnn.is_zero() && ones.iter().all(|t| !t.is_zero()));
     }
 }
+
+// docs/conventions.md §8, §11 (derived): the translation Ward identity
+// around a boundary insertion, by the hemisphere flux, leaves out the disc
+// on the wall, which carries T_na. At g = 0 it holds; at g = 3/5 it fails by
+// the parallel momentum that flows into the wall, while W5 for the normal
+// translation (D = T_nn) holds at every g.
+#[test]
+fn hemisphere_ward_identity_fails_by_the_flux_into_the_wall() {
+    use std::path::Path;
+    use wardsmith::run::{run_source, Mode, Options};
+    let text = |g: &str| {
+        format!(
+            "dimension 3\nhalfspace y >= 0\nparameters g\nboundary scalar C dim 3/2\n\
+             scalar P dim 1/2\nscalar Q dim 1\npoints x x1\nboundary points s1\n\
+             place s1 at (0, 0, 0)\nplace x1 at (1/2, -1/3, 3/5)\n\
+             model free-scalar neumann coupling g with C = chi, P = phi, Q = phi2\n\
+             killing tr translation a parallel\nvalues a = (1, 1/2, 0), g = {g}\n\
+             compare ∫[x∥ in boundary] {{ <D(x∥) Q(x1)> }} = ∂[n](x1) <Q(x1)>\n\
+             compare ∮[x on ball(s1, 1/5)] {{ N[mu] tr[nu](x) <T[mu,nu](x) C(s1) P(x1)> }}\n\
+                   = - a[mu] ∂[mu](s1) <C(s1) P(x1)>\n"
+        )
+    };
+    let run = |g: &str| {
+        let source = Source::new("hemisphere.ward", text(g));
+        run_source(&source, Path::new("."), Mode::Check, &Options::default())
+            .unwrap_or_else(|e| panic!("{}", e.render()))
+    };
+    let coupled = run("3/5");
+    assert!(
+        coupled.report.contains("line 14: compare agree"),
+        "{}",
+        coupled.report
+    );
+    assert!(
+        coupled.report.contains("line 15: compare DISAGREE"),
+        "{}",
+        coupled.report
+    );
+    let free = run("0");
+    assert_eq!(free.code, 0, "{}", free.report);
+}
