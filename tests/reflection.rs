@@ -17,6 +17,13 @@
 //! - `parallel_momentum_flux_is_one_minus_rho_squared`: ⟨T_na(s) φ φ⟩ at
 //!   the wall is (1 - ρ²) times a function of the points alone (derived,
 //!   §11), exactly in ρ; ⟨T_na(s) φ²⟩ vanishes for every ρ.
+//! - `hemisphere_ward_identity_fails_by_the_flux_into_the_wall`: the
+//!   translation Ward identity around χ by the hemisphere flux fails at
+//!   g ≠ 0 (the disc on the wall carries T_na), W5 for the normal
+//!   translation holds.
+//! - `boundary_channel_holds_the_two_blocks`: `decompose` finds exactly the
+//!   boundary blocks d/2 - 1 and d/2 in ⟨φ φ⟩ with μ² = 1 + ρ and
+//!   (1 - ρ)(d - 2)/4 (units of C_φ), d = 3, 4, 5.
 
 use std::sync::Arc;
 
@@ -374,10 +381,7 @@ fn parallel_momentum_flux_is_one_minus_rho_squared() {
             ]);
             let diff = normalize(
                 &ctx,
-                &Term::Add(vec![
-                    Term::Mul(vec![one_minus, at_zero]),
-                    exact.negated(),
-                ]),
+                &Term::Add(vec![Term::Mul(vec![one_minus, at_zero]), exact.negated()]),
             )
             .unwrap();
             assert!(diff.is_zero(), "d = {d}, term {k}: remainder {diff:?}");
@@ -439,4 +443,70 @@ fn hemisphere_ward_identity_fails_by_the_flux_into_the_wall() {
     );
     let free = run("0");
     assert_eq!(free.code, 0, "{}", free.report);
+}
+
+/// The JSON items of kind `decompose` of a file's report, and the exit code.
+fn decompositions(text: &str) -> (Vec<serde_json::Value>, i32) {
+    use std::path::Path;
+    use wardsmith::run::{run_source, Mode, Options};
+    let source = Source::new("decompose.ward", text);
+    let opts = Options {
+        json: true,
+        ..Options::default()
+    };
+    let out = run_source(&source, Path::new("."), Mode::Check, &opts)
+        .unwrap_or_else(|e| panic!("{}", e.render()));
+    let doc: serde_json::Value = serde_json::from_str(&out.report).unwrap();
+    let items = doc["items"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|i| i["kind"] == "decompose")
+        .cloned()
+        .collect();
+    (items, out.code)
+}
+
+// docs/conventions.md §9, §11 (derived): in the boundary channel ⟨φ φ⟩
+// holds exactly the two blocks Δ̂ = d/2 - 1 and d/2, with μ² = 1 + ρ and
+// (1 - ρ)(d - 2)/4 in units of C_φ: (1 ± ρ)/2 times the Neumann and
+// Dirichlet values 2 and (d - 2)/2 (Liendo, Rastelli & van Rees 2012,
+// arXiv:1210.4258, for the walls). Either block alone does not fit.
+#[test]
+fn boundary_channel_holds_the_two_blocks() {
+    for d in [3usize, 4, 5] {
+        let c_phi = 1.0 / ((d as f64 - 2.0) * sphere_area(d));
+        for rho in ["-3/5", "1/5", "9/10"] {
+            let r: f64 = {
+                let (n, m) = rho.split_once('/').unwrap();
+                n.parse::<f64>().unwrap() / m.parse::<f64>().unwrap()
+            };
+            let text = format!(
+                "dimension {d}\nhalfspace y >= 0\nscalar P dim d/2 - 1\npoints x1 x2\n\
+                 model free-scalar reflection {rho} with P = phi\n\
+                 decompose <P(x1) P(x2)> in boundary blocks d/2 - 1, d/2\n"
+            );
+            let (items, code) = decompositions(&text);
+            assert_eq!(code, 0, "{text}");
+            let mu: Vec<f64> = items[0]["coefficients"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .map(|x| x.as_f64().unwrap() / c_phi)
+                .collect();
+            let want = [1.0 + r, (1.0 - r) * (d as f64 - 2.0) / 4.0];
+            for (got, want) in mu.iter().zip(want) {
+                assert!(
+                    (got - want).abs() < 1e-9,
+                    "d = {d}, ρ = {rho}: μ² = {mu:?}, expected {want}"
+                );
+            }
+            assert!(items[0]["residual"].as_f64().unwrap() < 1e-12);
+            for alone in ["d/2 - 1", "d/2"] {
+                let text = text.replace("d/2 - 1, d/2", alone);
+                let (_, code) = decompositions(&text);
+                assert_ne!(code, 0, "d = {d}, ρ = {rho}: {alone} alone fits");
+            }
+        }
+    }
 }

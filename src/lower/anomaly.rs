@@ -158,7 +158,10 @@ impl Lowerer {
                     .err(
                         ErrorKind::Placement,
                         arg.span,
-                        format!("`{}` takes distinct points; `{}` is repeated", name.text, n.text),
+                        format!(
+                            "`{}` takes distinct points; `{}` is repeated",
+                            name.text, n.text
+                        ),
                     )
                     .with_label("the same point again")
                     .with_note(q.form()));
@@ -178,10 +181,7 @@ impl Lowerer {
         );
         let dist = |a: &Point, b: &Point, e: Term| {
             let (a, b) = if a < b { (a, b) } else { (b, a) };
-            Term::Pow(
-                Box::new(Term::Dist(a.clone(), b.clone())),
-                Box::new(e),
-            )
+            Term::Pow(Box::new(Term::Dist(a.clone(), b.clone())), Box::new(e))
         };
         let mut factors = vec![corr];
         if points.len() == 2 {

@@ -174,7 +174,12 @@ impl Lowerer {
     /// A declared dimension that the free scalar's composite contradicts is
     /// an error: `scalar P dim 2` cannot stand for φ² (dimension d - 2).
     /// Dimensions with parameters besides d are left to the values.
-    fn same_dimension(&self, name: &Name, composite: &str, chi_dirichlet: Option<bool>) -> Result<()> {
+    fn same_dimension(
+        &self,
+        name: &Name,
+        composite: &str,
+        chi_dirichlet: Option<bool>,
+    ) -> Result<()> {
         let d = self.ctx.dim();
         let half = |t: Term| Term::Mul(vec![Term::Num(BigRational::new(1.into(), 2.into())), t]);
         let expected = match composite {

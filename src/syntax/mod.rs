@@ -806,8 +806,7 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                         Rule::reflection | Rule::coupling => {
                             let which = part.as_rule();
                             let value = next(&mut part.into_inner());
-                            let expr =
-                                climb(source, &mut value.into_inner().peekable(), 0, 0)?;
+                            let expr = climb(source, &mut value.into_inner().peekable(), 0, 0)?;
                             if which == Rule::reflection {
                                 reflection = Some(expr);
                             } else {
