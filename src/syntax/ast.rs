@@ -218,9 +218,9 @@ pub enum ModelSpec {
         unimproved: bool,
         fields: Vec<(Name, String)>,
         /// `reflection r`: the reflection coefficient.
-        reflection: Option<Expr>,
+        reflection: Option<Box<Expr>>,
         /// `neumann coupling g` / `dirichlet coupling g`: the coupling to χ.
-        coupling: Option<Expr>,
+        coupling: Option<Box<Expr>>,
     },
     /// Generalised free fields, with a wall (`dirichlet`/`neumann` image
     /// sign) or without.

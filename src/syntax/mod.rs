@@ -808,9 +808,9 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                             let value = next(&mut part.into_inner());
                             let expr = climb(source, &mut value.into_inner().peekable(), 0, 0)?;
                             if which == Rule::reflection {
-                                reflection = Some(expr);
+                                reflection = Some(Box::new(expr));
                             } else {
-                                coupling = Some(expr);
+                                coupling = Some(Box::new(expr));
                             }
                         }
                         _ => {
