@@ -4,10 +4,13 @@
 //! A remainder that normalisation leaves as a rational function (times
 //! symbolic powers) of the parameters may still vanish identically when
 //! the normal form missed a cancellation. A claim whose remainder holds
-//! ₂F₁ is refuted only when each such coefficient is shown to be a nonzero
-//! function; this is how: at seeded random values of the parameters (the
-//! ones never negative and the rest alike between 1/2 and 5/2, a symbolic
-//! dimension between 5/2 and 13/2, S_d its value there) the compiled value
+//! ₂F₁ is refuted only when some such coefficient is shown to be a nonzero
+//! function; this is how: at seeded random values of the parameters (all
+//! between 1/2 and 5/2, a symbolic dimension between 5/2 and 13/2 — or,
+//! when points enter, a whole one from 3 to 6 — and S_d its value there)
+//! and of the points (bulk points between 1/4 and 5/4 above a wall,
+//! boundary points on it, coordinates along it between -1 and 1) the
+//! compiled value
 //! is judged by the agreement rule's notion of a known value
 //! (docs/conventions.md §8): a value much larger than its rounding bound
 //! and not lost to cancellation among its terms is not zero, so the
@@ -34,12 +37,17 @@ const CANCELLED: f64 = 1e-8;
 
 /// `Some(true)` when some sample shows `t` is not zero; `Some(false)` when
 /// every sample is zero or too small to tell; `None` when `t` is not an
-/// expression in parameters alone (points, indices, unknown functions),
-/// which this cannot evaluate.
+/// explicit function of parameters and points (correlators, δ-functions,
+/// derivatives, unknown functions, vector parameters), which this cannot
+/// evaluate.
 pub fn somewhere_nonzero(ctx: &Context, t: &Term, seed: u64) -> Option<bool> {
     let mut symbols = Vec::new();
-    if !parameters_only(t, &mut symbols) {
-        return None;
+    let with_points = !parameters_only(t, &mut symbols);
+    if with_points {
+        symbols.clear();
+        if !explicit(t, &mut symbols) {
+            return None;
+        }
     }
     symbols.sort();
     symbols.dedup();
@@ -60,10 +68,21 @@ pub fn somewhere_nonzero(ctx: &Context, t: &Term, seed: u64) -> Option<bool> {
         // A dimension that is not whole, so that nothing special to whole
         // d hides a difference (the program is compiled for d = 3 and
         // never reads it: d is a number in the term).
-        let d = declared.unwrap_or_else(|| 2.5 + 4.0 * next());
+        let d = declared.unwrap_or_else(|| {
+            if with_points {
+                // Points need whole coordinates' count.
+                3.0 + (4.0 * next()).floor()
+            } else {
+                2.5 + 4.0 * next()
+            }
+        });
         let d_exact = BigRational::from_float(d)?;
         let term = crate::term::diff::substitute(t, DIMENSION, &Term::Num(d_exact));
-        let dim = declared.map_or(3, |d| d as usize);
+        let dim = if with_points {
+            d as usize
+        } else {
+            declared.map_or(3, |d| d as usize)
+        };
         let mut scalars = BTreeMap::new();
         for s in &symbols {
             let v = if s == SPHERE_AREA {
@@ -73,11 +92,21 @@ pub fn somewhere_nonzero(ctx: &Context, t: &Term, seed: u64) -> Option<bool> {
             };
             scalars.insert(s.clone(), v);
         }
+        let mut points = BTreeMap::new();
+        if with_points {
+            for decl in &ctx.points {
+                let mut p: Vec<f64> = (0..dim).map(|_| 2.0 * next() - 1.0).collect();
+                if ctx.has_halfspace() {
+                    p[dim - 1] = if decl.boundary { 0.0 } else { 0.25 + next() };
+                }
+                points.insert(decl.name.clone(), p);
+            }
+        }
         let values = Values {
             dim,
             scalars,
             tensors: BTreeMap::new(),
-            points: BTreeMap::new(),
+            points,
         };
         let Ok(program) = compile(ctx, &term, &[], dim) else {
             return Some(false);
@@ -102,6 +131,24 @@ fn sphere_area_at(d: f64) -> f64 {
     }
     let g = super::special::gamma(d / 2.0).unwrap_or(f64::NAN);
     2.0 * std::f64::consts::PI.powf(d / 2.0) / g
+}
+
+/// True if `t` is an explicit function of parameters and points
+/// (distances, coordinates, normals, Kronecker deltas): what a program
+/// evaluates without vectors to choose; collects the parameters' names.
+fn explicit(t: &Term, out: &mut Vec<String>) -> bool {
+    match t {
+        Term::Num(_) | Term::Dist(..) | Term::Comp(..) | Term::Normal(_) | Term::Kron(..) => true,
+        Term::Sym(s) => {
+            if s != DIMENSION {
+                out.push(s.clone());
+            }
+            true
+        }
+        Term::Pow(a, b) => explicit(a, out) && explicit(b, out),
+        Term::Mul(ts) | Term::Add(ts) => ts.iter().all(|s| explicit(s, out)),
+        _ => false,
+    }
 }
 
 /// True if `t` is built from numbers and parameters with sums, products
