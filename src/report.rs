@@ -335,6 +335,8 @@ impl<'a> Reporter<'a> {
                 );
                 let reason = if s.stop.is_saturated() {
                     "the rules saturated: nothing more applies, so the two sides differ by the remainder above".to_string()
+                } else if let crate::egraph::Stop::Undecided(why) = &s.stop {
+                    format!("the rules saturated, but {why}; so the claim is neither proved nor refuted")
                 } else {
                     format!(
                         "the e-graph {}; the remainder is not final, so the claim is neither proved nor refuted",
@@ -1143,7 +1145,7 @@ impl<'a> Reporter<'a> {
         } else if held {
             "marked `slip`, but it holds: nothing is caught (remove `slip` if it is right)"
         } else {
-            "marked `slip`, but a limit stopped the search before it was refuted: nothing is caught"
+            "marked `slip`, but it was neither proved nor refuted (a limit stopped the search, or the remainder is undecided): nothing is caught"
         };
         if let Some(entries) = &mut self.json {
             if let Some(last) = entries.last_mut() {

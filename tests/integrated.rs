@@ -187,3 +187,103 @@ fn a_delta_on_the_surface_or_in_an_unknown_place_is_an_error() {
         assert!(rendered.contains("regions.ward:6:1"), "{rendered}");
     }
 }
+
+const WALL_BLOCKS: &str = "dimension d
+positive xi Delta Dhat
+let fbulk(t) = f_bulk(Delta; t)
+let fbdy(t) = f_bdy(Dhat; t)";
+
+#[test]
+fn casimir_equations_fail_for_a_wrong_eigenvalue_or_block() {
+    // docs/conventions.md §9 (McAvity & Osborn 1995; Liendo, Rastelli &
+    // van Rees 2012): the right equations hold, and each perturbation is
+    // refuted with a remainder in ₂F₁ — not left unknown.
+    let bulk = |eigenvalue: &str, f: &str| {
+        format!(
+            "claim 4 xi^2 (1 + xi) {f}''(xi) + 2 xi (2 xi + 2 - d) {f}'(xi) = {eigenvalue} {f}(xi)"
+        )
+    };
+    let boundary = |eigenvalue: &str| {
+        format!("claim xi (1 + xi) fbdy''(xi) + d/2 (2 xi + 1) fbdy'(xi) = {eigenvalue} fbdy(xi)")
+    };
+    let (report, code) = check(WALL_BLOCKS, &bulk("Delta (Delta - d)", "fbulk"));
+    assert_eq!(code, 0, "{report}");
+    let (report, code) = check(WALL_BLOCKS, &boundary("Dhat (Dhat - d + 1)"));
+    assert_eq!(code, 0, "{report}");
+    let wrong_parameter = "let w(t) = t^(Delta/2) F21(Delta/2, Delta/2 + 1; Delta + 1 - d/2; -t)";
+    for (header, body) in [
+        (
+            WALL_BLOCKS.to_string(),
+            bulk("Delta (Delta - d - 1)", "fbulk"),
+        ),
+        (
+            WALL_BLOCKS.to_string(),
+            bulk("(Delta - 1) (Delta - d)", "fbulk"),
+        ),
+        (WALL_BLOCKS.to_string(), boundary("Dhat (Dhat - d + 2)")),
+        (WALL_BLOCKS.to_string(), boundary("Delta (Delta - d)")),
+        (
+            format!("{WALL_BLOCKS}\n{wrong_parameter}"),
+            bulk("Delta (Delta - d)", "w"),
+        ),
+    ] {
+        let (report, code) = check(&header, &body);
+        assert_eq!(code, 1, "{report}");
+        assert!(report.contains("NOT PROVED"), "{report}");
+        assert!(report.contains("₂F₁"), "{report}");
+        assert!(!report.contains("UNKNOWN"), "{report}");
+    }
+}
+
+#[test]
+fn relations_the_normal_form_does_not_decide_are_unknown() {
+    // Gauss's contiguous relations (DLMF 15.5.11–15.5.18) and the
+    // transformations of the argument (DLMF 15.8.1) hold, but the normal
+    // form keeps one family apart from another: true identities between two
+    // families, and wrong ones, are unknown, never refuted or proved.
+    let header = "dimension d\nparameters a b c z";
+    for claim in [
+        // Pfaff (DLMF 15.8.1), true.
+        "claim F21(a, b; c; z) = (1 - z)^(-a) F21(a, c - b; c; z/(z - 1))",
+        // A contiguous relation in c (DLMF 15.5.18, from memory; checked
+        // with mpmath at a = 0.3, b = 1.7, c = 2.9, z = -0.6), true:
+        // c (c - 1)(z - 1) F(c - 1) + c (c - 1 - (2c - a - b - 1) z) F(c) + (c - a)(c - b) z F(c + 1) = 0.
+        "claim c (c - 1) (z - 1) F21(a, b; c - 1; z) + c (c - 1 - (2 c - a - b - 1) z) F21(a, b; c; z) + (c - a) (c - b) z F21(a, b; c + 1; z) = 0",
+        // The same with a wrong sign: false, and still not refuted.
+        "claim c (c - 1) (z - 1) F21(a, b; c - 1; z) - c (c - 1 - (2 c - a - b - 1) z) F21(a, b; c; z) + (c - a) (c - b) z F21(a, b; c + 1; z) = 0",
+        // Elementary parameters: ₂F₁(1, 1; 2; z) = -ln(1 - z)/z (DLMF 15.4.2)
+        // satisfies z F' + F = 1/(1 - z), which the normal form cannot see.
+        "claim z F21'(1, 1; 2; z) + F21(1, 1; 2; z) = 1/(1 - z)",
+    ] {
+        let (report, code) = check(header, claim);
+        assert_eq!(code, 1, "{report}");
+        assert!(report.contains("UNKNOWN"), "{report}");
+        assert!(report.contains("the remainder is undecided"), "{report}");
+    }
+}
+
+#[test]
+fn coordinate_casimirs_fail_for_wrong_eigenvalues() {
+    // tests/cases/integrated/casimir-coordinates.ward with the eigenvalue of
+    // each block claim changed: refuted (the coefficients of ₂F₁ in the
+    // remainder are shown nonzero at sampled points), not left unknown.
+    let text = std::fs::read_to_string("tests/cases/integrated/casimir-coordinates.ward")
+        .expect("the case exists");
+    for (right, wrong) in [
+        ("= Delta (Delta - d) HB", "= Delta (Delta - d + 1) HB"),
+        ("= Dhat (Dhat - d + 1) HW", "= Dhat (Dhat - d) HW"),
+    ] {
+        assert!(text.contains(right));
+        let source = Source::new("casimir.ward", text.replace(right, wrong));
+        let out = run_source(&source, Path::new("."), Mode::Check, &Options::default())
+            .unwrap_or_else(|e| panic!("{}", e.render()));
+        assert_eq!(out.code, 1, "{}", out.report);
+        assert_eq!(
+            out.report.matches("NOT PROVED").count(),
+            1,
+            "{}",
+            out.report
+        );
+        assert!(!out.report.contains("UNKNOWN"), "{}", out.report);
+    }
+}

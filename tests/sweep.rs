@@ -228,7 +228,11 @@ fn pointwise(t: &Term) -> Option<Term> {
             }
             Term::Add(kept)
         }
-        Term::Fun(n, k, ts) => Term::Fun(n.clone(), *k, ts.iter().map(without_deltas).collect()),
+        Term::Fun(n, k, ts) => Term::Fun(
+            n.clone(),
+            k.clone(),
+            ts.iter().map(without_deltas).collect(),
+        ),
         Term::Der(i, p, b) => Term::Der(i.clone(), p.clone(), Box::new(pointwise(b)?)),
         other => other.clone(),
     })

@@ -51,6 +51,9 @@ pub enum Stop {
     MatchLimit(usize),
     TimeLimit,
     Other(String),
+    /// The rules saturated, but the remainder left is one the engine cannot
+    /// tell from zero (see `Engine::check`): the reason.
+    Undecided(String),
 }
 
 impl Stop {
@@ -68,6 +71,7 @@ impl Stop {
             }
             Stop::TimeLimit => "stopped at the time limit".into(),
             Stop::Other(s) => format!("stopped: {s}"),
+            Stop::Undecided(_) => "saturated; the remainder is undecided".into(),
         }
     }
 }

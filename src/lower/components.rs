@@ -152,10 +152,18 @@ impl Lowerer {
                     span: e.span,
                 }
             }
-            ExprKind::Call { name, primes, args } => Expr {
+            ExprKind::Call {
+                name,
+                primes,
+                orders,
+                args,
+                separators,
+            } => Expr {
                 kind: ExprKind::Call {
                     name: name.clone(),
                     primes: *primes,
+                    orders: orders.clone(),
+                    separators: separators.clone(),
                     args: args
                         .iter()
                         .map(|a| self.numeric_components(a))

@@ -33,7 +33,7 @@ pub(super) struct Scope {
     /// Each name defined by `let`, with the span of its first definition.
     pub(super) lets: BTreeMap<String, Span>,
     /// The name of the `let` whose expression is being lowered.
-    defining: RefCell<Option<String>>,
+    pub(super) defining: RefCell<Option<String>>,
     /// The number of enclosing surface integrals.
     surfaces: Cell<u32>,
 }
@@ -626,13 +626,9 @@ impl Lowerer {
         })
     }
 
-    pub(super) fn call(&self, name: &Name, primes: u32, args: &[Expr], span: Span) -> Result<Term> {
-        if name.text == CROSS_RATIO && self.ctx.operator(&name.text).is_none() {
-            return self.cross_ratio(name, primes, args, span);
-        }
-        if self.is_displacement_quantity(&name.text) {
-            return self.displacement_quantity(name, primes, args, span);
-        }
+    /// `g(u)` for a name that is not a function: the product g·u when g is
+    /// a number (a parameter, `d`, a named expression), an error otherwise.
+    pub(super) fn number_call(&self, name: &Name, primes: u32, args: &[Expr]) -> Result<Term> {
         // `g(a + b)` is a product, not a call, when g is a number.
         let is_number = name.text == DIMENSION
             || matches!(
@@ -643,54 +639,39 @@ impl Lowerer {
             let factor = self.scalar_name(name)?;
             return Ok(Term::Mul(vec![factor, self.expr(&args[0])?]));
         }
-        if !self.ctx.functions.contains(&name.text) {
-            if let Some(err) = self.let_out_of_order(name) {
-                return Err(err);
-            }
-            return Err(match self.declared_kind(&name.text) {
-                Some(kind) => {
-                    let error = self
-                        .err(
-                            ErrorKind::Name,
-                            name.span,
-                            format!("`{}` is {kind}, not a function", name.text),
-                        )
-                        .with_label("called like a function");
-                    if is_number {
-                        error.with_note(format!(
-                            "`{0}(u)` with one argument is the product of `{0}` and u; an unknown function is declared with `function F` and called as `F(u)`",
-                            name.text
-                        ))
-                    } else {
-                        error
-                    }
+        if let Some(err) = self.let_out_of_order(name) {
+            return Err(err);
+        }
+        Err(match self.declared_kind(&name.text) {
+            Some(kind) => {
+                let error = self
+                    .err(
+                        ErrorKind::Name,
+                        name.span,
+                        format!("`{}` is {kind}, not a function", name.text),
+                    )
+                    .with_label("called like a function");
+                if is_number {
+                    error.with_note(format!(
+                        "`{0}(u)` with one argument is the product of `{0}` and u; an unknown function is declared with `function F` and called as `F(u)`",
+                        name.text
+                    ))
+                } else {
+                    error
                 }
-                None => self.undeclared(name, "function", &format!("function {}", name.text)),
-            });
-        }
-        if args.len() != 1 {
-            return Err(self
-                .err(
-                    ErrorKind::Syntax,
-                    span,
-                    format!(
-                        "`{}` is a function of one variable, found {} arguments",
-                        name.text,
-                        args.len()
-                    ),
-                )
-                .with_label("wrong number of arguments")
-                .with_note(format!(
-                    "declared functions take one argument, e.g. `{}(|x1 - x2|^2)`",
-                    name.text
-                )));
-        }
-        let arg = self.expr(&args[0])?;
-        Ok(Term::Fun(name.text.clone(), primes, vec![arg]))
+            }
+            None => self.undeclared(name, "function", &format!("function {}", name.text)),
+        })
     }
 
     /// The cross-ratio `xi(p, q)` = |p - q|² / (4 y_p y_q) of two bulk points.
-    fn cross_ratio(&self, name: &Name, primes: u32, args: &[Expr], span: Span) -> Result<Term> {
+    pub(super) fn cross_ratio(
+        &self,
+        name: &Name,
+        primes: u32,
+        args: &[Expr],
+        span: Span,
+    ) -> Result<Term> {
         const FORM: &str = "ξ = |x1 - x2|²/(4 y1 y2), written `xi(x1, x2)`";
         self.need_halfspace(span, "the cross-ratio xi")?;
         if primes > 0 {
@@ -813,7 +794,16 @@ impl Lowerer {
             kind: ExprKind::Name(op.point.name.clone()),
             span: op.point.span,
         };
-        self.call(&op.name, 0, &[arg], op.span)
+        self.call(
+            &super::functions::Call {
+                name: &op.name,
+                primes: 0,
+                orders: None,
+                args: std::slice::from_ref(&arg),
+                separators: &[],
+            },
+            op.span,
+        )
     }
 
     /// A declared function written without its argument, or with a space
@@ -839,7 +829,7 @@ impl Lowerer {
 
     /// The error for a named expression used inside its own definition or
     /// before it, if `n` is one.
-    fn let_out_of_order(&self, n: &Name) -> Option<Error> {
+    pub(super) fn let_out_of_order(&self, n: &Name) -> Option<Error> {
         if self.scope.defining.borrow().as_deref() == Some(n.text.as_str()) {
             return Some(
                 self.err(
@@ -869,7 +859,7 @@ impl Lowerer {
 
     /// An error under the first free index of `e`, if it has one: `what`
     /// must be a scalar.
-    fn index_free(&self, e: &Expr, what: &str, note: &str) -> Result<()> {
+    pub(super) fn index_free(&self, e: &Expr, what: &str, note: &str) -> Result<()> {
         let free = self.free_indices(e)?;
         let Some(index) = free.iter().next() else {
             return Ok(());
@@ -886,28 +876,6 @@ impl Lowerer {
             )
             .with_label(format!("`{index}` is free"))
             .with_note(note.to_string()))
-    }
-
-    /// `let NAME = EXPR`: checks the expression once, and keeps it to be
-    /// lowered again where the name is used.
-    pub(super) fn declare_let(&mut self, name: &Name, expr: &Expr) -> Result<()> {
-        // Components (`x1[0]`) become contractions here; a statement that
-        // uses the name decides whether it may hold them.
-        let expr = &self.numeric_components(expr)?;
-        self.index_free(
-            expr,
-            "a named expression",
-            "a `let` names an expression without free indices; contract the index (e.g. `x1[mu] x1[mu]`) or write the tensor out where it is used",
-        )?;
-        *self.scope.defining.borrow_mut() = Some(name.text.clone());
-        let was = self.in_numeric.replace(true);
-        let lowered = self.expr(expr);
-        self.in_numeric.set(was);
-        *self.scope.defining.borrow_mut() = None;
-        lowered?;
-        self.new_name(name, Declared::Let)?;
-        self.lets.insert(name.text.clone(), expr.clone());
-        Ok(())
     }
 
     pub(super) fn integral(

@@ -10,6 +10,7 @@
 mod anomaly;
 mod components;
 mod explicit;
+mod functions;
 mod indices;
 mod numeric;
 
@@ -146,6 +147,8 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
         ctx: Context::default(),
         declared: BTreeMap::new(),
         lets: BTreeMap::new(),
+        bound: Default::default(),
+        arities: Default::default(),
         fresh: std::cell::Cell::new(0),
         in_numeric: std::cell::Cell::new(false),
         depth: std::cell::Cell::new(0),
@@ -568,8 +571,16 @@ struct Lowerer {
     source: Arc<Source>,
     ctx: Context,
     declared: BTreeMap<String, (Declared, Span)>,
-    /// Named expressions from `let`, lowered where they are used.
-    lets: BTreeMap<String, Expr>,
+    /// Named expressions from `let`, lowered where they are used, with the
+    /// parameters of a function (`let f(t) = …`; none for a plain name).
+    lets: BTreeMap<String, (Vec<Name>, Expr)>,
+    /// The parameters of the functions being lowered, innermost last: each
+    /// name stands for a symbol no input can spell (see
+    /// [`functions`](self::functions)).
+    bound: std::cell::RefCell<Vec<(String, Term)>>,
+    /// The number of arguments of each unknown function, from its first
+    /// call.
+    arities: std::cell::RefCell<BTreeMap<String, (usize, Span)>>,
     /// Counter for fresh summation indices inside Killing vectors.
     fresh: std::cell::Cell<u32>,
     /// True while a numeric statement is lowered: components (`x1[0]`)
@@ -758,7 +769,7 @@ impl Lowerer {
                     self.ctx.functions.insert(name.text.clone());
                 }
             }
-            Stmt::Let { name, expr } => self.declare_let(name, expr)?,
+            Stmt::Let { name, params, expr } => self.declare_let(name, params, expr)?,
             Stmt::Killing {
                 name, generator, ..
             } => self.declare_killing(name, generator)?,
@@ -1044,7 +1055,22 @@ impl Lowerer {
             ExprKind::Component { name, par, indices } => {
                 self.component(name, *par, indices, e.span)?
             }
-            ExprKind::Call { name, primes, args } => self.call(name, *primes, args, e.span)?,
+            ExprKind::Call {
+                name,
+                primes,
+                orders,
+                args,
+                separators,
+            } => self.call(
+                &functions::Call {
+                    name,
+                    primes: *primes,
+                    orders: orders.as_deref(),
+                    args,
+                    separators,
+                },
+                e.span,
+            )?,
             ExprKind::Integral {
                 var,
                 region,
@@ -1253,6 +1279,9 @@ impl Lowerer {
     }
 
     fn scalar_name(&self, n: &Name) -> Result<Term> {
+        if let Some(t) = self.bound_parameter(&n.text) {
+            return Ok(t);
+        }
         if n.text == DIMENSION {
             return Ok(self.ctx.dim());
         }
@@ -1265,9 +1294,10 @@ impl Lowerer {
             Some((Declared::Parameter, _)) => Ok(Term::Sym(n.text.clone())),
             Some((Declared::Function, _)) => Err(self.function_without_argument(n)),
             Some((Declared::Let, _)) => match self.lets.get(&n.text) {
+                Some((params, _)) if !params.is_empty() => Err(self.function_without_argument(n)),
                 // A limit met inside the definition is reported where the
                 // outermost named expression is used.
-                Some(e) => self.descend(n.span, || self.expr(e)).map_err(|mut err| {
+                Some((_, e)) => self.descend(n.span, || self.expr(e)).map_err(|mut err| {
                     if err.kind == ErrorKind::Limit {
                         err = err
                             .with_span(&self.source, n.span)

@@ -147,12 +147,18 @@ pub enum ExprKind {
         par: bool,
         indices: Vec<Name>,
     },
-    /// A function call `F(u)`, `F'(u)` (primes count derivatives), or the
-    /// built-in `xi(x1, x2)`.
+    /// A function call `F(u)`, `F'(u)` (primes count derivatives),
+    /// `F[1,0](u, v)` (derivatives by argument), or a built-in: `xi(x1, x2)`,
+    /// `F21(a, b; c; z)`, the blocks `f_bulk(Δ; ξ)` and `f_bdy(Δ̂; ξ)`.
     Call {
         name: Name,
         primes: u32,
+        /// `[1,0]` after the name: how often each argument is
+        /// differentiated.
+        orders: Option<Vec<u32>>,
         args: Vec<Expr>,
+        /// The separator after each argument but the last: `,` or `;`.
+        separators: Vec<char>,
     },
     /// `∫[x in REGION] { body }`, or with `surface`, `∮[x on REGION] { body }`.
     Integral {
@@ -301,9 +307,11 @@ pub enum Stmt {
     },
     /// `function F G`: unknown functions of one variable.
     Functions(Vec<Name>),
-    /// `let NAME = EXPR`: a named expression, substituted where it is used.
+    /// `let NAME = EXPR`: a named expression, substituted where it is used;
+    /// `let NAME(t, …) = EXPR`: a function of its parameters.
     Let {
         name: Name,
+        params: Vec<Name>,
         expr: Expr,
     },
     /// `killing eps GENERATOR`.

@@ -525,9 +525,9 @@ impl<'a> Model<'a> {
                 }
                 s.sqrt()
             }
-            Term::Fun(name, order, args) => {
-                let [arg] = &args[..] else {
-                    panic!("unknown functions take one argument: {t:?}")
+            Term::Fun(name, orders, args) => {
+                let ([arg], [order]) = (&args[..], &orders[..]) else {
+                    panic!("unknown functions take one argument here: {t:?}")
                 };
                 let f = self
                     .functions
