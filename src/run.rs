@@ -415,16 +415,14 @@ fn write_scan(
     scan: &crate::numeric::session::Scan,
     base: &Path,
     stem: &str,
-    title: &str,
+    labels: &crate::plot::Labels,
 ) -> Result<String> {
     let refuse = |why: String| Error::new(ErrorKind::Io, format!("cannot write the scan: {why}"));
     let csv = crate::files::output_path(base, stem, "csv").map_err(refuse)?;
     let svg = crate::files::output_path(base, stem, "svg").map_err(refuse)?;
-    crate::files::replace_together(&[
-        (csv.clone(), crate::plot::csv(scan)),
-        (svg.clone(), crate::plot::svg(scan, title)),
-    ])
-    .map_err(|e| {
+    let plot = crate::plot::svg(scan, labels).map_err(refuse)?;
+    crate::files::replace_together(&[(csv.clone(), crate::plot::csv(scan)), (svg.clone(), plot)])
+        .map_err(|e| {
         Error::new(
             ErrorKind::Io,
             format!(
@@ -849,18 +847,12 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
                     }
                     Err(e) => return Err(at_item(e)),
                 };
-                let title: String = {
-                    let body = input.split(" into ").next().unwrap_or(input);
-                    let cut: String = body.chars().take(90).collect();
-                    if cut.len() < body.len() {
-                        format!("{cut}…")
-                    } else {
-                        cut
-                    }
-                };
+                // The figure fits the title to its width.
+                let title = format!("scan {}", input.split(" into ").next().unwrap_or(input));
                 let written = match output {
                     Some(stem) if !opts.keep_scan_files => {
-                        Some(write_scan(&scan, base, stem, &title).map_err(at_item)?)
+                        let labels = crate::plot::Labels::scan(&program.ctx, param, &title);
+                        Some(write_scan(&scan, base, stem, &labels).map_err(at_item)?)
                     }
                     _ => None,
                 };
@@ -928,8 +920,9 @@ fn check_source(source: &Arc<Source>, base: &Path, mode: Mode, opts: &Options) -
                                 })
                                 .collect(),
                         };
-                        let title = format!("{input}: G(ξ) and its expansion");
-                        Some(write_scan(&scan, base, stem, &title).map_err(at_item)?)
+                        let body = input.split(" into ").next().unwrap_or(input);
+                        let labels = crate::plot::Labels::decompose(&format!("decompose {body}"));
+                        Some(write_scan(&scan, base, stem, &labels).map_err(at_item)?)
                     }
                     _ => None,
                 };
