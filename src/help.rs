@@ -116,7 +116,7 @@ pub const STATEMENTS: &[Entry] = &[
     Entry {
         keyword: "model",
         example: "model conformal",
-        meaning: "correlators for numeric work: `conformal`, `gff`, `free-scalar dirichlet`, `free-scalar reflection r`",
+        meaning: "correlators for numeric work: `conformal`, `gff`, `free-scalar dirichlet`",
     },
     Entry {
         keyword: "coefficient",
