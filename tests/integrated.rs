@@ -287,3 +287,29 @@ fn coordinate_casimirs_fail_for_wrong_eigenvalues() {
         assert!(!out.report.contains("UNKNOWN"), "{}", out.report);
     }
 }
+
+#[test]
+fn four_point_identities_fail_for_a_wrong_prefactor() {
+    // tests/cases/integrated/four-point-global.ward (Dolan & Osborn 2001):
+    // with the exponent of x12 off by one the dilatation and special
+    // conformal identities fail; translations and rotations still hold.
+    let text = std::fs::read_to_string("tests/cases/integrated/four-point-global.ward")
+        .expect("the case exists");
+    let right = "|x1 - x2|^(-Delta1 - Delta2)";
+    assert!(text.contains(right));
+    let source = Source::new(
+        "four.ward",
+        text.replace(right, "|x1 - x2|^(1 - Delta1 - Delta2)"),
+    );
+    let out = run_source(&source, Path::new("."), Mode::Check, &Options::default())
+        .unwrap_or_else(|e| panic!("{}", e.render()));
+    assert_eq!(out.code, 1, "{}", out.report);
+    assert_eq!(
+        out.report.matches("NOT PROVED").count(),
+        2,
+        "{}",
+        out.report
+    );
+    // The remainder is the unknown function times the broken weight.
+    assert!(out.report.contains(" F(|x1 - x2|^2"), "{}", out.report);
+}

@@ -2,6 +2,7 @@
 //! (`F(u)`, `F'(u)`, `F[1,0](u, v)`), the Gauss hypergeometric function
 //! `F21(a, b; c; z)` (also written `₂F₁(a, b; c; z)`), the conformal blocks
 //! next to a wall `f_bulk(Δ; ξ)` and `f_bdy(Δ̂; ξ)` (docs/conventions.md §9),
+//! the cross-ratios of four points `u(x1, x2, x3, x4)`, `v(x1, x2, x3, x4)`,
 //! and functions defined in the file, `let f(t) = …`.
 //!
 //! A defined function and a block are expressions in their parameters:
@@ -20,6 +21,10 @@ use crate::term::{diff, Term, HYP2F1, HYP2F1_ASCII};
 pub const BULK_BLOCK: &str = "f_bulk";
 /// The boundary-channel block `f_bdy(Δ̂; ξ)`.
 pub const BOUNDARY_BLOCK: &str = "f_bdy";
+
+/// The cross-ratios of four points, `u(x1, x2, x3, x4)` and `v(…)`.
+pub const CROSS_RATIO_U: &str = "u";
+pub const CROSS_RATIO_V: &str = "v";
 
 const HYP_FORM: &str = "the Gauss hypergeometric function ₂F₁(a, b; c; z) is written `F21(a, b; c; z)` (or `₂F₁(a, b; c; z)`), its derivatives in z `F21'(a, b; c; z)`, `F21''(a, b; c; z)`";
 
@@ -55,6 +60,10 @@ impl Lowerer {
             }
             if name == BULK_BLOCK || name == BOUNDARY_BLOCK {
                 return self.block(c, span);
+            }
+            if (name == CROSS_RATIO_U || name == CROSS_RATIO_V) && c.args.len() == 4 {
+                self.plain_call(c, span, &format!("the cross-ratio {name}"))?;
+                return self.four_point_ratio(c);
             }
         }
         if self.ctx.functions.contains(name) {
@@ -201,6 +210,70 @@ impl Lowerer {
             format!("more than {MAX_ORDER} derivatives of one function"),
         )
         .with_label("too many derivatives")
+    }
+
+    /// u = x12² x34²/(x13² x24²) and v = x14² x23²/(x13² x24²) of four
+    /// different points (Dolan & Osborn 2001, hep-th/0011040, eq. 1.2;
+    /// common practice).
+    fn four_point_ratio(&self, c: &Call) -> Result<Term> {
+        let name = &c.name.text;
+        let form = "u = |x1 - x2|² |x3 - x4|²/(|x1 - x3|² |x2 - x4|²) and v = |x1 - x4|² |x2 - x3|²/(|x1 - x3|² |x2 - x4|²), written `u(x1, x2, x3, x4)`, `v(x1, x2, x3, x4)`";
+        if c.primes > 0 {
+            return Err(self
+                .err(
+                    ErrorKind::Syntax,
+                    c.name.span,
+                    format!("the cross-ratio {name} cannot carry primes"),
+                )
+                .with_label("primes")
+                .with_note(form));
+        }
+        let mut points = Vec::with_capacity(4);
+        for arg in c.args {
+            let crate::syntax::ast::ExprKind::Name(n) = &arg.kind else {
+                return Err(self
+                    .err(
+                        ErrorKind::Syntax,
+                        arg.span,
+                        format!("the cross-ratio {name} takes points, not expressions"),
+                    )
+                    .with_label("not a point")
+                    .with_note(form));
+            };
+            let p = self.point(&crate::syntax::ast::PointRef {
+                name: n.clone(),
+                par: false,
+                span: n.span,
+            })?;
+            if points.contains(&p) {
+                return Err(self
+                    .err(
+                        ErrorKind::Placement,
+                        arg.span,
+                        format!("`{}` is named twice in the cross-ratio {name}", n.text),
+                    )
+                    .with_label("the same point again")
+                    .with_note(format!("{form}: four different points")));
+            }
+            points.push(p);
+        }
+        let square = |i: usize, j: usize| {
+            let (a, b) = (points[i].clone(), points[j].clone());
+            let (a, b) = if a < b { (a, b) } else { (b, a) };
+            Term::Pow(Box::new(Term::Dist(a, b)), Box::new(Term::int(2)))
+        };
+        let inverse = |t: Term| Term::Pow(Box::new(t), Box::new(Term::int(-1)));
+        let numerator = if name == CROSS_RATIO_U {
+            [square(0, 1), square(2, 3)]
+        } else {
+            [square(0, 3), square(1, 2)]
+        };
+        Ok(Term::Mul(vec![
+            numerator[0].clone(),
+            numerator[1].clone(),
+            inverse(square(0, 2)),
+            inverse(square(1, 3)),
+        ]))
     }
 
     /// `F21(a, b; c; z)` with its primes.
