@@ -16,8 +16,10 @@ use crate::normal::{normal_form_with, Caveats, Memo, Singular};
 use crate::rules::RuleBook;
 use crate::term::Term;
 
-/// Rounds of (e-graph, extract, normalise) before giving up on a fixpoint.
-const MAX_ROUNDS: usize = 8;
+/// Rounds of (e-graph, extract, normalise) before giving up on a fixpoint;
+/// a simplification still changing after them stops with
+/// [`Stop::RoundLimit`], so that its claim is unknown, not refuted.
+pub const MAX_ROUNDS: usize = 8;
 
 /// The rules and limits for simplifying the expressions of one file.
 pub struct Engine {
@@ -111,6 +113,7 @@ impl Engine {
             applied: BTreeMap::new(),
             caveats: first.caveats,
         };
+        let mut finished = false;
         for _ in 0..MAX_ROUNDS {
             let mut eg = if self.limits.explanations {
                 EGraph::new(Fold::default()).with_explanations_enabled()
@@ -157,8 +160,13 @@ impl Engine {
             let done = next == current || !out.stop.is_saturated();
             current = next;
             if done {
+                finished = true;
                 break;
             }
+        }
+        if !finished {
+            // Still changing: the remainder is not final.
+            out.stop = Stop::RoundLimit(MAX_ROUNDS);
         }
         out.term = current;
         Ok(out)

@@ -11,6 +11,7 @@
 pub mod accept;
 pub mod budget;
 pub mod charset;
+pub mod check;
 pub mod context;
 pub mod derive;
 pub mod diagnostic;
@@ -22,6 +23,7 @@ pub mod jobs;
 pub mod lower;
 pub mod normal;
 pub mod numeric;
+pub mod outcome;
 pub mod plot;
 pub mod report;
 pub mod rules;

@@ -40,8 +40,9 @@ impl Default for Limits {
     }
 }
 
-/// Why a run stopped.
-#[derive(Clone, Debug, PartialEq, Eq)]
+/// Why a run stopped. In JSON: `{"kind": "node_limit", "limit": 100000}`.
+#[derive(Clone, Debug, PartialEq, Eq, serde::Serialize)]
+#[serde(tag = "kind", content = "limit", rename_all = "snake_case")]
 pub enum Stop {
     /// No rule can add anything new.
     Saturated,
@@ -50,6 +51,9 @@ pub enum Stop {
     /// The rule matching took its whole budget of steps.
     MatchLimit(usize),
     TimeLimit,
+    /// The engine's outer loop (e-graph, extraction, normalisation) ran
+    /// its rounds without reaching a fixpoint (`engine::MAX_ROUNDS`).
+    RoundLimit(usize),
     Other(String),
 }
 
@@ -67,6 +71,9 @@ impl Stop {
                 format!("stopped: rule matching reached its limit (limit {n} steps)")
             }
             Stop::TimeLimit => "stopped at the time limit".into(),
+            Stop::RoundLimit(n) => format!(
+                "stopped at the round limit ({n} rounds of rules and normalisation without a fixpoint)"
+            ),
             Stop::Other(s) => format!("stopped: {s}"),
         }
     }
