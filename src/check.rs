@@ -71,7 +71,13 @@ pub fn check_program(
     let file = program.source.name.clone();
     if program.items.is_empty() {
         // Declarations alone are valid, but silence would read as a pass.
-        return Ok(FileOutcome::new(file, settings.mode, None, Vec::new(), true));
+        return Ok(FileOutcome::new(
+            file,
+            settings.mode,
+            None,
+            Vec::new(),
+            true,
+        ));
     }
     let engine = Engine::new(program.ctx.clone(), Arc::new(book), settings.limits)?;
     let mut checker = Checker {
@@ -775,7 +781,8 @@ fn numeric_step(
     match first_difference {
         None => step.verdict = StepVerdict::Confirmed { samples },
         Some(mut found) => {
-            if let (Some(r), StepNumeric::Differs { ratio, .. }) = (common_ratio(&ratios), &mut found)
+            if let (Some(r), StepNumeric::Differs { ratio, .. }) =
+                (common_ratio(&ratios), &mut found)
             {
                 *ratio = Some(Ratio {
                     value: r,

@@ -64,7 +64,10 @@ impl Status {
 
     /// True for the three statuses that pass.
     pub fn holds(self) -> bool {
-        matches!(self, Status::Proved | Status::ProvedAway | Status::Confirmed)
+        matches!(
+            self,
+            Status::Proved | Status::ProvedAway | Status::Confirmed
+        )
     }
 
     /// The status of a numeric verdict: agreement confirms, disagreement
@@ -532,7 +535,10 @@ pub enum Slip {
     /// The contact term at an insertion is missing, extra or different.
     Contact { at: String, change: Change },
     /// The steps differ in one term (`term` null: the constant term).
-    Term { term: Option<Expr>, change: TermChange },
+    Term {
+        term: Option<Expr>,
+        change: TermChange,
+    },
     /// The contact terms at the coincident points differ (found
     /// numerically after a proof away from them).
     ContactTerms,
@@ -565,7 +571,10 @@ pub enum StepNumeric {
     /// Some configuration could not be evaluated.
     NotEvaluated { reason: String },
     /// At a configuration a value is not known.
-    Undecided { configuration: usize, reason: String },
+    Undecided {
+        configuration: usize,
+        reason: String,
+    },
     /// The steps differ: at the first configuration where they do, the
     /// points the steps mention and both values; the common ratio when
     /// they differ by one factor everywhere.
@@ -590,7 +599,10 @@ pub enum StepNumeric {
         contact: Option<f64>,
     },
     /// Away from the insertions the divergence is not 0.
-    NotConserved { configuration: usize, divergence: f64 },
+    NotConserved {
+        configuration: usize,
+        divergence: f64,
+    },
     /// Around each insertion the flux equals the contact terms, and away
     /// from them the divergence vanishes.
     FluxConfirmed,

@@ -218,7 +218,11 @@ fn decomposition_table(
     crate::numeric::session::Scan {
         param: "xi".into(),
         labels: vec![String::new()],
-        rows: fit.rows.iter().map(|(x, g, e)| (*x, vec![*g], vec![*e])).collect(),
+        rows: fit
+            .rows
+            .iter()
+            .map(|(x, g, e)| (*x, vec![*g], vec![*e]))
+            .collect(),
         judged: fit
             .rows
             .iter()

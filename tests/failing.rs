@@ -19,7 +19,6 @@
 //! `flux differs around P`, `failing P` (a flux check's insertion),
 //! `remainder mentions TEXT`.
 
-
 use wardsmith::outcome::{FileOutcome, Finding, Slip, Statement, Status, StepNumeric};
 use wardsmith::run::{check_path, Mode, Options};
 use wardsmith::term::print::Style;
@@ -82,7 +81,10 @@ fn detail(s: &Statement, step: Option<usize>, d: &str, at: &str) {
         );
     } else if d == "sign" {
         let slip = step.and_then(|st| st.slip.as_ref());
-        assert!(matches!(slip, Some(Slip::Sign)), "{at}: the slip is {slip:?}");
+        assert!(
+            matches!(slip, Some(Slip::Sign)),
+            "{at}: the slip is {slip:?}"
+        );
     } else {
         panic!("{at}: unknown detail `{d}`");
     }
@@ -117,7 +119,9 @@ fn assert_expectations(text: &str, o: &FileOutcome, file: &str) {
         assert!(!statements.is_empty(), "{at}: no statement on line {n}");
         for s in statements {
             let got = match (step, &s.finding) {
-                (Some(k), Finding::Derivation(d)) => d.steps.iter().find(|st| st.step == k).map(|st| st.status),
+                (Some(k), Finding::Derivation(d)) => {
+                    d.steps.iter().find(|st| st.step == k).map(|st| st.status)
+                }
                 (Some(_), _) => panic!("{at}: not a derivation"),
                 (None, _) => s.status,
             };

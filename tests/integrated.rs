@@ -33,7 +33,6 @@ fn integrated_cases_check_clean() {
     });
 }
 
-
 #[test]
 fn generators_are_classified_preserved_or_broken() {
     // Common practice (docs/conventions.md §7): ε_n = 0 on y = 0 is preserved.

@@ -283,8 +283,7 @@ fn latex_of_every_example_is_balanced_and_without_plain_text() {
             keep_scan_files: true,
             ..Options::default()
         };
-        let out = run_path(&path, Mode::Check, &opts)
-            .unwrap_or_else(|e| panic!("{}", e.render()));
+        let out = run_path(&path, Mode::Check, &opts).unwrap_or_else(|e| panic!("{}", e.render()));
         assert_balanced_latex(&out.report, &path.display().to_string());
         compile_if_possible(&out.report, &path);
     }
@@ -293,8 +292,14 @@ fn latex_of_every_example_is_balanced_and_without_plain_text() {
 /// Compiles the fragment inside a minimal document with `pdflatex` when
 /// one is installed; says so and skips otherwise.
 fn compile_if_possible(tex: &str, path: &Path) {
-    let Ok(found) = std::process::Command::new("pdflatex").arg("--version").output() else {
-        eprintln!("pdflatex is not installed: the LaTeX of {} is checked for balance only", path.display());
+    let Ok(found) = std::process::Command::new("pdflatex")
+        .arg("--version")
+        .output()
+    else {
+        eprintln!(
+            "pdflatex is not installed: the LaTeX of {} is checked for balance only",
+            path.display()
+        );
         return;
     };
     if !found.status.success() {
@@ -302,13 +307,20 @@ fn compile_if_possible(tex: &str, path: &Path) {
     }
     let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("latex");
     std::fs::create_dir_all(&dir).expect("scratch folder");
-    let stem = path.file_stem().and_then(|s| s.to_str()).unwrap_or("example");
+    let stem = path
+        .file_stem()
+        .and_then(|s| s.to_str())
+        .unwrap_or("example");
     let doc = format!(
         "\\documentclass{{article}}\n\\usepackage{{amsmath,amssymb}}\n\\begin{{document}}\n{tex}\\end{{document}}\n"
     );
     std::fs::write(dir.join(format!("{stem}.tex")), doc).expect("written");
     let run = std::process::Command::new("pdflatex")
-        .args(["-interaction=nonstopmode", "-halt-on-error", &format!("{stem}.tex")])
+        .args([
+            "-interaction=nonstopmode",
+            "-halt-on-error",
+            &format!("{stem}.tex"),
+        ])
         .current_dir(&dir)
         .output()
         .expect("pdflatex runs");
@@ -357,7 +369,11 @@ fn assert_balanced_latex(tex: &str, what: &str) {
         }
     }
     assert!(environments.is_empty(), "{what}: unclosed {environments:?}");
-    let code: String = tex.lines().map(strip_comment).collect::<Vec<_>>().join("\n");
+    let code: String = tex
+        .lines()
+        .map(strip_comment)
+        .collect::<Vec<_>>()
+        .join("\n");
     let (mut depth, mut dollars) = (0i64, 0usize);
     let chars: Vec<char> = code.chars().collect();
     let mut i = 0;

@@ -10,8 +10,8 @@ use std::fmt::Write as _;
 
 use crate::numeric::agreement::{Agreement, Value};
 use crate::outcome::{
-    Change, Check, Coincidence, Expr, FileOutcome, Finding, Indices, Mode, Slip, Statement,
-    Status, StepNumeric, TermChange,
+    Change, Check, Coincidence, Expr, FileOutcome, Finding, Indices, Mode, Slip, Statement, Status,
+    StepNumeric, TermChange,
 };
 use crate::term::print::Style;
 
@@ -128,11 +128,10 @@ fn component(i: &Indices) -> String {
     if i.0.is_empty() {
         return String::new();
     }
-    let parts: Vec<String> = i
-        .0
-        .iter()
-        .map(|(n, k)| format!("{} = {k}", crate::term::latex::name(n)))
-        .collect();
+    let parts: Vec<String> =
+        i.0.iter()
+            .map(|(n, k)| format!("{} = {k}", crate::term::latex::name(n)))
+            .collect();
     format!("_{{{}}}", parts.join(",\\,"))
 }
 
@@ -183,22 +182,18 @@ fn statement(out: &mut String, s: &Statement) {
             let note = if x.away_from.is_empty() {
                 String::new()
             } else {
-                format!(
-                    " && \\text{{where {}}}",
-                    coincidences(&x.away_from)
-                )
+                format!(" && \\text{{where {}}}", coincidences(&x.away_from))
             };
-            display(out, &[format!("{} &= {}{note}", tex(&x.expr), tex(&x.result))]);
+            display(
+                out,
+                &[format!("{} &= {}{note}", tex(&x.expr), tex(&x.result))],
+            );
         }
         Finding::Expect(x) => verdict(out, &tex(&x.expr), &tex(&x.expected), &x.check, slip),
         Finding::Claim(x) => verdict(out, &tex(&x.lhs), &tex(&x.rhs), &x.check, slip),
         Finding::Classify(c) => {
             let name = crate::term::latex::name(&c.generator);
-            let note = if c.preserved {
-                "preserved"
-            } else {
-                "broken"
-            };
+            let note = if c.preserved { "preserved" } else { "broken" };
             display(
                 out,
                 &[format!(
@@ -214,10 +209,9 @@ fn statement(out: &mut String, s: &Statement) {
                 let mut note = step.cited.join(", ");
                 let status = match step.status {
                     Status::Proved => None,
-                    Status::ProvedAway => Some(format!(
-                        "proved where {}",
-                        coincidences(&step.away_from)
-                    )),
+                    Status::ProvedAway => {
+                        Some(format!("proved where {}", coincidences(&step.away_from)))
+                    }
                     Status::Confirmed => Some("checked numerically".to_string()),
                     Status::NotProved => Some(match &step.slip {
                         Some(slip) => format!("not proved: {}", slip_words(slip)),
@@ -257,7 +251,13 @@ fn statement(out: &mut String, s: &Statement) {
             let lines: Vec<String> = e
                 .components
                 .iter()
-                .map(|c| format!("\\text{{value}}{} &= {}", component(&c.index), value(&c.value)))
+                .map(|c| {
+                    format!(
+                        "\\text{{value}}{} &= {}",
+                        component(&c.index),
+                        value(&c.value)
+                    )
+                })
                 .collect();
             display(out, &lines);
         }
@@ -327,11 +327,7 @@ fn statement(out: &mut String, s: &Statement) {
         Finding::Scan(scan) => {
             let columns = scan.labels.len().max(1);
             let _ = writeln!(out, "\\begin{{center}}");
-            let _ = writeln!(
-                out,
-                "\\begin{{tabular}}{{r{}}}",
-                "rrr".repeat(columns)
-            );
+            let _ = writeln!(out, "\\begin{{tabular}}{{r{}}}", "rrr".repeat(columns));
             let mut head = vec![format!("${}$", crate::term::latex::name(&scan.param))];
             for label in &scan.labels {
                 let label = if label.is_empty() {
@@ -348,7 +344,9 @@ fn statement(out: &mut String, s: &Statement) {
             let shown: Vec<usize> = if n <= SCAN_ROWS {
                 (0..n).collect()
             } else {
-                (0..SCAN_ROWS).map(|k| k * (n - 1) / (SCAN_ROWS - 1)).collect()
+                (0..SCAN_ROWS)
+                    .map(|k| k * (n - 1) / (SCAN_ROWS - 1))
+                    .collect()
             };
             for k in shown {
                 let row = &scan.rows[k];
@@ -360,7 +358,11 @@ fn statement(out: &mut String, s: &Statement) {
                             .map(|e| format!(" \\pm {}", number(*e, 1)))
                             .unwrap_or_default()
                     };
-                    cells.push(format!("${}{}$", number(row.left[c], 10), err(&row.left_error)));
+                    cells.push(format!(
+                        "${}{}$",
+                        number(row.left[c], 10),
+                        err(&row.left_error)
+                    ));
                     cells.push(format!(
                         "${}{}$",
                         number(row.right[c], 10),
@@ -368,7 +370,10 @@ fn statement(out: &mut String, s: &Statement) {
                     ));
                     cells.push(format!(
                         "${}${}",
-                        number(row.relative_difference.get(c).copied().unwrap_or(f64::NAN), 1),
+                        number(
+                            row.relative_difference.get(c).copied().unwrap_or(f64::NAN),
+                            1
+                        ),
                         match row.verdicts.get(c) {
                             Some(Agreement::Disagree) => " (disagree)",
                             Some(Agreement::Unknown(_)) => " (unknown)",
@@ -400,15 +405,14 @@ fn statement(out: &mut String, s: &Statement) {
             let coefficients = super::coefficients(found);
             let mut lines = Vec::new();
             if let Some(c) = &coefficients.identity {
-                lines.push(format!(
-                    "\\text{{identity}} &= {}",
-                    coefficient_tex(c)
-                ));
+                lines.push(format!("\\text{{identity}} &= {}", coefficient_tex(c)));
             }
             for (dimension, c) in found.dims.iter().zip(&coefficients.blocks) {
                 lines.push(format!(
                     "{coefficient}\\big|_{{{dim} = {}}} &= {}{}",
-                    number(*dimension, 6).trim_end_matches('0').trim_end_matches('.'),
+                    number(*dimension, 6)
+                        .trim_end_matches('0')
+                        .trim_end_matches('.'),
                     coefficient_tex(c),
                     relative_tex(c)
                 ));
@@ -517,9 +521,7 @@ fn numeric_words(n: &StepNumeric) -> String {
     match n {
         StepNumeric::NotEvaluated { .. } => "not evaluated on the model".into(),
         StepNumeric::Undecided { .. } => "not decided on the model".into(),
-        StepNumeric::Differs {
-            ratio: Some(r), ..
-        } => match r.fraction {
+        StepNumeric::Differs { ratio: Some(r), .. } => match r.fraction {
             Some((p, 1)) => format!("on the model the step before is ${p}$ times this one"),
             Some((p, q)) => {
                 format!("on the model the step before is $\\frac{{{p}}}{{{q}}}$ times this one")

@@ -194,7 +194,12 @@ impl Text {
 
     fn statement(&mut self, s: &Statement) {
         if let Some(sample) = &s.sample {
-            let _ = writeln!(self.out, "sample {}: {}", sample.index, points(&sample.points));
+            let _ = writeln!(
+                self.out,
+                "sample {}: {}",
+                sample.index,
+                points(&sample.points)
+            );
         }
         let (line, input) = (s.line, s.input.as_str());
         match &s.finding {
@@ -386,10 +391,8 @@ impl Text {
                         );
                     }
                     if step.away_from.is_empty() {
-                        let _ = writeln!(
-                            self.out,
-                            "  step {k} (line {at}): proved by {by}{claimed}"
-                        );
+                        let _ =
+                            writeln!(self.out, "  step {k} (line {at}): proved by {by}{claimed}");
                     } else {
                         let _ = writeln!(
                             self.out,
@@ -435,11 +438,7 @@ impl Text {
                 let _ = writeln!(self.out, "    numerically: {note}");
             }
         }
-        let _ = writeln!(
-            self.out,
-            "  {holding} of {} steps hold",
-            d.steps.len()
-        );
+        let _ = writeln!(self.out, "  {holding} of {} steps hold", d.steps.len());
     }
 
     /// `line N: evaluate` with one value per component.
@@ -627,7 +626,11 @@ impl Text {
                 Agreement::Unknown(why) => format!("not known: {why}"),
                 _ => "the two sides differ".to_string(),
             };
-            let _ = writeln!(self.out, "  first at {} = {:.6}: {why}", scan.param, first.x);
+            let _ = writeln!(
+                self.out,
+                "  first at {} = {:.6}: {why}",
+                scan.param, first.x
+            );
         }
         if !scan.written.is_empty() {
             let _ = writeln!(self.out, "  written: {}", scan.written.join(", "));
