@@ -9,7 +9,7 @@ use std::collections::BTreeMap;
 use num_rational::BigRational;
 use num_traits::{Signed, Zero};
 
-use super::{constant_value, count_indices, indices, Declared, Lowerer};
+use super::{constant_value, count_indices, indices, is_constant_term, Declared, Lowerer};
 use crate::context::{Killing, ParamDecl, Placement, DIMENSION};
 use crate::diagnostic::{Error, ErrorKind, Result};
 use crate::syntax::ast::{
@@ -115,6 +115,62 @@ impl Lowerer {
         }
     }
 
+    /// `parameters a[mu]`, `omega[mu,nu]`: a vector or a tensor, parallel to
+    /// the wall when its indices are declared `parallel`.
+    pub(super) fn declare_tensor_parameter(&mut self, name: &Name, indices: &[Name]) -> Result<()> {
+        if indices.len() > 2 {
+            return Err(self
+                .err(
+                    ErrorKind::Index,
+                    name.span,
+                    "a parameter has at most two indices",
+                )
+                .with_label("too many indices")
+                .with_note("declare a vector `a[mu]` or a tensor `omega[mu,nu]`"));
+        }
+        for (k, i) in indices.iter().enumerate() {
+            if i.is_var
+                || i.text == crate::context::NORMAL
+                || i.text.bytes().all(|b| b.is_ascii_digit())
+            {
+                return Err(self
+                    .err(
+                        ErrorKind::Index,
+                        i.span,
+                        "the indices of a declared parameter are names",
+                    )
+                    .with_label("not an index name")
+                    .with_note("write e.g. `parameters a[mu]`"));
+            }
+            if indices[..k].iter().any(|j| j.text == i.text) {
+                return Err(self
+                    .err(
+                        ErrorKind::Index,
+                        i.span,
+                        "the indices of a declared parameter are different names",
+                    )
+                    .with_label("written twice"));
+            }
+        }
+        let parallel_names = indices
+            .iter()
+            .filter(|i| self.ctx.parallel.contains(&i.text))
+            .count();
+        if parallel_names != 0 && parallel_names != indices.len() {
+            return Err(self
+                .err(
+                    ErrorKind::Index,
+                    name.span,
+                    "a parameter's indices are all parallel to the wall or none is",
+                )
+                .with_label("parallel and bulk indices mixed"));
+        }
+        if self.declared.contains_key(&name.text) || self.ctx.params.contains_key(&name.text) {
+            self.new_name(name, Declared::Vector)?;
+        }
+        self.declare_param(name, indices.len(), parallel_names != 0, false)
+    }
+
     /// Declares a parameter of the given rank, or checks an earlier
     /// declaration agrees.
     fn declare_param(
@@ -179,15 +235,27 @@ impl Lowerer {
                 .with_label("a projection"));
         }
         let mut values = Vec::with_capacity(coords.len());
+        let mut moving = Vec::new();
         for c in coords {
-            let Some(v) = constant_value(c) else {
+            if let Some(v) = constant_value(c) {
+                values.push(v);
+                moving.push(Term::Num(values.last().cloned().unwrap_or_default()));
+                continue;
+            }
+            // A coordinate that depends on parameters (`(0, 0, h)`): its
+            // value is worked out where the numeric statements run, so a
+            // `scan` may move the point.
+            let t = self.expr(c)?;
+            if !is_constant_term(&t) {
                 return Err(self
-                    .err(ErrorKind::Syntax, c.span, "a coordinate is a number")
-                    .with_label("not a number")
-                    .with_note("write numbers, e.g. `place x2 at (0, 1/2, 3)`"));
-            };
-            values.push(v);
+                    .err(ErrorKind::Syntax, c.span, "a coordinate is a number or an expression in parameters")
+                    .with_label("mentions points, indices or correlators")
+                    .with_note("write e.g. `place x2 at (0, 1/2, 3)` or, with `parameters h`, `place x2 at (0, 0, h)`"));
+            }
+            values.push(BigRational::zero());
+            moving.push(t);
         }
+        let is_moving = moving.iter().any(|t| !matches!(t, Term::Num(_)));
         if let Some(Term::Num(d)) = &self.ctx.dimension {
             if BigRational::from_integer(values.len().into()) != *d {
                 return Err(self
@@ -202,7 +270,20 @@ impl Lowerer {
                     .with_label("wrong number of coordinates"));
             }
         }
-        if self.ctx.has_halfspace() {
+        let normal_moves = is_moving && !matches!(moving.last(), Some(Term::Num(_)));
+        if normal_moves && self.ctx.is_boundary_point(&p) {
+            return Err(self
+                .err(
+                    ErrorKind::Placement,
+                    span,
+                    format!(
+                        "the normal coordinate of `{}` must be 0 (a boundary point)",
+                        p.name
+                    ),
+                )
+                .with_label("the last coordinate is the distance to the wall"));
+        }
+        if self.ctx.has_halfspace() && !(normal_moves && !self.ctx.is_boundary_point(&p)) {
             let y = values.last().cloned().unwrap_or_default();
             let on_wall = self.ctx.is_boundary_point(&p);
             if on_wall != y.is_zero() || y.is_negative() {
@@ -220,7 +301,7 @@ impl Lowerer {
                     .with_label("the last coordinate is the distance to the wall"));
             }
         }
-        if self.ctx.positions.contains_key(&*p.name) {
+        if self.ctx.positions.contains_key(&*p.name) || self.ctx.moving.contains_key(&*p.name) {
             return Err(self
                 .err(
                     ErrorKind::Name,
@@ -229,7 +310,11 @@ impl Lowerer {
                 )
                 .with_label("placed twice"));
         }
-        self.ctx.positions.insert(p.name.to_string(), values);
+        if is_moving {
+            self.ctx.moving.insert(p.name.to_string(), moving);
+        } else {
+            self.ctx.positions.insert(p.name.to_string(), values);
+        }
         Ok(())
     }
 
@@ -481,6 +566,16 @@ impl Lowerer {
                 Point::named(rank, name.text.clone()),
                 idx[0].clone(),
             ));
+        }
+        if crate::lower::unit_vector_component(&name.text).is_some() && !self.in_numeric.get() {
+            return Err(self
+                .err(
+                    ErrorKind::Index,
+                    span,
+                    "a numeric component (`x1[0]`) is for numeric statements, and this named expression holds one",
+                )
+                .with_label("used in a symbolic statement")
+                .with_note("`evaluate`, `compare`, `solve` and `scan` take components; here write the expression with a free index"));
         }
         if let Some(decl) = self.ctx.params.get(&name.text) {
             if idx.len() != decl.rank {
@@ -792,13 +887,18 @@ impl Lowerer {
     /// `let NAME = EXPR`: checks the expression once, and keeps it to be
     /// lowered again where the name is used.
     pub(super) fn declare_let(&mut self, name: &Name, expr: &Expr) -> Result<()> {
+        // Components (`x1[0]`) become contractions here; a statement that
+        // uses the name decides whether it may hold them.
+        let expr = &self.numeric_components(expr)?;
         self.index_free(
             expr,
             "a named expression",
             "a `let` names an expression without free indices; contract the index (e.g. `x1[mu] x1[mu]`) or write the tensor out where it is used",
         )?;
         *self.scope.defining.borrow_mut() = Some(name.text.clone());
+        let was = self.in_numeric.replace(true);
         let lowered = self.expr(expr);
+        self.in_numeric.set(was);
         *self.scope.defining.borrow_mut() = None;
         lowered?;
         self.new_name(name, Declared::Let)?;

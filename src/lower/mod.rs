@@ -7,10 +7,12 @@
 //! indices, an index used three times, rule syntax in a `.ward` file, and
 //! division by a literal zero.
 
+mod components;
 mod explicit;
 mod indices;
 mod numeric;
 
+pub use components::{unit_vector, unit_vector_component};
 pub use numeric::{ModelChoice, NumericSpec, ValueSpec};
 
 use std::collections::{BTreeMap, BTreeSet};
@@ -144,6 +146,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
         declared: BTreeMap::new(),
         lets: BTreeMap::new(),
         fresh: std::cell::Cell::new(0),
+        in_numeric: std::cell::Cell::new(false),
         depth: std::cell::Cell::new(0),
         nodes: std::cell::Cell::new(0),
         numeric: NumericSpec::default(),
@@ -156,6 +159,10 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
     let mut seen_expression = false;
     for stmt in &file.stmts {
         lowerer.nodes.set(0);
+        lowerer.in_numeric.set(matches!(
+            stmt,
+            Stmt::Evaluate { .. } | Stmt::Solve { .. } | Stmt::Scan { .. } | Stmt::Compare { .. }
+        ));
         match stmt {
             Stmt::Simplify { expr, expect, span } => {
                 let expect_expr = expect;
@@ -212,6 +219,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
             Stmt::Rules { path, span } => rule_files.push((path.clone(), *span)),
             Stmt::Evaluate { expr, span } => {
                 seen_expression = true;
+                let expr = &lowerer.numeric_components(expr)?;
                 let free = lowerer.free_indices(expr)?.into_iter().collect();
                 items.push(Item {
                     kind: ItemKind::Evaluate {
@@ -235,6 +243,10 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         .with_label("cannot be solved for")
                         .with_note("solve for a scalar parameter, e.g. `parameters a` and `coefficient <T O O> = a`"));
                 }
+                let (lhs, rhs) = (
+                    &lowerer.numeric_components(lhs)?,
+                    &lowerer.numeric_components(rhs)?,
+                );
                 let profile = lowerer.free_indices(lhs)?;
                 lowerer.same_free_indices(&profile, rhs, ("the left side", "the right side"))?;
                 items.push(Item {
@@ -341,6 +353,10 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                 if let Some((name, span)) = output {
                     check_output_name(&lowerer, name, *span)?;
                 }
+                let (lhs, rhs) = (
+                    &lowerer.numeric_components(lhs)?,
+                    &lowerer.numeric_components(rhs)?,
+                );
                 let profile = lowerer.free_indices(lhs)?;
                 lowerer.same_free_indices(&profile, rhs, ("the left side", "the right side"))?;
                 items.push(Item {
@@ -460,6 +476,10 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
             }
             Stmt::Compare { lhs, rhs, span } => {
                 seen_expression = true;
+                let (lhs, rhs) = (
+                    &lowerer.numeric_components(lhs)?,
+                    &lowerer.numeric_components(rhs)?,
+                );
                 let profile = lowerer.free_indices(lhs)?;
                 lowerer.same_free_indices(&profile, rhs, ("the left side", "the right side"))?;
                 items.push(Item {
@@ -551,6 +571,9 @@ struct Lowerer {
     lets: BTreeMap<String, Expr>,
     /// Counter for fresh summation indices inside Killing vectors.
     fresh: std::cell::Cell<u32>,
+    /// True while a numeric statement is lowered: components (`x1[0]`)
+    /// are allowed there only.
+    in_numeric: std::cell::Cell<bool>,
     /// How deeply the expression being lowered nests, named expressions
     /// substituted (see [`MAX_DEPTH`]).
     depth: std::cell::Cell<usize>,
@@ -693,9 +716,13 @@ impl Lowerer {
                 }
             }
             Stmt::Parameters(names) => {
-                for name in names {
-                    self.new_name(name, Declared::Parameter)?;
-                    self.ctx.parameters.insert(name.text.clone());
+                for (name, indices) in names {
+                    if indices.is_empty() {
+                        self.new_name(name, Declared::Parameter)?;
+                        self.ctx.parameters.insert(name.text.clone());
+                    } else {
+                        self.declare_tensor_parameter(name, indices)?;
+                    }
                 }
             }
             Stmt::Positive(names) => {
@@ -1279,6 +1306,16 @@ impl Lowerer {
     fn index(&self, n: &Name) -> Result<Index> {
         if n.is_var {
             return Err(self.rule_syntax(n.span));
+        }
+        if components::is_numeric(n) {
+            return Err(self
+                .err(
+                    ErrorKind::Index,
+                    n.span,
+                    format!("the component `{}` is for numeric statements", n.text),
+                )
+                .with_label("a number as an index")
+                .with_note("`evaluate`, `compare`, `solve` and `scan` take components (counted from 0, the normal one last); here write a free index, e.g. `mu`"));
         }
         if n.text == NORMAL {
             self.need_halfspace(n.span, "the normal index n")?;

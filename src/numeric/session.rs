@@ -561,6 +561,7 @@ impl<'a> Session<'a> {
             |_, &x| {
                 let mut values = base.clone();
                 values.scalars.insert(param.to_string(), x);
+                place_moving(self.ctx, &mut values)?;
                 let l = self.evaluate_with(lhs, free, &values)?;
                 let r = self.evaluate_with(rhs, free, &values)?;
                 Ok::<_, Error>((x, l, r))
@@ -1049,6 +1050,19 @@ fn values(ctx: &Context, spec: &NumericSpec) -> Result<Values> {
             ));
         }
     }
+    for name in ctx.params.keys() {
+        if let Some(k) = crate::lower::unit_vector_component(name) {
+            if k >= dim {
+                return Err(Error::new(
+                    ErrorKind::Numeric,
+                    format!("component {k} does not exist in dimension {dim}: components run from 0 to {}", dim - 1),
+                ));
+            }
+            let mut e = vec![0.0; dim];
+            e[k] = 1.0;
+            out.tensors.insert(name.clone(), e);
+        }
+    }
     out.scalars
         .insert(SPHERE_AREA.to_string(), sphere_area(dim));
     out.scalars.insert(DIMENSION.to_string(), dim as f64);
@@ -1061,7 +1075,54 @@ fn values(ctx: &Context, spec: &NumericSpec) -> Result<Values> {
                 .collect(),
         );
     }
+    place_moving(ctx, &mut out)?;
     Ok(out)
+}
+
+/// Works out the positions that depend on parameters (`place x at (0, 0,
+/// h)`) from the parameters' current values. A point whose parameters have
+/// no value yet (a `scan` gives them) stays unplaced.
+fn place_moving(ctx: &Context, values: &mut Values) -> Result<()> {
+    for (name, coords) in &ctx.moving {
+        fn known(t: &Term, values: &Values) -> bool {
+            match t {
+                Term::Sym(s) => values.scalars.contains_key(s),
+                Term::Add(ts) | Term::Mul(ts) => ts.iter().all(|t| known(t, values)),
+                Term::Pow(a, b) => known(a, values) && known(b, values),
+                _ => true,
+            }
+        }
+        let known = coords.iter().all(|c| known(c, values));
+        if !known {
+            values.points.remove(name);
+            continue;
+        }
+        let mut at = Vec::with_capacity(coords.len());
+        for c in coords {
+            at.push(compile(ctx, c, &[], values.dim)?.eval(values)?);
+        }
+        if at.len() != values.dim {
+            return Err(Error::new(
+                ErrorKind::Numeric,
+                format!(
+                    "`{name}` is placed with {} coordinates in dimension {}",
+                    at.len(),
+                    values.dim
+                ),
+            ));
+        }
+        if let Some(y) = at.last().filter(|_| ctx.has_halfspace()) {
+            if !(*y > 0.0) {
+                return Err(Error::new(
+                    ErrorKind::Placement,
+                    format!("`{name}` is at distance {y} from the wall: a bulk point must be above it"),
+                )
+                .with_note("its position depends on a parameter; keep the parameter where the normal coordinate is positive"));
+            }
+        }
+        values.points.insert(name.clone(), at);
+    }
+    Ok(())
 }
 
 /// `count` sets of values: declared positions kept, the other points at

@@ -274,7 +274,8 @@ pub enum Stmt {
         boundary: bool,
         names: Vec<Name>,
     },
-    Parameters(Vec<Name>),
+    /// Names with the indices written after them (none for a scalar).
+    Parameters(Vec<(Name, Vec<Name>)>),
     /// `positive r g`: parameters known to be positive (declared here if
     /// they are not yet).
     Positive(Vec<Name>),

@@ -713,7 +713,19 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                 names: inner.map(parse_name).collect(),
             }
         }
-        Rule::parameters_decl => Stmt::Parameters(inner.map(parse_name).collect()),
+        Rule::parameters_decl => Stmt::Parameters(
+            inner
+                .map(|item| {
+                    let mut parts = item.into_inner();
+                    let name = parse_name(parts.next().expect("parameter name"));
+                    let indices = parts
+                        .next()
+                        .map(|ix| ix.into_inner().map(parse_name).collect())
+                        .unwrap_or_default();
+                    (name, indices)
+                })
+                .collect(),
+        ),
         Rule::positive_decl => Stmt::Positive(inner.map(parse_name).collect()),
         Rule::parallel_decl => Stmt::Parallel(inner.map(parse_name).collect()),
         Rule::rules_decl => {
