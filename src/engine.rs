@@ -16,11 +16,6 @@ use crate::normal::{normal_form_with, Caveats, Memo, Singular};
 use crate::rules::RuleBook;
 use crate::term::Term;
 
-/// Rounds of (e-graph, extract, normalise) before giving up on a fixpoint;
-/// a simplification still changing after them stops with
-/// [`Stop::RoundLimit`], so that its claim is unknown, not refuted.
-pub const MAX_ROUNDS: usize = 8;
-
 /// The rules and limits for simplifying the expressions of one file.
 pub struct Engine {
     pub ctx: Arc<Context>,
@@ -114,7 +109,9 @@ impl Engine {
             caveats: first.caveats,
         };
         let mut finished = false;
-        for _ in 0..MAX_ROUNDS {
+        // A simplification still changing after `limits.rounds` rounds stops
+        // with `Stop::RoundLimit`: its claim is unknown, not refuted.
+        for _ in 0..self.limits.rounds {
             let mut eg = if self.limits.explanations {
                 EGraph::new(Fold::default()).with_explanations_enabled()
             } else {
@@ -166,7 +163,7 @@ impl Engine {
         }
         if !finished {
             // Still changing: the remainder is not final.
-            out.stop = Stop::RoundLimit(MAX_ROUNDS);
+            out.stop = Stop::RoundLimit(self.limits.rounds);
         }
         out.term = current;
         Ok(out)

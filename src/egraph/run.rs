@@ -26,6 +26,10 @@ pub struct Limits {
     pub time: Duration,
     /// Record explanations (named rules) for proofs.
     pub explanations: bool,
+    /// Rounds of the engine's outer loop (e-graph, extraction,
+    /// normalisation) before a simplification still changing stops with
+    /// [`Stop::RoundLimit`].
+    pub rounds: usize,
 }
 
 impl Default for Limits {
@@ -36,6 +40,7 @@ impl Default for Limits {
             matches: crate::budget::MAX_MATCH_STEPS,
             time: Duration::from_secs(60),
             explanations: false,
+            rounds: 8,
         }
     }
 }
@@ -52,7 +57,7 @@ pub enum Stop {
     MatchLimit(usize),
     TimeLimit,
     /// The engine's outer loop (e-graph, extraction, normalisation) ran
-    /// its rounds without reaching a fixpoint (`engine::MAX_ROUNDS`).
+    /// its rounds without reaching a fixpoint (`Limits::rounds`, 8).
     RoundLimit(usize),
     Other(String),
 }
