@@ -259,8 +259,11 @@ impl<'a> Checker<'a> {
             ) => {
                 let jobs = self.settings.jobs;
                 let line = item.line;
-                let s = self.session()?;
                 let input = text.strip_prefix("scan ").unwrap_or(&text).to_string();
+                // The figure's words: the parameter named by its role.
+                let title = format!("scan {}", input.split(" into ").next().unwrap_or(&input));
+                let labels = crate::plot::Labels::scan(&self.program.ctx, param, &title);
+                let s = self.session()?;
                 let mut tick = |done: usize, total: usize| {
                     progress(Progress {
                         line,
@@ -271,7 +274,7 @@ impl<'a> Checker<'a> {
                 };
                 let finding =
                     match s.scan(param, *from, *to, *steps, lhs, rhs, free, jobs, &mut tick) {
-                        Ok(scan) => Finding::Scan(Scanned::of(scan, output.clone())),
+                        Ok(scan) => Finding::Scan(Scanned::of(scan, output.clone(), labels)),
                         Err(e) if e.kind == ErrorKind::Numeric => failure("scan", &e),
                         Err(e) => return Err(e),
                     };

@@ -116,7 +116,7 @@ pub const STATEMENTS: &[Entry] = &[
     Entry {
         keyword: "model",
         example: "model conformal",
-        meaning: "correlators for numeric work: `conformal`, `gff`, `free-scalar dirichlet`",
+        meaning: "correlators for numeric work: `conformal`, `gff`, `free-scalar dirichlet`, `free-scalar reflection r`",
     },
     Entry {
         keyword: "coefficient",
@@ -176,6 +176,7 @@ Expressions:
   x1[0], T[0,2](x), ∂[2](x1)   components, counted from 0, the normal one last (numeric statements only)
   |x1 - x2|^(-2 Delta)    distances and lengths |x1|, to any power
   xi(x1, x2)              the cross-ratio (x1 - x2)²/(4 y1 y2)
+  C_D(s1, s2), b2(s1, s2) the displacement's two-point coefficient; b1, b2 in d = 4
   eps[nu](x)              a declared Killing vector's components
   ∫[x in space] { … }     integrals over space, halfspace, boundary, ball(x1, r) (ASCII int)
   ∮[x on ball(x1, r)] { N[mu] … }   a flux through a sphere, outward normal N (ASCII oint)

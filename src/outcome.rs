@@ -729,6 +729,9 @@ pub struct Scanned {
     /// The table itself, for the files.
     #[serde(skip)]
     pub table: crate::numeric::session::Scan,
+    /// The words on the figure of the files.
+    #[serde(skip)]
+    pub figure: crate::plot::Labels,
 }
 
 /// One row of a scan: both sides per component, their error estimates,
@@ -751,7 +754,11 @@ pub struct ScanFirst {
 }
 
 impl Scanned {
-    pub fn of(scan: crate::numeric::session::Scan, output: Option<String>) -> Scanned {
+    pub fn of(
+        scan: crate::numeric::session::Scan,
+        output: Option<String>,
+        figure: crate::plot::Labels,
+    ) -> Scanned {
         let verdict = scan
             .judged
             .iter()
@@ -798,6 +805,7 @@ impl Scanned {
             written: Vec::new(),
             output,
             table: scan,
+            figure,
         }
     }
 }

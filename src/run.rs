@@ -184,16 +184,8 @@ fn write_outputs(checked: &mut FileOutcome, source: &Arc<Source>, base: &Path) -
                 let Some(stem) = scan.output.clone() else {
                     continue;
                 };
-                let title: String = {
-                    let body = s.input.split(" into ").next().unwrap_or(&s.input);
-                    let cut: String = body.chars().take(90).collect();
-                    if cut.len() < body.len() {
-                        format!("{cut}…")
-                    } else {
-                        cut
-                    }
-                };
-                let written = write_scan(&scan.table, base, &stem, &title).map_err(at)?;
+                // The figure fits the title to its width.
+                let written = write_scan(&scan.table, base, &stem, &scan.figure).map_err(at)?;
                 scan.written = written;
             }
             Finding::Decompose(d) => {
@@ -201,8 +193,9 @@ fn write_outputs(checked: &mut FileOutcome, source: &Arc<Source>, base: &Path) -
                     continue;
                 };
                 let table = decomposition_table(&d.fit);
-                let title = format!("{}: G(ξ) and its expansion", s.input);
-                d.written = write_scan(&table, base, &stem, &title).map_err(at)?;
+                let body = s.input.split(" into ").next().unwrap_or(&s.input);
+                let labels = crate::plot::Labels::decompose(&format!("decompose {body}"));
+                d.written = write_scan(&table, base, &stem, &labels).map_err(at)?;
             }
             _ => {}
         }
@@ -247,16 +240,14 @@ fn write_scan(
     scan: &crate::numeric::session::Scan,
     base: &Path,
     stem: &str,
-    title: &str,
+    labels: &crate::plot::Labels,
 ) -> Result<Vec<String>> {
     let refuse = |why: String| Error::new(ErrorKind::Io, format!("cannot write the scan: {why}"));
     let csv = crate::files::output_path(base, stem, "csv").map_err(refuse)?;
     let svg = crate::files::output_path(base, stem, "svg").map_err(refuse)?;
-    crate::files::replace_together(&[
-        (csv.clone(), crate::plot::csv(scan)),
-        (svg.clone(), crate::plot::svg(scan, title)),
-    ])
-    .map_err(|e| {
+    let plot = crate::plot::svg(scan, labels).map_err(refuse)?;
+    crate::files::replace_together(&[(csv.clone(), crate::plot::csv(scan)), (svg.clone(), plot)])
+        .map_err(|e| {
         Error::new(
             ErrorKind::Io,
             format!(

@@ -31,7 +31,7 @@ pub const OUTWARD_NORMAL: &str = "N";
 #[derive(Debug, Default)]
 pub(super) struct Scope {
     /// Each name defined by `let`, with the span of its first definition.
-    lets: BTreeMap<String, Span>,
+    pub(super) lets: BTreeMap<String, Span>,
     /// The name of the `let` whose expression is being lowered.
     defining: RefCell<Option<String>>,
     /// The number of enclosing surface integrals.
@@ -283,7 +283,7 @@ impl Lowerer {
                 )
                 .with_label("the last coordinate is the distance to the wall"));
         }
-        if self.ctx.has_halfspace() && !(normal_moves && !self.ctx.is_boundary_point(&p)) {
+        if self.ctx.has_halfspace() && (!normal_moves || self.ctx.is_boundary_point(&p)) {
             let y = values.last().cloned().unwrap_or_default();
             let on_wall = self.ctx.is_boundary_point(&p);
             if on_wall != y.is_zero() || y.is_negative() {
@@ -630,6 +630,9 @@ impl Lowerer {
         if name.text == CROSS_RATIO && self.ctx.operator(&name.text).is_none() {
             return self.cross_ratio(name, primes, args, span);
         }
+        if self.is_displacement_quantity(&name.text) {
+            return self.displacement_quantity(name, primes, args, span);
+        }
         // `g(a + b)` is a product, not a call, when g is a number.
         let is_number = name.text == DIMENSION
             || matches!(
@@ -794,6 +797,7 @@ impl Lowerer {
             && op.indices.is_empty()
             && self.ctx.operator(name).is_none()
             && (name == CROSS_RATIO
+                || self.is_displacement_quantity(name)
                 || name == DIMENSION
                 || self.ctx.functions.contains(name)
                 || self.scope.lets.contains_key(name)

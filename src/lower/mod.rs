@@ -7,13 +7,14 @@
 //! indices, an index used three times, rule syntax in a `.ward` file, and
 //! division by a literal zero.
 
+mod anomaly;
 mod components;
 mod explicit;
 mod indices;
 mod numeric;
 
 pub use components::{unit_vector, unit_vector_component};
-pub use numeric::{ModelChoice, NumericSpec, ValueSpec};
+pub use numeric::{Family, ModelChoice, NumericSpec, ValueSpec};
 
 use std::collections::{BTreeMap, BTreeSet};
 use std::sync::Arc;

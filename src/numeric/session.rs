@@ -21,14 +21,14 @@ use super::agreement::{
 };
 use super::eval::compile;
 use super::models::conformal::{Conformal, Convention};
-use super::models::free_scalar::{Composite, FreeScalar, Mapping, Wall};
+use super::models::free_scalar::{Composite, FreeScalar, Mapping, Reflection, Wall};
 use super::models::{apply, pointwise_pairs, sphere_area, Model, SPHERE_AREA};
 use super::quadrature::{integrate, Surface, Tolerance, MAX_DIM, MIN_DIM};
 use super::Values;
 use crate::context::{Context, IndexKind, DIMENSION, STRESS_TENSOR};
 use crate::diagnostic::{Error, ErrorKind, Result};
 use crate::engine::{Engine, Solved, Verdict};
-use crate::lower::{ModelChoice, NumericSpec};
+use crate::lower::{Family, ModelChoice, NumericSpec};
 use crate::normal::{normalize_pointwise as normalize, Coincidence, Singular};
 use crate::term::{Index, Integral, Point, Region, Term};
 
@@ -994,6 +994,7 @@ pub fn build_model(
             dirichlet,
             unimproved,
             fields,
+            family,
         } => {
             let mut mapping = Mapping::new();
             for (name, composite) in fields {
@@ -1002,12 +1003,27 @@ pub fn build_model(
                     "phi2" => Composite::FieldSquared,
                     "boundary-phi" => Composite::BoundaryField,
                     "boundary-dphi" => Composite::BoundaryNormalDerivative,
+                    "boundary-tn" => Composite::WallStress,
+                    "chi" => Composite::Chi,
                     _ => Composite::BoundaryFieldSquared,
                 };
                 mapping = mapping.with(name, c);
             }
             let wall = dirichlet.map(|d| if d { Wall::Dirichlet } else { Wall::Neumann });
-            let mut model = FreeScalar::new(wall, mapping);
+            let mut model = match family {
+                None => FreeScalar::new(wall, mapping),
+                Some(Family::Reflection(rho)) => {
+                    FreeScalar::reflecting(Reflection::constant(rho.clone()), mapping)
+                }
+                Some(Family::Coupling { dirichlet, g }) => {
+                    let side = if *dirichlet {
+                        Wall::Dirichlet
+                    } else {
+                        Wall::Neumann
+                    };
+                    FreeScalar::reflecting(Reflection::coupled(side, g.clone(), ctx), mapping)
+                }
+            };
             if *unimproved {
                 model = model.unimproved();
             }
@@ -1112,7 +1128,7 @@ fn place_moving(ctx: &Context, values: &mut Values) -> Result<()> {
             ));
         }
         if let Some(y) = at.last().filter(|_| ctx.has_halfspace()) {
-            if !(*y > 0.0) {
+            if y.is_nan() || *y <= 0.0 {
                 return Err(Error::new(
                     ErrorKind::Placement,
                     format!("`{name}` is at distance {y} from the wall: a bulk point must be above it"),

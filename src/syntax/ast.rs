@@ -218,6 +218,10 @@ pub enum ModelSpec {
         wall: Option<String>,
         unimproved: bool,
         fields: Vec<(Name, String)>,
+        /// `reflection r`: the reflection coefficient.
+        reflection: Option<Box<Expr>>,
+        /// `neumann coupling g` / `dirichlet coupling g`: the coupling to χ.
+        coupling: Option<Box<Expr>>,
     },
     /// Generalised free fields, with a wall (`dirichlet`/`neumann` image
     /// sign) or without.

@@ -809,10 +809,22 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                 let mut wall = None;
                 let mut unimproved = false;
                 let mut fields = Vec::new();
+                let mut reflection = None;
+                let mut coupling = None;
                 for part in model.into_inner() {
                     match part.as_rule() {
                         Rule::wall_kind => wall = Some(part.as_str().to_string()),
                         Rule::unimproved => unimproved = true,
+                        Rule::reflection | Rule::coupling => {
+                            let which = part.as_rule();
+                            let value = next(&mut part.into_inner());
+                            let expr = climb(source, &mut value.into_inner().peekable(), 0, 0)?;
+                            if which == Rule::reflection {
+                                reflection = Some(Box::new(expr));
+                            } else {
+                                coupling = Some(Box::new(expr));
+                            }
+                        }
                         _ => {
                             let mut kv = part.into_inner();
                             let name = parse_name(next(&mut kv));
@@ -824,6 +836,8 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                     wall,
                     unimproved,
                     fields,
+                    reflection,
+                    coupling,
                 }
             };
             Stmt::Model { spec, span }
