@@ -16,9 +16,6 @@ use crate::normal::{normal_form_with, Caveats, Memo, Singular};
 use crate::rules::RuleBook;
 use crate::term::Term;
 
-/// Rounds of (e-graph, extract, normalise) before giving up on a fixpoint.
-const MAX_ROUNDS: usize = 8;
-
 /// The rules and limits for simplifying the expressions of one file.
 pub struct Engine {
     pub ctx: Arc<Context>,
@@ -111,7 +108,10 @@ impl Engine {
             applied: BTreeMap::new(),
             caveats: first.caveats,
         };
-        for _ in 0..MAX_ROUNDS {
+        let mut finished = false;
+        // A simplification still changing after `limits.rounds` rounds stops
+        // with `Stop::RoundLimit`: its claim is unknown, not refuted.
+        for _ in 0..self.limits.rounds {
             let mut eg = if self.limits.explanations {
                 EGraph::new(Fold::default()).with_explanations_enabled()
             } else {
@@ -157,8 +157,13 @@ impl Engine {
             let done = next == current || !out.stop.is_saturated();
             current = next;
             if done {
+                finished = true;
                 break;
             }
+        }
+        if !finished {
+            // Still changing: the remainder is not final.
+            out.stop = Stop::RoundLimit(self.limits.rounds);
         }
         out.term = current;
         Ok(out)

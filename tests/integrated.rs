@@ -4,12 +4,14 @@
 //! Every file under `tests/cases/integrated/` must check clean (each claim
 //! and `expect` there is a published identity typed out by hand, with its
 //! source in the file), and its simplified output is snapshot-tested. The
-//! tests below make sure the same checks fail when the physics is wrong, so
-//! the clean runs are not vacuous.
+//! same checks with the physics wrong are case files under
+//! `tests/cases/failing/` (tests/failing.rs), so the clean runs are not
+//! vacuous.
 
 use std::path::{Path, PathBuf};
 
 use wardsmith::diagnostic::Source;
+use wardsmith::outcome::Finding;
 use wardsmith::run::{run_path, run_source, Mode, Options};
 
 fn relative(path: &Path) -> PathBuf {
@@ -31,116 +33,6 @@ fn integrated_cases_check_clean() {
     });
 }
 
-/// Runs `text` after the declarations in `header`, in check mode.
-fn check(header: &str, body: &str) -> (String, i32) {
-    let source = Source::new("test.ward", format!("{header}\n{body}\n"));
-    let out = run_source(&source, Path::new("."), Mode::Check, &Options::default())
-        .unwrap_or_else(|e| panic!("{}", e.render()));
-    (out.report, out.code)
-}
-
-const THREE_POINT: &str = "dimension 4
-parameters Delta1 Delta2 Delta3
-points x1 x2 x3
-killing sct special b";
-
-/// The special conformal operator on a candidate three-point function.
-fn special_on(g: &str) -> String {
-    format!(
-        "let G = {g}
-claim sct[mu](x1) ∂[mu](x1) {{ G }} + Delta1/4 ∂[k](x1) {{ sct[k](x1) }} G
-    + sct[mu](x2) ∂[mu](x2) {{ G }} + Delta2/4 ∂[k](x2) {{ sct[k](x2) }} G
-    + sct[mu](x3) ∂[mu](x3) {{ G }} + Delta3/4 ∂[k](x3) {{ sct[k](x3) }} G
-    = 0"
-    )
-}
-
-#[test]
-fn special_conformal_identity_fails_for_a_wrong_exponent() {
-    // Osborn & Petkou 1994, hep-th/9307010: the exponents are fixed; one
-    // changed by 1 leaves a non-zero remainder.
-    let right = "|x1 - x2|^(Delta3 - Delta1 - Delta2) |x1 - x3|^(Delta2 - Delta1 - Delta3) |x2 - x3|^(Delta1 - Delta2 - Delta3)";
-    let wrong = "|x1 - x2|^(Delta3 - Delta1 - Delta2) |x1 - x3|^(Delta2 - Delta1 - Delta3 + 1) |x2 - x3|^(Delta1 - Delta2 - Delta3)";
-    let (report, code) = check(THREE_POINT, &special_on(right));
-    assert_eq!(code, 0, "{report}");
-    let (report, code) = check(THREE_POINT, &special_on(wrong));
-    assert_eq!(code, 1, "{report}");
-    assert!(report.contains("NOT PROVED"), "{report}");
-    assert!(
-        report.contains("left side minus right side simplifies to:"),
-        "{report}"
-    );
-    // The remainder is shown, and it is not zero.
-    let remainder = report
-        .split("simplifies to:")
-        .nth(1)
-        .and_then(|r| r.split("stop reason").next())
-        .unwrap_or("");
-    assert!(
-        remainder.contains("b[") && remainder.trim() != "0",
-        "{report}"
-    );
-}
-
-const WALL: &str = "dimension d
-halfspace y >= 0
-parameters Delta1 Delta2
-points x1 x2
-function F
-killing ntr translation n
-killing mix rotation n f
-killing nsct special n
-let G = F(xi(x1, x2)) (2 x1[n])^(-Delta1) (2 x2[n])^(-Delta2)";
-
-#[test]
-fn broken_generators_do_not_annihilate_the_wall_two_point_function() {
-    for (name, extra) in [
-        ("ntr", ""),
-        ("mix", ""),
-        (
-            "nsct",
-            " + Delta1/d ∂[k](x1) { nsct[k](x1) } G + Delta2/d ∂[k](x2) { nsct[k](x2) } G",
-        ),
-    ] {
-        let claim = format!(
-            "claim {name}[mu](x1) ∂[mu](x1) {{ G }} + {name}[mu](x2) ∂[mu](x2) {{ G }}{extra} = 0"
-        );
-        let (report, code) = check(WALL, &claim);
-        assert_eq!(code, 1, "{name} should be broken:\n{report}");
-        assert!(
-            report.contains("F'("),
-            "{name}: the remainder involves F':\n{report}"
-        );
-    }
-}
-
-#[test]
-fn a_wrong_coefficient_in_a_global_identity_is_caught() {
-    // W4 with B = R^d (docs/conventions.md §2): the dilatation term is Δ λ, not Δ λ/2.
-    let header = "dimension d\nscalar A dim Delta1\npoints x x1\nkilling dil dilatation lambda";
-    let body = "simplify ∫[x in space] { ∂[mu](x) { dil[nu](x) <T[mu,nu](x) A(x1)> } }
-  expect - lambda x1[mu] ∂[mu](x1) <A(x1)> - Delta1/2 lambda <A(x1)>";
-    let (report, code) = check(header, body);
-    assert_eq!(code, 1, "{report}");
-    assert!(report.contains("- 1/2 Delta1 lambda ⟨A(x1)⟩"), "{report}");
-}
-
-#[test]
-fn the_displacement_term_is_needed_for_the_normal_translation() {
-    // docs/conventions.md §7 (derived): ∫ <D(s) X> = Σ_i ∂<X>/∂y_i; without the
-    // boundary integral the identity does not hold.
-    let header =
-        "dimension d\nhalfspace y >= 0\nscalar O dim Delta\npoints x x1\nkilling ntr translation n";
-    let body = "simplify ∫[x in halfspace] { ∂[mu](x) { ntr[nu](x) <T[mu,nu](x) O(x1)> } }
-  expect - ∂[n](x1) <O(x1)>";
-    let (report, code) = check(header, body);
-    assert_eq!(code, 1, "{report}");
-    assert!(
-        report.contains("∫[x∥ in boundary] { ⟨D(x∥) O(x1)⟩ }"),
-        "{report}"
-    );
-}
-
 #[test]
 fn generators_are_classified_preserved_or_broken() {
     // Common practice (docs/conventions.md §7): ε_n = 0 on y = 0 is preserved.
@@ -152,10 +44,14 @@ fn generators_are_classified_preserved_or_broken() {
     let source = Source::new("classify.ward", text);
     let out =
         run_source(&source, Path::new("."), Mode::Simplify, &Options::default()).expect("runs");
-    let verdicts: Vec<bool> = out
-        .report
-        .lines()
-        .map(|l| l.contains("is preserved"))
+    let checked = out.checked.expect("an outcome");
+    let verdicts: Vec<bool> = checked
+        .statements
+        .iter()
+        .map(|s| match &s.finding {
+            Finding::Classify(c) => c.preserved,
+            other => panic!("not a classification: {other:?}"),
+        })
         .collect();
     assert_eq!(
         verdicts,

@@ -75,7 +75,7 @@ pub struct Solution {
 }
 
 /// A scan: for each value of the parameter, every component of both sides.
-#[derive(Clone, Debug, PartialEq)]
+#[derive(Clone, Debug, Default, PartialEq)]
 pub struct Scan {
     pub param: String,
     /// One label per component (`nu=0`, or empty for a scalar).
@@ -85,6 +85,10 @@ pub struct Scan {
     /// Per row, per component: the relative difference of the two sides
     /// and the agreement rule's verdict.
     pub judged: Vec<Vec<(f64, Agreement)>>,
+    /// Per row: the error estimate of each component of the left and the
+    /// right side (quadrature error plus rounding bound; empty when not
+    /// kept).
+    pub errors: Vec<(Vec<f64>, Vec<f64>)>,
 }
 
 /// A local identity checked insertion by insertion.
@@ -566,6 +570,7 @@ impl<'a> Session<'a> {
         );
         let mut rows = Vec::with_capacity(steps);
         let mut judged = Vec::with_capacity(steps);
+        let mut errors = Vec::with_capacity(steps);
         let mut labels = Vec::new();
         for result in results {
             let (x, l, r) = result?;
@@ -586,6 +591,13 @@ impl<'a> Session<'a> {
                 l.components.iter().map(|(_, v)| v.value).collect(),
                 r.components.iter().map(|(_, v)| v.value).collect(),
             ));
+            let uncertain = |e: &Evaluation| -> Vec<f64> {
+                e.components
+                    .iter()
+                    .map(|(_, v)| v.error + v.rounding)
+                    .collect()
+            };
+            errors.push((uncertain(&l), uncertain(&r)));
             judged.push(
                 l.components
                     .iter()
@@ -599,6 +611,7 @@ impl<'a> Session<'a> {
             labels,
             rows,
             judged,
+            errors,
         })
     }
 

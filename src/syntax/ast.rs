@@ -6,7 +6,8 @@
 use num_rational::BigRational;
 
 /// The channel of a block expansion next to a wall.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
 pub enum Channel {
     /// Bulk operators exchanged (x1 → x2): the identity and bulk blocks.
     Bulk,

@@ -366,7 +366,7 @@ const GREEK: &[&str] = &[
 ];
 
 /// `Delta1` → `\Delta_{1}`, `x2` → `x_{2}`, `omega` → `\omega`.
-fn name(n: &str) -> String {
+pub(crate) fn name(n: &str) -> String {
     let stem = n.trim_end_matches(|c: char| c.is_ascii_digit());
     let digits = &n[stem.len()..];
     let base = if GREEK.contains(&stem) {
