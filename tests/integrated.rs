@@ -14,6 +14,14 @@ use wardsmith::diagnostic::Source;
 use wardsmith::outcome::Finding;
 use wardsmith::run::{run_path, run_source, Mode, Options};
 
+/// Checks a file given as text; the report and the exit code.
+fn check(header: &str, body: &str) -> (String, i32) {
+    let source = Source::new("test.ward", format!("{header}\n{body}\n"));
+    let out = run_source(&source, Path::new("."), Mode::Check, &Options::default())
+        .unwrap_or_else(|e| panic!("{}", e.render()));
+    (out.report, out.code)
+}
+
 fn relative(path: &Path) -> PathBuf {
     let root = Path::new(env!("CARGO_MANIFEST_DIR"));
     path.strip_prefix(root).unwrap_or(path).to_path_buf()
