@@ -21,6 +21,9 @@ use crate::diagnostic::{ErrorKind, Result};
 use crate::syntax::ast::{BinOp, Expr, ExprKind, Insertion, Name, RegionKind, Span};
 use crate::term::Term;
 
+/// The prefix of the summed indices components become.
+const GENERATED: &str = "ι";
+
 /// The name of the unit vector e_k (not an identifier: a file cannot name it).
 pub fn unit_vector(k: usize) -> String {
     format!("e#{k}")
@@ -270,10 +273,103 @@ impl Lowerer {
         Ok(k)
     }
 
+    /// A copy of a named expression's body for one use, with the summed
+    /// indices that components were turned into renamed afresh, so that a
+    /// name used twice in one product (`A A`) sums each copy apart.
+    pub(super) fn fresh_components(&self, e: &Expr) -> Expr {
+        let mut map = std::collections::BTreeMap::new();
+        self.rename_generated(e, &mut map)
+    }
+
+    fn rename_generated(
+        &self,
+        e: &Expr,
+        map: &mut std::collections::BTreeMap<String, String>,
+    ) -> Expr {
+        let mut rename = |n: &Name| -> Name {
+            if !n.text.starts_with(GENERATED) {
+                return n.clone();
+            }
+            let text = map
+                .entry(n.text.clone())
+                .or_insert_with(|| self.fresh_component_index())
+                .clone();
+            Name { text, ..n.clone() }
+        };
+        let kind = match &e.kind {
+            ExprKind::Component { name, par, indices } => ExprKind::Component {
+                name: name.clone(),
+                par: *par,
+                indices: indices.iter().map(&mut rename).collect(),
+            },
+            ExprKind::Corr(items) => ExprKind::Corr(
+                items
+                    .iter()
+                    .map(|i| match i {
+                        Insertion::Op(op) => {
+                            let mut op = op.clone();
+                            op.indices = op.indices.iter().map(&mut rename).collect();
+                            Insertion::Op(op)
+                        }
+                        other => other.clone(),
+                    })
+                    .collect(),
+            ),
+            ExprKind::Deriv { index, point, body } => {
+                let index = rename(index);
+                ExprKind::Deriv {
+                    index,
+                    point: point.clone(),
+                    body: Box::new(self.rename_generated(body, map)),
+                }
+            }
+            ExprKind::Normal(i) => ExprKind::Normal(rename(i)),
+            ExprKind::Neg(a) => ExprKind::Neg(Box::new(self.rename_generated(a, map))),
+            ExprKind::Chain { first, rest } => ExprKind::Chain {
+                first: Box::new(self.rename_generated(first, map)),
+                rest: rest
+                    .iter()
+                    .map(|(op, x)| (*op, self.rename_generated(x, map)))
+                    .collect(),
+            },
+            ExprKind::Binary { op, lhs, rhs } => ExprKind::Binary {
+                op: *op,
+                lhs: Box::new(self.rename_generated(lhs, map)),
+                rhs: Box::new(self.rename_generated(rhs, map)),
+            },
+            ExprKind::Call {
+                name,
+                primes,
+                orders,
+                args,
+                separators,
+            } => ExprKind::Call {
+                name: name.clone(),
+                primes: *primes,
+                orders: orders.clone(),
+                separators: separators.clone(),
+                args: args.iter().map(|a| self.rename_generated(a, map)).collect(),
+            },
+            ExprKind::Integral {
+                var,
+                region,
+                surface,
+                body,
+            } => ExprKind::Integral {
+                var: var.clone(),
+                region: region.clone(),
+                surface: *surface,
+                body: Box::new(self.rename_generated(body, map)),
+            },
+            other => other.clone(),
+        };
+        Expr { kind, span: e.span }
+    }
+
     fn fresh_component_index(&self) -> String {
         let n = self.fresh.get() + 1;
         self.fresh.set(n);
-        format!("ι{n}")
+        format!("{GENERATED}{n}")
     }
 }
 

@@ -461,7 +461,7 @@ impl Lowerer {
             args.push(self.expr(a)?);
         }
         let vars: Vec<String> = params.iter().map(|p| self.fresh_symbol(&p.text)).collect();
-        let lowered = self.with_bound(params, &vars, || self.expr(body));
+        let lowered = self.with_bound(params, &vars, || self.expr(&self.fresh_components(body)));
         let mut t = lowered.map_err(|e| {
             if e.kind == ErrorKind::Limit {
                 e.with_span(&self.source, c.name.span)

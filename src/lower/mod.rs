@@ -1297,14 +1297,16 @@ impl Lowerer {
                 Some((params, _)) if !params.is_empty() => Err(self.function_without_argument(n)),
                 // A limit met inside the definition is reported where the
                 // outermost named expression is used.
-                Some((_, e)) => self.descend(n.span, || self.expr(e)).map_err(|mut err| {
-                    if err.kind == ErrorKind::Limit {
-                        err = err
-                            .with_span(&self.source, n.span)
-                            .with_label(format!("`{}` is substituted here", n.text));
-                    }
-                    err
-                }),
+                Some((_, e)) => self
+                    .descend(n.span, || self.expr(&self.fresh_components(e)))
+                    .map_err(|mut err| {
+                        if err.kind == ErrorKind::Limit {
+                            err = err
+                                .with_span(&self.source, n.span)
+                                .with_label(format!("`{}` is substituted here", n.text));
+                        }
+                        err
+                    }),
                 None => Err(self.err(
                     ErrorKind::Name,
                     n.span,

@@ -444,7 +444,7 @@ impl<'a> Session<'a> {
                     ErrorKind::Placement,
                     format!("`{}` has no position", decl.name),
                 )
-                .with_note(format!("give one: `place {} at (…)`", decl.name)));
+                .with_note(placement_note(self.ctx, &decl.name)));
             }
             let ball = Region::Ball(p.clone(), radius.clone());
             let surface = Term::Integral(Box::new(Integral {
@@ -912,7 +912,7 @@ impl<'a> Session<'a> {
                 ErrorKind::Placement,
                 format!("`{}` has no position", p.name),
             )
-            .with_note(format!("give one: `place {} at (…)`", p.name))
+            .with_note(placement_note(self.ctx, &p.name))
         })
     }
 }
@@ -1093,6 +1093,15 @@ fn values(ctx: &Context, spec: &NumericSpec) -> Result<Values> {
     }
     place_moving(ctx, &mut out)?;
     Ok(out)
+}
+
+/// What to do about a point without a position.
+fn placement_note(ctx: &Context, name: &str) -> String {
+    if ctx.moving.contains_key(name) {
+        format!("`{name}` is placed with parameters that have no value here: give them one with `values`, or scan over them")
+    } else {
+        format!("give one: `place {name} at (…)`")
+    }
 }
 
 /// Works out the positions that depend on parameters (`place x at (0, 0,

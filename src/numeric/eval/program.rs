@@ -301,7 +301,12 @@ impl Program {
                 ErrorKind::Numeric,
                 format!("no value for the {what} {name}"),
             )
-            .with_note(format!("give it in `Values::{field}`"))
+            .with_note(match field {
+                "points" => format!(
+                    "give it with `place {name} at (…)`; a position written with parameters needs their `values` (or a `scan` over them)"
+                ),
+                _ => format!("give it with `values {name} = …`"),
+            })
         };
         for input in &self.inputs {
             match input {
