@@ -211,7 +211,7 @@ impl Engine {
 }
 
 /// Seed of the sampled parameters that show a coefficient is not zero.
-const NONZERO_SEED: u64 = 0x5eed_2f1;
+const NONZERO_SEED: u64 = 0x05ee_d2f1;
 
 /// The value of a parameter that makes two sides equal, when they depend
 /// on it linearly and it comes out as a constant.

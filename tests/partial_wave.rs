@@ -73,7 +73,7 @@ fn figures(report: &str) -> (f64, f64) {
     let number = |after: &str| -> f64 {
         let rest = line.split(after).nth(1).unwrap_or_else(|| panic!("{line}"));
         rest.trim_start()
-            .split(|c: char| c == ' ' || c == ',' || c == '(')
+            .split([' ', ',', '('])
             .next()
             .unwrap()
             .parse()
