@@ -12,6 +12,10 @@
 //!   closed form is printed before timing (it loses digits where the terms
 //!   alternate, and needs ~40/(1 - z) terms near z = 1).
 //! - `bulk_block`, `boundary_block`: the blocks at a few cross-ratios.
+//! - `compiled_hyp2f1_region(_bounded)`: `F21(a, b; c; z)` compiled from a
+//!   term, at the same points, plain and with the running error bound.
+//! - `block_files`: whole `.ward` files with ₂F₁: the Casimir claims and
+//!   the integral representation of a partial wave.
 //!
 //! Run with `cargo bench --bench special`.
 
@@ -268,11 +272,18 @@ fn compiled(
     (program, values)
 }
 
-/// Whole files of Casimir claims (parse, lower, differentiate, normal form
-/// with the hypergeometric equation, e-graph, report): the test case with
-/// five claims and the example with two and a slip.
-#[divan::bench(args = ["tests/cases/integrated/casimir-wall-blocks.ward", "examples/wall-casimir.ward"])]
-fn casimir_claims(bencher: divan::Bencher, path: &str) {
+/// Whole files (parse, lower, differentiate, normal form with the
+/// hypergeometric equation, e-graph, report): the Casimir claims in ξ (the
+/// test case with five claims, the example with two and a slip), in
+/// coordinates (four claims), and the integral representation of a
+/// boundary partial wave (one wall quadrature against two blocks, d = 3).
+#[divan::bench(args = [
+    "tests/cases/integrated/casimir-wall-blocks.ward",
+    "examples/wall-casimir.ward",
+    "tests/cases/integrated/casimir-coordinates.ward",
+    "examples/partial-wave.ward",
+])]
+fn block_files(bencher: divan::Bencher, path: &str) {
     use wardsmith::run::{run_source, Mode, Options};
     let text = std::fs::read_to_string(path).expect("case file exists");
     let source = wardsmith::diagnostic::Source::new(path, text);

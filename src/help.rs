@@ -66,12 +66,12 @@ pub const STATEMENTS: &[Entry] = &[
     Entry {
         keyword: "function",
         example: "function F",
-        meaning: "an unknown function: F(xi(x1, x2)), its derivative F'(u)",
+        meaning: "an unknown function: F(xi(x1, x2)), F'(u); of several variables F(u, v), F[1,0](u, v)",
     },
     Entry {
         keyword: "let",
         example: "let G = |x1 - x2|^(-2 Delta)",
-        meaning: "a named scalar expression",
+        meaning: "a named scalar expression; `let f(t) = …` a function, f''(u) its derivatives",
     },
     Entry {
         keyword: "rules",
@@ -177,6 +177,9 @@ Expressions:
   |x1 - x2|^(-2 Delta)    distances and lengths |x1|, to any power
   xi(x1, x2)              the cross-ratio (x1 - x2)²/(4 y1 y2)
   C_D(s1, s2), b2(s1, s2) the displacement's two-point coefficient; b1, b2 in d = 4
+  u(x1, x2, x3, x4)       cross-ratios of four points, also v(…) (docs/conventions.md §12)
+  F21(a, b; c; z)         the hypergeometric function ₂F₁ (also written so); F21'(…) in z
+  f_bulk(Delta; xi)       the wall blocks f_bulk(Δ; ξ), f_bdy(Δ̂; ξ) (docs/conventions.md §9)
   eps[nu](x)              a declared Killing vector's components
   ∫[x in space] { … }     integrals over space, halfspace, boundary, ball(x1, r) (ASCII int)
   ∮[x on ball(x1, r)] { N[mu] … }   a flux through a sphere, outward normal N (ASCII oint)

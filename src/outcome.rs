@@ -8,7 +8,7 @@
 //! shows is here; the JSON document is these types written by serde (its
 //! schema is `docs/report.schema.json`).
 //!
-//! The vocabulary (docs/conventions.md §10):
+//! The vocabulary (docs/conventions.md §6):
 //!
 //! | status | meaning | finer words it replaces |
 //! |---|---|---|

@@ -153,9 +153,9 @@ halfspace y >= 0
 scalar O dim Delta
 scalar P dim Delta2
 boundary scalar psi dim 3
-function F G
+function F G H
 parameters r g
-points x z x1 x2 x3
+points x z x1 x2 x3 x4
 boundary points s s1
 killing ntr translation n
 parallel a c
@@ -206,6 +206,22 @@ fn distances_and_functions_round_trip() {
         "mix[mu](x1) ∂[mu](x1) { F(xi(x1, x2)) } + prot[mu](x2) ∂[mu](x2) { F(xi(x1, x2)) }",
         "dil[mu](x1) ∂[mu](x1) { |x1 - x2|^(-Delta) } + ntr[mu](x2) x2[mu]",
         "δ(x - x1) |x - x2|^(-2) + δ(y(x)) x∥[a] x∥[a] <D(x∥) O(x1)>",
+    ]);
+}
+
+#[test]
+fn hypergeometric_functions_and_several_variables_round_trip() {
+    // ₂F₁ prints as `₂F₁(a, b; c; z)` (ASCII `F21(…)`), derivatives of a
+    // function of several variables as `H[1,0](u, v)`.
+    explicit_round_trips(&[
+        "F21(g, g + 1; 2 g; -xi(x1, x2))",
+        "₂F₁'(g, r; d/2; -1/xi(x1, x2)) xi(x1, x2)^g",
+        "F21''(g, r; 2 g + 1; -xi(x1, x2)) + F21(g + 1, r + 1; 2 g + 2; -xi(x1, x2))",
+        "f_bulk(Delta; xi(x1, x2)) + f_bdy'(Delta2; xi(x1, x2))",
+        "∂[mu](x1) { f_bdy(Delta; xi(x1, x2)) }",
+        "H(u(x1, x2, x3, x4), v(x1, x2, x3, x4)) |x1 - x2|^(-Delta)",
+        "∂[mu](x1) { H(u(x1, x2, x3, x4), v(x1, x2, x3, x4)) }",
+        "H[2,1](g, r) - H[0,1](g^2, xi(x1, x2))",
     ]);
 }
 

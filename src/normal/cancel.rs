@@ -282,53 +282,6 @@ fn divide(dividend: &Poly, divisor: &Poly) -> Option<Poly> {
     rest.is_empty().then_some(quotient)
 }
 
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    fn sym(s: &str) -> Term {
-        Term::Sym(s.into())
-    }
-    fn q(n: i64) -> BigRational {
-        BigRational::from_integer(n.into())
-    }
-
-    #[test]
-    fn exact_quotients_cancel_and_others_stay() {
-        // (d - 2) as the atom's base; plain functions rather than closures
-        // (a closure capturing the base here miscompiled at opt-level 2 with
-        // this toolchain: the test crashed in release builds only).
-        fn inv(mut a: Atoms) -> Atoms {
-            a.insert(Term::Add(vec![sym("d"), Term::Num(q(-2))]), q(-1));
-            a
-        }
-        fn d(e: i64) -> Atoms {
-            let mut a = Atoms::new();
-            a.insert(sym("d"), q(e));
-            a
-        }
-        // (d^2 - 4)/(d - 2) = d + 2
-        let p = Poly::from([(inv(d(2)), q(1)), (inv(Atoms::new()), q(-4))]);
-        assert_eq!(
-            cancel_sums(p),
-            Poly::from([(d(1), q(1)), (Atoms::new(), q(2))])
-        );
-        // (2 d - 4)/(d - 2) = 2
-        let p = Poly::from([(inv(d(1)), q(2)), (inv(Atoms::new()), q(-4))]);
-        assert_eq!(cancel_sums(p), Poly::from([(Atoms::new(), q(2))]));
-        // 1 + (d - 2)/(d - 2) = 2
-        let p = Poly::from([
-            (Atoms::new(), q(1)),
-            (inv(d(1)), q(1)),
-            (inv(Atoms::new()), q(-2)),
-        ]);
-        assert_eq!(cancel_sums(p), Poly::from([(Atoms::new(), q(2))]));
-        // (d - 1)/(d - 2) stays as it is.
-        let p = Poly::from([(inv(d(1)), q(1)), (inv(Atoms::new()), q(-1))]);
-        assert_eq!(cancel_sums(p.clone()), p);
-    }
-}
-
 /// Most monomials a coefficient may have for [`vanishes`] to try it.
 const MAX_VANISH_TERMS: usize = 4096;
 /// Most monomials the numerator over the common denominator may reach.
@@ -413,4 +366,51 @@ fn clear_denominators(poly: &Poly) -> Option<Poly> {
     }
     out.retain(|_, c| !c.is_zero());
     Some(out)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn sym(s: &str) -> Term {
+        Term::Sym(s.into())
+    }
+    fn q(n: i64) -> BigRational {
+        BigRational::from_integer(n.into())
+    }
+
+    #[test]
+    fn exact_quotients_cancel_and_others_stay() {
+        // (d - 2) as the atom's base; plain functions rather than closures
+        // (a closure capturing the base here miscompiled at opt-level 2 with
+        // this toolchain: the test crashed in release builds only).
+        fn inv(mut a: Atoms) -> Atoms {
+            a.insert(Term::Add(vec![sym("d"), Term::Num(q(-2))]), q(-1));
+            a
+        }
+        fn d(e: i64) -> Atoms {
+            let mut a = Atoms::new();
+            a.insert(sym("d"), q(e));
+            a
+        }
+        // (d^2 - 4)/(d - 2) = d + 2
+        let p = Poly::from([(inv(d(2)), q(1)), (inv(Atoms::new()), q(-4))]);
+        assert_eq!(
+            cancel_sums(p),
+            Poly::from([(d(1), q(1)), (Atoms::new(), q(2))])
+        );
+        // (2 d - 4)/(d - 2) = 2
+        let p = Poly::from([(inv(d(1)), q(2)), (inv(Atoms::new()), q(-4))]);
+        assert_eq!(cancel_sums(p), Poly::from([(Atoms::new(), q(2))]));
+        // 1 + (d - 2)/(d - 2) = 2
+        let p = Poly::from([
+            (Atoms::new(), q(1)),
+            (inv(d(1)), q(1)),
+            (inv(Atoms::new()), q(-2)),
+        ]);
+        assert_eq!(cancel_sums(p), Poly::from([(Atoms::new(), q(2))]));
+        // (d - 1)/(d - 2) stays as it is.
+        let p = Poly::from([(inv(d(1)), q(1)), (inv(Atoms::new()), q(-1))]);
+        assert_eq!(cancel_sums(p.clone()), p);
+    }
 }

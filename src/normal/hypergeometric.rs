@@ -22,7 +22,7 @@
 //! are written in is the one whose a has its constant part in [0, 1):
 //! ₂F₁(Δ/2 + 1, …) is written in ₂F₁(Δ/2, …). A shift that would divide by
 //! a parameter that is exactly zero is not made. Division by a, b or c is
-//! generic in the parameters, as (d - 2)/(d - 2) = 1 is (docs/conventions.md §10).
+//! generic in the parameters, as (d - 2)/(d - 2) = 1 is (docs/conventions.md §12).
 
 use num_rational::BigRational;
 use num_traits::{One, Signed, ToPrimitive, Zero};

@@ -19,6 +19,16 @@ pub mod special;
 
 use std::collections::BTreeMap;
 
+/// The next number of a seeded sequence, uniform in [0, 1): splitmix64
+/// (Steele, Lea & Flood 2014), advancing `state`.
+pub fn splitmix(state: &mut u64) -> f64 {
+    *state = state.wrapping_add(0x9e37_79b9_7f4a_7c15);
+    let mut z = *state;
+    z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
+    z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
+    ((z ^ (z >> 31)) >> 11) as f64 / (1u64 << 53) as f64
+}
+
 /// Numeric values for the symbols of a file.
 #[derive(Clone, Debug, Default, PartialEq)]
 pub struct Values {

@@ -52,14 +52,7 @@ pub fn somewhere_nonzero(ctx: &Context, t: &Term, seed: u64) -> Option<bool> {
     symbols.sort();
     symbols.dedup();
     let mut state = seed;
-    let mut next = move || {
-        // splitmix64 (Steele, Lea & Flood 2014).
-        state = state.wrapping_add(0x9e37_79b9_7f4a_7c15);
-        let mut z = state;
-        z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
-        ((z ^ (z >> 31)) >> 11) as f64 / (1u64 << 53) as f64
-    };
+    let mut next = move || super::splitmix(&mut state);
     let declared = match &ctx.dimension {
         Some(Term::Num(n)) => num_traits::ToPrimitive::to_f64(n),
         _ => None,

@@ -1155,14 +1155,7 @@ fn place_moving(ctx: &Context, values: &mut Values) -> Result<()> {
 /// wall, boundary points on it), at least 1/4 apart.
 fn random_samples(ctx: &Context, base: &Values, count: usize, seed: u64) -> Result<Vec<Values>> {
     let mut state = seed;
-    let mut next = move || {
-        // splitmix64 (Steele, Lea & Flood 2014).
-        state = state.wrapping_add(0x9e37_79b9_7f4a_7c15);
-        let mut z = state;
-        z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
-        ((z ^ (z >> 31)) >> 11) as f64 / (1u64 << 53) as f64
-    };
+    let mut next = move || super::splitmix(&mut state);
     let mut out = Vec::with_capacity(count);
     for _ in 0..count {
         let mut values = base.clone();
