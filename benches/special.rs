@@ -227,3 +227,64 @@ fn boundary_block_d3(xi: f64) -> f64 {
 fn boundary_block_d3_unitarity_bound(xi: f64) -> f64 {
     boundary_block(3.0, black_box(0.5), black_box(xi)).expect("defined")
 }
+
+// ───────────── ₂F₁ in the language: compiled programs and claims ─────────────
+
+/// `F21(a, b; c; z)` compiled from a term (what `evaluate`, `compare` and
+/// quadrature run), the same points as `hyp2f1_region`: the program's
+/// overhead over the direct call.
+#[divan::bench(args = CASES.iter())]
+fn compiled_hyp2f1_region(bencher: divan::Bencher, case: &Case) {
+    let (program, values) = compiled(case);
+    bencher.bench(|| program.eval(black_box(&values)).expect("defined"));
+}
+
+/// The same with the running error bound (what a judged value runs).
+#[divan::bench(args = CASES.iter())]
+fn compiled_hyp2f1_region_bounded(bencher: divan::Bencher, case: &Case) {
+    let (program, values) = compiled(case);
+    bencher.bench(|| program.eval_bounded(black_box(&values)).expect("defined"));
+}
+
+fn compiled(
+    case: &Case,
+) -> (
+    wardsmith::numeric::eval::Program,
+    wardsmith::numeric::Values,
+) {
+    use wardsmith::term::Term;
+    let ctx = wardsmith::context::Context::default();
+    let sym = |s: &str| Term::Sym(s.into());
+    let term = Term::hyp2f1(0, sym("a"), sym("b"), sym("c"), sym("z"));
+    let program = wardsmith::numeric::eval::compile(&ctx, &term, &[], 3).expect("compiles");
+    let values = wardsmith::numeric::Values {
+        dim: 3,
+        scalars: [("a", case.a), ("b", case.b), ("c", case.c), ("z", case.z)]
+            .into_iter()
+            .map(|(k, v)| (k.to_string(), v))
+            .collect(),
+        ..Default::default()
+    };
+    (program, values)
+}
+
+/// Whole files of Casimir claims (parse, lower, differentiate, normal form
+/// with the hypergeometric equation, e-graph, report): the test case with
+/// five claims and the example with two and a slip.
+#[divan::bench(args = ["tests/cases/integrated/casimir-wall-blocks.ward", "examples/wall-casimir.ward"])]
+fn casimir_claims(bencher: divan::Bencher, path: &str) {
+    use wardsmith::run::{run_source, Mode, Options};
+    let text = std::fs::read_to_string(path).expect("case file exists");
+    let source = wardsmith::diagnostic::Source::new(path, text);
+    bencher.bench(|| {
+        let out = run_source(
+            &source,
+            std::path::Path::new("."),
+            Mode::Check,
+            &Options::default(),
+        )
+        .expect("valid");
+        assert_eq!(out.code, 0);
+        out
+    });
+}

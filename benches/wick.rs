@@ -2,7 +2,9 @@
 //! free scalar in d = 3 and 4 (⟨T T⟩), C_D with each wall in d = 3 to 6
 //! (⟨D D⟩) and ⟨D D D⟩ with each wall in d = 4, each a whole file through
 //! `check` (the C_T and C_D files compare with the known value; ⟨D D D⟩ is
-//! evaluated). Positions are invented.
+//! evaluated), and next to a reflecting wall (docs/conventions.md §11):
+//! b1 from ⟨D D D⟩ at ρ = 1/3, and a 50-point scan of C_D(g) with the
+//! wall coupled to χ. Positions are invented.
 //!
 //! Run with `cargo bench --bench wick`.
 
@@ -88,4 +90,42 @@ fn c_d_neumann(bencher: divan::Bencher, d: usize) {
 #[divan::bench(args = ["dirichlet", "neumann"])]
 fn c_ddd(bencher: divan::Bencher, wall: &str) {
     check(bencher, ddd_file(wall));
+}
+
+/// b1 from ⟨D D D⟩ next to the wall with reflection coefficient ρ = 1/3,
+/// compared with (2/35)((1 - ρ)/2)³ + (2/45)((1 + ρ)/2)³ (docs/conventions.md §10, §11).
+#[divan::bench]
+fn c_ddd_reflection(bencher: divan::Bencher) {
+    check(
+        bencher,
+        "dimension 4\nhalfspace y >= 0\nboundary points s1 s2 s3\nplace s1 at (0, 0, 0, 0)\n\
+         place s2 at (1, 1/2, -1/4, 0)\nplace s3 at (-1/3, 2/5, 1, 0)\n\
+         model free-scalar reflection 1/3\n\
+         compare b1(s1, s2, s3) = 2/35 (1/3)^3 + 2/45 (2/3)^3\n"
+            .to_string(),
+    );
+}
+
+/// C_D(g) = (1 + ρ²)/S_d², ρ = (2 - g² S_d)/(2 + g² S_d), at 50 couplings
+/// (docs/conventions.md §11), one job.
+#[divan::bench]
+fn scan_c_d_coupling(bencher: divan::Bencher) {
+    let source = Source::new(
+        "wick.ward",
+        "dimension 4\nhalfspace y >= 0\nparameters g\nboundary points s1 s2\n\
+         place s1 at (0, 0, 0, 0)\nplace s2 at (1, 1/2, -1/4, 0)\n\
+         model free-scalar neumann coupling g\n\
+         let rho = (2 - g^2 S_d)/(2 + g^2 S_d)\n\
+         scan g from 0 to 3 steps 50: C_D(s1, s2) = (1 + rho^2)/S_d^2\n"
+            .to_string(),
+    );
+    let options = Options {
+        jobs: 1,
+        ..Options::default()
+    };
+    bencher.bench(|| {
+        let out = run_source(&source, Path::new("."), Mode::Check, &options).expect("valid");
+        assert_eq!(out.code, 0, "{}", out.report);
+        out
+    });
 }

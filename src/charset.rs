@@ -72,6 +72,8 @@ pub fn escape_controls_at<'t>(text: &'t str, offsets: &mut [usize]) -> std::borr
 /// `x∥` as `par(x)`, Greek letters by name, anything unknown as `?`.
 pub fn to_ascii(text: &str) -> String {
     let mut out = String::with_capacity(text.len());
+    // ₂F₁ is spelt as the input's ASCII name, one word.
+    let text = text.replace(crate::term::HYP2F1, crate::term::HYP2F1_ASCII);
     for c in text.chars() {
         if c.is_ascii() {
             out.push(c);

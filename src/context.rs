@@ -127,6 +127,9 @@ pub struct Context {
     pub balls_inside: Vec<Region>,
     /// Numeric coordinates of points (`place x at (…)`), the normal one last.
     pub positions: BTreeMap<String, Vec<num_rational::BigRational>>,
+    /// Coordinates that depend on parameters (`place x at (0, 0, h)`),
+    /// worked out by the numeric layer; these points are not in `positions`.
+    pub moving: BTreeMap<String, Vec<Term>>,
 }
 
 impl Context {

@@ -5,10 +5,11 @@
 //! insertion.
 
 use crate::diagnostic::Result;
+use crate::egraph::Stop;
 use crate::engine::{Engine, Verdict};
 use crate::lower::Step;
 use crate::normal::normalize;
-use crate::term::print::{Printer, Style};
+use crate::outcome::{Change, Expr, Slip, StepNumeric, TermChange};
 use crate::term::{Point, Term};
 
 /// What checking one step found.
@@ -27,10 +28,11 @@ pub enum StepVerdict {
         /// there in which the steps differ, if any (left to numerics).
         contact: Option<Contact>,
     },
-    /// Not equal: the remainder (earlier minus this step) and a diagnosis.
-    Refuted { remainder: Term, diagnosis: String },
+    /// Not equal: the remainder (earlier minus this step) and what the
+    /// slip is.
+    Refuted { remainder: Term, slip: Slip },
     /// The search stopped on a limit before settling it.
-    Unknown { remainder: Term, reason: String },
+    Unknown { remainder: Term, stop: Stop },
     /// Not proved by the rules, but both steps agree on the file's model
     /// at every sampled configuration.
     Confirmed { samples: usize },
@@ -45,7 +47,7 @@ pub struct Contact {
     /// The rules' remainder and diagnosis, for the report if the contact
     /// terms turn out wrong.
     pub remainder: Term,
-    pub diagnosis: String,
+    pub slip: Slip,
 }
 
 /// One checked step.
@@ -58,7 +60,10 @@ pub struct StepReport {
     pub claimed: Vec<String>,
     pub verdict: StepVerdict,
     /// What the numeric check of a step the rules did not prove found.
-    pub numeric: Option<String>,
+    pub numeric: Option<StepNumeric>,
+    /// Proved away from coincident points, and the contact terms there
+    /// then confirmed on the model.
+    pub proved_away_first: bool,
 }
 
 /// The moves a step may cite after `by` besides rule names, each with what
@@ -159,7 +164,6 @@ pub fn check(
     engine: &Engine,
     start: &Term,
     steps: &[Step],
-    style: Style,
     model: Option<&ModelProver>,
 ) -> Result<Vec<StepReport>> {
     let mut out = Vec::new();
@@ -196,29 +200,25 @@ pub fn check(
                 } else {
                     // What the rules make of the difference, for the report
                     // if numerics find the contact terms wrong.
-                    let (remainder, diagnosis) = match &rules {
-                        Verdict::NotProved(r) => (
-                            r.term.clone(),
-                            diagnose(engine, previous, step, &r.term, style)?,
-                        ),
-                        _ => (
-                            s.term.clone(),
-                            "the contact terms at the coincident points differ".to_string(),
-                        ),
+                    let (remainder, slip) = match &rules {
+                        Verdict::NotProved(r) => {
+                            (r.term.clone(), diagnose(engine, previous, step, &r.term)?)
+                        }
+                        _ => (s.term.clone(), Slip::ContactTerms),
                     };
                     Some(Contact {
                         terms: s.term,
                         remainder,
-                        diagnosis,
+                        slip,
                     })
                 },
             },
             Verdict::NotProved(s) if !s.stop.is_saturated() => StepVerdict::Unknown {
                 remainder: s.term.clone(),
-                reason: s.stop.describe(),
+                stop: s.stop.clone(),
             },
             Verdict::NotProved(s) => StepVerdict::Refuted {
-                diagnosis: diagnose(engine, previous, step, &s.term, style)?,
+                slip: diagnose(engine, previous, step, &s.term)?,
                 remainder: s.term,
             },
         };
@@ -228,6 +228,7 @@ pub fn check(
             claimed: claimed.iter().map(|(n, _)| n.clone()).collect(),
             verdict,
             numeric: None,
+            proved_away_first: false,
         });
         previous = step;
     }
@@ -235,17 +236,11 @@ pub fn check(
 }
 
 /// Names the slip that turns `before` into `after`, if it is a common one.
-fn diagnose(
-    engine: &Engine,
-    before: &Term,
-    after: &Term,
-    remainder: &Term,
-    style: Style,
-) -> Result<String> {
-    let show = |t: &Term| shown(engine, style, t);
+fn diagnose(engine: &Engine, before: &Term, after: &Term, remainder: &Term) -> Result<Slip> {
+    let show = |t: &Term| Expr::new(t.clone(), engine.ctx.clone());
     // A flipped sign: before = -after.
     if engine.check(before, &after.clone().negated())?.settles() {
-        return Ok("off by a sign: this step is minus the one before".into());
+        return Ok(Slip::Sign);
     }
     // A constant factor: before = c · after for a scalar c read off the
     // first term of each.
@@ -264,10 +259,9 @@ fn diagnose(
                 )?;
                 let scaled = Term::Mul(vec![ratio.clone(), after.clone()]);
                 if engine.check(before, &scaled)?.settles() {
-                    return Ok(format!(
-                        "off by a constant factor: the step before is {} times this one",
-                        show(&ratio)
-                    ));
+                    return Ok(Slip::Factor {
+                        ratio: show(&ratio),
+                    });
                 }
             }
         }
@@ -287,29 +281,26 @@ fn diagnose(
         })
     });
     if let Some(at) = shared {
-        let what = match (has_contact(&p, at), has_contact(&q, at)) {
-            (true, false) => "is missing from this step",
-            (false, true) => "is extra in this step",
-            _ => "has a different coefficient in this step",
+        let change = match (has_contact(&p, at), has_contact(&q, at)) {
+            (true, false) => Change::Missing,
+            (false, true) => Change::Extra,
+            _ => Change::Coefficient,
         };
-        return Ok(format!("the contact term at `{}` {what}", at.name));
+        return Ok(Slip::Contact {
+            at: at.name.to_string(),
+            change,
+        });
     }
-    if let Some(slip) = term_slip(engine, &p, &q, remainder, style)? {
+    if let Some(slip) = term_slip(engine, &p, &q, remainder)? {
         return Ok(slip);
     }
-    Ok("the two steps differ by the remainder shown".into())
+    Ok(Slip::Remainder)
 }
 
 /// When the steps differ in one term only: that term is missing, extra, or
 /// carries a different coefficient (both printed exactly).
-fn term_slip(
-    engine: &Engine,
-    p: &Term,
-    q: &Term,
-    remainder: &Term,
-    style: Style,
-) -> Result<Option<String>> {
-    let show = |t: &Term| shown(engine, style, t);
+fn term_slip(engine: &Engine, p: &Term, q: &Term, remainder: &Term) -> Result<Option<Slip>> {
+    let show = |t: &Term| Expr::new(t.clone(), engine.ctx.clone());
     let (Some(r), Some(p_terms), Some(q_terms)) = (terms(remainder), terms(p), terms(q)) else {
         return Ok(None);
     };
@@ -318,35 +309,21 @@ fn term_slip(
     };
     let (_, factors) = coefficient(only);
     let find = |ts: &[Term]| ts.iter().map(coefficient).find(|(_, f)| *f == factors);
-    let shown = match factors.as_slice() {
-        [] => "the constant term".to_string(),
-        [f] => format!("the term with {}", show(f)),
-        fs => format!("the term with {}", show(&Term::Mul(fs.to_vec()))),
+    let term = match factors.as_slice() {
+        [] => None,
+        [f] => Some(show(f)),
+        fs => Some(show(&Term::Mul(fs.to_vec()))),
     };
-    Ok(match (find(&p_terms), find(&q_terms)) {
-        (Some(_), None) => Some(format!("{shown} is missing from this step")),
-        (None, Some(_)) => Some(format!("{shown} is extra in this step")),
-        (Some((cp, _)), Some((cq, _))) => {
-            let cp = normalize(engine.ctx.as_ref(), &cp)?;
-            let cq = normalize(engine.ctx.as_ref(), &cq)?;
-            Some(format!(
-                "{shown} has a wrong coefficient: {} in the step before, {} in this step",
-                show(&cp),
-                show(&cq)
-            ))
-        }
-        (None, None) => None,
-    })
-}
-
-/// A term inside a sentence of the report, in the report's style (LaTeX
-/// between dollars).
-fn shown(engine: &Engine, style: Style, t: &Term) -> String {
-    let text = Printer::new(engine.ctx.as_ref(), style).term(t);
-    match style {
-        Style::Latex => format!("${text}$"),
-        _ => text,
-    }
+    let change = match (find(&p_terms), find(&q_terms)) {
+        (Some(_), None) => TermChange::Missing,
+        (None, Some(_)) => TermChange::Extra,
+        (Some((cp, _)), Some((cq, _))) => TermChange::Coefficient {
+            before: show(&normalize(engine.ctx.as_ref(), &cp)?),
+            after: show(&normalize(engine.ctx.as_ref(), &cq)?),
+        },
+        (None, None) => return Ok(None),
+    };
+    Ok(Some(Slip::Term { term, change }))
 }
 
 /// The summands of a normal form (none for 0).

@@ -86,7 +86,8 @@ pub enum ErrorKind {
 }
 
 impl ErrorKind {
-    fn code(self) -> &'static str {
+    /// The word in `error[…]`.
+    pub fn code(self) -> &'static str {
         match self {
             ErrorKind::Syntax => "syntax",
             ErrorKind::Name => "name",

@@ -16,9 +16,6 @@ use crate::normal::{normal_form_with, Caveats, Memo, Singular};
 use crate::rules::RuleBook;
 use crate::term::Term;
 
-/// Rounds of (e-graph, extract, normalise) before giving up on a fixpoint.
-const MAX_ROUNDS: usize = 8;
-
 /// The rules and limits for simplifying the expressions of one file.
 pub struct Engine {
     pub ctx: Arc<Context>,
@@ -111,7 +108,10 @@ impl Engine {
             applied: BTreeMap::new(),
             caveats: first.caveats,
         };
-        for _ in 0..MAX_ROUNDS {
+        let mut finished = false;
+        // A simplification still changing after `limits.rounds` rounds stops
+        // with `Stop::RoundLimit`: its claim is unknown, not refuted.
+        for _ in 0..self.limits.rounds {
             let mut eg = if self.limits.explanations {
                 EGraph::new(Fold::default()).with_explanations_enabled()
             } else {
@@ -157,8 +157,13 @@ impl Engine {
             let done = next == current || !out.stop.is_saturated();
             current = next;
             if done {
+                finished = true;
                 break;
             }
+        }
+        if !finished {
+            // Still changing: the remainder is not final.
+            out.stop = Stop::RoundLimit(self.limits.rounds);
         }
         out.term = current;
         Ok(out)
@@ -167,7 +172,16 @@ impl Engine {
     /// Checks `lhs = rhs` by simplifying their difference to zero.
     pub fn check(&self, lhs: &Term, rhs: &Term) -> Result<Verdict> {
         let difference = Term::Add(vec![lhs.clone(), rhs.clone().negated()]);
-        let s = self.simplify(&difference)?;
+        let mut s = self.simplify(&difference)?;
+        if !s.term.is_zero() && s.stop.is_saturated() {
+            if crate::normal::vanishes_identically(&self.ctx, &s.term) {
+                // Zero over the common denominator: a cancellation the
+                // normal form leaves written out.
+                s.term = Term::zero();
+            } else if let Some(why) = self.undecided(&s.term) {
+                s.stop = Stop::Undecided(why);
+            }
+        }
         Ok(if s.term.is_zero() && s.caveats.is_empty() {
             Verdict::Proved(s)
         } else if s.term.is_zero() || (!s.caveats.is_empty() && only_at(&s.term, &s.caveats)) {
@@ -177,6 +191,32 @@ impl Engine {
         })
     }
 }
+
+impl Engine {
+    /// Why a nonzero remainder does not refute its claim, when it holds ₂F₁
+    /// (see [`crate::normal::hypergeometric::split`]): its family may obey
+    /// relations the normal form does not decide, or no coefficient could
+    /// be shown to be a nonzero function (at seeded random values of the
+    /// parameters, [`crate::numeric::nonzero`]). `None`: refuted.
+    fn undecided(&self, remainder: &Term) -> Option<String> {
+        if !crate::normal::hypergeometric::contains_hyp2f1(remainder) {
+            return None;
+        }
+        let coefficients = match crate::normal::hypergeometric::split(&self.ctx, remainder) {
+            Ok(c) => c,
+            Err(why) => return Some(why),
+        };
+        let shown = coefficients.iter().any(|c| {
+            crate::numeric::nonzero::somewhere_nonzero(&self.ctx, c, NONZERO_SEED) == Some(true)
+        });
+        (!shown).then(|| {
+            "no coefficient of ₂F₁ in the remainder was shown to be a nonzero function (at sampled values of the parameters)".to_string()
+        })
+    }
+}
+
+/// Seed of the sampled parameters that show a coefficient is not zero.
+const NONZERO_SEED: u64 = 0x5eed_2f1;
 
 /// The value of a parameter that makes two sides equal, when they depend
 /// on it linearly and it comes out as a constant.
@@ -288,7 +328,7 @@ fn substitute_symbol(t: &Term, name: &str, value: &Term) -> Term {
         Term::Pow(a, b) => Term::Pow(Box::new(sub(a)), Box::new(sub(b))),
         Term::Mul(ts) => Term::Mul(ts.iter().map(sub).collect()),
         Term::Add(ts) => Term::Add(ts.iter().map(sub).collect()),
-        Term::Fun(f, k, args) => Term::Fun(f.clone(), *k, args.iter().map(sub).collect()),
+        Term::Fun(f, k, args) => Term::Fun(f.clone(), k.clone(), args.iter().map(sub).collect()),
         Term::Der(i, p, body) => Term::Der(i.clone(), p.clone(), Box::new(sub(body))),
         Term::Integral(i) => {
             let mut i = (**i).clone();

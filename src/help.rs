@@ -50,8 +50,8 @@ pub const STATEMENTS: &[Entry] = &[
     },
     Entry {
         keyword: "parameters",
-        example: "parameters g",
-        meaning: "symbols used in coefficients",
+        example: "parameters g a[mu]",
+        meaning: "symbols used in coefficients; with indices, vectors and tensors (`omega[mu,nu]`; parallel indices make them parallel to the wall)",
     },
     Entry {
         keyword: "positive",
@@ -111,7 +111,7 @@ pub const STATEMENTS: &[Entry] = &[
     Entry {
         keyword: "place",
         example: "place x2 outside ball(x1, r)",
-        meaning: "where a point lies (`inside`, `on`); `place x1 at (0, 1/2, 3)` for numbers",
+        meaning: "where a point lies (`inside`, `on`); `place x1 at (0, 1/2, 3)` for numbers, `place x1 at (0, 0, h)` to move with a parameter that `values` or `scan` sets",
     },
     Entry {
         keyword: "model",
@@ -173,8 +173,10 @@ Expressions:
   δ(x - x1), δ(y(x))      δ-functions at a point and on the wall (ASCII delta)
   δ[mu,nu], n[mu]         Kronecker delta, unit normal; n is also an index: T[mu,n]
   x1[mu], x1[n], x∥       coordinates; x1[n] is the distance to the wall; x∥ is par(x)
+  x1[0], T[0,2](x), ∂[2](x1)   components, counted from 0, the normal one last (numeric statements only)
   |x1 - x2|^(-2 Delta)    distances and lengths |x1|, to any power
   xi(x1, x2)              the cross-ratio (x1 - x2)²/(4 y1 y2)
+  C_D(s1, s2), b2(s1, s2) the displacement's two-point coefficient; b1, b2 in d = 4
   eps[nu](x)              a declared Killing vector's components
   ∫[x in space] { … }     integrals over space, halfspace, boundary, ball(x1, r) (ASCII int)
   ∮[x on ball(x1, r)] { N[mu] … }   a flux through a sphere, outward normal N (ASCII oint)

@@ -175,6 +175,11 @@ fn main() -> ExitCode {
                 }
             }
         }
+        Err(e) if args.json => {
+            // Scripts read one document from standard output.
+            let _ = print_report(&wardsmith::report::error_json(&e));
+            ExitCode::from(2)
+        }
         Err(e) => {
             let color = std::io::stderr().is_terminal();
             let _ = std::io::stderr().write_all(&e.render_to(color));

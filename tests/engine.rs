@@ -14,6 +14,7 @@ use wardsmith::diagnostic::Source;
 use wardsmith::egraph::Limits;
 use wardsmith::engine::Engine;
 use wardsmith::lower::{lower, ItemKind};
+use wardsmith::outcome::Status;
 use wardsmith::rules::RuleBook;
 use wardsmith::run::{run_source, Mode, Options};
 use wardsmith::syntax::parse_file;
@@ -165,8 +166,52 @@ fn a_limit_makes_a_claim_unknown_not_false() {
     };
     let out = run_source(&source, Path::new("."), Mode::Check, &opts).expect("runs");
     assert_eq!(out.code, 1);
+    let checked = out.checked.expect("an outcome");
+    let claim = &checked.statements[0];
+    assert_eq!(claim.status, Some(Status::Unknown), "{}", out.report);
+    let wardsmith::outcome::Finding::Claim(c) = &claim.finding else {
+        panic!("not a claim: {claim:?}");
+    };
+    assert!(!c.check.search.stop.is_saturated(), "{}", out.report);
+    // Counted unknown, not refuted.
+    assert_eq!((checked.tally.unknown, checked.tally.not_proved), (1, 0));
     assert!(out.report.contains("UNKNOWN"), "{}", out.report);
-    assert!(out.report.contains("limit"), "{}", out.report);
+}
+
+/// The engine's outer loop stopped before a fixpoint leaves the claim
+/// unknown with the round limit named, where a saturated search would
+/// refute it (the same sign error as above).
+#[test]
+fn the_round_limit_makes_a_claim_unknown_not_false() {
+    let source = Source::new(
+        "test.ward",
+        format!(
+            "{BULK}claim ∂[mu](x) <T[mu,nu](x) O(x1) O(x2)> = δ(x - x1) ∂[nu](x1) <O(x1) O(x2)> - δ(x - x2) ∂[nu](x2) <O(x1) O(x2)>"
+        ),
+    );
+    let opts = Options {
+        limits: Limits {
+            rounds: 1,
+            ..Limits::default()
+        },
+        ..Options::default()
+    };
+    let out = run_source(&source, Path::new("."), Mode::Check, &opts).expect("runs");
+    let checked = out.checked.expect("an outcome");
+    let wardsmith::outcome::Finding::Claim(c) = &checked.statements[0].finding else {
+        panic!("not a claim");
+    };
+    assert_eq!(c.check.search.stop, wardsmith::egraph::Stop::RoundLimit(1));
+    assert_eq!(checked.statements[0].status, Some(Status::Unknown));
+    assert_eq!((checked.tally.unknown, checked.tally.not_proved), (1, 0));
+    assert!(
+        out.report.contains("stopped at the round limit"),
+        "{}",
+        out.report
+    );
+    // With its rounds the same claim is refuted.
+    let out = run_source(&source, Path::new("."), Mode::Check, &Options::default()).expect("runs");
+    assert_eq!(out.checked.expect("an outcome").tally.not_proved, 1);
 }
 
 #[test]

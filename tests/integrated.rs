@@ -4,13 +4,23 @@
 //! Every file under `tests/cases/integrated/` must check clean (each claim
 //! and `expect` there is a published identity typed out by hand, with its
 //! source in the file), and its simplified output is snapshot-tested. The
-//! tests below make sure the same checks fail when the physics is wrong, so
-//! the clean runs are not vacuous.
+//! same checks with the physics wrong are case files under
+//! `tests/cases/failing/` (tests/failing.rs), so the clean runs are not
+//! vacuous.
 
 use std::path::{Path, PathBuf};
 
 use wardsmith::diagnostic::Source;
+use wardsmith::outcome::Finding;
 use wardsmith::run::{run_path, run_source, Mode, Options};
+
+/// Checks a file given as text; the report and the exit code.
+fn check(header: &str, body: &str) -> (String, i32) {
+    let source = Source::new("test.ward", format!("{header}\n{body}\n"));
+    let out = run_source(&source, Path::new("."), Mode::Check, &Options::default())
+        .unwrap_or_else(|e| panic!("{}", e.render()));
+    (out.report, out.code)
+}
 
 fn relative(path: &Path) -> PathBuf {
     let root = Path::new(env!("CARGO_MANIFEST_DIR"));
@@ -31,116 +41,6 @@ fn integrated_cases_check_clean() {
     });
 }
 
-/// Runs `text` after the declarations in `header`, in check mode.
-fn check(header: &str, body: &str) -> (String, i32) {
-    let source = Source::new("test.ward", format!("{header}\n{body}\n"));
-    let out = run_source(&source, Path::new("."), Mode::Check, &Options::default())
-        .unwrap_or_else(|e| panic!("{}", e.render()));
-    (out.report, out.code)
-}
-
-const THREE_POINT: &str = "dimension 4
-parameters Delta1 Delta2 Delta3
-points x1 x2 x3
-killing sct special b";
-
-/// The special conformal operator on a candidate three-point function.
-fn special_on(g: &str) -> String {
-    format!(
-        "let G = {g}
-claim sct[mu](x1) ∂[mu](x1) {{ G }} + Delta1/4 ∂[k](x1) {{ sct[k](x1) }} G
-    + sct[mu](x2) ∂[mu](x2) {{ G }} + Delta2/4 ∂[k](x2) {{ sct[k](x2) }} G
-    + sct[mu](x3) ∂[mu](x3) {{ G }} + Delta3/4 ∂[k](x3) {{ sct[k](x3) }} G
-    = 0"
-    )
-}
-
-#[test]
-fn special_conformal_identity_fails_for_a_wrong_exponent() {
-    // Osborn & Petkou 1994, hep-th/9307010: the exponents are fixed; one
-    // changed by 1 leaves a non-zero remainder.
-    let right = "|x1 - x2|^(Delta3 - Delta1 - Delta2) |x1 - x3|^(Delta2 - Delta1 - Delta3) |x2 - x3|^(Delta1 - Delta2 - Delta3)";
-    let wrong = "|x1 - x2|^(Delta3 - Delta1 - Delta2) |x1 - x3|^(Delta2 - Delta1 - Delta3 + 1) |x2 - x3|^(Delta1 - Delta2 - Delta3)";
-    let (report, code) = check(THREE_POINT, &special_on(right));
-    assert_eq!(code, 0, "{report}");
-    let (report, code) = check(THREE_POINT, &special_on(wrong));
-    assert_eq!(code, 1, "{report}");
-    assert!(report.contains("NOT PROVED"), "{report}");
-    assert!(
-        report.contains("left side minus right side simplifies to:"),
-        "{report}"
-    );
-    // The remainder is shown, and it is not zero.
-    let remainder = report
-        .split("simplifies to:")
-        .nth(1)
-        .and_then(|r| r.split("stop reason").next())
-        .unwrap_or("");
-    assert!(
-        remainder.contains("b[") && remainder.trim() != "0",
-        "{report}"
-    );
-}
-
-const WALL: &str = "dimension d
-halfspace y >= 0
-parameters Delta1 Delta2
-points x1 x2
-function F
-killing ntr translation n
-killing mix rotation n f
-killing nsct special n
-let G = F(xi(x1, x2)) (2 x1[n])^(-Delta1) (2 x2[n])^(-Delta2)";
-
-#[test]
-fn broken_generators_do_not_annihilate_the_wall_two_point_function() {
-    for (name, extra) in [
-        ("ntr", ""),
-        ("mix", ""),
-        (
-            "nsct",
-            " + Delta1/d ∂[k](x1) { nsct[k](x1) } G + Delta2/d ∂[k](x2) { nsct[k](x2) } G",
-        ),
-    ] {
-        let claim = format!(
-            "claim {name}[mu](x1) ∂[mu](x1) {{ G }} + {name}[mu](x2) ∂[mu](x2) {{ G }}{extra} = 0"
-        );
-        let (report, code) = check(WALL, &claim);
-        assert_eq!(code, 1, "{name} should be broken:\n{report}");
-        assert!(
-            report.contains("F'("),
-            "{name}: the remainder involves F':\n{report}"
-        );
-    }
-}
-
-#[test]
-fn a_wrong_coefficient_in_a_global_identity_is_caught() {
-    // W4 with B = R^d (docs/conventions.md §2): the dilatation term is Δ λ, not Δ λ/2.
-    let header = "dimension d\nscalar A dim Delta1\npoints x x1\nkilling dil dilatation lambda";
-    let body = "simplify ∫[x in space] { ∂[mu](x) { dil[nu](x) <T[mu,nu](x) A(x1)> } }
-  expect - lambda x1[mu] ∂[mu](x1) <A(x1)> - Delta1/2 lambda <A(x1)>";
-    let (report, code) = check(header, body);
-    assert_eq!(code, 1, "{report}");
-    assert!(report.contains("- 1/2 Delta1 lambda ⟨A(x1)⟩"), "{report}");
-}
-
-#[test]
-fn the_displacement_term_is_needed_for_the_normal_translation() {
-    // docs/conventions.md §7 (derived): ∫ <D(s) X> = Σ_i ∂<X>/∂y_i; without the
-    // boundary integral the identity does not hold.
-    let header =
-        "dimension d\nhalfspace y >= 0\nscalar O dim Delta\npoints x x1\nkilling ntr translation n";
-    let body = "simplify ∫[x in halfspace] { ∂[mu](x) { ntr[nu](x) <T[mu,nu](x) O(x1)> } }
-  expect - ∂[n](x1) <O(x1)>";
-    let (report, code) = check(header, body);
-    assert_eq!(code, 1, "{report}");
-    assert!(
-        report.contains("∫[x∥ in boundary] { ⟨D(x∥) O(x1)⟩ }"),
-        "{report}"
-    );
-}
-
 #[test]
 fn generators_are_classified_preserved_or_broken() {
     // Common practice (docs/conventions.md §7): ε_n = 0 on y = 0 is preserved.
@@ -152,10 +52,14 @@ fn generators_are_classified_preserved_or_broken() {
     let source = Source::new("classify.ward", text);
     let out =
         run_source(&source, Path::new("."), Mode::Simplify, &Options::default()).expect("runs");
-    let verdicts: Vec<bool> = out
-        .report
-        .lines()
-        .map(|l| l.contains("is preserved"))
+    let checked = out.checked.expect("an outcome");
+    let verdicts: Vec<bool> = checked
+        .statements
+        .iter()
+        .map(|s| match &s.finding {
+            Finding::Classify(c) => c.preserved,
+            other => panic!("not a classification: {other:?}"),
+        })
         .collect();
     assert_eq!(
         verdicts,
@@ -186,4 +90,130 @@ fn a_delta_on_the_surface_or_in_an_unknown_place_is_an_error() {
         assert!(rendered.contains(message), "{rendered}");
         assert!(rendered.contains("regions.ward:6:1"), "{rendered}");
     }
+}
+
+const WALL_BLOCKS: &str = "dimension d
+positive xi Delta Dhat
+let fbulk(t) = f_bulk(Delta; t)
+let fbdy(t) = f_bdy(Dhat; t)";
+
+#[test]
+fn casimir_equations_fail_for_a_wrong_eigenvalue_or_block() {
+    // docs/conventions.md §9 (McAvity & Osborn 1995; Liendo, Rastelli &
+    // van Rees 2012): the right equations hold, and each perturbation is
+    // refuted with a remainder in ₂F₁ — not left unknown.
+    let bulk = |eigenvalue: &str, f: &str| {
+        format!(
+            "claim 4 xi^2 (1 + xi) {f}''(xi) + 2 xi (2 xi + 2 - d) {f}'(xi) = {eigenvalue} {f}(xi)"
+        )
+    };
+    let boundary = |eigenvalue: &str| {
+        format!("claim xi (1 + xi) fbdy''(xi) + d/2 (2 xi + 1) fbdy'(xi) = {eigenvalue} fbdy(xi)")
+    };
+    let (report, code) = check(WALL_BLOCKS, &bulk("Delta (Delta - d)", "fbulk"));
+    assert_eq!(code, 0, "{report}");
+    let (report, code) = check(WALL_BLOCKS, &boundary("Dhat (Dhat - d + 1)"));
+    assert_eq!(code, 0, "{report}");
+    let wrong_parameter = "let w(t) = t^(Delta/2) F21(Delta/2, Delta/2 + 1; Delta + 1 - d/2; -t)";
+    for (header, body) in [
+        (
+            WALL_BLOCKS.to_string(),
+            bulk("Delta (Delta - d - 1)", "fbulk"),
+        ),
+        (
+            WALL_BLOCKS.to_string(),
+            bulk("(Delta - 1) (Delta - d)", "fbulk"),
+        ),
+        (WALL_BLOCKS.to_string(), boundary("Dhat (Dhat - d + 2)")),
+        (WALL_BLOCKS.to_string(), boundary("Delta (Delta - d)")),
+        (
+            format!("{WALL_BLOCKS}\n{wrong_parameter}"),
+            bulk("Delta (Delta - d)", "w"),
+        ),
+    ] {
+        let (report, code) = check(&header, &body);
+        assert_eq!(code, 1, "{report}");
+        assert!(report.contains("NOT PROVED"), "{report}");
+        assert!(report.contains("₂F₁"), "{report}");
+        assert!(!report.contains("UNKNOWN"), "{report}");
+    }
+}
+
+#[test]
+fn relations_the_normal_form_does_not_decide_are_unknown() {
+    // Gauss's contiguous relations (DLMF 15.5.11–15.5.18) and the
+    // transformations of the argument (DLMF 15.8.1) hold, but the normal
+    // form keeps one family apart from another: true identities between two
+    // families, and wrong ones, are unknown, never refuted or proved.
+    let header = "dimension d\nparameters a b c z";
+    for claim in [
+        // Pfaff (DLMF 15.8.1), true.
+        "claim F21(a, b; c; z) = (1 - z)^(-a) F21(a, c - b; c; z/(z - 1))",
+        // A contiguous relation in c (DLMF 15.5.18, from memory; checked
+        // with mpmath at a = 0.3, b = 1.7, c = 2.9, z = -0.6), true:
+        // c (c - 1)(z - 1) F(c - 1) + c (c - 1 - (2c - a - b - 1) z) F(c) + (c - a)(c - b) z F(c + 1) = 0.
+        "claim c (c - 1) (z - 1) F21(a, b; c - 1; z) + c (c - 1 - (2 c - a - b - 1) z) F21(a, b; c; z) + (c - a) (c - b) z F21(a, b; c + 1; z) = 0",
+        // The same with a wrong sign: false, and still not refuted.
+        "claim c (c - 1) (z - 1) F21(a, b; c - 1; z) - c (c - 1 - (2 c - a - b - 1) z) F21(a, b; c; z) + (c - a) (c - b) z F21(a, b; c + 1; z) = 0",
+        // Elementary parameters: ₂F₁(1, 1; 2; z) = -ln(1 - z)/z (DLMF 15.4.2)
+        // satisfies z F' + F = 1/(1 - z), which the normal form cannot see.
+        "claim z F21'(1, 1; 2; z) + F21(1, 1; 2; z) = 1/(1 - z)",
+    ] {
+        let (report, code) = check(header, claim);
+        assert_eq!(code, 1, "{report}");
+        assert!(report.contains("UNKNOWN"), "{report}");
+        assert!(report.contains("the remainder is undecided"), "{report}");
+    }
+}
+
+#[test]
+fn coordinate_casimirs_fail_for_wrong_eigenvalues() {
+    // tests/cases/integrated/casimir-coordinates.ward with the eigenvalue of
+    // each block claim changed: refuted (the coefficients of ₂F₁ in the
+    // remainder are shown nonzero at sampled points), not left unknown.
+    let text = std::fs::read_to_string("tests/cases/integrated/casimir-coordinates.ward")
+        .expect("the case exists");
+    for (right, wrong) in [
+        ("= Delta (Delta - d) HB", "= Delta (Delta - d + 1) HB"),
+        ("= Dhat (Dhat - d + 1) HW", "= Dhat (Dhat - d) HW"),
+    ] {
+        assert!(text.contains(right));
+        let source = Source::new("casimir.ward", text.replace(right, wrong));
+        let out = run_source(&source, Path::new("."), Mode::Check, &Options::default())
+            .unwrap_or_else(|e| panic!("{}", e.render()));
+        assert_eq!(out.code, 1, "{}", out.report);
+        assert_eq!(
+            out.report.matches("NOT PROVED").count(),
+            1,
+            "{}",
+            out.report
+        );
+        assert!(!out.report.contains("UNKNOWN"), "{}", out.report);
+    }
+}
+
+#[test]
+fn four_point_identities_fail_for_a_wrong_prefactor() {
+    // tests/cases/integrated/four-point-global.ward (Dolan & Osborn 2001):
+    // with the exponent of x12 off by one the dilatation and special
+    // conformal identities fail; translations and rotations still hold.
+    let text = std::fs::read_to_string("tests/cases/integrated/four-point-global.ward")
+        .expect("the case exists");
+    let right = "|x1 - x2|^(-Delta1 - Delta2)";
+    assert!(text.contains(right));
+    let source = Source::new(
+        "four.ward",
+        text.replace(right, "|x1 - x2|^(1 - Delta1 - Delta2)"),
+    );
+    let out = run_source(&source, Path::new("."), Mode::Check, &Options::default())
+        .unwrap_or_else(|e| panic!("{}", e.render()));
+    assert_eq!(out.code, 1, "{}", out.report);
+    assert_eq!(
+        out.report.matches("NOT PROVED").count(),
+        2,
+        "{}",
+        out.report
+    );
+    // The remainder is the unknown function times the broken weight.
+    assert!(out.report.contains(" F(|x1 - x2|^2"), "{}", out.report);
 }

@@ -61,6 +61,7 @@ fn scan(left: &[f64], right: &[f64], verdicts: &[Agreement]) -> Scan {
         labels: vec![String::new()],
         rows,
         judged,
+        errors: Vec::new(),
     }
 }
 

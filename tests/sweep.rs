@@ -49,7 +49,6 @@ use wardsmith::numeric::models::apply;
 use wardsmith::numeric::session::build_model;
 use wardsmith::run::{load_rules, Options};
 use wardsmith::syntax::parse_file;
-use wardsmith::term::print::Style;
 use wardsmith::term::{Index, Point, Region, Term};
 
 /// Required agreement at separated points (relative to the size of the
@@ -160,7 +159,6 @@ fn proofs(path: &Path) -> (Program, Vec<Proof>) {
                     &engine,
                     start,
                     steps,
-                    Style::Unicode,
                     prover
                         .as_ref()
                         .map(|p| p as &wardsmith::derive::ModelProver),
@@ -228,7 +226,11 @@ fn pointwise(t: &Term) -> Option<Term> {
             }
             Term::Add(kept)
         }
-        Term::Fun(n, k, ts) => Term::Fun(n.clone(), *k, ts.iter().map(without_deltas).collect()),
+        Term::Fun(n, k, ts) => Term::Fun(
+            n.clone(),
+            k.clone(),
+            ts.iter().map(without_deltas).collect(),
+        ),
         Term::Der(i, p, b) => Term::Der(i.clone(), p.clone(), Box::new(pointwise(b)?)),
         other => other.clone(),
     })

@@ -59,11 +59,14 @@ pub fn add_term(eg: &mut EGraph, t: &Term) -> Id {
             let q = add_point(eg, q);
             eg.add(Ward::Dist([p, q]))
         }
-        Term::Fun(name, order, args) => {
-            let mut children = vec![
-                eg.add(Ward::Name(Symbol::from(name.as_str()))),
-                eg.add(Ward::Num(BigRational::from_integer((*order).into()))),
-            ];
+        Term::Fun(name, orders, args) => {
+            // The name, one order per argument, then the arguments.
+            let mut children = vec![eg.add(Ward::Name(Symbol::from(name.as_str())))];
+            children.extend(
+                orders
+                    .iter()
+                    .map(|k| eg.add(Ward::Num(BigRational::from_integer((*k).into())))),
+            );
             children.extend(args.iter().map(|a| add_term(eg, a)));
             eg.add(Ward::Fun(children.into()))
         }
@@ -174,16 +177,25 @@ impl Reader<'_> {
             Ward::Corr(ids) => Term::Corr(ids.iter().map(|i| self.op(*i)).collect::<Result<_>>()?),
             Ward::Dist([p, q]) => Term::Dist(self.point(*p)?, self.point(*q)?),
             Ward::Fun(children) => {
-                let [name, order, args @ ..] = &children[..] else {
-                    return Err(internal("a function without name or order"));
+                let [name, rest @ ..] = &children[..] else {
+                    return Err(internal("a function without a name"));
                 };
-                let order = match self.node(*order)? {
-                    Ward::Num(c) if c.is_integer() => c.to_integer().try_into().unwrap_or(0),
-                    _ => return Err(internal("a function's order is not a number")),
-                };
+                if rest.len() % 2 != 0 {
+                    return Err(internal("a function without one order per argument"));
+                }
+                let (orders, args) = rest.split_at(rest.len() / 2);
+                let orders = orders
+                    .iter()
+                    .map(|k| match self.node(*k)? {
+                        Ward::Num(c) if c.is_integer() => {
+                            Ok(c.to_integer().try_into().unwrap_or(0))
+                        }
+                        _ => Err(internal("a function's order is not a number")),
+                    })
+                    .collect::<Result<_>>()?;
                 Term::Fun(
                     self.name(*name)?,
-                    order,
+                    orders,
                     args.iter().map(|a| self.term(*a)).collect::<Result<_>>()?,
                 )
             }

@@ -26,6 +26,10 @@ pub struct Limits {
     pub time: Duration,
     /// Record explanations (named rules) for proofs.
     pub explanations: bool,
+    /// Rounds of the engine's outer loop (e-graph, extraction,
+    /// normalisation) before a simplification still changing stops with
+    /// [`Stop::RoundLimit`].
+    pub rounds: usize,
 }
 
 impl Default for Limits {
@@ -36,12 +40,14 @@ impl Default for Limits {
             matches: crate::budget::MAX_MATCH_STEPS,
             time: Duration::from_secs(60),
             explanations: false,
+            rounds: 8,
         }
     }
 }
 
-/// Why a run stopped.
-#[derive(Clone, Debug, PartialEq, Eq)]
+/// Why a run stopped. In JSON: `{"kind": "node_limit", "limit": 100000}`.
+#[derive(Clone, Debug, PartialEq, Eq, serde::Serialize)]
+#[serde(tag = "kind", content = "limit", rename_all = "snake_case")]
 pub enum Stop {
     /// No rule can add anything new.
     Saturated,
@@ -50,7 +56,13 @@ pub enum Stop {
     /// The rule matching took its whole budget of steps.
     MatchLimit(usize),
     TimeLimit,
+    /// The engine's outer loop (e-graph, extraction, normalisation) ran
+    /// its rounds without reaching a fixpoint (`Limits::rounds`, 8).
+    RoundLimit(usize),
     Other(String),
+    /// The rules saturated, but the remainder left is one the engine cannot
+    /// tell from zero (see `Engine::check`): the reason.
+    Undecided(String),
 }
 
 impl Stop {
@@ -67,7 +79,11 @@ impl Stop {
                 format!("stopped: rule matching reached its limit (limit {n} steps)")
             }
             Stop::TimeLimit => "stopped at the time limit".into(),
+            Stop::RoundLimit(n) => format!(
+                "stopped at the round limit ({n} rounds of rules and normalisation without a fixpoint)"
+            ),
             Stop::Other(s) => format!("stopped: {s}"),
+            Stop::Undecided(_) => "saturated; the remainder is undecided".into(),
         }
     }
 }

@@ -9,7 +9,7 @@ use std::collections::BTreeMap;
 use num_rational::BigRational;
 use num_traits::{Signed, Zero};
 
-use super::{constant_value, count_indices, indices, Declared, Lowerer};
+use super::{constant_value, count_indices, indices, is_constant_term, Declared, Lowerer};
 use crate::context::{Killing, ParamDecl, Placement, DIMENSION};
 use crate::diagnostic::{Error, ErrorKind, Result};
 use crate::syntax::ast::{
@@ -31,9 +31,9 @@ pub const OUTWARD_NORMAL: &str = "N";
 #[derive(Debug, Default)]
 pub(super) struct Scope {
     /// Each name defined by `let`, with the span of its first definition.
-    lets: BTreeMap<String, Span>,
+    pub(super) lets: BTreeMap<String, Span>,
     /// The name of the `let` whose expression is being lowered.
-    defining: RefCell<Option<String>>,
+    pub(super) defining: RefCell<Option<String>>,
     /// The number of enclosing surface integrals.
     surfaces: Cell<u32>,
 }
@@ -115,6 +115,62 @@ impl Lowerer {
         }
     }
 
+    /// `parameters a[mu]`, `omega[mu,nu]`: a vector or a tensor, parallel to
+    /// the wall when its indices are declared `parallel`.
+    pub(super) fn declare_tensor_parameter(&mut self, name: &Name, indices: &[Name]) -> Result<()> {
+        if indices.len() > 2 {
+            return Err(self
+                .err(
+                    ErrorKind::Index,
+                    name.span,
+                    "a parameter has at most two indices",
+                )
+                .with_label("too many indices")
+                .with_note("declare a vector `a[mu]` or a tensor `omega[mu,nu]`"));
+        }
+        for (k, i) in indices.iter().enumerate() {
+            if i.is_var
+                || i.text == crate::context::NORMAL
+                || i.text.bytes().all(|b| b.is_ascii_digit())
+            {
+                return Err(self
+                    .err(
+                        ErrorKind::Index,
+                        i.span,
+                        "the indices of a declared parameter are names",
+                    )
+                    .with_label("not an index name")
+                    .with_note("write e.g. `parameters a[mu]`"));
+            }
+            if indices[..k].iter().any(|j| j.text == i.text) {
+                return Err(self
+                    .err(
+                        ErrorKind::Index,
+                        i.span,
+                        "the indices of a declared parameter are different names",
+                    )
+                    .with_label("written twice"));
+            }
+        }
+        let parallel_names = indices
+            .iter()
+            .filter(|i| self.ctx.parallel.contains(&i.text))
+            .count();
+        if parallel_names != 0 && parallel_names != indices.len() {
+            return Err(self
+                .err(
+                    ErrorKind::Index,
+                    name.span,
+                    "a parameter's indices are all parallel to the wall or none is",
+                )
+                .with_label("parallel and bulk indices mixed"));
+        }
+        if self.declared.contains_key(&name.text) || self.ctx.params.contains_key(&name.text) {
+            self.new_name(name, Declared::Vector)?;
+        }
+        self.declare_param(name, indices.len(), parallel_names != 0, false)
+    }
+
     /// Declares a parameter of the given rank, or checks an earlier
     /// declaration agrees.
     fn declare_param(
@@ -179,15 +235,27 @@ impl Lowerer {
                 .with_label("a projection"));
         }
         let mut values = Vec::with_capacity(coords.len());
+        let mut moving = Vec::new();
         for c in coords {
-            let Some(v) = constant_value(c) else {
+            if let Some(v) = constant_value(c) {
+                values.push(v);
+                moving.push(Term::Num(values.last().cloned().unwrap_or_default()));
+                continue;
+            }
+            // A coordinate that depends on parameters (`(0, 0, h)`): its
+            // value is worked out where the numeric statements run, so a
+            // `scan` may move the point.
+            let t = self.expr(c)?;
+            if !is_constant_term(&t) {
                 return Err(self
-                    .err(ErrorKind::Syntax, c.span, "a coordinate is a number")
-                    .with_label("not a number")
-                    .with_note("write numbers, e.g. `place x2 at (0, 1/2, 3)`"));
-            };
-            values.push(v);
+                    .err(ErrorKind::Syntax, c.span, "a coordinate is a number or an expression in parameters")
+                    .with_label("mentions points, indices or correlators")
+                    .with_note("write e.g. `place x2 at (0, 1/2, 3)` or, with `parameters h`, `place x2 at (0, 0, h)`"));
+            }
+            values.push(BigRational::zero());
+            moving.push(t);
         }
+        let is_moving = moving.iter().any(|t| !matches!(t, Term::Num(_)));
         if let Some(Term::Num(d)) = &self.ctx.dimension {
             if BigRational::from_integer(values.len().into()) != *d {
                 return Err(self
@@ -202,7 +270,20 @@ impl Lowerer {
                     .with_label("wrong number of coordinates"));
             }
         }
-        if self.ctx.has_halfspace() {
+        let normal_moves = is_moving && !matches!(moving.last(), Some(Term::Num(_)));
+        if normal_moves && self.ctx.is_boundary_point(&p) {
+            return Err(self
+                .err(
+                    ErrorKind::Placement,
+                    span,
+                    format!(
+                        "the normal coordinate of `{}` must be 0 (a boundary point)",
+                        p.name
+                    ),
+                )
+                .with_label("the last coordinate is the distance to the wall"));
+        }
+        if self.ctx.has_halfspace() && (!normal_moves || self.ctx.is_boundary_point(&p)) {
             let y = values.last().cloned().unwrap_or_default();
             let on_wall = self.ctx.is_boundary_point(&p);
             if on_wall != y.is_zero() || y.is_negative() {
@@ -220,7 +301,7 @@ impl Lowerer {
                     .with_label("the last coordinate is the distance to the wall"));
             }
         }
-        if self.ctx.positions.contains_key(&*p.name) {
+        if self.ctx.positions.contains_key(&*p.name) || self.ctx.moving.contains_key(&*p.name) {
             return Err(self
                 .err(
                     ErrorKind::Name,
@@ -229,7 +310,11 @@ impl Lowerer {
                 )
                 .with_label("placed twice"));
         }
-        self.ctx.positions.insert(p.name.to_string(), values);
+        if is_moving {
+            self.ctx.moving.insert(p.name.to_string(), moving);
+        } else {
+            self.ctx.positions.insert(p.name.to_string(), values);
+        }
         Ok(())
     }
 
@@ -482,6 +567,16 @@ impl Lowerer {
                 idx[0].clone(),
             ));
         }
+        if crate::lower::unit_vector_component(&name.text).is_some() && !self.in_numeric.get() {
+            return Err(self
+                .err(
+                    ErrorKind::Index,
+                    span,
+                    "a numeric component (`x1[0]`) is for numeric statements, and this named expression holds one",
+                )
+                .with_label("used in a symbolic statement")
+                .with_note("`evaluate`, `compare`, `solve` and `scan` take components; here write the expression with a free index"));
+        }
         if let Some(decl) = self.ctx.params.get(&name.text) {
             if idx.len() != decl.rank {
                 let example = match decl.rank {
@@ -531,10 +626,9 @@ impl Lowerer {
         })
     }
 
-    pub(super) fn call(&self, name: &Name, primes: u32, args: &[Expr], span: Span) -> Result<Term> {
-        if name.text == CROSS_RATIO && self.ctx.operator(&name.text).is_none() {
-            return self.cross_ratio(name, primes, args, span);
-        }
+    /// `g(u)` for a name that is not a function: the product g·u when g is
+    /// a number (a parameter, `d`, a named expression), an error otherwise.
+    pub(super) fn number_call(&self, name: &Name, primes: u32, args: &[Expr]) -> Result<Term> {
         // `g(a + b)` is a product, not a call, when g is a number.
         let is_number = name.text == DIMENSION
             || matches!(
@@ -545,54 +639,39 @@ impl Lowerer {
             let factor = self.scalar_name(name)?;
             return Ok(Term::Mul(vec![factor, self.expr(&args[0])?]));
         }
-        if !self.ctx.functions.contains(&name.text) {
-            if let Some(err) = self.let_out_of_order(name) {
-                return Err(err);
-            }
-            return Err(match self.declared_kind(&name.text) {
-                Some(kind) => {
-                    let error = self
-                        .err(
-                            ErrorKind::Name,
-                            name.span,
-                            format!("`{}` is {kind}, not a function", name.text),
-                        )
-                        .with_label("called like a function");
-                    if is_number {
-                        error.with_note(format!(
-                            "`{0}(u)` with one argument is the product of `{0}` and u; an unknown function is declared with `function F` and called as `F(u)`",
-                            name.text
-                        ))
-                    } else {
-                        error
-                    }
+        if let Some(err) = self.let_out_of_order(name) {
+            return Err(err);
+        }
+        Err(match self.declared_kind(&name.text) {
+            Some(kind) => {
+                let error = self
+                    .err(
+                        ErrorKind::Name,
+                        name.span,
+                        format!("`{}` is {kind}, not a function", name.text),
+                    )
+                    .with_label("called like a function");
+                if is_number {
+                    error.with_note(format!(
+                        "`{0}(u)` with one argument is the product of `{0}` and u; an unknown function is declared with `function F` and called as `F(u)`",
+                        name.text
+                    ))
+                } else {
+                    error
                 }
-                None => self.undeclared(name, "function", &format!("function {}", name.text)),
-            });
-        }
-        if args.len() != 1 {
-            return Err(self
-                .err(
-                    ErrorKind::Syntax,
-                    span,
-                    format!(
-                        "`{}` is a function of one variable, found {} arguments",
-                        name.text,
-                        args.len()
-                    ),
-                )
-                .with_label("wrong number of arguments")
-                .with_note(format!(
-                    "declared functions take one argument, e.g. `{}(|x1 - x2|^2)`",
-                    name.text
-                )));
-        }
-        let arg = self.expr(&args[0])?;
-        Ok(Term::Fun(name.text.clone(), primes, vec![arg]))
+            }
+            None => self.undeclared(name, "function", &format!("function {}", name.text)),
+        })
     }
 
     /// The cross-ratio `xi(p, q)` = |p - q|² / (4 y_p y_q) of two bulk points.
-    fn cross_ratio(&self, name: &Name, primes: u32, args: &[Expr], span: Span) -> Result<Term> {
+    pub(super) fn cross_ratio(
+        &self,
+        name: &Name,
+        primes: u32,
+        args: &[Expr],
+        span: Span,
+    ) -> Result<Term> {
         const FORM: &str = "ξ = |x1 - x2|²/(4 y1 y2), written `xi(x1, x2)`";
         self.need_halfspace(span, "the cross-ratio xi")?;
         if primes > 0 {
@@ -699,6 +778,7 @@ impl Lowerer {
             && op.indices.is_empty()
             && self.ctx.operator(name).is_none()
             && (name == CROSS_RATIO
+                || self.is_displacement_quantity(name)
                 || name == DIMENSION
                 || self.ctx.functions.contains(name)
                 || self.scope.lets.contains_key(name)
@@ -714,7 +794,16 @@ impl Lowerer {
             kind: ExprKind::Name(op.point.name.clone()),
             span: op.point.span,
         };
-        self.call(&op.name, 0, &[arg], op.span)
+        self.call(
+            &super::functions::Call {
+                name: &op.name,
+                primes: 0,
+                orders: None,
+                args: std::slice::from_ref(&arg),
+                separators: &[],
+            },
+            op.span,
+        )
     }
 
     /// A declared function written without its argument, or with a space
@@ -740,7 +829,7 @@ impl Lowerer {
 
     /// The error for a named expression used inside its own definition or
     /// before it, if `n` is one.
-    fn let_out_of_order(&self, n: &Name) -> Option<Error> {
+    pub(super) fn let_out_of_order(&self, n: &Name) -> Option<Error> {
         if self.scope.defining.borrow().as_deref() == Some(n.text.as_str()) {
             return Some(
                 self.err(
@@ -770,7 +859,7 @@ impl Lowerer {
 
     /// An error under the first free index of `e`, if it has one: `what`
     /// must be a scalar.
-    fn index_free(&self, e: &Expr, what: &str, note: &str) -> Result<()> {
+    pub(super) fn index_free(&self, e: &Expr, what: &str, note: &str) -> Result<()> {
         let free = self.free_indices(e)?;
         let Some(index) = free.iter().next() else {
             return Ok(());
@@ -787,23 +876,6 @@ impl Lowerer {
             )
             .with_label(format!("`{index}` is free"))
             .with_note(note.to_string()))
-    }
-
-    /// `let NAME = EXPR`: checks the expression once, and keeps it to be
-    /// lowered again where the name is used.
-    pub(super) fn declare_let(&mut self, name: &Name, expr: &Expr) -> Result<()> {
-        self.index_free(
-            expr,
-            "a named expression",
-            "a `let` names an expression without free indices; contract the index (e.g. `x1[mu] x1[mu]`) or write the tensor out where it is used",
-        )?;
-        *self.scope.defining.borrow_mut() = Some(name.text.clone());
-        let lowered = self.expr(expr);
-        *self.scope.defining.borrow_mut() = None;
-        lowered?;
-        self.new_name(name, Declared::Let)?;
-        self.lets.insert(name.text.clone(), expr.clone());
-        Ok(())
     }
 
     pub(super) fn integral(

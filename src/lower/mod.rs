@@ -7,11 +7,15 @@
 //! indices, an index used three times, rule syntax in a `.ward` file, and
 //! division by a literal zero.
 
+mod anomaly;
+mod components;
 mod explicit;
+mod functions;
 mod indices;
 mod numeric;
 
-pub use numeric::{ModelChoice, NumericSpec, ValueSpec};
+pub use components::{unit_vector, unit_vector_component};
+pub use numeric::{Family, ModelChoice, NumericSpec, ValueSpec};
 
 use std::collections::{BTreeMap, BTreeSet};
 use std::sync::Arc;
@@ -143,7 +147,10 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
         ctx: Context::default(),
         declared: BTreeMap::new(),
         lets: BTreeMap::new(),
+        bound: Default::default(),
+        arities: Default::default(),
         fresh: std::cell::Cell::new(0),
+        in_numeric: std::cell::Cell::new(false),
         depth: std::cell::Cell::new(0),
         nodes: std::cell::Cell::new(0),
         numeric: NumericSpec::default(),
@@ -156,6 +163,10 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
     let mut seen_expression = false;
     for stmt in &file.stmts {
         lowerer.nodes.set(0);
+        lowerer.in_numeric.set(matches!(
+            stmt,
+            Stmt::Evaluate { .. } | Stmt::Solve { .. } | Stmt::Scan { .. } | Stmt::Compare { .. }
+        ));
         match stmt {
             Stmt::Simplify { expr, expect, span } => {
                 let expect_expr = expect;
@@ -212,6 +223,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
             Stmt::Rules { path, span } => rule_files.push((path.clone(), *span)),
             Stmt::Evaluate { expr, span } => {
                 seen_expression = true;
+                let expr = &lowerer.numeric_components(expr)?;
                 let free = lowerer.free_indices(expr)?.into_iter().collect();
                 items.push(Item {
                     kind: ItemKind::Evaluate {
@@ -235,6 +247,10 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         .with_label("cannot be solved for")
                         .with_note("solve for a scalar parameter, e.g. `parameters a` and `coefficient <T O O> = a`"));
                 }
+                let (lhs, rhs) = (
+                    &lowerer.numeric_components(lhs)?,
+                    &lowerer.numeric_components(rhs)?,
+                );
                 let profile = lowerer.free_indices(lhs)?;
                 lowerer.same_free_indices(&profile, rhs, ("the left side", "the right side"))?;
                 items.push(Item {
@@ -341,6 +357,10 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                 if let Some((name, span)) = output {
                     check_output_name(&lowerer, name, *span)?;
                 }
+                let (lhs, rhs) = (
+                    &lowerer.numeric_components(lhs)?,
+                    &lowerer.numeric_components(rhs)?,
+                );
                 let profile = lowerer.free_indices(lhs)?;
                 lowerer.same_free_indices(&profile, rhs, ("the left side", "the right side"))?;
                 items.push(Item {
@@ -460,6 +480,10 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
             }
             Stmt::Compare { lhs, rhs, span } => {
                 seen_expression = true;
+                let (lhs, rhs) = (
+                    &lowerer.numeric_components(lhs)?,
+                    &lowerer.numeric_components(rhs)?,
+                );
                 let profile = lowerer.free_indices(lhs)?;
                 lowerer.same_free_indices(&profile, rhs, ("the left side", "the right side"))?;
                 items.push(Item {
@@ -547,10 +571,21 @@ struct Lowerer {
     source: Arc<Source>,
     ctx: Context,
     declared: BTreeMap<String, (Declared, Span)>,
-    /// Named expressions from `let`, lowered where they are used.
-    lets: BTreeMap<String, Expr>,
+    /// Named expressions from `let`, lowered where they are used, with the
+    /// parameters of a function (`let f(t) = …`; none for a plain name).
+    lets: BTreeMap<String, (Vec<Name>, Expr)>,
+    /// The parameters of the functions being lowered, innermost last: each
+    /// name stands for a symbol no input can spell (see
+    /// [`functions`](self::functions)).
+    bound: std::cell::RefCell<Vec<(String, Term)>>,
+    /// The number of arguments of each unknown function, from its first
+    /// call.
+    arities: std::cell::RefCell<BTreeMap<String, (usize, Span)>>,
     /// Counter for fresh summation indices inside Killing vectors.
     fresh: std::cell::Cell<u32>,
+    /// True while a numeric statement is lowered: components (`x1[0]`)
+    /// are allowed there only.
+    in_numeric: std::cell::Cell<bool>,
     /// How deeply the expression being lowered nests, named expressions
     /// substituted (see [`MAX_DEPTH`]).
     depth: std::cell::Cell<usize>,
@@ -693,9 +728,13 @@ impl Lowerer {
                 }
             }
             Stmt::Parameters(names) => {
-                for name in names {
-                    self.new_name(name, Declared::Parameter)?;
-                    self.ctx.parameters.insert(name.text.clone());
+                for (name, indices) in names {
+                    if indices.is_empty() {
+                        self.new_name(name, Declared::Parameter)?;
+                        self.ctx.parameters.insert(name.text.clone());
+                    } else {
+                        self.declare_tensor_parameter(name, indices)?;
+                    }
                 }
             }
             Stmt::Positive(names) => {
@@ -730,7 +769,7 @@ impl Lowerer {
                     self.ctx.functions.insert(name.text.clone());
                 }
             }
-            Stmt::Let { name, expr } => self.declare_let(name, expr)?,
+            Stmt::Let { name, params, expr } => self.declare_let(name, params, expr)?,
             Stmt::Killing {
                 name, generator, ..
             } => self.declare_killing(name, generator)?,
@@ -1016,7 +1055,22 @@ impl Lowerer {
             ExprKind::Component { name, par, indices } => {
                 self.component(name, *par, indices, e.span)?
             }
-            ExprKind::Call { name, primes, args } => self.call(name, *primes, args, e.span)?,
+            ExprKind::Call {
+                name,
+                primes,
+                orders,
+                args,
+                separators,
+            } => self.call(
+                &functions::Call {
+                    name,
+                    primes: *primes,
+                    orders: orders.as_deref(),
+                    args,
+                    separators,
+                },
+                e.span,
+            )?,
             ExprKind::Integral {
                 var,
                 region,
@@ -1225,6 +1279,9 @@ impl Lowerer {
     }
 
     fn scalar_name(&self, n: &Name) -> Result<Term> {
+        if let Some(t) = self.bound_parameter(&n.text) {
+            return Ok(t);
+        }
         if n.text == DIMENSION {
             return Ok(self.ctx.dim());
         }
@@ -1237,9 +1294,10 @@ impl Lowerer {
             Some((Declared::Parameter, _)) => Ok(Term::Sym(n.text.clone())),
             Some((Declared::Function, _)) => Err(self.function_without_argument(n)),
             Some((Declared::Let, _)) => match self.lets.get(&n.text) {
+                Some((params, _)) if !params.is_empty() => Err(self.function_without_argument(n)),
                 // A limit met inside the definition is reported where the
                 // outermost named expression is used.
-                Some(e) => self.descend(n.span, || self.expr(e)).map_err(|mut err| {
+                Some((_, e)) => self.descend(n.span, || self.expr(e)).map_err(|mut err| {
                     if err.kind == ErrorKind::Limit {
                         err = err
                             .with_span(&self.source, n.span)
@@ -1279,6 +1337,16 @@ impl Lowerer {
     fn index(&self, n: &Name) -> Result<Index> {
         if n.is_var {
             return Err(self.rule_syntax(n.span));
+        }
+        if components::is_numeric(n) {
+            return Err(self
+                .err(
+                    ErrorKind::Index,
+                    n.span,
+                    format!("the component `{}` is for numeric statements", n.text),
+                )
+                .with_label("a number as an index")
+                .with_note("`evaluate`, `compare`, `solve` and `scan` take components (counted from 0, the normal one last); here write a free index, e.g. `mu`"));
         }
         if n.text == NORMAL {
             self.need_halfspace(n.span, "the normal index n")?;

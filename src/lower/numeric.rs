@@ -34,16 +34,31 @@ pub enum ModelChoice {
         y_convention: bool,
     },
     FreeScalar {
-        /// `Some(true)` Dirichlet, `Some(false)` Neumann, `None` no wall.
+        /// `Some(true)` Dirichlet, `Some(false)` Neumann, `None` no wall
+        /// (or, with `family`, the side the coupling starts from).
         dirichlet: Option<bool>,
         unimproved: bool,
         /// Operator name → composite name (`phi`, `phi2`, `boundary-phi`, …).
         fields: Vec<(String, String)>,
+        /// A wall with a reflection coefficient other than ±1.
+        family: Option<Family>,
     },
     /// Generalised free fields; `Some(true)` Dirichlet-like image sign.
     Gff {
         dirichlet: Option<bool>,
     },
+}
+
+/// The reflecting wall of the free scalar (docs/conventions.md §11).
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum Family {
+    /// `reflection r`: ρ given (a number in [-1, 1] or an expression in
+    /// the parameters); no χ.
+    Reflection(Term),
+    /// `neumann coupling g` (`dirichlet: false`) or `dirichlet coupling g`:
+    /// the wall coupled with strength g to a boundary generalised free
+    /// field χ of the marginal dimension; ρ follows from g.
+    Coupling { dirichlet: bool, g: Term },
 }
 
 /// Exact numeric components of a parameter's value.
@@ -67,13 +82,23 @@ impl Lowerer {
                 wall,
                 unimproved,
                 fields,
+                reflection,
+                coupling,
             } => {
                 let dirichlet = wall.as_deref().map(|w| w == "dirichlet");
-                if dirichlet.is_some() != self.ctx.has_halfspace() {
-                    let message = if dirichlet.is_some() {
+                let family = match (reflection, coupling) {
+                    (Some(r), _) => Some(Family::Reflection(self.reflection_value(r)?)),
+                    (None, Some(g)) => Some(Family::Coupling {
+                        dirichlet: dirichlet == Some(true),
+                        g: self.model_number(g, "the coupling g")?,
+                    }),
+                    (None, None) => None,
+                };
+                if (dirichlet.is_some() || family.is_some()) != self.ctx.has_halfspace() {
+                    let message = if dirichlet.is_some() || family.is_some() {
                         "a wall needs `halfspace y >= 0`"
                     } else {
-                        "with a half-space, say which wall: `model free-scalar dirichlet` or `neumann`"
+                        "with a half-space, say which wall: `model free-scalar dirichlet`, `neumann` or `reflection r`"
                     };
                     return Err(self
                         .err(ErrorKind::Placement, span, message)
@@ -82,13 +107,51 @@ impl Lowerer {
                 let mut out = Vec::new();
                 for (name, composite) in fields {
                     self.need_operator(name)?;
-                    self.same_dimension(name, composite)?;
+                    if composite == "chi" && !matches!(family, Some(Family::Coupling { .. })) {
+                        return Err(self
+                            .err(
+                                ErrorKind::Placement,
+                                name.span,
+                                format!("`{}` stands for χ, and this model has no χ", name.text),
+                            )
+                            .with_label("χ needs a coupling")
+                            .with_note(
+                                "χ is the boundary field the wall is coupled to: write \
+                                 `model free-scalar neumann coupling g` (χ of dimension d/2) or \
+                                 `dirichlet coupling g` (χ of dimension d/2 - 1)",
+                            ));
+                    }
+                    if matches!(composite.as_str(), "chi" | "boundary-tn")
+                        && !self.ctx.operator(&name.text).is_some_and(|o| o.boundary)
+                    {
+                        return Err(self
+                            .err(
+                                ErrorKind::Placement,
+                                name.span,
+                                format!(
+                                    "`{}` stands for a boundary operator ({composite}) and is declared in the bulk",
+                                    name.text
+                                ),
+                            )
+                            .with_label("declared without `boundary`")
+                            .with_note(if composite == "chi" {
+                                format!("declare it `boundary scalar {} dim …`", name.text)
+                            } else {
+                                format!("declare it `boundary vector {} dim d`", name.text)
+                            }));
+                    }
+                    let chi_side = match &family {
+                        Some(Family::Coupling { dirichlet, .. }) => Some(*dirichlet),
+                        _ => None,
+                    };
+                    self.same_dimension(name, composite, chi_side)?;
                     out.push((name.text.clone(), composite.clone()));
                 }
                 ModelChoice::FreeScalar {
                     dirichlet,
                     unimproved: *unimproved,
                     fields: out,
+                    family,
                 }
             }
         };
@@ -111,13 +174,21 @@ impl Lowerer {
     /// A declared dimension that the free scalar's composite contradicts is
     /// an error: `scalar P dim 2` cannot stand for φ² (dimension d - 2).
     /// Dimensions with parameters besides d are left to the values.
-    fn same_dimension(&self, name: &Name, composite: &str) -> Result<()> {
+    fn same_dimension(
+        &self,
+        name: &Name,
+        composite: &str,
+        chi_dirichlet: Option<bool>,
+    ) -> Result<()> {
         let d = self.ctx.dim();
         let half = |t: Term| Term::Mul(vec![Term::Num(BigRational::new(1.into(), 2.into())), t]);
         let expected = match composite {
             "phi" | "boundary-phi" => half(Term::Add(vec![d, Term::int(-2)])),
             "phi2" | "boundary-phi2" => Term::Add(vec![d, Term::int(-2)]),
             "boundary-dphi" => half(d),
+            "boundary-tn" => d,
+            "chi" if chi_dirichlet == Some(true) => half(Term::Add(vec![d, Term::int(-2)])),
+            "chi" => half(d),
             _ => return Ok(()),
         };
         let Some(declared) = self.ctx.attribute(&name.text, "dim") else {
@@ -167,6 +238,56 @@ impl Lowerer {
                 name.text,
                 printer.term(&expected)
             )))
+    }
+
+    /// The value after `coupling`: a number or an expression in the
+    /// parameters (no points, indices or correlators), so that `scan` can
+    /// run over it.
+    fn model_number(&self, e: &Expr, what: &str) -> Result<Term> {
+        let t = self.expr(e)?;
+        fn plain(t: &Term) -> bool {
+            match t {
+                Term::Num(_) | Term::Sym(_) => true,
+                Term::Param(_, indices) => indices.is_empty(),
+                Term::Add(ts) | Term::Mul(ts) => ts.iter().all(plain),
+                Term::Pow(a, b) => plain(a) && plain(b),
+                _ => false,
+            }
+        }
+        if !plain(&t) {
+            return Err(self
+                .err(
+                    ErrorKind::Placement,
+                    e.span,
+                    format!("{what} is a number or an expression in the parameters"),
+                )
+                .with_label("depends on points or indices")
+                .with_note("declare a parameter (`parameters g`) to scan over it"));
+        }
+        Ok(t)
+    }
+
+    /// The value after `reflection`: as [`Lowerer::model_number`], and a
+    /// number must lie in [-1, 1].
+    fn reflection_value(&self, e: &Expr) -> Result<Term> {
+        let t = self.model_number(e, "the reflection coefficient")?;
+        if let Some(r) = constant_value(e) {
+            let one = BigRational::from_integer(1.into());
+            if r > one || r < -one.clone() {
+                return Err(self
+                    .err(
+                        ErrorKind::Placement,
+                        e.span,
+                        "the reflection coefficient runs over [-1, 1]",
+                    )
+                    .with_label("outside [-1, 1]")
+                    .with_note(
+                        "ρ = 1 is the Neumann wall, ρ = -1 the Dirichlet wall; |ρ| > 1 needs a \
+                         boundary field of negative norm",
+                    ));
+            }
+        }
+        Ok(t)
     }
 
     pub(super) fn declare_coefficient(

@@ -3,7 +3,9 @@
 //!
 //! Explicit functions are differentiated here (common practice):
 //!   ∂_i |p - q| = (p_i - q_i)/|p - q|,  ∂_i p_k = δ_ik,  ∂_i p_n = n_i,
-//!   ∂_i F^{(k)}(u) = F^{(k+1)}(u) ∂_i u,  ∂_i a^E = E a^E a^{-1} ∂_i a.
+//!   ∂_i F^{(k)}(u) = F^{(k+1)}(u) ∂_i u,  ∂_i a^E = E a^E a^{-1} ∂_i a,
+//!   ∂_i F(u, v) = F_{,u}(u, v) ∂_i u + F_{,v}(u, v) ∂_i v (any number of
+//!   arguments), ∂_i ₂F₁(a, b; c; z) = ₂F₁'(a, b; c; z) ∂_i z.
 //! A point on the wall (a boundary point, or the projection x∥) moves only
 //! along it: its gradients carry the projector δ_ik - n_i n_k.
 //! These are pointwise derivatives; [`super::distribution`] adds the
@@ -104,13 +106,31 @@ fn atom_derivative(ctx: &Norm, i: &Index, p: &Point, atom: &Term) -> Result<Vec<
         }
         // ∂_i p_n = n_i.
         Term::Comp(q, Index::N) if !q.par => Term::Normal(i.clone()),
-        Term::Fun(name, order, args) => match &args[..] {
-            [arg] => Term::Mul(vec![
-                Term::Fun(name.clone(), order + 1, args.clone()),
-                Term::Der(i.clone(), p.clone(), Box::new(arg.clone())),
-            ]),
-            _ => Term::zero(),
-        },
+        // ∂_i F(u_1, …) = Σ_k ∂_k F(u_1, …) ∂_i u_k; ₂F₁ moves with its
+        // argument z only, its parameters are free of points (lowering
+        // makes sure of it).
+        Term::Fun(name, orders, args) => {
+            let hypergeometric = atom.as_hyp2f1().is_some();
+            let mut parts = Vec::new();
+            for (k, arg) in args.iter().enumerate() {
+                if !arg.mentions_point(p) {
+                    continue;
+                }
+                if hypergeometric && k < 3 {
+                    return Err(crate::diagnostic::Error::new(
+                        crate::diagnostic::ErrorKind::Unsupported,
+                        "the parameters a, b, c of ₂F₁(a, b; c; z) cannot depend on a point: only z may",
+                    ));
+                }
+                let mut raised = orders.clone();
+                raised[k] += 1;
+                parts.push(Term::Mul(vec![
+                    Term::Fun(name.clone(), raised, args.clone()),
+                    Term::Der(i.clone(), p.clone(), Box::new(arg.clone())),
+                ]));
+            }
+            Term::Add(parts)
+        }
         // ∂_i a^E = E a^E a^(-1) ∂_i a.
         Term::Pow(base, e) => Term::Mul(vec![
             (**e).clone(),

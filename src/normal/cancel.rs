@@ -328,3 +328,89 @@ mod tests {
         assert_eq!(cancel_sums(p.clone()), p);
     }
 }
+
+/// Most monomials a coefficient may have for [`vanishes`] to try it.
+const MAX_VANISH_TERMS: usize = 4096;
+/// Most monomials the numerator over the common denominator may reach.
+const MAX_VANISH_PRODUCT: usize = 200_000;
+
+/// True if the coefficient is zero as a rational function: over the
+/// product of its denominators (the sums it carries to negative whole
+/// powers, each to the highest power it has), with every sum carried to a
+/// whole power multiplied out, the numerator has no monomial left. The
+/// other atoms (parameters, distances, symbolic powers, functions) are
+/// taken as independent variables, so a zero numerator is a zero function
+/// wherever the denominators are not zero; a numerator that is not zero
+/// proves nothing (`false`), nor does a coefficient past the size limits.
+pub(super) fn vanishes(poly: &Poly) -> bool {
+    let mut current = poly.clone();
+    // Sums inside sums: a few rounds clear nested denominators.
+    for _ in 0..3 {
+        if current.is_empty() {
+            return true;
+        }
+        if current.len() > MAX_VANISH_TERMS {
+            return false;
+        }
+        match clear_denominators(&current) {
+            Some(next) if next != current => current = next,
+            _ => return current.is_empty(),
+        }
+    }
+    current.is_empty()
+}
+
+/// One round of [`vanishes`]: the numerator over the common denominator,
+/// sums to whole powers expanded; `None` past the limits.
+fn clear_denominators(poly: &Poly) -> Option<Poly> {
+    // The sums carried to whole powers, and the highest inverse power of each.
+    let mut sums: BTreeMap<Term, (Poly, i64)> = BTreeMap::new();
+    for atoms in poly.keys() {
+        for (key, e) in atoms {
+            if !matches!(key, Term::Add(_) | Term::Mul(_)) || !e.is_integer() {
+                continue;
+            }
+            let Some(p) = scalar_poly(key) else { continue };
+            let e = num_traits::ToPrimitive::to_i64(&e.to_integer())?;
+            let entry = sums.entry(key.clone()).or_insert((p, 0));
+            entry.1 = entry.1.max(-e);
+        }
+    }
+    if sums.is_empty() || sums.len() > 8 || sums.values().any(|(_, e)| *e > 8) {
+        return (sums.is_empty()).then(|| poly.clone());
+    }
+    let mut out = Poly::new();
+    let mut spent = 0usize;
+    for (atoms, c) in poly {
+        let mut term = Poly::from([(Atoms::new(), c.clone())]);
+        let mut rest = atoms.clone();
+        for (key, (p, lift)) in &sums {
+            // A whole power of the sum is multiplied out; a fractional one
+            // stays an atom. Either way the monomial is lifted over the
+            // common denominator.
+            let own = match atoms.get(key) {
+                Some(e) if e.is_integer() => {
+                    rest.remove(key);
+                    num_traits::ToPrimitive::to_i64(&e.to_integer())?
+                }
+                _ => 0,
+            };
+            for _ in 0..own + lift {
+                term = multiply(&term, p);
+                spent = spent.saturating_add(term.len());
+            }
+            if spent > MAX_VANISH_PRODUCT {
+                return None;
+            }
+        }
+        let term = multiply(&term, &Poly::from([(rest, BigRational::one())]));
+        for (m, v) in term {
+            *out.entry(m).or_insert_with(BigRational::zero) += v;
+        }
+        if out.len() > MAX_VANISH_PRODUCT {
+            return None;
+        }
+    }
+    out.retain(|_, c| !c.is_zero());
+    Some(out)
+}

@@ -93,6 +93,17 @@ fn contact_terms(cx: &Norm, i: &Index, x: &Point, body: &[Mono]) -> Result<Vec<M
             if !atom.mentions_point(x) {
                 continue;
             }
+            // A function (unknown, or ₂F₁) may be singular near every other
+            // interior point its arguments name: each is a coincidence.
+            if let Term::Fun(_, _, args) = atom {
+                for q in function_points(cx, x, args) {
+                    cx.caveat(Coincidence {
+                        var: x.clone(),
+                        at: Singular::Point(q),
+                    });
+                }
+                continue;
+            }
             match classify(cx, x, atom, e) {
                 Kind::Smooth | Kind::Wall => {}
                 Kind::At(p) => {
@@ -276,19 +287,28 @@ fn classify(cx: &Norm, x: &Point, atom: &Term, e: &BigRational) -> Kind {
         // An unknown function may be singular wherever its argument
         // reaches a special value: near every other interior point its
         // arguments name.
-        Term::Fun(_, _, args) => {
-            let mut others: Vec<Point> = Vec::new();
-            for arg in args {
-                points_in(arg, &mut others);
-            }
-            others.retain(|q| q.name != x.name && !q.par && !cx.is_boundary_point(q));
-            match others.into_iter().next() {
-                Some(q) if !cx.is_boundary_point(x) => Kind::Unknown(Singular::Point(q)),
-                _ => Kind::Smooth,
-            }
-        }
+        Term::Fun(_, _, args) => match function_points(cx, x, args).into_iter().next() {
+            Some(q) => Kind::Unknown(Singular::Point(q)),
+            None => Kind::Smooth,
+        },
         _ => Kind::Smooth,
     }
+}
+
+/// The other interior points the arguments of a function name, seen from
+/// x (none from a point on the wall, where contact terms are not written).
+fn function_points(cx: &Norm, x: &Point, args: &[Term]) -> BTreeSet<Point> {
+    if cx.is_boundary_point(x) {
+        return BTreeSet::new();
+    }
+    let mut others: Vec<Point> = Vec::new();
+    for arg in args {
+        points_in(arg, &mut others);
+    }
+    others
+        .into_iter()
+        .filter(|q| q.name != x.name && !q.par && !cx.is_boundary_point(q))
+        .collect()
 }
 
 fn is_even(e: &BigRational) -> bool {

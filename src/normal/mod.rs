@@ -18,6 +18,7 @@ mod cancel;
 mod contract;
 mod distribution;
 mod flux;
+pub mod hypergeometric;
 mod integrate;
 mod local;
 mod monomial;
@@ -44,6 +45,25 @@ pub fn monomials(ctx: &Context, t: &Term) -> Result<Vec<Mono>> {
     let _work = crate::budget::Work::enter();
     let cx = Norm::new(ctx);
     Ok(merge(canonical(&cx, expand(&cx, t)?)))
+}
+
+/// True if a normal form is zero as a function although its monomials did
+/// not cancel: for each product of factors, the coefficient over the
+/// common denominator of the sums it divides by has a zero numerator
+/// ([`cancel`]'s `vanishes`). `false` proves nothing.
+pub fn vanishes_identically(ctx: &Context, t: &Term) -> bool {
+    let Ok(monos) = monomials(ctx, t) else {
+        return false;
+    };
+    let mut groups: BTreeMap<Vec<Term>, cancel::Poly> = BTreeMap::new();
+    for m in monos {
+        let poly = groups.entry(m.factors).or_default();
+        *poly.entry(m.atoms).or_insert_with(BigRational::zero) += m.coef;
+    }
+    groups.into_values().all(|mut poly| {
+        poly.retain(|_, c| !c.is_zero());
+        cancel::vanishes(&poly)
+    })
 }
 
 /// A normal form and where it is established only away from coincident
@@ -340,13 +360,16 @@ fn expand(ctx: &Norm, t: &Term) -> Result<Vec<Mono>> {
                 )]
             }
         }
-        Term::Fun(name, order, args) => {
+        Term::Fun(name, orders, args) => {
             let args = args
                 .iter()
                 .map(|a| normalize_in(ctx, a))
                 .collect::<Result<Vec<_>>>()?;
+            if let Some((_, k)) = t.as_hyp2f1() {
+                return hypergeometric::expand_hyp2f1(ctx, &args, k);
+            }
             vec![Mono::atom(
-                Term::Fun(name.clone(), *order, args),
+                Term::Fun(name.clone(), orders.clone(), args),
                 BigRational::one(),
             )]
         }

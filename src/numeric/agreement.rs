@@ -96,8 +96,28 @@ impl Value {
     }
 }
 
+/// In JSON: every field (a number that is not finite as `null`), with
+/// `evaluations` for `nodes`, and `loss`, why the value is not known (or
+/// `null`).
+impl serde::Serialize for Value {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        use serde::ser::SerializeStruct;
+        let mut m = s.serialize_struct("Value", 8)?;
+        m.serialize_field("value", &self.value)?;
+        m.serialize_field("error", &self.error)?;
+        m.serialize_field("rounding", &self.rounding)?;
+        m.serialize_field("evaluations", &self.nodes)?;
+        m.serialize_field("scale", &self.scale)?;
+        m.serialize_field("terms", &self.terms)?;
+        m.serialize_field("underflow", &self.underflow)?;
+        m.serialize_field("loss", &self.loss())?;
+        m.end()
+    }
+}
+
 /// Why a value is not known.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
 pub enum Loss {
     /// An intermediate result was too large for f64.
     Overflow,
@@ -109,8 +129,10 @@ pub enum Loss {
     Cancellation,
 }
 
-/// The verdict on two numbers.
-#[derive(Clone, Debug, PartialEq)]
+/// The verdict on two numbers. In JSON `{"verdict": "agree"}`, or
+/// `{"verdict": "unknown", "reason": "…"}`.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+#[serde(tag = "verdict", content = "reason", rename_all = "snake_case")]
 pub enum Agreement {
     Agree,
     Disagree,

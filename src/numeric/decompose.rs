@@ -28,8 +28,9 @@ pub const DECOMPOSE_TOLERANCE: f64 = 1e-9;
 /// Most dimensions a tower may expand to.
 pub const MAX_BLOCKS: usize = 60;
 
-/// A fitted block expansion.
-#[derive(Clone, Debug, PartialEq)]
+/// A fitted block expansion (in JSON every field; `rows` as `[ξ, G,
+/// expansion]` triples).
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
 pub struct Decomposition {
     pub channel: Channel,
     /// The dimension Δ of the external operators.

@@ -12,6 +12,7 @@ pub mod agreement;
 pub mod decompose;
 pub mod eval;
 pub mod models;
+pub mod nonzero;
 pub mod quadrature;
 pub mod session;
 pub mod special;

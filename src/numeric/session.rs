@@ -21,14 +21,14 @@ use super::agreement::{
 };
 use super::eval::compile;
 use super::models::conformal::{Conformal, Convention};
-use super::models::free_scalar::{Composite, FreeScalar, Mapping, Wall};
+use super::models::free_scalar::{Composite, FreeScalar, Mapping, Reflection, Wall};
 use super::models::{apply, pointwise_pairs, sphere_area, Model, SPHERE_AREA};
 use super::quadrature::{integrate, Surface, Tolerance, MAX_DIM, MIN_DIM};
 use super::Values;
 use crate::context::{Context, IndexKind, DIMENSION, STRESS_TENSOR};
 use crate::diagnostic::{Error, ErrorKind, Result};
 use crate::engine::{Engine, Solved, Verdict};
-use crate::lower::{ModelChoice, NumericSpec};
+use crate::lower::{Family, ModelChoice, NumericSpec};
 use crate::normal::{normalize_pointwise as normalize, Coincidence, Singular};
 use crate::term::{Index, Integral, Point, Region, Term};
 
@@ -75,7 +75,7 @@ pub struct Solution {
 }
 
 /// A scan: for each value of the parameter, every component of both sides.
-#[derive(Clone, Debug, PartialEq)]
+#[derive(Clone, Debug, Default, PartialEq)]
 pub struct Scan {
     pub param: String,
     /// One label per component (`nu=0`, or empty for a scalar).
@@ -85,6 +85,10 @@ pub struct Scan {
     /// Per row, per component: the relative difference of the two sides
     /// and the agreement rule's verdict.
     pub judged: Vec<Vec<(f64, Agreement)>>,
+    /// Per row: the error estimate of each component of the left and the
+    /// right side (quadrature error plus rounding bound; empty when not
+    /// kept).
+    pub errors: Vec<(Vec<f64>, Vec<f64>)>,
 }
 
 /// A local identity checked insertion by insertion.
@@ -557,6 +561,7 @@ impl<'a> Session<'a> {
             |_, &x| {
                 let mut values = base.clone();
                 values.scalars.insert(param.to_string(), x);
+                place_moving(self.ctx, &mut values)?;
                 let l = self.evaluate_with(lhs, free, &values)?;
                 let r = self.evaluate_with(rhs, free, &values)?;
                 Ok::<_, Error>((x, l, r))
@@ -565,6 +570,7 @@ impl<'a> Session<'a> {
         );
         let mut rows = Vec::with_capacity(steps);
         let mut judged = Vec::with_capacity(steps);
+        let mut errors = Vec::with_capacity(steps);
         let mut labels = Vec::new();
         for result in results {
             let (x, l, r) = result?;
@@ -585,6 +591,13 @@ impl<'a> Session<'a> {
                 l.components.iter().map(|(_, v)| v.value).collect(),
                 r.components.iter().map(|(_, v)| v.value).collect(),
             ));
+            let uncertain = |e: &Evaluation| -> Vec<f64> {
+                e.components
+                    .iter()
+                    .map(|(_, v)| v.error + v.rounding)
+                    .collect()
+            };
+            errors.push((uncertain(&l), uncertain(&r)));
             judged.push(
                 l.components
                     .iter()
@@ -598,6 +611,7 @@ impl<'a> Session<'a> {
             labels,
             rows,
             judged,
+            errors,
         })
     }
 
@@ -980,6 +994,7 @@ pub fn build_model(
             dirichlet,
             unimproved,
             fields,
+            family,
         } => {
             let mut mapping = Mapping::new();
             for (name, composite) in fields {
@@ -988,12 +1003,27 @@ pub fn build_model(
                     "phi2" => Composite::FieldSquared,
                     "boundary-phi" => Composite::BoundaryField,
                     "boundary-dphi" => Composite::BoundaryNormalDerivative,
+                    "boundary-tn" => Composite::WallStress,
+                    "chi" => Composite::Chi,
                     _ => Composite::BoundaryFieldSquared,
                 };
                 mapping = mapping.with(name, c);
             }
             let wall = dirichlet.map(|d| if d { Wall::Dirichlet } else { Wall::Neumann });
-            let mut model = FreeScalar::new(wall, mapping);
+            let mut model = match family {
+                None => FreeScalar::new(wall, mapping),
+                Some(Family::Reflection(rho)) => {
+                    FreeScalar::reflecting(Reflection::constant(rho.clone()), mapping)
+                }
+                Some(Family::Coupling { dirichlet, g }) => {
+                    let side = if *dirichlet {
+                        Wall::Dirichlet
+                    } else {
+                        Wall::Neumann
+                    };
+                    FreeScalar::reflecting(Reflection::coupled(side, g.clone(), ctx), mapping)
+                }
+            };
             if *unimproved {
                 model = model.unimproved();
             }
@@ -1036,6 +1066,19 @@ fn values(ctx: &Context, spec: &NumericSpec) -> Result<Values> {
             ));
         }
     }
+    for name in ctx.params.keys() {
+        if let Some(k) = crate::lower::unit_vector_component(name) {
+            if k >= dim {
+                return Err(Error::new(
+                    ErrorKind::Numeric,
+                    format!("component {k} does not exist in dimension {dim}: components run from 0 to {}", dim - 1),
+                ));
+            }
+            let mut e = vec![0.0; dim];
+            e[k] = 1.0;
+            out.tensors.insert(name.clone(), e);
+        }
+    }
     out.scalars
         .insert(SPHERE_AREA.to_string(), sphere_area(dim));
     out.scalars.insert(DIMENSION.to_string(), dim as f64);
@@ -1048,7 +1091,54 @@ fn values(ctx: &Context, spec: &NumericSpec) -> Result<Values> {
                 .collect(),
         );
     }
+    place_moving(ctx, &mut out)?;
     Ok(out)
+}
+
+/// Works out the positions that depend on parameters (`place x at (0, 0,
+/// h)`) from the parameters' current values. A point whose parameters have
+/// no value yet (a `scan` gives them) stays unplaced.
+fn place_moving(ctx: &Context, values: &mut Values) -> Result<()> {
+    for (name, coords) in &ctx.moving {
+        fn known(t: &Term, values: &Values) -> bool {
+            match t {
+                Term::Sym(s) => values.scalars.contains_key(s),
+                Term::Add(ts) | Term::Mul(ts) => ts.iter().all(|t| known(t, values)),
+                Term::Pow(a, b) => known(a, values) && known(b, values),
+                _ => true,
+            }
+        }
+        let known = coords.iter().all(|c| known(c, values));
+        if !known {
+            values.points.remove(name);
+            continue;
+        }
+        let mut at = Vec::with_capacity(coords.len());
+        for c in coords {
+            at.push(compile(ctx, c, &[], values.dim)?.eval(values)?);
+        }
+        if at.len() != values.dim {
+            return Err(Error::new(
+                ErrorKind::Numeric,
+                format!(
+                    "`{name}` is placed with {} coordinates in dimension {}",
+                    at.len(),
+                    values.dim
+                ),
+            ));
+        }
+        if let Some(y) = at.last().filter(|_| ctx.has_halfspace()) {
+            if y.is_nan() || *y <= 0.0 {
+                return Err(Error::new(
+                    ErrorKind::Placement,
+                    format!("`{name}` is at distance {y} from the wall: a bulk point must be above it"),
+                )
+                .with_note("its position depends on a parameter; keep the parameter where the normal coordinate is positive"));
+            }
+        }
+        values.points.insert(name.clone(), at);
+    }
+    Ok(())
 }
 
 /// `count` sets of values: declared positions kept, the other points at

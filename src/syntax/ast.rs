@@ -6,7 +6,8 @@
 use num_rational::BigRational;
 
 /// The channel of a block expansion next to a wall.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
 pub enum Channel {
     /// Bulk operators exchanged (x1 → x2): the identity and bulk blocks.
     Bulk,
@@ -147,12 +148,18 @@ pub enum ExprKind {
         par: bool,
         indices: Vec<Name>,
     },
-    /// A function call `F(u)`, `F'(u)` (primes count derivatives), or the
-    /// built-in `xi(x1, x2)`.
+    /// A function call `F(u)`, `F'(u)` (primes count derivatives),
+    /// `F[1,0](u, v)` (derivatives by argument), or a built-in: `xi(x1, x2)`,
+    /// `F21(a, b; c; z)`, the blocks `f_bulk(Δ; ξ)` and `f_bdy(Δ̂; ξ)`.
     Call {
         name: Name,
         primes: u32,
+        /// `[1,0]` after the name: how often each argument is
+        /// differentiated.
+        orders: Option<Vec<u32>>,
         args: Vec<Expr>,
+        /// The separator after each argument but the last: `,` or `;`.
+        separators: Vec<char>,
     },
     /// `∫[x in REGION] { body }`, or with `surface`, `∮[x on REGION] { body }`.
     Integral {
@@ -217,6 +224,10 @@ pub enum ModelSpec {
         wall: Option<String>,
         unimproved: bool,
         fields: Vec<(Name, String)>,
+        /// `reflection r`: the reflection coefficient.
+        reflection: Option<Box<Expr>>,
+        /// `neumann coupling g` / `dirichlet coupling g`: the coupling to χ.
+        coupling: Option<Box<Expr>>,
     },
     /// Generalised free fields, with a wall (`dirichlet`/`neumann` image
     /// sign) or without.
@@ -273,7 +284,8 @@ pub enum Stmt {
         boundary: bool,
         names: Vec<Name>,
     },
-    Parameters(Vec<Name>),
+    /// Names with the indices written after them (none for a scalar).
+    Parameters(Vec<(Name, Vec<Name>)>),
     /// `positive r g`: parameters known to be positive (declared here if
     /// they are not yet).
     Positive(Vec<Name>),
@@ -296,9 +308,11 @@ pub enum Stmt {
     },
     /// `function F G`: unknown functions of one variable.
     Functions(Vec<Name>),
-    /// `let NAME = EXPR`: a named expression, substituted where it is used.
+    /// `let NAME = EXPR`: a named expression, substituted where it is used;
+    /// `let NAME(t, …) = EXPR`: a function of its parameters.
     Let {
         name: Name,
+        params: Vec<Name>,
         expr: Expr,
     },
     /// `killing eps GENERATOR`.

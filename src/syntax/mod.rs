@@ -473,7 +473,7 @@ fn found_at(text: &str, offset: usize) -> (String, usize) {
 /// Tokens that can start a primary expression.
 const OPERAND_STARTS: &[&str] = &[
     "(", "<", "⟨", "∂", "del", "δ", "delta", "n", "sum", "?", "a name", "a number", "|", "∫",
-    "int", "∮", "oint", "par",
+    "int", "∮", "oint", "par", "₂F₁",
 ];
 /// Keywords that start a statement of a `.ward` file.
 pub(crate) const STATEMENT_STARTS: &[&str] = &[
@@ -591,7 +591,7 @@ fn hints(rules: &[Rule]) -> Vec<&'static str> {
                 "a region is `space`, `halfspace`, `boundary` or `ball(x1, r)` (centre and radius)"
             }
             Rule::distance => "a distance is written `|x1 - x2|`, between two points, and a length `|x1|`",
-            Rule::call => "a function is called with its argument in parentheses: `F(u)`, `F'(u)`, `xi(x1, x2)`",
+            Rule::call | Rule::fun_orders => "a function is called with its arguments in parentheses: `F(u)`, `F'(u)`, `F[1,0](u, v)`, `xi(x1, x2)`, `F21(a, b; c; z)`",
             Rule::killing_decl
             | Rule::generator
             | Rule::gen_translation
@@ -605,7 +605,7 @@ fn hints(rules: &[Rule]) -> Vec<&'static str> {
             Rule::mixing_dir => "the rotation mixing n with a direction along the boundary names that direction: `killing eps rotation n e`",
             Rule::place_stmt => "a placement reads `place x2 inside ball(x1, r)` (or `outside`, `on`)",
             Rule::derivation_stmt | Rule::derivation_step => "a derivation reads `derivation NAME`, the starting expression, one `= STEP` per step (optionally `by RULE, …`), and closes with `end`",
-            Rule::let_stmt => "a named expression reads `let G = EXPRESSION`",
+            Rule::let_stmt | Rule::let_params => "a named expression reads `let G = EXPRESSION`, a function of t `let f(t) = EXPRESSION`",
             Rule::rule | Rule::conditions => "a rule reads `rule NAME [when CONDITIONS] from PATTERN to TEMPLATE`",
             _ => continue,
         };
@@ -713,7 +713,19 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                 names: inner.map(parse_name).collect(),
             }
         }
-        Rule::parameters_decl => Stmt::Parameters(inner.map(parse_name).collect()),
+        Rule::parameters_decl => Stmt::Parameters(
+            inner
+                .map(|item| {
+                    let mut parts = item.into_inner();
+                    let name = parse_name(parts.next().expect("parameter name"));
+                    let indices = parts
+                        .next()
+                        .map(|ix| ix.into_inner().map(parse_name).collect())
+                        .unwrap_or_default();
+                    (name, indices)
+                })
+                .collect(),
+        ),
         Rule::positive_decl => Stmt::Positive(inner.map(parse_name).collect()),
         Rule::parallel_decl => Stmt::Parallel(inner.map(parse_name).collect()),
         Rule::rules_decl => {
@@ -735,8 +747,14 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
         Rule::function_decl => Stmt::Functions(inner.map(parse_name).collect()),
         Rule::let_stmt => {
             let name = parse_name(next(&mut inner));
-            let expr = build_expr(source, next(&mut inner), 0)?;
-            Stmt::Let { name, expr }
+            let mut params = Vec::new();
+            let mut body = next(&mut inner);
+            if body.as_rule() == Rule::let_params {
+                params = body.into_inner().map(parse_name).collect();
+                body = next(&mut inner);
+            }
+            let expr = build_expr(source, body, 0)?;
+            Stmt::Let { name, params, expr }
         }
         Rule::classify_stmt => Stmt::Classify {
             name: parse_name(next(&mut inner)),
@@ -797,10 +815,22 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                 let mut wall = None;
                 let mut unimproved = false;
                 let mut fields = Vec::new();
+                let mut reflection = None;
+                let mut coupling = None;
                 for part in model.into_inner() {
                     match part.as_rule() {
                         Rule::wall_kind => wall = Some(part.as_str().to_string()),
                         Rule::unimproved => unimproved = true,
+                        Rule::reflection | Rule::coupling => {
+                            let which = part.as_rule();
+                            let value = next(&mut part.into_inner());
+                            let expr = climb(source, &mut value.into_inner().peekable(), 0, 0)?;
+                            if which == Rule::reflection {
+                                reflection = Some(Box::new(expr));
+                            } else {
+                                coupling = Some(Box::new(expr));
+                            }
+                        }
                         _ => {
                             let mut kv = part.into_inner();
                             let name = parse_name(next(&mut kv));
@@ -812,6 +842,8 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                     wall,
                     unimproved,
                     fields,
+                    reflection,
+                    coupling,
                 }
             };
             Stmt::Model { spec, span }
@@ -1220,11 +1252,40 @@ fn parse_primary(source: &Arc<Source>, pair: Pair<Rule>, depth: usize) -> Result
                 inner.next();
                 primes += 1;
             }
-            let args = inner
-                .flat_map(|p| p.into_inner())
-                .map(|p| build_expr(source, p, depth))
-                .collect::<Result<_>>()?;
-            ExprKind::Call { name, primes, args }
+            let mut orders = None;
+            if inner.peek().map(|p| p.as_rule()) == Some(Rule::fun_orders) {
+                let list = next(&mut inner)
+                    .into_inner()
+                    .map(|n| {
+                        n.as_str().parse::<u32>().map_err(|_| {
+                            Error::at(
+                                ErrorKind::Syntax,
+                                source,
+                                span_of(&n),
+                                "a count of derivatives is a small whole number",
+                            )
+                            .with_label("not a count")
+                        })
+                    })
+                    .collect::<Result<Vec<u32>>>()?;
+                orders = Some(list);
+            }
+            let mut args = Vec::new();
+            let mut separators = Vec::new();
+            for p in inner.flat_map(|p| p.into_inner()) {
+                if p.as_rule() == Rule::arg_sep {
+                    separators.push(p.as_str().chars().next().unwrap_or(','));
+                } else {
+                    args.push(build_expr(source, p, depth)?);
+                }
+            }
+            ExprKind::Call {
+                name,
+                primes,
+                orders,
+                args,
+                separators,
+            }
         }
         Rule::integral | Rule::surface => {
             let depth = deeper(source, depth, span)?;

@@ -217,13 +217,27 @@ fn atom(ctx: &Context, t: &Term, out: &mut String) {
         Term::Add(_) | Term::Mul(_) => factor(ctx, t, out),
         Term::Dist(p, q) if q.is_origin() => out.push_str(&format!("|{}|", point(p))),
         Term::Dist(p, q) => out.push_str(&format!("|{} - {}|", point(p), point(q))),
-        Term::Fun(f, order, args) => {
-            out.push_str(&name(f));
-            out.push_str(&"'".repeat(*order as usize));
+        Term::Fun(f, orders, args) => {
+            let hypergeometric = t.as_hyp2f1().is_some();
+            if hypergeometric {
+                out.push_str("{}_2F_1");
+            } else {
+                out.push_str(&name(f));
+            }
+            match &orders[..] {
+                [k] | [0, 0, 0, k] if orders.len() == 1 || hypergeometric => {
+                    out.push_str(&"'".repeat(*k as usize));
+                }
+                _ if orders.iter().any(|k| *k > 0) => {
+                    let list: Vec<String> = orders.iter().map(u32::to_string).collect();
+                    out.push_str(&format!("^{{({})}}", list.join(",")));
+                }
+                _ => {}
+            }
             out.push_str("\\left(");
             for (k, a) in args.iter().enumerate() {
                 if k > 0 {
-                    out.push_str(", ");
+                    out.push_str(if hypergeometric && k >= 2 { "; " } else { ", " });
                 }
                 sum(ctx, a, out);
             }
@@ -352,7 +366,7 @@ const GREEK: &[&str] = &[
 ];
 
 /// `Delta1` → `\Delta_{1}`, `x2` → `x_{2}`, `omega` → `\omega`.
-fn name(n: &str) -> String {
+pub(crate) fn name(n: &str) -> String {
     let stem = n.trim_end_matches(|c: char| c.is_ascii_digit());
     let digits = &n[stem.len()..];
     let base = if GREEK.contains(&stem) {

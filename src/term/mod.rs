@@ -6,6 +6,7 @@
 //! The derived order is structural and deterministic: names compare as
 //! strings, points by declaration rank, never by interned ids.
 
+pub mod diff;
 pub mod latex;
 pub mod print;
 
@@ -26,6 +27,15 @@ pub struct Point {
 
 /// A name inside terms: cheap to clone, compared as a string.
 pub type Name = std::sync::Arc<str>;
+
+/// The name of the Gauss hypergeometric function ₂F₁(a, b; c; z) inside
+/// terms, as `Term::Fun(HYP2F1, [0, 0, 0, k], [a, b, c, z])` for its k-th
+/// derivative in z. No declared name can take it: it does not start with a
+/// letter. It is written `F21(a, b; c; z)` or `₂F₁(a, b; c; z)`.
+pub const HYP2F1: &str = "₂F₁";
+
+/// The ASCII spelling of [`HYP2F1`].
+pub const HYP2F1_ASCII: &str = "F21";
 
 /// The name of the origin of coordinates (on the wall, when there is one).
 /// No declared point can take it: names start with a letter.
@@ -104,8 +114,11 @@ pub enum Term {
     Add(Vec<Term>),
     /// The distance |p - q| (p before q).
     Dist(Point, Point),
-    /// An unknown function, differentiated `order` times, at its arguments.
-    Fun(String, u32, Vec<Term>),
+    /// A function at its arguments, differentiated `orders[k]` times with
+    /// respect to argument k (`orders` has one entry per argument): an
+    /// unknown function of one or several variables, or the Gauss
+    /// hypergeometric function [`HYP2F1`] (differentiated in z only).
+    Fun(String, Vec<u32>, Vec<Term>),
     /// The coordinate p[i] of a point (p[n] is its normal coordinate y).
     Comp(Point, Index),
     /// A component of a declared parameter vector or tensor: a[i], ω[i,j].
@@ -153,6 +166,22 @@ pub enum Region {
 }
 
 impl Term {
+    /// ₂F₁(a, b; c; z) differentiated `k` times in z.
+    pub fn hyp2f1(k: u32, a: Term, b: Term, c: Term, z: Term) -> Term {
+        Term::Fun(HYP2F1.into(), vec![0, 0, 0, k], vec![a, b, c, z])
+    }
+
+    /// The parameters, argument and z-order of a ₂F₁ term.
+    pub fn as_hyp2f1(&self) -> Option<([&Term; 4], u32)> {
+        match self {
+            Term::Fun(name, orders, args) if name == HYP2F1 => match (&orders[..], &args[..]) {
+                ([0, 0, 0, k], [a, b, c, z]) => Some(([a, b, c, z], *k)),
+                _ => None,
+            },
+            _ => None,
+        }
+    }
+
     pub fn int(n: i64) -> Term {
         Term::Num(BigRational::from_integer(n.into()))
     }
@@ -201,6 +230,20 @@ impl Term {
 }
 
 impl Term {
+    /// True if the term mentions any point (a distance, a coordinate, a
+    /// δ-function, a derivative, a correlator or an integral).
+    pub fn mentions_any_point(&self) -> bool {
+        match self {
+            Term::Num(_) | Term::Sym(_) | Term::Normal(_) | Term::Kron(..) => false,
+            Term::Param(..) | Term::OutNormal(_) => false,
+            Term::Pow(a, b) => a.mentions_any_point() || b.mentions_any_point(),
+            Term::Mul(ts) | Term::Add(ts) | Term::Fun(_, _, ts) => {
+                ts.iter().any(Term::mentions_any_point)
+            }
+            _ => true,
+        }
+    }
+
     /// A copy with every point passed through `point` and every index
     /// through `index`, everywhere inside, except the body of an integral
     /// that binds a point named `shadowed` (its points are not the outer
@@ -218,8 +261,8 @@ impl Term {
             Term::Mul(ts) => Term::Mul(ts.iter().map(sub).collect()),
             Term::Add(ts) => Term::Add(ts.iter().map(sub).collect()),
             Term::Dist(a, b) => Term::Dist(point(a), point(b)),
-            Term::Fun(name, order, args) => {
-                Term::Fun(name.clone(), *order, args.iter().map(sub).collect())
+            Term::Fun(name, orders, args) => {
+                Term::Fun(name.clone(), orders.clone(), args.iter().map(sub).collect())
             }
             Term::Comp(p, i) => Term::Comp(point(p), index(i)),
             Term::Param(name, indices) => {

@@ -247,15 +247,33 @@ impl<'a> Printer<'a> {
                 }
                 out.push('|');
             }
-            Term::Fun(name, order, args) => {
-                out.push_str(name);
-                for _ in 0..*order {
-                    out.push('\'');
+            Term::Fun(name, orders, args) => {
+                let hypergeometric = t.as_hyp2f1().is_some();
+                if hypergeometric && !self.unicode() {
+                    out.push_str(super::HYP2F1_ASCII);
+                } else {
+                    out.push_str(name);
+                }
+                match &orders[..] {
+                    // F'(u), ₂F₁'(a, b; c; z): primes count derivatives in
+                    // the one variable.
+                    [k] | [0, 0, 0, k] if orders.len() == 1 || hypergeometric => {
+                        out.push_str(&"'".repeat(*k as usize));
+                    }
+                    // F[1,0](u, v): derivatives by argument.
+                    _ if orders.iter().any(|k| *k > 0) => {
+                        let list: Vec<String> = orders.iter().map(u32::to_string).collect();
+                        out.push('[');
+                        out.push_str(&list.join(","));
+                        out.push(']');
+                    }
+                    _ => {}
                 }
                 out.push('(');
                 for (k, a) in args.iter().enumerate() {
                     if k > 0 {
-                        out.push_str(", ");
+                        // ₂F₁(a, b; c; z)
+                        out.push_str(if hypergeometric && k >= 2 { "; " } else { ", " });
                     }
                     self.sum(a, out);
                 }

@@ -525,9 +525,35 @@ impl<'a> Model<'a> {
                 }
                 s.sqrt()
             }
-            Term::Fun(name, order, args) => {
-                let [arg] = &args[..] else {
-                    panic!("unknown functions take one argument: {t:?}")
+            Term::Fun(..) if t.as_hyp2f1().is_some() => {
+                // ₂F₁^(k) composed with its argument's jet; its derivatives
+                // from numeric::special (DLMF 15.5.2 for the k-th).
+                let Some(([a, b, c, z], k)) = t.as_hyp2f1() else {
+                    unreachable!()
+                };
+                let [a, b, c] = [a, b, c].map(|p| self.term(p, env).value());
+                let z = self.term(z, env);
+                let mut derivs = [0.0; GENS + 1];
+                for (m, slot) in derivs.iter_mut().enumerate() {
+                    *slot = hyp2f1_derivative(a, b, c, z.value(), k + m as u32);
+                }
+                z.compose(&derivs)
+            }
+            Term::Fun(_, orders, args) if args.len() == 2 => {
+                // A function of two variables: F(u, v) = exp(-u)/(1 + v),
+                // ∂_u^i ∂_v^j F = (-1)^(i+j) j! exp(-u) (1 + v)^(-1-j).
+                let (u, v) = (self.term(&args[0], env), self.term(&args[1], env));
+                let (i, j) = (orders[0], orders[1]);
+                let sign = if (i + j) % 2 == 0 { 1.0 } else { -1.0 };
+                let factorial: f64 = (1..=j).map(f64::from).product();
+                u.scale(-1.0)
+                    .exp()
+                    .mul(&v.add(&Jet::constant(1.0)).powf(-1.0 - f64::from(j)))
+                    .scale(sign * factorial)
+            }
+            Term::Fun(name, orders, args) => {
+                let ([arg], [order]) = (&args[..], &orders[..]) else {
+                    panic!("unknown functions take one or two arguments here: {t:?}")
                 };
                 let f = self
                     .functions
@@ -877,4 +903,18 @@ pub fn derivatives_only_on_correlators(t: &Term) -> bool {
         Term::Integral(i) => derivatives_only_on_correlators(&i.body),
         _ => true,
     }
+}
+
+/// The k-th z-derivative of ₂F₁(a, b; c; z):
+/// (a)_k (b)_k/(c)_k ₂F₁(a + k, b + k; c + k; z) (DLMF 15.5.2).
+pub fn hyp2f1_derivative(a: f64, b: f64, c: f64, z: f64, k: u32) -> f64 {
+    let mut factor = 1.0;
+    for j in 0..k {
+        let j = f64::from(j);
+        factor *= (a + j) * (b + j) / (c + j);
+    }
+    let k = f64::from(k);
+    factor
+        * wardsmith::numeric::special::hyp2f1(a + k, b + k, c + k, z)
+            .unwrap_or_else(|e| panic!("₂F₁({a}, {b}; {c}; {z}): {e}"))
 }

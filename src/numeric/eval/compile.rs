@@ -686,6 +686,21 @@ impl<'c> Builder<'c> {
                 let normal = self.resolve(i, env)? == self.dim - 1;
                 Ok(Val::Const(if normal { 1.0 } else { 0.0 }))
             }
+            Term::Fun(..) if t.as_hyp2f1().is_some() => {
+                let Some(([a, b, c, z], k)) = t.as_hyp2f1() else {
+                    return Err(self.unevaluated(t));
+                };
+                let saved = self.enter(t);
+                let mut regs = [0; 4];
+                for (slot, arg) in regs.iter_mut().zip([a, b, c, z]) {
+                    let v = self.term(arg, env)?;
+                    *slot = self.reg(v)?;
+                }
+                let [a, b, c, z] = regs;
+                let v = self.emit(Op::Hyp { a, b, c, z, k });
+                self.origin = saved;
+                Ok(Val::Reg(v?))
+            }
             Term::Corr(_)
             | Term::DeltaFn(..)
             | Term::DeltaY(_)

@@ -255,6 +255,15 @@ pub(super) fn run(
                 let steps = 2.0 * (y.hi.abs() + 1.0).log2() + 4.0;
                 (v, v.hi.abs() * (relative + steps * EPS_DD))
             }
+            // ₂F₁ is known to f64 accuracy only: its value and bound
+            // come from f64, with the arguments rounded to it.
+            Op::Hyp { a, b, c, z, k } => {
+                let args = [a, b, c, z].map(|r| regs[r as usize].value());
+                let errs =
+                    [a, b, c, z].map(|r| err[r as usize] + EPS * regs[r as usize].value().abs());
+                let (v, e) = super::program::hyp_bounded(args, errs, k).ok()?;
+                (Dd::new(v), e)
+            }
         };
         if !v.hi.is_finite() || v.hi.abs() < f64::MIN_POSITIVE && v.hi != 0.0 {
             return None;

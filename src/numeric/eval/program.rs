@@ -39,6 +39,15 @@ pub(super) enum Op {
     Recip(Reg),
     /// x^e: fails for x = 0 with e < 0 and for x < 0 with e not whole.
     Pow(Reg, Reg),
+    /// The k-th z-derivative of ₂F₁(a, b; c; z), through
+    /// [`crate::numeric::special::hyp2f1`]: fails where that has no value.
+    Hyp {
+        a: Reg,
+        b: Reg,
+        c: Reg,
+        z: Reg,
+        k: u32,
+    },
 }
 
 impl Op {
@@ -55,6 +64,12 @@ impl Op {
                 f(q);
             }
             Op::Sqrt(a) | Op::Recip(a) => f(a),
+            Op::Hyp { a, b, c, z, .. } => {
+                f(a);
+                f(b);
+                f(c);
+                f(z);
+            }
         }
     }
 
@@ -365,6 +380,22 @@ impl Program {
                 x(a),
                 x(b)
             ),
+            Op::Hyp { a, b, c, z, k } => {
+                let why = hyp(x(a), x(b), x(c), x(z), k)
+                    .err()
+                    .map_or("it has no value there", |e| e.reason());
+                let derivative = match k {
+                    0 => String::new(),
+                    k => format!(" (its derivative of order {k} in z)"),
+                };
+                format!(
+                    "at a = {}, b = {}, c = {}, z = {}{derivative}: {why}",
+                    x(a),
+                    x(b),
+                    x(c),
+                    x(z)
+                )
+            }
             // The other operations cannot fail.
             _ => "the arithmetic failed".to_string(),
         };
@@ -583,6 +614,12 @@ fn run_bounded(
                 let e = v.abs() * (relative + x.abs().ln().abs() * ey + 4.0 * EPS);
                 (v, e, v.abs(), x != 0.0)
             }
+            Op::Hyp { a, b, c, z, k } => {
+                let args = [a, b, c, z].map(|r| regs[r as usize]);
+                let errs = [a, b, c, z].map(|r| err[r as usize]);
+                let (v, e) = hyp_bounded(args, errs, k).map_err(|_| Fault(*ins))?;
+                (v, e, v.abs(), v != 0.0)
+            }
         };
         if !v.is_finite() {
             loss.overflow = true;
@@ -640,6 +677,10 @@ fn run(code: &[Instr], regs: &mut [f64], dim: usize) -> std::result::Result<(), 
                 }
                 x.powf(e)
             }
+            Op::Hyp { a, b, c, z, k } => {
+                let x = |r: Reg| regs[r as usize];
+                hyp(x(a), x(b), x(c), x(z), k).map_err(|_| Fault(*ins))?
+            }
         };
         regs[ins.out as usize] = v;
     }
@@ -658,4 +699,71 @@ fn dist2(regs: &[f64], p: usize, q: usize, dim: usize, p_wall: bool, q_wall: boo
     let x = if p_wall { 0.0 } else { regs[p + last] };
     let y = if q_wall { 0.0 } else { regs[q + last] };
     s + (x - y) * (x - y)
+}
+
+/// The k-th derivative in z of ₂F₁(a, b; c; z):
+/// (a)_k (b)_k/(c)_k ₂F₁(a + k, b + k; c + k; z) (DLMF 15.5.2).
+pub(super) fn hyp(
+    a: f64,
+    b: f64,
+    c: f64,
+    z: f64,
+    k: u32,
+) -> std::result::Result<f64, crate::numeric::special::SpecialError> {
+    use crate::numeric::special::{hyp2f1, SpecialError};
+    let mut factor = 1.0;
+    for j in 0..k {
+        let j = f64::from(j);
+        if c + j == 0.0 {
+            return Err(SpecialError::ParameterPole);
+        }
+        factor *= (a + j) * (b + j) / (c + j);
+    }
+    if factor == 0.0 {
+        return Ok(0.0);
+    }
+    let k = f64::from(k);
+    let v = factor * hyp2f1(a + k, b + k, c + k, z)?;
+    if v.is_finite() {
+        Ok(v)
+    } else {
+        Err(SpecialError::Overflow)
+    }
+}
+
+/// Relative accuracy taken for ₂F₁ itself (its module's measured worst
+/// case, tests/special.rs).
+const HYP_ACCURACY: f64 = 1e-13;
+
+/// ₂F₁^(k) with a bound on its error: its own accuracy, and the errors of
+/// its arguments carried through its derivatives (in z exactly, in the
+/// parameters by a difference quotient). A derivative that has no value
+/// makes the bound infinite.
+pub(super) fn hyp_bounded(
+    [a, b, c, z]: [f64; 4],
+    [ea, eb, ec, ez]: [f64; 4],
+    k: u32,
+) -> std::result::Result<(f64, f64), crate::numeric::special::SpecialError> {
+    let v = hyp(a, b, c, z, k)?;
+    let mut e = HYP_ACCURACY * v.abs() + 4.0 * EPS * v.abs();
+    if ez > 0.0 {
+        e += match hyp(a, b, c, z, k + 1) {
+            Ok(dz) => dz.abs() * ez,
+            Err(_) => f64::INFINITY,
+        };
+    }
+    for (slot, err) in [(0, ea), (1, eb), (2, ec)] {
+        if err == 0.0 {
+            continue;
+        }
+        let mut p = [a, b, c];
+        let h = 1e-6 * p[slot].abs().max(1.0);
+        p[slot] += h;
+        let slope = match hyp(p[0], p[1], p[2], z, k) {
+            Ok(w) => ((w - v) / h).abs() * 2.0 + HYP_ACCURACY * (w.abs() + v.abs()) / h,
+            Err(_) => f64::INFINITY,
+        };
+        e += slope * err;
+    }
+    Ok((v, e))
 }

@@ -1,9 +1,17 @@
 //! The free massless scalar φ in R^d, or in the half-space y ≥ 0 with a
-//! Neumann (+) or Dirichlet (-) wall, by Wick contraction.
+//! Neumann (+) or Dirichlet (-) wall, or a wall with reflection
+//! coefficient ρ, by Wick contraction.
 //!
 //! Propagator, by the method of images (docs/conventions.md §4, common practice):
 //!
 //!   G(x, x') = C_φ ( |x - x'|^{2-d} ± |x - x̄'|^{2-d} ),  C_φ = 1/((d-2) S_d),
+//!
+//! and with a reflecting wall ρ in place of ±: the wall coupled to a
+//! boundary generalised free field χ of the marginal dimension, χ
+//! integrated out (docs/conventions.md §11, derived). χ itself is ∂_nφ/g
+//! (from the Neumann side) or -φ̂/g (from the Dirichlet side) inside
+//! correlators; its contractions carry the factors of g that keep them
+//! finite at g = 0, where χ is the free generalised free field.
 //!
 //! with |x - x̄'|² = |x - x'|² + 4 y y' written as a sum in the term (a power
 //! of a sum is a scalar atom the normaliser differentiates).
@@ -16,8 +24,10 @@
 //!
 //! the displacement operator D = T_nn at the wall (docs/conventions.md §4, derived):
 //! ½(∂_nφ)² for Dirichlet, -½(∂_aφ̂)² + ξ ∂_a∂_a φ̂² for Neumann (the sums
-//! over parallel a written as bulk sums minus the normal term), and the
-//! boundary values φ̂, ∂_nφ and :φ̂²:.
+//! over parallel a written as bulk sums minus the normal term), their sum
+//! for a reflecting wall, T_{nμ} at y → 0+ (whose parallel part is the flux
+//! of parallel momentum into the wall), the boundary values φ̂, ∂_nφ and
+//! :φ̂²:, and χ.
 //!
 //! Normal ordering: bulk composites are normal-ordered with respect to the
 //! vacuum without a boundary, so a self-contraction keeps only the image
@@ -91,6 +101,11 @@ pub enum Composite {
     BoundaryNormalDerivative,
     /// :φ̂²: at y = 0, normal-ordered on the wall.
     BoundaryFieldSquared,
+    /// T_{nμ} at y → 0+ (one index): D for μ = n, the flux of parallel
+    /// momentum into the wall for μ parallel.
+    WallStress,
+    /// The boundary field χ of a coupled wall.
+    Chi,
 }
 
 impl Composite {
@@ -101,12 +116,15 @@ impl Composite {
                 | Composite::BoundaryField
                 | Composite::BoundaryNormalDerivative
                 | Composite::BoundaryFieldSquared
+                | Composite::WallStress
+                | Composite::Chi
         )
     }
 
     fn rank(self) -> usize {
         match self {
             Composite::Stress => 2,
+            Composite::WallStress => 1,
             _ => 0,
         }
     }
@@ -120,6 +138,8 @@ impl Composite {
             Composite::BoundaryField => "φ̂",
             Composite::BoundaryNormalDerivative => "∂_n φ",
             Composite::BoundaryFieldSquared => ":φ̂²:",
+            Composite::WallStress => "T_nμ at the wall",
+            Composite::Chi => "χ",
         }
     }
 }
@@ -172,11 +192,75 @@ pub enum Normalisation {
     Given(Term),
 }
 
+/// A wall with reflection coefficient ρ: the image enters with ρ
+/// (docs/conventions.md §11).
+#[derive(Clone, Debug)]
+pub struct Reflection {
+    /// ρ, a term in the parameters.
+    pub rho: Term,
+    /// The boundary field the wall is coupled to, when there is one.
+    pub chi: Option<Chi>,
+}
+
+/// The boundary generalised free field χ of a coupled wall, unit-normalised
+/// at g = 0: ⟨χ(s) χ(s')⟩ = 1/|s - s'|^{2Δ_χ}.
+#[derive(Clone, Debug)]
+pub struct Chi {
+    /// `Neumann`: χ of dimension d/2 coupled to φ̂, χ = ∂_nφ/g;
+    /// `Dirichlet`: χ of dimension d/2 - 1 coupled to ∂_nφ, χ = -φ̂/g.
+    pub side: Wall,
+    /// The factor of a contraction of χ with φ: (1 - ρ)/(2g) or -(1 + ρ)/(2g).
+    one: Term,
+    /// The factor of a contraction of χ with χ: (1 - ρ)/(2g²) or (1 + ρ)/(2g²).
+    two: Term,
+}
+
+impl Reflection {
+    /// ρ given, no χ.
+    pub fn constant(rho: Term) -> Reflection {
+        Reflection { rho, chi: None }
+    }
+
+    /// The wall of `side` coupled with strength g to χ of the marginal
+    /// dimension, S = ½∫(∂φ)² + g∫ φ̂ χ (Neumann side) or g∫ χ ∂_nφ
+    /// (Dirichlet side), χ integrated out (docs/conventions.md §11, derived):
+    /// with u = g² S_d/2 (Neumann side) or u = g² (d-2) S_d/2 (Dirichlet
+    /// side), ρ = ±(1 - u)/(1 + u).
+    pub fn coupled(side: Wall, g: Term, ctx: &Context) -> Reflection {
+        let g2 = pow(g.clone(), Term::int(2));
+        // 2u = g² S_d or g² (d - 2) S_d; k = S_d or (d - 2) S_d.
+        let k = match side {
+            Wall::Neumann => sphere(),
+            Wall::Dirichlet => mul(vec![minus(ctx.dim(), Term::int(2)), sphere()]),
+        };
+        let two_u = mul(vec![g2, k.clone()]);
+        let over = inv(add(vec![Term::int(2), two_u.clone()]));
+        // ρ = (2 - 2u)/(2 + 2u), times -1 from the Dirichlet side.
+        let rho = mul(vec![
+            Term::int(side.sign()),
+            minus(Term::int(2), two_u),
+            over.clone(),
+        ]);
+        // Neumann side: (1 - ρ)/2 = u/(1 + u), so (1 - ρ)/(2g) = g k/(2 + 2u)
+        // and (1 - ρ)/(2g²) = k/(2 + 2u). Dirichlet side: (1 + ρ)/2 = u/(1 + u),
+        // χ = -φ̂/g: -(1 + ρ)/(2g) = -g k/(2 + 2u), (1 + ρ)/(2g²) = k/(2 + 2u).
+        let one = mul(vec![Term::int(side.sign()), g, k.clone(), over.clone()]);
+        let two = mul(vec![k, over]);
+        Reflection {
+            rho,
+            chi: Some(Chi { side, one, two }),
+        }
+    }
+}
+
 /// The free scalar.
 #[derive(Clone, Debug)]
 pub struct FreeScalar {
-    /// `None` in R^d; the file must then declare no half-space.
+    /// `None` in R^d (or with a reflecting wall); without a reflection the
+    /// file must then declare no half-space.
     pub wall: Option<Wall>,
+    /// A wall with reflection coefficient ρ, in place of `wall`.
+    pub reflection: Option<Reflection>,
     /// Improved T (ξ = (d-2)/(4(d-1))) or the canonical one (ξ = 0).
     pub improved: bool,
     pub normalisation: Normalisation,
@@ -205,9 +289,32 @@ impl FreeScalar {
     pub fn new(wall: Option<Wall>, mapping: Mapping) -> FreeScalar {
         FreeScalar {
             wall,
+            reflection: None,
             improved: true,
             normalisation: Normalisation::Canonical,
             mapping,
+        }
+    }
+
+    /// Canonically normalised, improved T, next to a reflecting wall.
+    pub fn reflecting(reflection: Reflection, mapping: Mapping) -> FreeScalar {
+        FreeScalar {
+            reflection: Some(reflection),
+            ..FreeScalar::new(None, mapping)
+        }
+    }
+
+    /// True next to a wall of any kind.
+    fn has_wall(&self) -> bool {
+        self.wall.is_some() || self.reflection.is_some()
+    }
+
+    /// The coefficient of the image term: ±1 or ρ; `None` without a wall.
+    fn image(&self) -> Option<Term> {
+        match (&self.reflection, self.wall) {
+            (Some(r), _) => Some(r.rho.clone()),
+            (None, Some(w)) => Some(Term::int(w.sign())),
+            (None, None) => None,
         }
     }
 
@@ -245,71 +352,95 @@ impl FreeScalar {
     /// insertions never share one.
     fn expansion(&self, ctx: &Context, k: usize, op: &Op, c: Composite) -> Vec<Product> {
         let one = |coef: Term, legs: Vec<Vec<Index>>| Product { coef, legs };
-        let dummy = |j: usize| Index::Named(format!("κw{k}_{j}"));
-        let xi = self.xi(ctx);
-        let two_xi = mul(vec![Term::int(2), xi.clone()]);
         match c {
             Composite::Field | Composite::BoundaryField => vec![one(Term::one(), vec![vec![]])],
             Composite::BoundaryNormalDerivative => vec![one(Term::one(), vec![vec![Index::N]])],
             Composite::FieldSquared | Composite::BoundaryFieldSquared => {
                 vec![one(Term::one(), vec![vec![], vec![]])]
             }
-            Composite::Stress => {
-                let (i, j) = (op.indices[0].clone(), op.indices[1].clone());
-                let kron = Term::Kron(i.clone(), j.clone());
-                let (a, b) = (dummy(0), dummy(1));
-                let mut out = vec![
-                    // ∂_iφ ∂_jφ - ½ δ_ij ∂_aφ ∂_aφ
-                    one(Term::one(), vec![vec![i.clone()], vec![j.clone()]]),
-                    one(
-                        mul(vec![rational(-1, 2), kron.clone()]),
-                        vec![vec![a.clone()], vec![a]],
-                    ),
-                ];
-                if self.improved {
-                    // -ξ(∂_i∂_j - δ_ij ∂²)φ² with ∂_i∂_j φ² = 2∂_iφ∂_jφ + 2φ∂_i∂_jφ.
-                    out.extend([
-                        one(
-                            two_xi.clone().negated(),
-                            vec![vec![i.clone()], vec![j.clone()]],
-                        ),
-                        one(two_xi.clone().negated(), vec![vec![], vec![i, j]]),
-                        one(
-                            mul(vec![two_xi.clone(), kron.clone()]),
-                            vec![vec![b.clone()], vec![b.clone()]],
-                        ),
-                        one(mul(vec![two_xi, kron]), vec![vec![], vec![b.clone(), b]]),
-                    ]);
-                }
+            Composite::Stress => self.stress(ctx, k, op.indices[0].clone(), op.indices[1].clone()),
+            Composite::WallStress => self.stress(ctx, k, Index::N, op.indices[0].clone()),
+            Composite::Chi => match self.reflection.as_ref().and_then(|r| r.chi.as_ref()) {
+                // χ = ∂_nφ/g or -φ̂/g: the factors are in the contraction.
+                Some(Chi {
+                    side: Wall::Neumann,
+                    ..
+                }) => vec![one(Term::one(), vec![vec![Index::N]])],
+                _ => vec![one(Term::one(), vec![vec![]])],
+            },
+            Composite::Displacement if self.reflection.is_some() => {
+                // T_nn at the wall = ½(∂_nφ)² - ½(∂_aφ)² + ξ∂_a∂_aφ²: the
+                // Neumann form below plus ½(∂_nφ)².
+                let mut out = self.displacement_neumann(ctx, k);
+                out.push(one(rational(1, 2), vec![vec![Index::N], vec![Index::N]]));
                 out
             }
             Composite::Displacement => match self.wall {
                 Some(Wall::Dirichlet) | None => {
                     vec![one(rational(1, 2), vec![vec![Index::N], vec![Index::N]])]
                 }
-                Some(Wall::Neumann) => {
-                    let (a, b) = (dummy(0), dummy(1));
-                    let n = Index::N;
-                    // -½ ∂_aφ̂ ∂_aφ̂ + ξ ∂_a∂_a φ̂², parallel a = all minus normal.
-                    let mut out = vec![
-                        one(rational(-1, 2), vec![vec![a.clone()], vec![a]]),
-                        one(rational(1, 2), vec![vec![n.clone()], vec![n.clone()]]),
-                    ];
-                    if self.improved {
-                        out.extend([
-                            one(two_xi.clone(), vec![vec![b.clone()], vec![b.clone()]]),
-                            one(
-                                two_xi.clone().negated(),
-                                vec![vec![n.clone()], vec![n.clone()]],
-                            ),
-                            one(two_xi.clone(), vec![vec![], vec![b.clone(), b]]),
-                            one(two_xi.negated(), vec![vec![], vec![n.clone(), n]]),
-                        ]);
-                    }
-                    out
-                }
+                Some(Wall::Neumann) => self.displacement_neumann(ctx, k),
             },
         }
+    }
+
+    /// T_ij of insertion `k` as products of fields.
+    fn stress(&self, ctx: &Context, k: usize, i: Index, j: Index) -> Vec<Product> {
+        let one = |coef: Term, legs: Vec<Vec<Index>>| Product { coef, legs };
+        let dummy = |j: usize| Index::Named(format!("κw{k}_{j}"));
+        let two_xi = mul(vec![Term::int(2), self.xi(ctx)]);
+        let kron = Term::Kron(i.clone(), j.clone());
+        let (a, b) = (dummy(0), dummy(1));
+        let mut out = vec![
+            // ∂_iφ ∂_jφ - ½ δ_ij ∂_aφ ∂_aφ
+            one(Term::one(), vec![vec![i.clone()], vec![j.clone()]]),
+            one(
+                mul(vec![rational(-1, 2), kron.clone()]),
+                vec![vec![a.clone()], vec![a]],
+            ),
+        ];
+        if self.improved {
+            // -ξ(∂_i∂_j - δ_ij ∂²)φ² with ∂_i∂_j φ² = 2∂_iφ∂_jφ + 2φ∂_i∂_jφ.
+            out.extend([
+                one(
+                    two_xi.clone().negated(),
+                    vec![vec![i.clone()], vec![j.clone()]],
+                ),
+                one(two_xi.clone().negated(), vec![vec![], vec![i, j]]),
+                one(
+                    mul(vec![two_xi.clone(), kron.clone()]),
+                    vec![vec![b.clone()], vec![b.clone()]],
+                ),
+                one(mul(vec![two_xi, kron]), vec![vec![], vec![b.clone(), b]]),
+            ]);
+        }
+        out
+    }
+
+    /// -½ ∂_aφ̂ ∂_aφ̂ + ξ ∂_a∂_a φ̂² of insertion `k`, parallel a written as
+    /// all directions minus the normal one: D of the Neumann wall.
+    fn displacement_neumann(&self, ctx: &Context, k: usize) -> Vec<Product> {
+        let one = |coef: Term, legs: Vec<Vec<Index>>| Product { coef, legs };
+        let dummy = |j: usize| Index::Named(format!("κw{k}_{j}"));
+        let two_xi = mul(vec![Term::int(2), self.xi(ctx)]);
+        let (a, b) = (dummy(0), dummy(1));
+        let n = Index::N;
+        let mut out = vec![
+            one(rational(-1, 2), vec![vec![a.clone()], vec![a]]),
+            one(rational(1, 2), vec![vec![n.clone()], vec![n.clone()]]),
+        ];
+        if self.improved {
+            out.extend([
+                one(two_xi.clone(), vec![vec![b.clone()], vec![b.clone()]]),
+                one(
+                    two_xi.clone().negated(),
+                    vec![vec![n.clone()], vec![n.clone()]],
+                ),
+                one(two_xi.clone(), vec![vec![], vec![b.clone(), b]]),
+                one(two_xi.negated(), vec![vec![], vec![n.clone(), n]]),
+            ]);
+        }
+        out
     }
 
     /// ⟨φ(a) φ(b)⟩ with the derivatives of both legs, as an explicit term
@@ -328,8 +459,9 @@ impl FreeScalar {
         ops: &[Op],
         (a_op, a_derivs): (usize, &[Index]),
         (b_op, b_derivs): (usize, &[Index]),
-        boundary_op: bool,
+        (a_comp, b_comp): (Composite, Composite),
     ) -> Result<Option<Term>> {
+        let boundary_op = a_comp.on_boundary();
         // Auxiliary points; '#' cannot occur in a declared name.
         let aux = |k: usize, end: &str| Point {
             rank: ops[k].point.rank,
@@ -353,7 +485,23 @@ impl FreeScalar {
             return Ok(None);
         }
         let d = ctx.dim();
-        let c = self.c_phi(ctx);
+        let mut c = self.c_phi(ctx);
+        // The image's coefficient; a contraction with χ is that of ∂_nφ or
+        // φ̂ at the wall, (1 ∓ ρ)/2 times the Dirichlet or Neumann one, with
+        // its powers of g (docs/conventions.md §11).
+        let mut image = self.image();
+        let chis = [a_comp, b_comp]
+            .iter()
+            .filter(|c| **c == Composite::Chi)
+            .count();
+        if chis > 0 {
+            let Some(chi) = self.reflection.as_ref().and_then(|r| r.chi.as_ref()) else {
+                return Err(unknown(NAME, ops, "χ needs a coupled wall"));
+            };
+            image = Some(Term::int(-chi.side.sign()));
+            let weight = if chis == 2 { &chi.two } else { &chi.one };
+            c = mul(vec![weight.clone(), c]);
+        }
         let mut parts = Vec::new();
         if !same {
             parts.push(mul(vec![
@@ -361,7 +509,7 @@ impl FreeScalar {
                 dist_pow(&a.point, &b.point, minus(Term::int(2), d.clone())),
             ]));
         }
-        if let Some(wall) = self.wall {
+        if let Some(sign) = image {
             // |x - x̄'|² = |x - x'|² + 4 y y'
             let image = add(vec![
                 dist_pow(&a.point, &b.point, Term::int(2)),
@@ -372,7 +520,7 @@ impl FreeScalar {
                 ]),
             ]);
             parts.push(mul(vec![
-                Term::int(wall.sign()),
+                sign,
                 c,
                 pow(image, mul(vec![rational(1, 2), minus(Term::int(2), d)])),
             ]));
@@ -396,15 +544,15 @@ impl FreeScalar {
     }
 
     fn check(&self, ctx: &Context, ops: &[Op]) -> Result<Vec<Composite>> {
-        match (self.wall, ctx.has_halfspace()) {
-            (Some(_), false) => {
+        match (self.has_wall(), ctx.has_halfspace()) {
+            (true, false) => {
                 return Err(unknown(
                     NAME,
                     ops,
                     "the model has a wall but the file declares no half-space",
                 ))
             }
-            (None, true) => {
+            (false, true) => {
                 return Err(unknown(
                     NAME,
                     ops,
@@ -450,7 +598,23 @@ impl FreeScalar {
                     ),
                 ));
             }
-            if c.on_boundary() && (self.wall.is_none() || !ctx.is_boundary_point(&op.point)) {
+            if c == Composite::Chi
+                && self
+                    .reflection
+                    .as_ref()
+                    .and_then(|r| r.chi.as_ref())
+                    .is_none()
+            {
+                return Err(unknown(
+                    NAME,
+                    ops,
+                    format!(
+                        "{} stands for χ, and this wall is coupled to no boundary field",
+                        describe_op(op)
+                    ),
+                ));
+            }
+            if c.on_boundary() && (!self.has_wall() || !ctx.is_boundary_point(&op.point)) {
                 return Err(unknown(
                     NAME,
                     ops,
@@ -499,15 +663,29 @@ impl Model for FreeScalar {
                     Composite::Stress
                         | Composite::Displacement
                         | Composite::BoundaryNormalDerivative
+                        | Composite::WallStress
+                        | Composite::Chi
                 )
             )
         })
     }
 
     fn describe(&self) -> String {
-        let wall = match self.wall {
-            Some(w) => w.describe(),
-            None => "no boundary",
+        let reflecting;
+        let wall = match (&self.reflection, self.wall) {
+            (Some(r), _) => {
+                reflecting = match &r.chi {
+                    None => "wall with reflection coefficient ρ (image × ρ)".to_string(),
+                    Some(Chi {
+                        side: Wall::Neumann,
+                        ..
+                    }) => "wall coupled to χ of dimension d/2 by g∫φ̂χ, ρ = (2 - g² S_d)/(2 + g² S_d), χ = ∂_n φ/g".to_string(),
+                    Some(_) => "wall coupled to χ of dimension d/2 - 1 by g∫χ∂_nφ, ρ = -(2 - g² (d-2) S_d)/(2 + g² (d-2) S_d), χ = -φ̂/g".to_string(),
+                };
+                reflecting.as_str()
+            }
+            (None, Some(w)) => w.describe(),
+            (None, None) => "no boundary",
         };
         let t = if self.improved {
             "improved T, ξ = (d-2)/(4(d-1))"
@@ -717,11 +895,11 @@ impl Wick<'_> {
         let (shape, names) = shape(&[a.derivs.clone(), b.derivs.clone()]);
         let key: Key = (a.op, b.op, shape);
         if !self.cache.contains_key(&key) {
-            let boundary = self.composites[a.op].on_boundary();
+            let comps = (self.composites[a.op], self.composites[b.op]);
             let (da, db) = (&key.2[0], &key.2[1]);
             let value = self
                 .model
-                .contraction(self.ctx, self.ops, (a.op, da), (b.op, db), boundary)?
+                .contraction(self.ctx, self.ops, (a.op, da), (b.op, db), comps)?
                 .map(|term| {
                     let summed = summed_names(&term, da, db);
                     Contracted { term, summed }

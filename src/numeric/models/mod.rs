@@ -170,7 +170,9 @@ impl Apply<'_> {
             Term::Pow(a, b) => Term::Pow(Box::new(self.term(a)?), Box::new(self.term(b)?)),
             Term::Mul(ts) => Term::Mul(self.all(ts)?),
             Term::Add(ts) => Term::Add(self.all(ts)?),
-            Term::Fun(name, order, args) => Term::Fun(name.clone(), *order, self.all(args)?),
+            Term::Fun(name, orders, args) => {
+                Term::Fun(name.clone(), orders.clone(), self.all(args)?)
+            }
             Term::Der(i, p, body) => Term::Der(i.clone(), p.clone(), Box::new(self.term(body)?)),
             Term::Integral(integral) => {
                 let region = match &integral.region {
