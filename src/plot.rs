@@ -172,6 +172,16 @@ enum Key {
         verdict: Mark,
         text: String,
     },
+    /// Words alone.
+    Note(String),
+}
+
+impl Key {
+    fn text(&self) -> &str {
+        match self {
+            Key::Line { text, .. } | Key::Marker { text, .. } | Key::Note(text) => text,
+        }
+    }
 }
 
 #[derive(Clone, Copy, PartialEq)]
@@ -186,11 +196,7 @@ fn draw(root: &Area, scan: &Scan, labels: &Labels) -> Result<(), Failure> {
     root.fill(&WHITE)?;
     let total = scan.labels.len().max(1);
     let shown = total.min(MAX_COMPONENTS);
-    let mut title = labels.title.clone();
-    if total > shown {
-        title = format!("{title} (components 1-{shown} of {total})");
-    }
-    let root = draw_title(root, &title)?;
+    let root = draw_title(root, &labels.title)?;
 
     // The legend: both sides of each component shown, then the verdicts
     // that occur.
@@ -266,6 +272,11 @@ fn draw(root: &Area, scan: &Scan, labels: &Labels) -> Result<(), Failure> {
             verdict: Mark::Unknown,
             text: "agreement unknown".into(),
         });
+    }
+    if total > shown {
+        keys.push(Key::Note(format!(
+            "components 1-{shown} of {total} shown (all in the CSV)"
+        )));
     }
     let root = draw_legend(&root, &keys)?;
 
@@ -693,10 +704,12 @@ fn draw_legend<'a>(root: &Area<'a>, keys: &[Key]) -> Result<Area<'a>, Failure> {
     let mut placed = Vec::new();
     let (mut x, mut row) = (left, 0);
     for key in keys {
-        let text = match key {
-            Key::Line { text, .. } | Key::Marker { text, .. } => text,
+        let sample = if matches!(key, Key::Note(_)) {
+            0
+        } else {
+            SAMPLE + 6
         };
-        let width = SAMPLE + 6 + text_width(text, TEXT_SIZE).ceil() as i32;
+        let width = sample + text_width(key.text(), TEXT_SIZE).ceil() as i32;
         if x > left && x + width > right {
             x = left;
             row += 1;
@@ -711,31 +724,23 @@ fn draw_legend<'a>(root: &Area<'a>, keys: &[Key]) -> Result<Area<'a>, Failure> {
         .pos(Pos::new(HPos::Left, VPos::Center));
     for (key, &(x, row)) in keys.iter().zip(&placed) {
         let y = row * ROW + ROW / 2;
+        let sample = vec![(x, y), (x + SAMPLE, y)];
         match key {
             Key::Line {
                 color,
                 dashed: false,
                 ..
-            } => strip.draw(&PathElement::new(
-                vec![(x, y), (x + SAMPLE, y)],
-                color.stroke_width(2),
-            ))?,
-            Key::Line {
-                color,
-                dashed: true,
-                ..
-            } => strip.draw(&DashedPathElement::new(
-                vec![(x, y), (x + SAMPLE, y)],
-                7,
-                5,
-                color.stroke_width(2),
-            ))?,
+            } => strip.draw(&PathElement::new(sample, color.stroke_width(2)))?,
+            Key::Line { color, .. } => {
+                strip.draw(&DashedPathElement::new(sample, 7, 5, color.stroke_width(2)))?
+            }
             Key::Marker { verdict, .. } => strip.draw(&marker((x + SAMPLE / 2, y), *verdict))?,
+            Key::Note(text) => {
+                strip.draw_text(text, &style, (x, y))?;
+                continue;
+            }
         }
-        let text = match key {
-            Key::Line { text, .. } | Key::Marker { text, .. } => text,
-        };
-        strip.draw_text(text, &style, (x + SAMPLE + 6, y))?;
+        strip.draw_text(key.text(), &style, (x + SAMPLE + 6, y))?;
     }
     Ok(rest)
 }
