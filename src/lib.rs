@@ -46,4 +46,5 @@ pub mod report;
 pub mod rules;
 pub mod run;
 pub mod syntax;
+pub mod tabulate;
 pub mod term;

@@ -60,7 +60,13 @@ pub struct Session<'a> {
     current: AtomicUsize,
     /// Explicit normal forms already worked out, by input term.
     explicit_cache: Arc<Mutex<std::collections::HashMap<Term, Term>>>,
+    /// Their compiled forms, by input term and component: a scan or a grid
+    /// evaluates the same component at many configurations.
+    compiled_cache: Arc<Mutex<CompiledCache>>,
 }
+
+type CompiledCache =
+    std::collections::HashMap<(Term, Vec<(String, usize)>), Arc<super::eval::Program>>;
 
 pub use super::agreement::Value;
 
@@ -118,6 +124,15 @@ pub struct Conservation {
     pub scale: f64,
 }
 
+/// One configuration of [`Session::evaluate_rows`]: scalar parameters and
+/// point positions (d coordinates each, the normal one last) that replace
+/// the file's.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct Row {
+    pub scalars: Vec<(String, f64)>,
+    pub points: Vec<(String, Vec<f64>)>,
+}
+
 /// The values of a term, one per assignment of its free indices.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Evaluation {
@@ -145,6 +160,7 @@ impl<'a> Session<'a> {
             samples: Arc::new(samples),
             current: AtomicUsize::new(0),
             explicit_cache: Arc::new(Mutex::new(std::collections::HashMap::new())),
+            compiled_cache: Arc::new(Mutex::new(std::collections::HashMap::new())),
         })
     }
 
@@ -158,6 +174,7 @@ impl<'a> Session<'a> {
             samples: Arc::clone(&self.samples),
             current: AtomicUsize::new(0),
             explicit_cache: Arc::clone(&self.explicit_cache),
+            compiled_cache: Arc::clone(&self.compiled_cache),
         };
         view.select(k);
         view
@@ -317,6 +334,92 @@ impl<'a> Session<'a> {
     /// The values of `t` for every assignment of its free indices.
     pub fn evaluate(&self, t: &Term, free: &[String]) -> Result<Evaluation> {
         self.evaluate_with(t, free, self.values())
+    }
+
+    /// The values of `t` at several configurations, one per row: each row
+    /// replaces scalar parameters and point positions of the current
+    /// sample; points placed with parameters are placed again. Rows run on
+    /// `jobs` threads; the result is in row order. A name the file does not
+    /// declare, a position of the wrong length or one off its region (a
+    /// boundary point above the wall, a bulk point on or below it) is an
+    /// error naming the row.
+    pub fn evaluate_rows(
+        &self,
+        t: &Term,
+        free: &[String],
+        rows: &[Row],
+        jobs: usize,
+    ) -> Result<Vec<Evaluation>> {
+        let base = self.values();
+        let results = crate::jobs::map_ordered(
+            jobs,
+            rows,
+            true,
+            |k, row| {
+                let values = self.row_values(base, row).map_err(|e| {
+                    let message = format!("row {k}: {}", e.message);
+                    Error { message, ..e }
+                })?;
+                self.evaluate_with(t, free, &values)
+            },
+            &mut |_, _| {},
+        );
+        results.into_iter().collect()
+    }
+
+    fn row_values(&self, base: &Values, row: &Row) -> Result<Values> {
+        let mut values = base.clone();
+        for (name, v) in &row.scalars {
+            if !self.ctx.parameters.contains(name) || self.ctx.params.contains_key(name) {
+                return Err(Error::new(
+                    ErrorKind::Numeric,
+                    format!("`{name}` is not a scalar parameter of the file"),
+                )
+                .with_note("declare it with `parameters`"));
+            }
+            values.scalars.insert(name.clone(), *v);
+        }
+        place_moving(self.ctx, &mut values)?;
+        for (name, at) in &row.points {
+            let Some((_, decl)) = self.ctx.point(name) else {
+                return Err(Error::new(
+                    ErrorKind::Numeric,
+                    format!("`{name}` is not a point of the file"),
+                )
+                .with_note("declare it with `points` (or `boundary points`)"));
+            };
+            if at.len() != values.dim {
+                return Err(Error::new(
+                    ErrorKind::Numeric,
+                    format!(
+                        "`{name}` has {} coordinates; dimension {} needs {}",
+                        at.len(),
+                        values.dim,
+                        values.dim
+                    ),
+                ));
+            }
+            if let Some(y) = at.last().filter(|_| self.ctx.has_halfspace()) {
+                let fine = if decl.boundary {
+                    *y == 0.0
+                } else {
+                    y.is_finite() && *y > 0.0
+                };
+                if !fine {
+                    let place = if decl.boundary {
+                        "on the wall: its last coordinate must be 0"
+                    } else {
+                        "above the wall: its last coordinate must be positive"
+                    };
+                    return Err(Error::new(
+                        ErrorKind::Numeric,
+                        format!("`{name}` at normal coordinate {y} is not {place}"),
+                    ));
+                }
+            }
+            values.points.insert(name.clone(), at.clone());
+        }
+        Ok(values)
     }
 
     fn evaluate_with(&self, t: &Term, free: &[String], values: &Values) -> Result<Evaluation> {
@@ -691,7 +794,28 @@ impl<'a> Session<'a> {
     }
 
     /// Rules, normalisation, the model, normalisation, compilation.
-    fn explicit(&self, t: &Term, free: &[(String, usize)]) -> Result<super::eval::Program> {
+    fn explicit(&self, t: &Term, free: &[(String, usize)]) -> Result<Arc<super::eval::Program>> {
+        let key = (t.clone(), free.to_vec());
+        if let Some(p) = self
+            .compiled_cache
+            .lock()
+            .ok()
+            .and_then(|c| c.get(&key).cloned())
+        {
+            return Ok(p);
+        }
+        let p = Arc::new(self.explicit_uncached(t, free)?);
+        if let Ok(mut cache) = self.compiled_cache.lock() {
+            cache.insert(key, Arc::clone(&p));
+        }
+        Ok(p)
+    }
+
+    fn explicit_uncached(
+        &self,
+        t: &Term,
+        free: &[(String, usize)],
+    ) -> Result<super::eval::Program> {
         // The symbolic work is the same for every component and sample.
         // Threads that miss at once both do the work; the results are equal.
         let cached = self
