@@ -58,16 +58,7 @@ pub fn evaluate(
         let mut table = Table::default();
         for (k, e) in evaluations.iter().enumerate() {
             if k == 0 {
-                table.labels = e
-                    .components
-                    .iter()
-                    .map(|(a, _)| {
-                        a.iter()
-                            .map(|(n, v)| format!("{n}={v}"))
-                            .collect::<Vec<_>>()
-                            .join(" ")
-                    })
-                    .collect();
+                table.labels = e.labels();
             }
             table
                 .values

@@ -139,6 +139,21 @@ pub struct Evaluation {
     pub components: Vec<(Vec<(String, usize)>, Value)>,
 }
 
+impl Evaluation {
+    /// One label per component, `mu=0 nu=1` (empty for a scalar).
+    pub fn labels(&self) -> Vec<String> {
+        self.components
+            .iter()
+            .map(|(a, _)| {
+                a.iter()
+                    .map(|(n, v)| format!("{n}={v}"))
+                    .collect::<Vec<_>>()
+                    .join(" ")
+            })
+            .collect()
+    }
+}
+
 impl<'a> Session<'a> {
     pub fn new(ctx: &'a Context, engine: &'a Engine, spec: &NumericSpec) -> Result<Session<'a>> {
         let Some((choice, _)) = &spec.model else {
@@ -678,16 +693,7 @@ impl<'a> Session<'a> {
         for result in results {
             let (x, l, r) = result?;
             if labels.is_empty() {
-                labels = l
-                    .components
-                    .iter()
-                    .map(|(a, _)| {
-                        a.iter()
-                            .map(|(n, v)| format!("{n}={v}"))
-                            .collect::<Vec<_>>()
-                            .join(" ")
-                    })
-                    .collect();
+                labels = l.labels();
             }
             rows.push((
                 x,
