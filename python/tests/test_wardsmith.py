@@ -169,3 +169,23 @@ def test_a_scan_gives_its_table():
     assert scan.left.shape == scan.right.shape == (7, 1)
     np.testing.assert_allclose(scan.left, scan.right, rtol=1e-12)
     assert scan.parameter[0] == pytest.approx(0.1) and scan.parameter[-1] == pytest.approx(2.0)
+
+
+# --- the README's Python blocks run as written ------------------------------
+
+
+def test_readme_python_blocks_run(monkeypatch):
+    import re
+
+    with open(os.path.join(ROOT, "README.md"), encoding="utf-8") as f:
+        readme = f.read()
+    blocks = re.findall(r"```python\n(.*?)```", readme, flags=re.S)
+    assert blocks, "the README has a Python block"
+    monkeypatch.chdir(ROOT)
+    for block in blocks:
+        scope = {}
+        exec(compile(block, "README.md", "exec"), scope)
+    # The block's own claims about its results.
+    assert scope["out"].passed
+    assert scope["T"].shape == (1000, 16)
+    assert scope["scan"] and scope["scan"][0].status == "confirmed"
