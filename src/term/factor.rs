@@ -90,6 +90,45 @@ pub fn factored(t: &Term) -> Term {
     }
 }
 
+/// The two points p, q when `t` is the normal form of the cross-ratio
+/// ξ = |p - q|²/(4 y_p y_q), so that a function's argument prints as
+/// `xi(p, q)` again instead of its expansion.
+pub fn cross_ratio_points(t: &Term) -> Option<(&super::Point, &super::Point)> {
+    let Term::Mul(fs) = t else {
+        return None;
+    };
+    if fs.len() != 4 {
+        return None;
+    }
+    let quarter = BigRational::new(1.into(), 4.into());
+    let mut dist = None;
+    let mut heights = Vec::new();
+    let mut coefficient = false;
+    for f in fs {
+        match f {
+            Term::Num(c) if *c == quarter => coefficient = true,
+            Term::Pow(b, e) => match (&**b, &**e) {
+                (Term::Dist(p, q), Term::Num(k)) if *k == BigRational::from_integer(2.into()) => {
+                    dist = Some((p, q))
+                }
+                (Term::Comp(p, super::Index::N), Term::Num(k)) if *k == -BigRational::one() => {
+                    heights.push(p)
+                }
+                _ => return None,
+            },
+            _ => return None,
+        }
+    }
+    let (p, q) = dist?;
+    let bulk = |a: &super::Point| !a.par && !a.is_origin();
+    let matches = heights.len() == 2
+        && coefficient
+        && bulk(p)
+        && bulk(q)
+        && ((heights[0] == p && heights[1] == q) || (heights[0] == q && heights[1] == p));
+    matches.then_some((p, q))
+}
+
 /// True for a sum that is a polynomial in one symbol: its powers read back
 /// as written (`/(d - 1)^2`), unlike sums of coordinates, whose powers the
 /// normaliser expands.

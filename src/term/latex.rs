@@ -262,7 +262,12 @@ fn atom(ctx: &Context, t: &Term, out: &mut String) {
                 if k > 0 {
                     out.push_str(if hypergeometric && k >= 2 { "; " } else { ", " });
                 }
-                sum(ctx, a, out);
+                match super::factor::cross_ratio_points(a) {
+                    Some((p, q)) if ctx.has_halfspace() => {
+                        out.push_str(&format!("\\xi({}, {})", wrap(&point(p)), wrap(&point(q))))
+                    }
+                    _ => sum(ctx, a, out),
+                }
             }
             out.push_str("\\right)");
         }

@@ -298,7 +298,16 @@ impl<'a> Printer<'a> {
                         // ₂F₁(a, b; c; z)
                         out.push_str(if hypergeometric && k >= 2 { "; " } else { ", " });
                     }
-                    self.sum(a, out);
+                    match super::factor::cross_ratio_points(a) {
+                        Some((p, q)) if self.ctx.has_halfspace() => {
+                            out.push_str("xi(");
+                            self.point(p, out);
+                            out.push_str(", ");
+                            self.point(q, out);
+                            out.push(')');
+                        }
+                        _ => self.sum(a, out),
+                    }
                 }
                 out.push(')');
             }
