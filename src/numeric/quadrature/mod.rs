@@ -35,6 +35,6 @@ pub mod adapt;
 pub mod gauss;
 pub mod surface;
 
-pub use adapt::{integrate, Estimate, Tolerance};
+pub use adapt::{integrate, integrate_batch, Estimate, Tolerance, BATCH};
 pub use gauss::{gauss_jacobi, gauss_legendre, Gauss};
 pub use surface::{Node, QuadratureError, Rule, Surface, MAX_DIM, MIN_DIM};
