@@ -68,7 +68,7 @@ impl Tolerance {
         Tolerance { max_nodes, ..self }
     }
 
-    fn target(&self, value: f64) -> f64 {
+    pub(crate) fn target(&self, value: f64) -> f64 {
         self.abs.max(self.rel * value.abs())
     }
 }
@@ -149,6 +149,9 @@ pub fn integrate_batch(
     mut f: impl FnMut(&[f64], &[f64], &mut [f64]),
     tol: Tolerance,
 ) -> Estimate {
+    if surface.aligned() {
+        return super::sparse::integrate(surface, &mut f, tol);
+    }
     Driver {
         patches: surface.patches(),
         f: &mut f,

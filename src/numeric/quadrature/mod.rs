@@ -33,6 +33,8 @@
 
 pub mod adapt;
 pub mod gauss;
+pub mod nested;
+mod sparse;
 pub mod surface;
 
 pub use adapt::{integrate, integrate_batch, Estimate, Tolerance, BATCH};
