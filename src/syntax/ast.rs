@@ -262,6 +262,8 @@ pub enum Generator {
 pub enum OpKind {
     Scalar,
     Vector,
+    /// A symmetric traceless tensor; its spin is the `spin` attribute.
+    Tensor,
 }
 
 /// One statement of a `.ward` file.
@@ -454,6 +456,12 @@ pub enum Property {
     Parallel,
     Normal,
     Scalar,
+    /// Spin 1.
+    Vector,
+    /// Declared `conserved` (T always).
+    Conserved,
+    /// Declared spin ℓ (T has spin 2).
+    Spin(u32),
 }
 
 /// One rule of a `.rules` file.

@@ -481,6 +481,7 @@ pub(crate) const STATEMENT_STARTS: &[&str] = &[
     "halfspace",
     "boundary",
     "scalar",
+    "tensor",
     "vector",
     "points",
     "parameters",
@@ -686,12 +687,23 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
             }
             let kind = match next(&mut inner).as_str() {
                 "vector" => OpKind::Vector,
+                "tensor" => OpKind::Tensor,
                 _ => OpKind::Scalar,
             };
             let name = parse_name(next(&mut inner));
             let mut attrs = Vec::new();
             for attr in inner {
-                let mut parts = attr.into_inner();
+                let mut parts = attr.into_inner().peekable();
+                if parts.peek().map(|p| p.as_rule()) == Some(Rule::conserved_kw) {
+                    // A flag: `conserved` stands for the attribute value 1.
+                    let key = parse_name(next(&mut parts));
+                    let value = Expr {
+                        kind: ExprKind::Num(num_rational::BigRational::from_integer(1.into())),
+                        span: key.span,
+                    };
+                    attrs.push((key, value));
+                    continue;
+                }
                 let key = parse_name(next(&mut parts));
                 let value = build_expr(source, next(&mut parts), 0)?;
                 attrs.push((key, value));
@@ -1065,6 +1077,11 @@ fn parse_condition(pair: Pair<Rule>) -> Condition {
             let what = next(&mut parts);
             match what.as_rule() {
                 Rule::cond_has => ConditionKind::Has(var, parse_name(next(&mut what.into_inner()))),
+                Rule::cond_spin => {
+                    // At most three digits (the grammar), so the parse holds.
+                    let digits = next(&mut what.into_inner());
+                    ConditionKind::Is(var, Property::Spin(digits.as_str().parse().unwrap_or(0)))
+                }
                 _ => ConditionKind::Is(
                     var,
                     match what.as_str() {
@@ -1072,6 +1089,8 @@ fn parse_condition(pair: Pair<Rule>) -> Condition {
                         "boundary" => Property::Boundary,
                         "parallel" => Property::Parallel,
                         "normal" => Property::Normal,
+                        "vector" => Property::Vector,
+                        "conserved" => Property::Conserved,
                         _ => Property::Scalar,
                     },
                 ),
