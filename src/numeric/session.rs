@@ -1122,6 +1122,7 @@ pub fn build_model(
         }
         ModelChoice::FreeScalar {
             dirichlet,
+            complex,
             unimproved,
             fields,
             family,
@@ -1131,6 +1132,8 @@ pub fn build_model(
                 let c = match composite.as_str() {
                     "phi" => Composite::Field,
                     "phi2" => Composite::FieldSquared,
+                    "phibar" => Composite::FieldBar,
+                    "current" => Composite::Current,
                     "boundary-phi" => Composite::BoundaryField,
                     "boundary-dphi" => Composite::BoundaryNormalDerivative,
                     "boundary-tn" => Composite::WallStress,
@@ -1156,6 +1159,9 @@ pub fn build_model(
             };
             if *unimproved {
                 model = model.unimproved();
+            }
+            if *complex {
+                model = model.complex();
             }
             Box::new(model)
         }

@@ -222,6 +222,8 @@ pub enum ModelSpec {
     /// half-space), improved T unless `unimproved`, operator names → composites.
     FreeScalar {
         wall: Option<String>,
+        /// `complex`: the complex field φ, φ̄ with its U(1) current.
+        complex: bool,
         unimproved: bool,
         fields: Vec<(Name, String)>,
         /// `reflection r`: the reflection coefficient.

@@ -826,6 +826,7 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
             } else {
                 let mut wall = None;
                 let mut unimproved = false;
+                let mut complex = false;
                 let mut fields = Vec::new();
                 let mut reflection = None;
                 let mut coupling = None;
@@ -833,6 +834,7 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                     match part.as_rule() {
                         Rule::wall_kind => wall = Some(part.as_str().to_string()),
                         Rule::unimproved => unimproved = true,
+                        Rule::complex_kw => complex = true,
                         Rule::reflection | Rule::coupling => {
                             let which = part.as_rule();
                             let value = next(&mut part.into_inner());
@@ -852,6 +854,7 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                 }
                 ModelSpec::FreeScalar {
                     wall,
+                    complex,
                     unimproved,
                     fields,
                     reflection,
