@@ -17,6 +17,8 @@ pub const DISPLACEMENT: &str = "D";
 pub const DIMENSION: &str = "d";
 /// Name of the area of the unit sphere S^{d-1}.
 pub const SPHERE_AREA: &str = "S_d";
+/// The attribute a conserved operator declares (`vector J dim d - 1, conserved`).
+pub const CONSERVED: &str = "conserved";
 /// Name of the normal index.
 pub const NORMAL: &str = "n";
 
@@ -239,9 +241,25 @@ impl Context {
             .map(|(_, _, place)| *place)
     }
 
-    /// True for operators whose two indices are symmetric (T).
+    /// True for operators whose indices are symmetric: T, and declared
+    /// tensors of spin 2 or more (symmetric traceless).
     pub fn is_symmetric_op(&self, name: &str) -> bool {
+        name == STRESS_TENSOR || self.operators.get(name).is_some_and(|o| o.rank >= 2)
+    }
+
+    /// True for declared tensors of spin 2 or more, whose traces vanish as
+    /// operators (T is not one: its trace carries contact terms).
+    pub fn is_traceless_op(&self, name: &str) -> bool {
+        name != STRESS_TENSOR && self.operators.get(name).is_some_and(|o| o.rank >= 2)
+    }
+
+    /// True for T and for operators declared `conserved`.
+    pub fn is_conserved(&self, name: &str) -> bool {
         name == STRESS_TENSOR
+            || self
+                .operators
+                .get(name)
+                .is_some_and(|o| o.attrs.contains_key(CONSERVED))
     }
 
     /// Adds the built-in operators: T always, D with a half-space.
@@ -251,7 +269,10 @@ impl Context {
             name: STRESS_TENSOR.into(),
             boundary: false,
             rank: 2,
-            attrs: BTreeMap::from([("dim".to_string(), dim.clone())]),
+            attrs: BTreeMap::from([
+                ("dim".to_string(), dim.clone()),
+                (CONSERVED.to_string(), Term::one()),
+            ]),
         };
         self.operators.insert(t.name.clone(), t);
         if self.has_halfspace() {

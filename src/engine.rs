@@ -165,6 +165,12 @@ impl Engine {
             // Still changing: the remainder is not final.
             out.stop = Stop::RoundLimit(self.limits.rounds);
         }
+        if out.stop.is_saturated() {
+            let notes = uncovered(&self.ctx, &current);
+            if !notes.is_empty() {
+                out.stop = Stop::Uncovered(notes.join("; "));
+            }
+        }
         out.term = current;
         Ok(out)
     }
@@ -223,6 +229,75 @@ impl Engine {
         (!shown).then(|| {
             "no coefficient of ₂F₁ in the remainder was shown to be a nonzero function (at sampled values of the parameters)".to_string()
         })
+    }
+}
+
+/// The divergences and traces of conserved operators (T, and operators
+/// declared `conserved`) left in a normal form, each as a sentence naming
+/// the insertions no rule covered: `no rule covers the insertion
+/// J[rho](x1) in ∂[mu](x) ⟨T[mu,nu](x) J[rho](x1) phi(x2)⟩`. Such a term
+/// is a Ward identity the loaded rules do not know, so a remainder holding
+/// it refutes nothing. Empty when there is none.
+pub fn uncovered(ctx: &Context, t: &Term) -> Vec<String> {
+    let mut found: Vec<String> = Vec::new();
+    let printer = crate::term::print::Printer::new(ctx, crate::term::print::Style::Unicode);
+    let mut visit = |f: &Term| {
+        // A derivative chain over a correlator: its indices and points.
+        let mut derivs = Vec::new();
+        let mut body = f;
+        while let Term::Der(i, p, inner) = body {
+            derivs.push((i, p));
+            body = inner;
+        }
+        let Term::Corr(ops) = body else { return };
+        for (k, op) in ops.iter().enumerate() {
+            if !ctx.is_conserved(&op.name) {
+                continue;
+            }
+            let named = |i: &crate::term::Index| matches!(i, crate::term::Index::Named(_));
+            let divergence = derivs
+                .iter()
+                .any(|(i, p)| p.name == op.point.name && named(i) && op.indices.contains(i));
+            let trace = op.name == crate::context::STRESS_TENSOR
+                && op.indices.len() == 2
+                && named(&op.indices[0])
+                && op.indices[0] == op.indices[1];
+            if !(divergence || trace) {
+                continue;
+            }
+            let others: Vec<String> = ops
+                .iter()
+                .enumerate()
+                .filter(|(j, o)| *j != k && !o.indices.is_empty())
+                .map(|(_, o)| printer.term(&Term::Corr(vec![o.clone()])))
+                .map(|s| s.trim_start_matches('⟨').trim_end_matches('⟩').to_string())
+                .collect();
+            let whole = printer.term(f);
+            let sentence = match others.len() {
+                0 => format!("no rule covers {whole}"),
+                1 => format!("no rule covers the insertion {} in {whole}", others[0]),
+                _ => format!(
+                    "no rule covers the insertions {} in {whole}",
+                    others.join(", ")
+                ),
+            };
+            if !found.contains(&sentence) {
+                found.push(sentence);
+            }
+        }
+    };
+    walk_factors(t, &mut visit);
+    found
+}
+
+/// Calls `visit` on every factor of every product in `t`, and inside
+/// integrals.
+fn walk_factors(t: &Term, visit: &mut dyn FnMut(&Term)) {
+    match t {
+        Term::Add(ts) | Term::Mul(ts) => ts.iter().for_each(|t| walk_factors(t, visit)),
+        Term::Integral(i) => walk_factors(&i.body, visit),
+        Term::Der(..) | Term::Corr(_) => visit(t),
+        _ => {}
     }
 }
 

@@ -35,8 +35,13 @@ pub const STATEMENTS: &[Entry] = &[
     },
     Entry {
         keyword: "vector",
-        example: "vector J dim d - 1",
-        meaning: "a bulk operator with one index, J[mu](x)",
+        example: "vector J dim d - 1, conserved",
+        meaning: "a bulk operator with one index, J[mu](x) (spin 1); `conserved` marks a current",
+    },
+    Entry {
+        keyword: "tensor",
+        example: "tensor W dim 4, spin 2",
+        meaning: "a symmetric traceless tensor of spin ℓ, W[mu,nu](x); a boundary tensor's indices are parallel",
     },
     Entry {
         keyword: "boundary",

@@ -17,7 +17,8 @@
 //! status (`proved`, `proved away`, `confirmed`, `not proved`, `unknown`),
 //! then details: `sign`, `factor R` (the ratio as printed), `contact at P`,
 //! `flux differs around P`, `failing P` (a flux check's insertion),
-//! `remainder mentions TEXT`.
+//! `remainder mentions TEXT`, `uncovered TEXT` (a claim left unknown because
+//! no rule covers a divergence; TEXT is part of the note).
 
 use wardsmith::outcome::{FileOutcome, Finding, Slip, Statement, Status, StepNumeric};
 use wardsmith::run::{check_path, Mode, Options};
@@ -55,6 +56,16 @@ fn detail(s: &Statement, step: Option<usize>, d: &str, at: &str) {
         assert!(
             remainder.contains(text) && remainder != "0",
             "{at}: the remainder {remainder} does not mention {text}"
+        );
+    } else if let Some(text) = d.strip_prefix("uncovered ") {
+        let stop = match &s.finding {
+            Finding::Claim(c) => &c.check.search.stop,
+            Finding::Expect(e) => &e.check.search.stop,
+            _ => panic!("{at}: not a claim"),
+        };
+        assert!(
+            matches!(stop, wardsmith::egraph::Stop::Uncovered(why) if why.contains(text)),
+            "{at}: the search stopped with {stop:?}"
         );
     } else if let Some(point) = d.strip_prefix("failing ") {
         let Finding::Flux(f) = &s.finding else {

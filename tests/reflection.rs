@@ -67,6 +67,7 @@ fn explicit(model: &dyn Model, ctx: &Context, t: &Term) -> Term {
 fn free(dirichlet: Option<bool>, fields: &[(&str, &str)], family: Option<Family>) -> ModelChoice {
     ModelChoice::FreeScalar {
         dirichlet,
+        complex: false,
         unimproved: false,
         fields: fields
             .iter()

@@ -63,6 +63,10 @@ pub enum Stop {
     /// The rules saturated, but the remainder left is one the engine cannot
     /// tell from zero (see `Engine::check`): the reason.
     Undecided(String),
+    /// The rules saturated, but a divergence or trace of a conserved
+    /// operator is left that no loaded rule covers (a spinning insertion
+    /// without a rule, say): which, as a sentence.
+    Uncovered(String),
 }
 
 impl Stop {
@@ -84,6 +88,7 @@ impl Stop {
             ),
             Stop::Other(s) => format!("stopped: {s}"),
             Stop::Undecided(_) => "saturated; the remainder is undecided".into(),
+            Stop::Uncovered(_) => "saturated; a divergence no rule covers is left".into(),
         }
     }
 }

@@ -694,15 +694,13 @@ impl Lowerer {
                         .with_label("missing `dim`")
                         .with_note(format!("write e.g. `scalar {} dim Delta`", name.text)));
                 }
+                let rank = self.spin_of(*kind, name, attrs, &values)?;
                 self.ctx.operators.insert(
                     name.text.clone(),
                     OperatorDecl {
                         name: name.text.clone(),
                         boundary: *boundary,
-                        rank: match kind {
-                            OpKind::Scalar => 0,
-                            OpKind::Vector => 1,
-                        },
+                        rank,
                         attrs: values,
                     },
                 );
@@ -1401,6 +1399,51 @@ impl Lowerer {
         })
     }
 
+    /// The spin of a declared operator: 0 for `scalar`, 1 for `vector`, the
+    /// `spin` attribute (a whole number, at least 1) for `tensor`; a `spin`
+    /// given to a scalar or vector must agree with its kind.
+    fn spin_of(
+        &self,
+        kind: OpKind,
+        name: &Name,
+        attrs: &[(Name, Expr)],
+        values: &BTreeMap<String, Term>,
+    ) -> Result<usize> {
+        let written = attrs.iter().find(|(k, _)| k.text == "spin");
+        let spin = match (written, values.get("spin")) {
+            (Some((_, e)), Some(Term::Num(c))) if c.is_integer() && *c >= BigRational::from_integer(0.into()) && *c <= BigRational::from_integer(MAX_SPIN.into()) => {
+                Some((c.to_integer().try_into().unwrap_or(0usize), e.span))
+            }
+            (Some((_, e)), _) => {
+                return Err(self
+                    .err(ErrorKind::Name, e.span, "a spin is a whole number from 0 to 16")
+                    .with_label("not a whole number in range"))
+            }
+            _ => None,
+        };
+        let implied = match kind {
+            OpKind::Scalar => Some(0),
+            OpKind::Vector => Some(1),
+            OpKind::Tensor => None,
+        };
+        match (implied, spin) {
+            (Some(l), None) => Ok(l),
+            (Some(l), Some((s, _))) if s == l => Ok(l),
+            (Some(l), Some((_, span))) => Err(self
+                .err(ErrorKind::Name, span, format!("this operator has spin {l} by its kind"))
+                .with_label("disagrees with the kind")
+                .with_note("declare a tensor of spin ℓ with `tensor NAME dim Delta, spin ℓ`")),
+            (None, Some((s, _))) if s >= 1 => Ok(s),
+            (None, Some((_, span))) => Err(self
+                .err(ErrorKind::Name, span, "a tensor has spin 1 or more")
+                .with_label("spin 0 is a scalar")),
+            (None, None) => Err(self
+                .err(ErrorKind::Name, name.span, format!("tensor `{}` has no spin", name.text))
+                .with_label("missing `spin`")
+                .with_note(format!("write e.g. `tensor {} dim d, spin 2`", name.text))),
+        }
+    }
+
     fn op(&self, op: &ast::OpRef) -> Result<Op> {
         if op.name.is_var {
             return Err(self.rule_syntax(op.name.span));
@@ -1482,6 +1525,25 @@ impl Lowerer {
             .iter()
             .map(|i| self.index(i))
             .collect::<Result<Vec<_>>>()?;
+        // A boundary tensor's indices run along the wall. (A boundary
+        // vector keeps any index: T_nμ at the wall has the normal component D.)
+        if decl.boundary && decl.rank >= 2 {
+            for (written, index) in op.indices.iter().zip(&indices) {
+                if !self.ctx.is_parallel(index) {
+                    return Err(self
+                        .err(
+                            ErrorKind::Index,
+                            written.span,
+                            format!(
+                                "the indices of boundary tensor `{}` run along the wall",
+                                op.name.text
+                            ),
+                        )
+                        .with_label("not a parallel index")
+                        .with_note("declare parallel index names with `parallel a b`"));
+                }
+            }
+        }
         Ok(Op {
             point,
             name: op.name.text.clone(),
@@ -1489,6 +1551,9 @@ impl Lowerer {
         })
     }
 }
+
+/// The largest spin a declaration may give.
+const MAX_SPIN: i64 = 16;
 
 /// "no index", "1 index", "2 indices".
 fn count_indices(n: usize) -> String {

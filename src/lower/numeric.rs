@@ -37,6 +37,8 @@ pub enum ModelChoice {
         /// `Some(true)` Dirichlet, `Some(false)` Neumann, `None` no wall
         /// (or, with `family`, the side the coupling starts from).
         dirichlet: Option<bool>,
+        /// The complex scalar φ, φ̄ (no wall), with its U(1) current.
+        complex: bool,
         unimproved: bool,
         /// Operator name → composite name (`phi`, `phi2`, `boundary-phi`, …).
         fields: Vec<(String, String)>,
@@ -80,6 +82,7 @@ impl Lowerer {
             },
             ModelSpec::FreeScalar {
                 wall,
+                complex,
                 unimproved,
                 fields,
                 reflection,
@@ -104,9 +107,35 @@ impl Lowerer {
                         .err(ErrorKind::Placement, span, message)
                         .with_label("model"));
                 }
+                if *complex && (dirichlet.is_some() || family.is_some()) {
+                    return Err(self
+                        .err(
+                            ErrorKind::Placement,
+                            span,
+                            "the complex free scalar is modelled without a wall",
+                        )
+                        .with_label("model")
+                        .with_note("write `model free-scalar complex` in a file without `halfspace`"));
+                }
                 let mut out = Vec::new();
                 for (name, composite) in fields {
                     self.need_operator(name)?;
+                    let complex_only = matches!(composite.as_str(), "phibar" | "current");
+                    let real_only = composite.starts_with("boundary-") || composite == "chi";
+                    if (complex_only && !*complex) || (real_only && *complex) {
+                        return Err(self
+                            .err(
+                                ErrorKind::Placement,
+                                name.span,
+                                if complex_only {
+                                    format!("`{composite}` belongs to the complex scalar")
+                                } else {
+                                    format!("`{composite}` belongs to the real scalar next to a wall")
+                                },
+                            )
+                            .with_label("not a composite of this model")
+                            .with_note("`model free-scalar complex with P = phi, Pb = phibar, J = current` maps the complex scalar's fields and current"));
+                    }
                     if composite == "chi" && !matches!(family, Some(Family::Coupling { .. })) {
                         return Err(self
                             .err(
@@ -149,6 +178,7 @@ impl Lowerer {
                 }
                 ModelChoice::FreeScalar {
                     dirichlet,
+                    complex: *complex,
                     unimproved: *unimproved,
                     fields: out,
                     family,
@@ -183,7 +213,8 @@ impl Lowerer {
         let d = self.ctx.dim();
         let half = |t: Term| Term::Mul(vec![Term::Num(BigRational::new(1.into(), 2.into())), t]);
         let expected = match composite {
-            "phi" | "boundary-phi" => half(Term::Add(vec![d, Term::int(-2)])),
+            "phi" | "phibar" | "boundary-phi" => half(Term::Add(vec![d, Term::int(-2)])),
+            "current" => Term::Add(vec![d, Term::int(-1)]),
             "phi2" | "boundary-phi2" => Term::Add(vec![d, Term::int(-2)]),
             "boundary-dphi" => half(d),
             "boundary-tn" => d,

@@ -207,7 +207,24 @@ fn local(ctx: &Context, f: &Term) -> Local {
             Local::Zero
         }
         Term::Der(..) if normal_derivative_at_boundary(ctx, f) => Local::Zero,
+        Term::Der(..) | Term::Corr(_) if traced_traceless(ctx, f) => Local::Zero,
         _ => Local::Keep,
+    }
+}
+
+/// True if a correlator (under derivatives) holds a declared symmetric
+/// traceless tensor with a summed index pair: its trace vanishes as an
+/// operator.
+fn traced_traceless(ctx: &Context, f: &Term) -> bool {
+    match f {
+        Term::Der(_, _, body) => traced_traceless(ctx, body),
+        Term::Corr(ops) => ops.iter().any(|op| {
+            ctx.is_traceless_op(&op.name)
+                && op.indices.iter().enumerate().any(|(k, i)| {
+                    matches!(i, Index::Named(_)) && op.indices[k + 1..].contains(i)
+                })
+        }),
+        _ => false,
     }
 }
 
@@ -320,11 +337,8 @@ fn canonical_factor(ctx: &Context, f: Term, negate: &mut bool) -> Term {
         }
         Term::Corr(mut ops) => {
             for op in &mut ops {
-                if ctx.is_symmetric_op(&op.name)
-                    && op.indices.len() == 2
-                    && op.indices[1] < op.indices[0]
-                {
-                    op.indices.swap(0, 1);
+                if ctx.is_symmetric_op(&op.name) {
+                    op.indices.sort();
                 }
             }
             ops.sort();

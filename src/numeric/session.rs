@@ -1137,6 +1137,7 @@ pub fn build_model(
         }
         ModelChoice::FreeScalar {
             dirichlet,
+            complex,
             unimproved,
             fields,
             family,
@@ -1146,6 +1147,8 @@ pub fn build_model(
                 let c = match composite.as_str() {
                     "phi" => Composite::Field,
                     "phi2" => Composite::FieldSquared,
+                    "phibar" => Composite::FieldBar,
+                    "current" => Composite::Current,
                     "boundary-phi" => Composite::BoundaryField,
                     "boundary-dphi" => Composite::BoundaryNormalDerivative,
                     "boundary-tn" => Composite::WallStress,
@@ -1171,6 +1174,9 @@ pub fn build_model(
             };
             if *unimproved {
                 model = model.unimproved();
+            }
+            if *complex {
+                model = model.complex();
             }
             Box::new(model)
         }

@@ -240,6 +240,9 @@ impl Text {
                 self.coincidences(&s.away_from)
             );
         }
+        if let crate::egraph::Stop::Uncovered(why) = &s.search.stop {
+            let _ = writeln!(self.out, "  note: {why}");
+        }
         let _ = writeln!(self.out, "  [{}]", stats(&s.search));
     }
 
@@ -288,6 +291,8 @@ impl Text {
                 );
                 let reason = if c.search.stop.is_saturated() {
                     "the rules saturated: nothing more applies, so the two sides differ by the remainder above".to_string()
+                } else if let crate::egraph::Stop::Uncovered(why) = &c.search.stop {
+                    format!("the rules saturated, but {why}; so the claim is neither proved nor refuted")
                 } else if let crate::egraph::Stop::Undecided(why) = &c.search.stop {
                     format!("the rules saturated, but {why}; so the claim is neither proved nor refuted")
                 } else {

@@ -124,9 +124,51 @@ fn instantiate_op(eg: &mut EGraph, op: &OpPat, b: &Binding) -> Option<Id> {
 
 fn index(eg: &mut EGraph, i: &IdxPat, b: &Binding) -> Option<Id> {
     match i {
-        IdxPat::Var(v) => b.var(v),
+        IdxPat::Var(v) => match b.var(v) {
+            Some(id) => Some(id),
+            None => {
+                let name = fresh_index(eg, v, b);
+                Some(eg.add(Ward::Name(Symbol::from(name.as_str()))))
+            }
+        },
         IdxPat::N => Some(eg.add(Ward::Name(Symbol::from(NORMAL)))),
     }
+}
+
+/// The name of a fresh summed index `?v` of a right side, for one match:
+/// `v#` and the names the match binds, in the order of their variables.
+/// No input can spell `#`, so it clashes with no index of the file; two
+/// matches that bind different names get different fresh indices, and the
+/// same match always the same one (so a rule applied again adds nothing
+/// new and the run saturates). Normalisation renames it to one of the
+/// file's index names, like every summed index.
+fn fresh_index(eg: &EGraph, v: &str, b: &Binding) -> String {
+    let mut bound: Vec<(&str, String)> = b
+        .vars
+        .iter()
+        .map(|(var, id)| {
+            let name = match name_of(eg, *id) {
+                Some(n) => n.to_string(),
+                None => match eg[*id].nodes.iter().find_map(|n| match n {
+                    Ward::Par(inner) => name_of(eg, *inner),
+                    _ => None,
+                }) {
+                    Some(n) => format!("par.{n}"),
+                    None => format!("class{}", eg.find(*id)),
+                },
+            };
+            (var.as_str(), name)
+        })
+        .collect();
+    bound.sort();
+    let mut out = format!("{v}#");
+    for (var, name) in bound {
+        out.push_str(var);
+        out.push('=');
+        out.push_str(&name);
+        out.push(';');
+    }
+    out
 }
 
 fn point(eg: &mut EGraph, p: &PtPat, b: &Binding) -> Option<Id> {

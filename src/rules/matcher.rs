@@ -371,7 +371,7 @@ pub fn holds(eg: &EGraph, ctx: &Context, cond: &Cond, b: &Binding) -> bool {
 
 /// A property of a single insertion in a sequence.
 fn insertion_has(eg: &EGraph, ctx: &Context, class: Id, prop: Property) -> bool {
-    let Some((_, point, indices)) = insertion(eg, class) else {
+    let Some((name, point, indices)) = insertion(eg, class) else {
         return false;
     };
     match prop {
@@ -379,6 +379,24 @@ fn insertion_has(eg: &EGraph, ctx: &Context, class: Id, prop: Property) -> bool 
         Property::Bulk => point_on_boundary(eg, ctx, point) == Some(false),
         Property::Boundary => point_on_boundary(eg, ctx, point) == Some(true),
         Property::Parallel | Property::Normal => false,
+        Property::Vector | Property::Spin(_) | Property::Conserved => {
+            name_of(eg, name).is_some_and(|op| operator_is(ctx, op, prop))
+        }
+    }
+}
+
+/// A spin property of a declared operator: its spin (the number of its
+/// indices; T has spin 2) or the flag `conserved` (T always).
+fn operator_is(ctx: &Context, op: &str, prop: Property) -> bool {
+    let Some(decl) = ctx.operator(op) else {
+        return false;
+    };
+    match prop {
+        Property::Scalar => decl.rank == 0,
+        Property::Vector => decl.rank == 1,
+        Property::Spin(l) => decl.rank == l as usize,
+        Property::Conserved => ctx.is_conserved(op),
+        _ => false,
     }
 }
 
@@ -394,10 +412,17 @@ fn class_is(eg: &EGraph, ctx: &Context, class: Id, prop: Property) -> bool {
     let Some(name) = name_of(eg, class) else {
         return false;
     };
+    // An operator's name (`?v` in `?v[?rho](?p)`): its spin.
+    if matches!(
+        prop,
+        Property::Vector | Property::Spin(_) | Property::Conserved | Property::Scalar
+    ) {
+        return operator_is(ctx, name, prop);
+    }
     match prop {
         Property::Normal => name == NORMAL,
         Property::Parallel => ctx.parallel.contains(name),
         Property::Bulk => name != NORMAL && !ctx.parallel.contains(name),
-        Property::Boundary | Property::Scalar => false,
+        _ => false,
     }
 }

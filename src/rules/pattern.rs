@@ -103,6 +103,24 @@ pub fn lower_rule(source: &Arc<Source>, rule: &ast::Rule) -> Result<(Pat, Pat, V
     collect_bound(&from, &mut bound);
     let to = l.pat(&rule.to, true)?;
     l.check_template(&rule.to, &to, &bound, &BTreeSet::new())?;
+    // Fresh summed indices: index variables of the right side that the
+    // left side does not bind. Each is renamed apart on every application
+    // (`rules::apply`); written once, it would be a free index from nowhere.
+    let mut counts = std::collections::BTreeMap::new();
+    count_index_vars(&to, &mut counts);
+    for (v, n) in &counts {
+        if !bound.vars.contains(v) && *n < 2 {
+            let span = var_span(&rule.to, v).unwrap_or(rule.to.span);
+            return Err(Error::at(
+                ErrorKind::Rule,
+                source,
+                span,
+                format!("`?{v}` on the right side is not bound by the left side"),
+            )
+            .with_label("unbound variable")
+            .with_note("an index variable new on the right side is a fresh summed index and must appear twice; any other variable must appear on the left side or in an enclosing `sum ?o(?p) in …`"));
+        }
+    }
     let mut conds = Vec::new();
     for c in &rule.conditions {
         let cond = l.cond(c)?;
@@ -117,6 +135,39 @@ pub fn lower_rule(source: &Arc<Source>, rule: &ast::Rule) -> Result<(Pat, Pat, V
         conds.push(cond);
     }
     Ok((from, to, conds))
+}
+
+/// How often each index variable occurs in a template (summed over all its
+/// terms: a fresh index is summed within each product it appears in).
+fn count_index_vars(p: &Pat, counts: &mut std::collections::BTreeMap<String, usize>) {
+    let idx = |i: &IdxPat, counts: &mut std::collections::BTreeMap<String, usize>| {
+        if let IdxPat::Var(v) = i {
+            *counts.entry(v.clone()).or_insert(0) += 1;
+        }
+    };
+    match p {
+        Pat::Add(ps) | Pat::Mul(ps) => ps.iter().for_each(|q| count_index_vars(q, counts)),
+        Pat::Pow(a, b) => {
+            count_index_vars(a, counts);
+            count_index_vars(b, counts);
+        }
+        Pat::Corr { items, .. } => {
+            for item in items {
+                item.indices.iter().for_each(|i| idx(i, counts));
+            }
+        }
+        Pat::Der(i, _, body) => {
+            idx(i, counts);
+            count_index_vars(body, counts);
+        }
+        Pat::Kron(i, j) => {
+            idx(i, counts);
+            idx(j, counts);
+        }
+        Pat::Normal(i) => idx(i, counts),
+        Pat::Sum { body, .. } => count_index_vars(body, counts),
+        _ => {}
+    }
 }
 
 /// Variables a pattern binds.
@@ -411,11 +462,10 @@ impl Lowering<'_> {
         }
     }
 
-    fn check_index(&self, e: &Expr, i: &IdxPat, known: &dyn Fn(&str) -> bool) -> Result<()> {
-        match i {
-            IdxPat::Var(v) => self.check_var(e, v, known),
-            IdxPat::N => Ok(()),
-        }
+    /// An index variable the left side does not bind is a fresh summed
+    /// index (checked to appear at least twice by [`fresh_indices`]).
+    fn check_index(&self, _e: &Expr, _i: &IdxPat, _known: &dyn Fn(&str) -> bool) -> Result<()> {
+        Ok(())
     }
 
     fn check_point(&self, e: &Expr, p: &PtPat, known: &dyn Fn(&str) -> bool) -> Result<()> {

@@ -222,6 +222,8 @@ pub enum ModelSpec {
     /// half-space), improved T unless `unimproved`, operator names → composites.
     FreeScalar {
         wall: Option<String>,
+        /// `complex`: the complex field φ, φ̄ with its U(1) current.
+        complex: bool,
         unimproved: bool,
         fields: Vec<(Name, String)>,
         /// `reflection r`: the reflection coefficient.
@@ -262,6 +264,8 @@ pub enum Generator {
 pub enum OpKind {
     Scalar,
     Vector,
+    /// A symmetric traceless tensor; its spin is the `spin` attribute.
+    Tensor,
 }
 
 /// One statement of a `.ward` file.
@@ -454,6 +458,12 @@ pub enum Property {
     Parallel,
     Normal,
     Scalar,
+    /// Spin 1.
+    Vector,
+    /// Declared `conserved` (T always).
+    Conserved,
+    /// Declared spin ℓ (T has spin 2).
+    Spin(u32),
 }
 
 /// One rule of a `.rules` file.

@@ -481,6 +481,7 @@ pub(crate) const STATEMENT_STARTS: &[&str] = &[
     "halfspace",
     "boundary",
     "scalar",
+    "tensor",
     "vector",
     "points",
     "parameters",
@@ -686,12 +687,23 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
             }
             let kind = match next(&mut inner).as_str() {
                 "vector" => OpKind::Vector,
+                "tensor" => OpKind::Tensor,
                 _ => OpKind::Scalar,
             };
             let name = parse_name(next(&mut inner));
             let mut attrs = Vec::new();
             for attr in inner {
-                let mut parts = attr.into_inner();
+                let mut parts = attr.into_inner().peekable();
+                if parts.peek().map(|p| p.as_rule()) == Some(Rule::conserved_kw) {
+                    // A flag: `conserved` stands for the attribute value 1.
+                    let key = parse_name(next(&mut parts));
+                    let value = Expr {
+                        kind: ExprKind::Num(num_rational::BigRational::from_integer(1.into())),
+                        span: key.span,
+                    };
+                    attrs.push((key, value));
+                    continue;
+                }
                 let key = parse_name(next(&mut parts));
                 let value = build_expr(source, next(&mut parts), 0)?;
                 attrs.push((key, value));
@@ -814,6 +826,7 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
             } else {
                 let mut wall = None;
                 let mut unimproved = false;
+                let mut complex = false;
                 let mut fields = Vec::new();
                 let mut reflection = None;
                 let mut coupling = None;
@@ -821,6 +834,7 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                     match part.as_rule() {
                         Rule::wall_kind => wall = Some(part.as_str().to_string()),
                         Rule::unimproved => unimproved = true,
+                        Rule::complex_kw => complex = true,
                         Rule::reflection | Rule::coupling => {
                             let which = part.as_rule();
                             let value = next(&mut part.into_inner());
@@ -840,6 +854,7 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                 }
                 ModelSpec::FreeScalar {
                     wall,
+                    complex,
                     unimproved,
                     fields,
                     reflection,
@@ -1065,6 +1080,11 @@ fn parse_condition(pair: Pair<Rule>) -> Condition {
             let what = next(&mut parts);
             match what.as_rule() {
                 Rule::cond_has => ConditionKind::Has(var, parse_name(next(&mut what.into_inner()))),
+                Rule::cond_spin => {
+                    // At most three digits (the grammar), so the parse holds.
+                    let digits = next(&mut what.into_inner());
+                    ConditionKind::Is(var, Property::Spin(digits.as_str().parse().unwrap_or(0)))
+                }
                 _ => ConditionKind::Is(
                     var,
                     match what.as_str() {
@@ -1072,6 +1092,8 @@ fn parse_condition(pair: Pair<Rule>) -> Condition {
                         "boundary" => Property::Boundary,
                         "parallel" => Property::Parallel,
                         "normal" => Property::Normal,
+                        "vector" => Property::Vector,
+                        "conserved" => Property::Conserved,
                         _ => Property::Scalar,
                     },
                 ),

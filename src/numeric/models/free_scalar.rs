@@ -106,6 +106,10 @@ pub enum Composite {
     WallStress,
     /// The boundary field χ of a coupled wall.
     Chi,
+    /// φ̄, the conjugate of the complex field (complex model only).
+    FieldBar,
+    /// The U(1) current J_μ = ∂_μφ̄ φ - φ̄∂_μφ of the complex field.
+    Current,
 }
 
 impl Composite {
@@ -124,7 +128,7 @@ impl Composite {
     fn rank(self) -> usize {
         match self {
             Composite::Stress => 2,
-            Composite::WallStress => 1,
+            Composite::WallStress | Composite::Current => 1,
             _ => 0,
         }
     }
@@ -140,6 +144,8 @@ impl Composite {
             Composite::BoundaryFieldSquared => ":φ̂²:",
             Composite::WallStress => "T_nμ at the wall",
             Composite::Chi => "χ",
+            Composite::FieldBar => "φ̄",
+            Composite::Current => "J_μ",
         }
     }
 }
@@ -265,6 +271,28 @@ pub struct FreeScalar {
     pub improved: bool,
     pub normalisation: Normalisation,
     pub mapping: Mapping,
+    /// The complex field φ = (φ₁ + iφ₂)/√2 of two canonical real ones
+    /// instead of one real field: φ names φ, φ2 names :φ̄φ:, T is the sum
+    /// of the two real T's, and φ̄ and J are there too.
+    pub complex: bool,
+}
+
+/// Which field a leg is: the real φ, or the complex φ or φ̄. Only φ with
+/// φ̄ (and real with real) contract: ⟨φ φ⟩ = 0 for the complex field.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord)]
+enum Flavour {
+    Real,
+    Phi,
+    Bar,
+}
+
+impl Flavour {
+    fn contracts_with(self, other: Flavour) -> bool {
+        matches!(
+            (self, other),
+            (Flavour::Real, Flavour::Real) | (Flavour::Phi, Flavour::Bar) | (Flavour::Bar, Flavour::Phi)
+        )
+    }
 }
 
 const NAME: &str = "free-scalar";
@@ -275,6 +303,8 @@ const NAME: &str = "free-scalar";
 struct Product {
     coef: Term,
     legs: Vec<Vec<Index>>,
+    /// The field of each leg.
+    flavours: Vec<Flavour>,
 }
 
 /// One field of one insertion, with the derivatives acting on it.
@@ -282,6 +312,7 @@ struct Product {
 struct Leg {
     op: usize,
     derivs: Vec<Index>,
+    flavour: Flavour,
 }
 
 impl FreeScalar {
@@ -293,7 +324,14 @@ impl FreeScalar {
             improved: true,
             normalisation: Normalisation::Canonical,
             mapping,
+            complex: false,
         }
+    }
+
+    /// The complex scalar instead of the real one.
+    pub fn complex(mut self) -> FreeScalar {
+        self.complex = true;
+        self
     }
 
     /// Canonically normalised, improved T, next to a reflecting wall.
@@ -351,8 +389,40 @@ impl FreeScalar {
     /// Summation indices carry the insertion's position `k`, so that two
     /// insertions never share one.
     fn expansion(&self, ctx: &Context, k: usize, op: &Op, c: Composite) -> Vec<Product> {
-        let one = |coef: Term, legs: Vec<Vec<Index>>| Product { coef, legs };
+        let one = |coef: Term, legs: Vec<Vec<Index>>| Product::real(coef, legs);
+        if self.complex {
+            let field = |f: Flavour, derivs: Vec<Index>| Product {
+                coef: Term::one(),
+                legs: vec![derivs],
+                flavours: vec![f],
+            };
+            match c {
+                Composite::Field => return vec![field(Flavour::Phi, vec![])],
+                Composite::FieldBar => return vec![field(Flavour::Bar, vec![])],
+                Composite::FieldSquared => {
+                    return vec![Product::complex(Term::one(), vec![], vec![])]
+                }
+                Composite::Current => {
+                    let i = op.indices[0].clone();
+                    return vec![
+                        Product::complex(Term::one(), vec![i.clone()], vec![]),
+                        Product::complex(Term::int(-1), vec![], vec![i]),
+                    ];
+                }
+                Composite::Stress => {
+                    return self.complex_stress(
+                        ctx,
+                        k,
+                        op.indices[0].clone(),
+                        op.indices[1].clone(),
+                    )
+                }
+                _ => {}
+            }
+        }
         match c {
+            // Only in the complex model (`check` refuses them otherwise).
+            Composite::FieldBar | Composite::Current => vec![],
             Composite::Field | Composite::BoundaryField => vec![one(Term::one(), vec![vec![]])],
             Composite::BoundaryNormalDerivative => vec![one(Term::one(), vec![vec![Index::N]])],
             Composite::FieldSquared | Composite::BoundaryFieldSquared => {
@@ -386,7 +456,7 @@ impl FreeScalar {
 
     /// T_ij of insertion `k` as products of fields.
     fn stress(&self, ctx: &Context, k: usize, i: Index, j: Index) -> Vec<Product> {
-        let one = |coef: Term, legs: Vec<Vec<Index>>| Product { coef, legs };
+        let one = |coef: Term, legs: Vec<Vec<Index>>| Product::real(coef, legs);
         let dummy = |j: usize| Index::Named(format!("κw{k}_{j}"));
         let two_xi = mul(vec![Term::int(2), self.xi(ctx)]);
         let kron = Term::Kron(i.clone(), j.clone());
@@ -417,10 +487,48 @@ impl FreeScalar {
         out
     }
 
+    /// T_ij of the complex field (the sum of the two real T's), insertion
+    /// `k`, as products φ̄ × φ (docs/conventions.md §13):
+    ///
+    ///   T_ij = (1 - 2ξ)(∂_iφ̄∂_jφ + ∂_jφ̄∂_iφ) - 2ξ(φ̄∂_i∂_jφ + ∂_i∂_jφ̄ φ)
+    ///          - δ_ij ∂_aφ̄∂_aφ + 2ξ δ_ij (2∂_bφ̄∂_bφ + φ̄∂²φ + ∂²φ̄ φ).
+    fn complex_stress(&self, ctx: &Context, k: usize, i: Index, j: Index) -> Vec<Product> {
+        let dummy = |j: usize| Index::Named(format!("κw{k}_{j}"));
+        let xi = self.xi(ctx);
+        let two_xi = mul(vec![Term::int(2), xi]);
+        let one_minus = minus(Term::one(), two_xi.clone());
+        let kron = Term::Kron(i.clone(), j.clone());
+        let (a, b) = (dummy(0), dummy(1));
+        let c = Product::complex;
+        let mut out = vec![
+            c(one_minus.clone(), vec![i.clone()], vec![j.clone()]),
+            c(one_minus, vec![j.clone()], vec![i.clone()]),
+            c(kron.clone().negated(), vec![a.clone()], vec![a]),
+        ];
+        if self.improved {
+            out.extend([
+                c(two_xi.clone().negated(), vec![], vec![i.clone(), j.clone()]),
+                c(two_xi.clone().negated(), vec![i, j], vec![]),
+                c(
+                    mul(vec![Term::int(2), two_xi.clone(), kron.clone()]),
+                    vec![b.clone()],
+                    vec![b.clone()],
+                ),
+                c(
+                    mul(vec![two_xi.clone(), kron.clone()]),
+                    vec![],
+                    vec![b.clone(), b.clone()],
+                ),
+                c(mul(vec![two_xi, kron]), vec![b.clone(), b], vec![]),
+            ]);
+        }
+        out
+    }
+
     /// -½ ∂_aφ̂ ∂_aφ̂ + ξ ∂_a∂_a φ̂² of insertion `k`, parallel a written as
     /// all directions minus the normal one: D of the Neumann wall.
     fn displacement_neumann(&self, ctx: &Context, k: usize) -> Vec<Product> {
-        let one = |coef: Term, legs: Vec<Vec<Index>>| Product { coef, legs };
+        let one = |coef: Term, legs: Vec<Vec<Index>>| Product::real(coef, legs);
         let dummy = |j: usize| Index::Named(format!("κw{k}_{j}"));
         let two_xi = mul(vec![Term::int(2), self.xi(ctx)]);
         let (a, b) = (dummy(0), dummy(1));
@@ -640,9 +748,45 @@ impl FreeScalar {
                     ));
                 }
             }
+            let complex_only = matches!(c, Composite::FieldBar | Composite::Current);
+            if complex_only && !self.complex {
+                return Err(unknown(
+                    NAME,
+                    ops,
+                    format!("{} belongs to the complex scalar", c.describe()),
+                ));
+            }
+            if self.complex && (c.on_boundary() || self.has_wall()) {
+                return Err(unknown(
+                    NAME,
+                    ops,
+                    "the complex scalar is modelled without a wall",
+                ));
+            }
             out.push(c);
         }
         Ok(out)
+    }
+}
+
+impl Product {
+    /// A product of real fields.
+    fn real(coef: Term, legs: Vec<Vec<Index>>) -> Product {
+        let flavours = vec![Flavour::Real; legs.len()];
+        Product {
+            coef,
+            legs,
+            flavours,
+        }
+    }
+
+    /// coef × (∂…φ̄)(∂…φ): one φ̄ leg and one φ leg.
+    fn complex(coef: Term, bar: Vec<Index>, phi: Vec<Index>) -> Product {
+        Product {
+            coef,
+            legs: vec![bar, phi],
+            flavours: vec![Flavour::Bar, Flavour::Phi],
+        }
     }
 }
 
@@ -661,6 +805,7 @@ impl Model for FreeScalar {
                 self.mapping.get(&op.name),
                 Some(
                     Composite::Stress
+                        | Composite::Current
                         | Composite::Displacement
                         | Composite::BoundaryNormalDerivative
                         | Composite::WallStress
@@ -696,8 +841,13 @@ impl Model for FreeScalar {
             Normalisation::Canonical => "C_φ = 1/((d-2) S_d)".to_string(),
             Normalisation::Given(_) => "C_φ given".to_string(),
         };
+        let field = if self.complex {
+            "complex free scalar φ = (φ₁ + iφ₂)/√2, ⟨φ φ̄⟩ = C_φ/|x|^(d-2), J_μ = ∂_μφ̄ φ - φ̄∂_μφ"
+        } else {
+            "free scalar"
+        };
         format!(
-            "free scalar, {wall}, {t}, {norm}; composites normal-ordered w.r.t. the vacuum \
+            "{field}, {wall}, {t}, {norm}; composites normal-ordered w.r.t. the vacuum \
              without boundary, boundary composites w.r.t. the boundary vacuum"
         )
     }
@@ -730,10 +880,11 @@ impl Model for FreeScalar {
             for (k, products) in expansions.iter().enumerate() {
                 let p = &products[choice[k]];
                 coef.push(p.coef.clone());
-                for derivs in &p.legs {
+                for (derivs, flavour) in p.legs.iter().zip(&p.flavours) {
                     legs.push(Leg {
                         op: k,
                         derivs: derivs.clone(),
+                        flavour: *flavour,
                     });
                 }
             }
@@ -766,23 +917,55 @@ impl Model for FreeScalar {
 fn merge_products(products: Vec<Product>) -> Vec<Product> {
     // (the legs with the composite's dummies renamed, the coefficients,
     // the first product's own legs)
-    type Group = (Vec<Vec<Index>>, Vec<Term>, Vec<Vec<Index>>);
+    type Group = (
+        (Vec<Vec<Index>>, Vec<Flavour>),
+        Vec<Term>,
+        Vec<Vec<Index>>,
+    );
     let mut out: Vec<Group> = Vec::new();
     for p in products {
-        let shape = shape(&p.legs).0;
+        let shape = (own_dummies_renamed(&p.legs), p.flavours.clone());
         match out.iter_mut().find(|(s, _, _)| *s == shape) {
             Some((_, coefs, _)) => coefs.push(p.coef),
             None => out.push((shape, vec![p.coef], p.legs)),
         }
     }
     out.into_iter()
-        .map(|(_, mut coefs, legs)| Product {
+        .map(|((_, flavours), mut coefs, legs)| Product {
             coef: if coefs.len() == 1 {
                 coefs.pop().unwrap_or_else(Term::one)
             } else {
                 add(coefs)
             },
             legs,
+            flavours,
+        })
+        .collect()
+}
+
+/// Derivative lists with the composite's own summed indices (`κw…`)
+/// renamed in order of first appearance, the free indices kept: ∂_iφ̄∂_jφ
+/// and ∂_jφ̄∂_iφ of the complex T stay apart.
+fn own_dummies_renamed(legs: &[Vec<Index>]) -> Vec<Vec<Index>> {
+    let mut names: Vec<String> = Vec::new();
+    legs.iter()
+        .map(|derivs| {
+            derivs
+                .iter()
+                .map(|i| match i {
+                    Index::Named(n) if n.starts_with('κ') => {
+                        let k = match names.iter().position(|m| m == n) {
+                            Some(k) => k,
+                            None => {
+                                names.push(n.clone());
+                                names.len() - 1
+                            }
+                        };
+                        Index::Named(format!("κd{}", k + 1))
+                    }
+                    other => other.clone(),
+                })
+                .collect()
         })
         .collect()
 }
@@ -863,10 +1046,16 @@ impl Wick<'_> {
             return Ok(());
         };
         used[first] = true;
-        let twins =
-            |p: usize, q: usize| legs[p].op == legs[q].op && legs[p].derivs == legs[q].derivs;
+        let twins = |p: usize, q: usize| {
+            legs[p].op == legs[q].op
+                && legs[p].derivs == legs[q].derivs
+                && legs[p].flavour == legs[q].flavour
+        };
         for partner in first + 1..legs.len() {
             if used[partner] || (first + 1..partner).any(|q| !used[q] && twins(q, partner)) {
+                continue;
+            }
+            if !legs[first].flavour.contracts_with(legs[partner].flavour) {
                 continue;
             }
             self.budget.place()?;
