@@ -268,7 +268,7 @@ fn the_coupling_derivation_is_proved_without_numbers() {
 fn solve_gives_the_coupling_exactly() {
     let (report, _) = check_file("tests/cases/numeric/solve-coupling-symbolic-d.ward");
     assert!(
-        report.contains("a = - Delta d/S_d/(d - 1)  exactly"),
+        report.contains("a = - Delta d/(S_d (d - 1))  exactly"),
         "{report}"
     );
 }
