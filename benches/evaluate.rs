@@ -10,6 +10,8 @@
 //!   distance recomputed at each point.
 //! - `compiled_eval_each`: `Program::eval` once per point (loading the
 //!   values each time), for comparison.
+//! - `compiled_batch`: `Program::batch` (the quadrature path), x1 moving
+//!   over blocks of nodes, each instruction run across a block.
 //! - `*_moving_x2`: the same with x2 moved instead of x1 (at x1 = 0), where
 //!   less of the program is invariant: only |x13|.
 //!
@@ -49,8 +51,15 @@ fn main() {
             (c - h).abs() / h.abs()
         })
         .fold(0.0, f64::max);
+    let batch = program.batch(&values, "x1", None).expect("loads");
+    let mut batched = vec![0.0; coords.len()];
+    batch
+        .eval(&coords.concat(), &[], &mut batched)
+        .expect("evaluates");
+    let same = batched == compiled;
     eprintln!(
-        "{} instructions; compiled vs hand-written: worst relative difference {worst:.1e}",
+        "{} instructions; compiled vs hand-written: worst relative difference {worst:.1e}; \
+         batched equal to eval_many bit for bit: {same}",
         program.len()
     );
     divan::main();
@@ -165,5 +174,40 @@ fn hand_written_moving_x2(bencher: divan::Bencher) {
             .iter()
             .map(|x2| by_hand(black_box(&x1), x2, black_box(x3), black_box(0)))
             .collect::<Vec<f64>>()
+    });
+}
+
+/// `Program::batch` (the quadrature path): x1 moving over blocks of nodes,
+/// the batch built inside the timing (once per integral in a file).
+#[divan::bench]
+fn compiled_batch(bencher: divan::Bencher) {
+    let (program, values, coords) = setup();
+    let flat: Vec<f64> = coords.concat();
+    bencher.bench(|| {
+        let batch = program
+            .batch(black_box(&values), "x1", None)
+            .expect("loads");
+        let mut out = vec![0.0; POINTS];
+        batch
+            .eval(black_box(&flat), &[], &mut out)
+            .expect("evaluates");
+        out
+    });
+}
+
+#[divan::bench]
+fn compiled_batch_moving_x2(bencher: divan::Bencher) {
+    let (program, mut values, coords) = setup();
+    values.points.insert("x1".to_string(), vec![0.0; 4]);
+    let flat: Vec<f64> = coords.concat();
+    bencher.bench(|| {
+        let batch = program
+            .batch(black_box(&values), "x2", None)
+            .expect("loads");
+        let mut out = vec![0.0; POINTS];
+        batch
+            .eval(black_box(&flat), &[], &mut out)
+            .expect("evaluates");
+        out
     });
 }

@@ -97,3 +97,22 @@ fn coulomb_flux_along_axis(d: usize) -> Estimate {
 fn coulomb_flux_two_sources(d: usize) -> Estimate {
     flux(divan::black_box(d), "two sources")
 }
+
+/// The W4 flux checks of a whole file (parse, model, symbolic work,
+/// compilation, quadrature): all four conformal Killing families through a
+/// sphere around x1, d = 3, 4, 6 (`tests/cases/numeric/flux-d*.ward`).
+#[divan::bench(args = ["flux-d3", "flux-d4", "flux-d6"], sample_count = 5)]
+fn w4_flux_file(bencher: divan::Bencher, name: &str) {
+    use std::path::Path;
+    use wardsmith::diagnostic::Source;
+    use wardsmith::run::{run_source, Mode, Options};
+    let path = format!("tests/cases/numeric/{name}.ward");
+    let text = std::fs::read_to_string(&path).expect("case file exists");
+    let source = Source::new(path, text);
+    bencher.bench(|| {
+        let out =
+            run_source(&source, Path::new("."), Mode::Check, &Options::default()).expect("valid");
+        assert_eq!(out.code, 0);
+        out
+    });
+}

@@ -210,6 +210,17 @@ impl Engine {
         }
         let coefficients = match crate::normal::hypergeometric::split(&self.ctx, remainder) {
             Ok(c) => c,
+            // Several families (the four-point blocks hold ₂F₁ of z and
+            // of z̄): the remainder itself, at sampled parameters.
+            Err(_)
+                if crate::numeric::nonzero::hypergeometric_nonzero(
+                    &self.ctx,
+                    remainder,
+                    NONZERO_SEED,
+                ) =>
+            {
+                return None
+            }
             Err(why) => return Some(why),
         };
         let shown = coefficients.iter().any(|c| {

@@ -41,7 +41,7 @@ pub const STATEMENTS: &[Entry] = &[
     Entry {
         keyword: "tensor",
         example: "tensor W dim 4, spin 2",
-        meaning: "a symmetric traceless tensor of spin ℓ, W[mu,nu](x)",
+        meaning: "a symmetric traceless tensor of spin ℓ, W[mu,nu](x); wall indices if boundary",
     },
     Entry {
         keyword: "boundary",

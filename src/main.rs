@@ -32,8 +32,8 @@ enum Command {
     /// file's model each `compare`, `flux`, `scan` and `decompose`; print
     /// what `simplify`, `evaluate`, `classify` and `solve` find.
     ///
-    /// Statements: dimension, halfspace, scalar, vector, tensor, boundary, points,
-    /// parameters, positive, parallel, function, let, rules, killing,
+    /// Statements: dimension, halfspace, scalar, vector, tensor, boundary,
+    /// points, parameters, positive, parallel, function, let, rules, killing,
     /// classify, simplify, claim, derivation, slip, place, model,
     /// coefficient, values, sample, evaluate, compare, flux, solve, scan,
     /// decompose.

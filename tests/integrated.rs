@@ -144,7 +144,8 @@ fn relations_the_normal_form_does_not_decide_are_unknown() {
     // Gauss's contiguous relations (DLMF 15.5.11–15.5.18) and the
     // transformations of the argument (DLMF 15.8.1) hold, but the normal
     // form keeps one family apart from another: true identities between two
-    // families, and wrong ones, are unknown, never refuted or proved.
+    // families are unknown, never proved. (A wrong one is refuted by the
+    // value of its remainder at sampled parameters: below.)
     let header = "dimension d\nparameters a b c z";
     for claim in [
         // Pfaff (DLMF 15.8.1), true.
@@ -153,8 +154,6 @@ fn relations_the_normal_form_does_not_decide_are_unknown() {
         // with mpmath at a = 0.3, b = 1.7, c = 2.9, z = -0.6), true:
         // c (c - 1)(z - 1) F(c - 1) + c (c - 1 - (2c - a - b - 1) z) F(c) + (c - a)(c - b) z F(c + 1) = 0.
         "claim c (c - 1) (z - 1) F21(a, b; c - 1; z) + c (c - 1 - (2 c - a - b - 1) z) F21(a, b; c; z) + (c - a) (c - b) z F21(a, b; c + 1; z) = 0",
-        // The same with a wrong sign: false, and still not refuted.
-        "claim c (c - 1) (z - 1) F21(a, b; c - 1; z) - c (c - 1 - (2 c - a - b - 1) z) F21(a, b; c; z) + (c - a) (c - b) z F21(a, b; c + 1; z) = 0",
         // Elementary parameters: ₂F₁(1, 1; 2; z) = -ln(1 - z)/z (DLMF 15.4.2)
         // satisfies z F' + F = 1/(1 - z), which the normal form cannot see.
         "claim z F21'(1, 1; 2; z) + F21(1, 1; 2; z) = 1/(1 - z)",
@@ -163,6 +162,24 @@ fn relations_the_normal_form_does_not_decide_are_unknown() {
         assert_eq!(code, 1, "{report}");
         assert!(report.contains("UNKNOWN"), "{report}");
         assert!(report.contains("the remainder is undecided"), "{report}");
+    }
+}
+
+#[test]
+fn wrong_relations_between_families_are_refuted_by_value() {
+    // The contiguous relation above with a wrong sign, and two members of
+    // different families set equal: false, and refuted because the whole
+    // remainder, ₂F₁ included, is certainly not zero at a sampled point
+    // (src/numeric/nonzero.rs, hypergeometric_nonzero).
+    let header = "dimension d\nparameters a b c z";
+    for claim in [
+        "claim c (c - 1) (z - 1) F21(a, b; c - 1; z) - c (c - 1 - (2 c - a - b - 1) z) F21(a, b; c; z) + (c - a) (c - b) z F21(a, b; c + 1; z) = 0",
+        "claim F21(a, a; 2 a + 1; z) = F21(a, a; 2 a; z)",
+    ] {
+        let (report, code) = check(header, claim);
+        assert_eq!(code, 1, "{report}");
+        assert!(report.contains("NOT PROVED"), "{report}");
+        assert!(!report.contains("UNKNOWN"), "{report}");
     }
 }
 

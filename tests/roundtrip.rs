@@ -272,6 +272,20 @@ fn merged_denominators_with_a_sum_round_trip() {
 }
 
 #[test]
+fn factored_coefficients_round_trip() {
+    // Printed with factored polynomials in d and one bracketed denominator:
+    // `(d - 2)^2/(d - 1)^2`, `3/(2 (g + 1))`, `- 1/(2 (d - 1)^2)`.
+    explicit_round_trips(&[
+        "(4 d - d^2 - 4)/(2 d - d^2 - 1)",
+        "3/(2 (g + 1))",
+        "- 1/2 (d - 1)^(-2)",
+        "3 (g + 1)^(-2)/2",
+        "(2 d^2 - 5 d + 3)/(d^2 + 1) |x1 - x2|^(-Delta)",
+        "(d^2 - 1/4) g/(d - 3)",
+    ]);
+}
+
+#[test]
 fn negative_power_of_a_sum_in_a_product_round_trips() {
     // Printed `|x1 - x2|^2/(x1[n] + x2[n])^2`, read back as
     // `|x1 - x2|^2/(2 x1[n] x2[n] + x1[n]^2 + x2[n]^2)`.

@@ -16,11 +16,16 @@ use super::Lowerer;
 use crate::diagnostic::{Error, ErrorKind, Result};
 use crate::syntax::ast::{Expr, Name, Span};
 use crate::term::{diff, Term, HYP2F1, HYP2F1_ASCII};
+use num_traits::Zero;
 
 /// The bulk-channel block `f_bulk(Δ; ξ)`.
 pub const BULK_BLOCK: &str = "f_bulk";
 /// The boundary-channel block `f_bdy(Δ̂; ξ)`.
 pub const BOUNDARY_BLOCK: &str = "f_bdy";
+
+/// The s-channel block of a four-point function, `g_block(Δ, ℓ; z, z̄)`
+/// (d = 2 and d = 4; docs/conventions.md §13).
+pub const FOUR_POINT_BLOCK: &str = "g_block";
 
 /// The cross-ratios of four points, `u(x1, x2, x3, x4)` and `v(…)`.
 pub const CROSS_RATIO_U: &str = "u";
@@ -60,6 +65,9 @@ impl Lowerer {
             }
             if name == BULK_BLOCK || name == BOUNDARY_BLOCK {
                 return self.block(c, span);
+            }
+            if name == FOUR_POINT_BLOCK {
+                return self.four_point_block(c, span);
             }
             if (name == CROSS_RATIO_U || name == CROSS_RATIO_V) && c.args.len() == 4 {
                 self.plain_call(c, span, &format!("the cross-ratio {name}"))?;
@@ -372,6 +380,126 @@ impl Lowerer {
         };
         let body = self.differentiate(body, &var, c.primes, c.name.span)?;
         Ok(diff::substitute(&body, &var, &xi))
+    }
+
+    /// `g_block(Δ, ℓ; z, z̄)`: the s-channel block of four identical scalars
+    /// in d = 2 or d = 4 (docs/conventions.md §13), with
+    /// k_β(x) = x^(β/2) ₂F₁(β/2, β/2; β; x):
+    ///
+    ///   d = 2: [k_{Δ+ℓ}(z) k_{Δ-ℓ}(z̄) + k_{Δ-ℓ}(z) k_{Δ+ℓ}(z̄)]/(1 + δ_{ℓ0}),
+    ///   d = 4: z z̄/(z - z̄) [k_{Δ+ℓ}(z) k_{Δ-ℓ-2}(z̄) - k_{Δ-ℓ-2}(z) k_{Δ+ℓ}(z̄)].
+    ///
+    /// ℓ is a whole number ≥ 0 or a symbol; a symbolic ℓ in d = 2 stands
+    /// for ℓ ≥ 1 (no 1/2).
+    fn four_point_block(&self, c: &Call, span: Span) -> Result<Term> {
+        let form = "the four-point block is written `g_block(Delta, l; z, zb)`: the exchanged dimension and spin, `;`, then z and z̄ (u = z z̄, v = (1 - z)(1 - z̄); docs/conventions.md §13); to differentiate it, name it with `let g(z, zb) = g_block(Delta, l; z, zb)` and write `g[1,0](z, zb)`";
+        if c.orders.is_some() || c.primes > 0 {
+            return Err(self
+                .err(
+                    ErrorKind::Syntax,
+                    c.name.span,
+                    "the four-point block takes no primes or derivative counts",
+                )
+                .with_label("derivatives of g_block")
+                .with_note(form));
+        }
+        if c.args.len() != 4 || c.separators != [',', ';', ','] {
+            return Err(self
+                .err(
+                    ErrorKind::Syntax,
+                    span,
+                    "the four-point block takes a dimension and a spin, `;`, then z and z̄",
+                )
+                .with_label("not `g_block(Delta, l; z, zb)`")
+                .with_note(form));
+        }
+        let d = match self.ctx.dim() {
+            Term::Num(n) if n == ratio(2, 1) => 2,
+            Term::Num(n) if n == ratio(4, 1) => 4,
+            _ => {
+                return Err(self
+                    .err(
+                        ErrorKind::Unsupported,
+                        c.name.span,
+                        "four-point blocks have closed forms in d = 2 and d = 4 only",
+                    )
+                    .with_label("in this file's dimension")
+                    .with_note("declare `dimension 2` or `dimension 4`"))
+            }
+        };
+        let mut lowered = Vec::with_capacity(4);
+        for (k, a) in c.args.iter().enumerate() {
+            self.scalar_argument(a, "an argument of the four-point block")?;
+            let t = self.expr(a)?;
+            if k < 2 && t.mentions_any_point() {
+                return Err(self
+                    .err(
+                        ErrorKind::Syntax,
+                        a.span,
+                        "the dimension and spin of a block cannot depend on points",
+                    )
+                    .with_label("depends on a point")
+                    .with_note(form));
+            }
+            lowered.push(t);
+        }
+        let spin = crate::normal::normalize(&self.ctx, &lowered[1]).unwrap_or(lowered[1].clone());
+        let scalar_spin = match &spin {
+            Term::Num(n) => {
+                if !(n.is_integer() && *n >= ratio(0, 1)) {
+                    return Err(self
+                        .err(
+                            ErrorKind::Syntax,
+                            c.args[1].span,
+                            "the spin of a four-point block is a whole number ≥ 0",
+                        )
+                        .with_label("not a whole number ≥ 0")
+                        .with_note(form));
+                }
+                n.is_zero()
+            }
+            _ => false,
+        };
+        let [delta, l, z, zb] = <[Term; 4]>::try_from(lowered).map_err(|_| {
+            Error::new(
+                ErrorKind::Syntax,
+                "the four-point block takes four arguments",
+            )
+        })?;
+        let half = |t: Term| Term::Mul(vec![Term::Num(ratio(1, 2)), t]);
+        let k = |beta: Term, x: &Term| {
+            let h = half(beta.clone());
+            Term::Mul(vec![
+                Term::Pow(Box::new(x.clone()), Box::new(h.clone())),
+                Term::hyp2f1(0, h.clone(), h, beta, x.clone()),
+            ])
+        };
+        let plus = Term::Add(vec![delta.clone(), l.clone()]);
+        let minus = if d == 2 {
+            Term::Add(vec![delta, l.negated()])
+        } else {
+            Term::Add(vec![delta, l.negated(), Term::int(-2)])
+        };
+        let first = Term::Mul(vec![k(plus.clone(), &z), k(minus.clone(), &zb)]);
+        let second = Term::Mul(vec![k(minus, &z), k(plus, &zb)]);
+        Ok(if d == 2 {
+            let sum = Term::Add(vec![first, second]);
+            if scalar_spin {
+                Term::Mul(vec![Term::Num(ratio(1, 2)), sum])
+            } else {
+                sum
+            }
+        } else {
+            Term::Mul(vec![
+                z.clone(),
+                zb.clone(),
+                Term::Pow(
+                    Box::new(Term::Add(vec![z, zb.negated()])),
+                    Box::new(Term::int(-1)),
+                ),
+                Term::Add(vec![first, second.negated()]),
+            ])
+        })
     }
 
     /// ξ^(Δ/2) ₂F₁(Δ/2, Δ/2; Δ + 1 - d/2; -ξ) (docs/conventions.md §9).

@@ -25,11 +25,18 @@ pub fn integral(ctx: &Norm, i: &Integral) -> Result<Vec<Mono>> {
         Region::Ball(c, r) => Region::Ball(c.clone(), normalize_in(ctx, r)?),
         r => r.clone(),
     };
-    // Around a boundary point the surface is a hemisphere plus the disc on
-    // the wall, where T meets its boundary value: such a flux is left to
-    // numeric work, not turned into a volume integral.
+    let mut out = Vec::new();
+    let mut monos = expand(ctx, &i.body)?;
+    // Around a boundary point the surface is the hemisphere above the wall.
+    // Where T stands at the integration point, the integrand is extended by
+    // zero below the wall (the convention of the half-space rules), so the
+    // flux through the hemisphere is the flux through the whole sphere and
+    // the divergence theorem on the whole ball holds: its δ(y) term becomes
+    // an integral over the disc on the wall. Any other integrand (explicit
+    // functions, correlators without T there) does not vanish below the
+    // wall; its hemisphere flux is left as it is, for numeric work.
     if let (true, Region::Ball(center, _)) = (i.surface, &region) {
-        if ctx.is_boundary_point(center) {
+        if ctx.is_boundary_point(center) && !monos.iter().all(|m| stress_tensor_at(m, &i.var)) {
             return Ok(vec![Mono::factor(Term::Integral(Box::new(Integral {
                 var: i.var.clone(),
                 region,
@@ -38,8 +45,6 @@ pub fn integral(ctx: &Norm, i: &Integral) -> Result<Vec<Mono>> {
             })))]);
         }
     }
-    let mut out = Vec::new();
-    let mut monos = expand(ctx, &i.body)?;
     if i.surface {
         // The explicit part of a flux, in closed form when it can be.
         let (explicit, rest): (Vec<Mono>, Vec<Mono>) =
@@ -61,6 +66,17 @@ pub fn integral(ctx: &Norm, i: &Integral) -> Result<Vec<Mono>> {
         }
     }
     Ok(out)
+}
+
+/// True if a correlator of the monomial has T at the integration point, so
+/// that the monomial vanishes below the wall.
+fn stress_tensor_at(m: &Mono, var: &Point) -> bool {
+    m.factors.iter().any(|f| match f {
+        Term::Corr(ops) => ops
+            .iter()
+            .any(|o| o.name == crate::context::STRESS_TENSOR && is_var(&o.point, var)),
+        _ => false,
+    })
 }
 
 /// A monomial of a flux whose dependence on the integration point is
@@ -189,6 +205,26 @@ fn volume(ctx: &Norm, var: &Point, region: &Region, m: Mono) -> Result<Vec<Mono>
     // A ball clear of the wall: δ(y(x)) vanishes on it.
     if wall.is_some() && clear_of_wall(ctx, region) {
         return Ok(vec![]);
+    }
+    // Over a ball around a boundary point, δ(y(x)) leaves the disc of the
+    // ball on the wall: x becomes x∥, still integrated over the ball.
+    if let (Some(k), Region::Ball(center, _)) = (wall, region) {
+        if ctx.is_boundary_point(center) && !var.par {
+            let mut rest = inside.clone();
+            rest.factors.remove(k);
+            let projected = Point {
+                par: true,
+                ..var.clone()
+            };
+            let body = substitute(ctx, &collect(vec![rest]), var, &projected);
+            let mut out = Vec::new();
+            for m in expand(ctx, &body)? {
+                for r in volume(ctx, &projected, region, m)? {
+                    out.push(outside.mul(&r));
+                }
+            }
+            return Ok(out);
+        }
     }
     if let (Some(k), Region::Halfspace | Region::Space) = (wall, region) {
         let mut rest = inside.clone();

@@ -10,7 +10,9 @@
 //! once. [`Program::eval`] reads the parameters and coordinates from
 //! [`Values`](super::Values) and runs the code; [`Program::eval_many`]
 //! moves one point through many positions — the inner loop of quadrature
-//! — running once the part of the code that does not depend on that point.
+//! — running once the part of the code that does not depend on that point;
+//! [`Program::batch`] moves a point and the normal together over blocks of
+//! nodes, one instruction at a time across the block (`eval/batch.rs`).
 //! Whatever has no real value (division by zero, a non-integer power of a
 //! negative number, an overflow) is an [`Error`](crate::diagnostic::Error) of kind
 //! [`ErrorKind::Numeric`](crate::diagnostic::ErrorKind::Numeric), never a
@@ -21,10 +23,12 @@
 //! interpreter, `eval/double.rs` the double-double re-run for values that
 //! cancel in f64.
 
+mod batch;
 mod compile;
 mod double;
 mod program;
 
+pub use batch::{Batch, LANES};
 pub use program::{Bounded, Program};
 
 use crate::context::Context;

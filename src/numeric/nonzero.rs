@@ -160,3 +160,88 @@ fn parameters_only(t: &Term, out: &mut Vec<String>) -> bool {
         _ => false,
     }
 }
+
+/// Samples tried by [`hypergeometric_nonzero`].
+const HYPERGEOMETRIC_SAMPLES: usize = 8;
+
+/// Whether a remainder holding ₂F₁ that the normal form cannot take apart
+/// (several families: different arguments, or parameters that differ by
+/// more than whole shifts) is not identically zero, shown by one value
+/// that is certainly not zero: the whole remainder, ₂F₁ included, at
+/// seeded random parameters between 1/10 and 9/10 (where ₂F₁ of a
+/// parameter is on its disc of convergence and real), a symbolic dimension
+/// between 5/2 and 13/2, judged as [`somewhere_nonzero`] judges. The
+/// remainder is an analytic function of its parameters there, so one
+/// certain nonzero value refutes the identity. Points are not sampled: a
+/// remainder that holds them stays undecided. False when no sample shows
+/// a nonzero value (undecided, never proved).
+pub fn hypergeometric_nonzero(ctx: &Context, t: &Term, seed: u64) -> bool {
+    let mut symbols = Vec::new();
+    if !with_hypergeometric(t, &mut symbols) {
+        return false;
+    }
+    symbols.sort();
+    symbols.dedup();
+    let mut state = seed;
+    let mut next = move || super::splitmix(&mut state);
+    let declared = match &ctx.dimension {
+        Some(Term::Num(n)) => num_traits::ToPrimitive::to_f64(n),
+        _ => None,
+    };
+    for _ in 0..HYPERGEOMETRIC_SAMPLES {
+        let d = declared.unwrap_or_else(|| 2.5 + 4.0 * next());
+        let Some(d_exact) = BigRational::from_float(d) else {
+            return false;
+        };
+        let term = crate::term::diff::substitute(t, DIMENSION, &Term::Num(d_exact));
+        let mut scalars = BTreeMap::new();
+        for s in &symbols {
+            let v = if s == SPHERE_AREA {
+                sphere_area_at(d)
+            } else {
+                0.1 + 0.8 * next()
+            };
+            scalars.insert(s.clone(), v);
+        }
+        let dim = declared.map_or(3, |d| d as usize).clamp(1, 16);
+        let values = Values {
+            dim,
+            scalars,
+            tensors: BTreeMap::new(),
+            points: BTreeMap::new(),
+        };
+        let Ok(program) = compile(ctx, &term, &[], dim) else {
+            return false;
+        };
+        let Ok(v) = program.eval_bounded(&values) else {
+            continue;
+        };
+        if v.overflow || v.underflow || !v.value.is_finite() {
+            continue;
+        }
+        if v.value.abs() > MARGIN * v.rounding && v.value.abs() > CANCELLED * v.scale {
+            return true;
+        }
+    }
+    false
+}
+
+/// True if `t` is built from numbers, parameters and ₂F₁ of them with sums,
+/// products and powers; collects the parameters' names.
+fn with_hypergeometric(t: &Term, out: &mut Vec<String>) -> bool {
+    match t {
+        Term::Num(_) => true,
+        Term::Sym(s) => {
+            if s != DIMENSION {
+                out.push(s.clone());
+            }
+            true
+        }
+        Term::Fun(name, _, args) if name == crate::term::HYP2F1 => {
+            args.iter().all(|a| with_hypergeometric(a, out))
+        }
+        Term::Pow(a, b) => with_hypergeometric(a, out) && with_hypergeometric(b, out),
+        Term::Mul(ts) | Term::Add(ts) => ts.iter().all(|s| with_hypergeometric(s, out)),
+        _ => false,
+    }
+}

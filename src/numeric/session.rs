@@ -10,7 +10,6 @@
 //! the error estimate reported: that is what makes a flux an independent
 //! check of the local identities (docs/conventions.md §8).
 
-use std::cell::RefCell;
 use std::sync::atomic::{AtomicUsize, Ordering};
 use std::sync::{Arc, Mutex};
 
@@ -23,7 +22,7 @@ use super::eval::compile;
 use super::models::conformal::{Conformal, Convention};
 use super::models::free_scalar::{Composite, FreeScalar, Mapping, Reflection, Wall};
 use super::models::{apply, pointwise_pairs, sphere_area, Model, SPHERE_AREA};
-use super::quadrature::{integrate, Surface, Tolerance, MAX_DIM, MIN_DIM};
+use super::quadrature::{integrate_batch, Surface, Tolerance, MAX_DIM, MIN_DIM};
 use super::Values;
 use crate::context::{Context, IndexKind, DIMENSION, STRESS_TENSOR};
 use crate::diagnostic::{Error, ErrorKind, Result};
@@ -932,47 +931,63 @@ impl<'a> Session<'a> {
                 .map_err(|e| Error::new(ErrorKind::Placement, e.to_string()))?;
         }
         let program = self.explicit(&body, free)?;
-        let values = RefCell::new(values.clone());
-        let failure = RefCell::new(None);
+        let batch = program.batch(values, &i.var.name, Some(NORMAL_VALUE))?;
+        let mut sampled = values.clone();
+        let mut failure = None;
         // The integrand's rounding, at every ROUNDING_SAMPLE-th node: the
         // largest bound and the largest value seen there.
-        let count = std::cell::Cell::new(0usize);
-        let noise = std::cell::Cell::new((0.0f64, 0.0f64, false));
-        let estimate = integrate(
+        let mut count = 0usize;
+        let mut noise = (0.0f64, 0.0f64, false);
+        let dim = values.dim;
+        let estimate = integrate_batch(
             &surface,
-            |x, normal| {
-                let mut v = values.borrow_mut();
-                v.points.insert(i.var.name.to_string(), x.to_vec());
-                v.tensors.insert(NORMAL_VALUE.to_string(), normal.to_vec());
-                let k = count.get();
-                count.set(k + 1);
-                let result = if k % ROUNDING_SAMPLE == 0 {
-                    program.eval_bounded(&v).map(|b| {
-                        let (e, f, under) = noise.get();
-                        let e = if b.overflow {
-                            f64::INFINITY
-                        } else {
-                            e.max(b.rounding)
-                        };
-                        noise.set((e, f.max(b.value.abs()), under || b.underflow));
-                        b.value
-                    })
-                } else {
-                    program.eval(&v)
-                };
-                match result {
-                    Ok(f) => f,
-                    Err(e) => {
-                        failure.borrow_mut().get_or_insert(e);
-                        f64::NAN
+            |points, normals, out| {
+                if failure.is_some() {
+                    out.fill(f64::NAN);
+                    return;
+                }
+                if let Err(e) = batch.eval(points, normals, out) {
+                    failure = Some(e);
+                    out.fill(f64::NAN);
+                    return;
+                }
+                // Node k of the whole integration carries a rounding bound
+                // when k is a multiple of ROUNDING_SAMPLE.
+                let first = count.next_multiple_of(ROUNDING_SAMPLE) - count;
+                for k in (first..out.len()).step_by(ROUNDING_SAMPLE) {
+                    sampled.points.insert(
+                        i.var.name.to_string(),
+                        points[k * dim..(k + 1) * dim].to_vec(),
+                    );
+                    sampled.tensors.insert(
+                        NORMAL_VALUE.to_string(),
+                        normals[k * dim..(k + 1) * dim].to_vec(),
+                    );
+                    match program.eval_bounded(&sampled) {
+                        Ok(b) => {
+                            let (e, f, under) = noise;
+                            let e = if b.overflow {
+                                f64::INFINITY
+                            } else {
+                                e.max(b.rounding)
+                            };
+                            noise = (e, f.max(b.value.abs()), under || b.underflow);
+                            out[k] = b.value;
+                        }
+                        Err(e) => {
+                            failure = Some(e);
+                            out.fill(f64::NAN);
+                            return;
+                        }
                     }
                 }
+                count += out.len();
             },
             Tolerance::relative(QUADRATURE_TOLERANCE)
                 .with_abs(QUADRATURE_FLOOR)
                 .with_max_nodes(QUADRATURE_BUDGET),
         );
-        if let Some(e) = failure.into_inner() {
+        if let Some(e) = failure {
             return Err(e);
         }
         if !estimate.converged {
@@ -987,7 +1002,7 @@ impl<'a> Session<'a> {
         }
         // The integral inherits the integrand's relative rounding, against
         // Σ|w f|.
-        let (largest_rounding, largest_value, underflow) = noise.get();
+        let (largest_rounding, largest_value, underflow) = noise;
         let magnitude = estimate.magnitude.max(estimate.value.abs());
         let rounding = if largest_value > 0.0 {
             largest_rounding / largest_value * magnitude

@@ -29,6 +29,29 @@ fn tidy(t: &Term) -> Term {
                     t => out.push(t),
                 }
             }
+            // Numbers added up where they stood: `Δ/2 - 2`, not `Δ/2 - 1 - 1`.
+            let mut constant: Option<(usize, BigRational)> = None;
+            let mut kept = Vec::with_capacity(out.len());
+            for t in out {
+                match (t, &mut constant) {
+                    (Term::Num(c), Some((_, sum))) => *sum += c,
+                    (Term::Num(c), None) => {
+                        constant = Some((kept.len(), c.clone()));
+                        kept.push(Term::Num(c));
+                    }
+                    (t, _) => kept.push(t),
+                }
+            }
+            if let Some((k, c)) = constant {
+                kept[k] = Term::Num(c);
+            }
+            let mut out: Vec<Term> = kept
+                .into_iter()
+                .filter(|t| !matches!(t, Term::Num(c) if c.is_zero()))
+                .collect();
+            if out.is_empty() {
+                out.push(Term::zero());
+            }
             match out.len() {
                 1 => out.pop().unwrap_or_else(Term::zero),
                 _ => Term::Add(out),
@@ -87,7 +110,7 @@ fn sum(ctx: &Context, t: &Term, out: &mut String) {
         _ => vec![t],
     };
     for (i, term) in terms.iter().enumerate() {
-        let (negative, magnitude) = split_sign(term);
+        let (negative, magnitude) = split_sign(&super::factor::factored(term));
         match (i, negative) {
             (0, true) => out.push('-'),
             (0, false) => {}
@@ -239,7 +262,12 @@ fn atom(ctx: &Context, t: &Term, out: &mut String) {
                 if k > 0 {
                     out.push_str(if hypergeometric && k >= 2 { "; " } else { ", " });
                 }
-                sum(ctx, a, out);
+                match super::factor::cross_ratio_points(a) {
+                    Some((p, q)) if ctx.has_halfspace() => {
+                        out.push_str(&format!("\\xi({}, {})", wrap(&point(p)), wrap(&point(q))))
+                    }
+                    _ => sum(ctx, a, out),
+                }
             }
             out.push_str("\\right)");
         }

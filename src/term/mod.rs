@@ -7,6 +7,7 @@
 //! strings, points by declaration rank, never by interned ids.
 
 pub mod diff;
+pub mod factor;
 pub mod latex;
 pub mod print;
 

@@ -55,7 +55,7 @@ impl<'a> Printer<'a> {
             .iter()
             .enumerate()
             .map(|(i, term)| {
-                let (negative, magnitude) = split_sign(term);
+                let (negative, magnitude) = split_sign(&super::factor::factored(term));
                 let mut out = String::from(match (i, negative) {
                     (_, true) => "- ",
                     (0, false) => "",
@@ -78,7 +78,7 @@ impl<'a> Printer<'a> {
             _ => vec![t],
         };
         for (i, term) in terms.iter().enumerate() {
-            let (negative, magnitude) = split_sign(term);
+            let (negative, magnitude) = split_sign(&super::factor::factored(term));
             match (i, negative) {
                 (0, true) => out.push_str("- "),
                 (0, false) => {}
@@ -106,7 +106,9 @@ impl<'a> Printer<'a> {
                 // inverse of the expanded square.
                 Term::Pow(b, e)
                     if matches!(**e, Term::Num(ref q) if q.is_negative()
-                        && (!matches!(**b, Term::Add(_) | Term::Mul(_)) || *q == -BigRational::one())) =>
+                        && (!matches!(**b, Term::Add(_) | Term::Mul(_))
+                            || *q == -BigRational::one()
+                            || super::factor::is_univariate(b))) =>
                 {
                     let Term::Num(q) = &**e else { continue };
                     let q = -q;
@@ -138,6 +140,22 @@ impl<'a> Printer<'a> {
                     denom.insert(0, Term::Num(BigRational::from_integer(q)));
                 }
             }
+            // A power of a sum shares the line only with nothing: read back,
+            // `1/(2 (d - 1)^2)` would expand the square, so it stays above
+            // as `(d - 1)^(-2)` when anything else is below.
+            if denom.len() > 1 {
+                let (powers, others): (Vec<Term>, Vec<Term>) = denom
+                    .into_iter()
+                    .partition(|f| matches!(f, Term::Pow(b, _) if matches!(**b, Term::Add(_))));
+                denom = others;
+                for p in powers {
+                    if let Term::Pow(b, e) = p {
+                        if let Term::Num(q) = *e {
+                            numer.push(Term::Pow(b, Box::new(Term::Num(-q))));
+                        }
+                    }
+                }
+            }
             // `|x|^2/4`, not `1 |x|^2/4`.
             if numer.len() > 1 && matches!(numer.first(), Some(Term::Num(c)) if c.is_one()) {
                 numer.remove(0);
@@ -156,15 +174,20 @@ impl<'a> Printer<'a> {
             sep(out);
             self.factor(f, out);
         }
-        // One `/`: a product below the line is bracketed, `/(2 g y^2)`;
-        // but not one with a sum, which would read back as the inverse of
-        // the expanded product: `/(g + 1)/(g - 1)` stays a chain.
-        let has_sum = denom.iter().any(|f| {
-            matches!(f, Term::Add(_)) || matches!(f, Term::Pow(b, _) if matches!(**b, Term::Add(_)))
-        });
+        // One `/`: a product below the line is bracketed, `/(2 g y^2)`,
+        // `/(2 (g + 1))`; but not one with two sums, which would read back
+        // as the inverse of the expanded product: `/(g + 1)/(g - 1)` stays
+        // a chain.
+        let sums = denom
+            .iter()
+            .filter(|f| {
+                matches!(f, Term::Add(_))
+                    || matches!(f, Term::Pow(b, _) if matches!(**b, Term::Add(_)))
+            })
+            .count();
         match denom.len() {
             0 => {}
-            _ if denom.len() == 1 || has_sum => {
+            _ if denom.len() == 1 || sums > 1 => {
                 for f in &denom {
                     out.push('/');
                     self.factor(f, out);
@@ -275,7 +298,16 @@ impl<'a> Printer<'a> {
                         // ₂F₁(a, b; c; z)
                         out.push_str(if hypergeometric && k >= 2 { "; " } else { ", " });
                     }
-                    self.sum(a, out);
+                    match super::factor::cross_ratio_points(a) {
+                        Some((p, q)) if self.ctx.has_halfspace() => {
+                            out.push_str("xi(");
+                            self.point(p, out);
+                            out.push_str(", ");
+                            self.point(q, out);
+                            out.push(')');
+                        }
+                        _ => self.sum(a, out),
+                    }
                 }
                 out.push(')');
             }

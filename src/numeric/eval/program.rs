@@ -144,7 +144,7 @@ pub struct Program {
 }
 
 /// Where a run stopped: the instruction that could not be evaluated.
-struct Fault(Instr);
+pub(super) struct Fault(pub(super) Instr);
 
 impl Program {
     /// The dimension the program was compiled for.
@@ -171,7 +171,7 @@ impl Program {
     /// The value at `values`.
     pub fn eval(&self, values: &Values) -> Result<f64> {
         let mut regs = self.template.clone();
-        self.load(values, &mut regs, None)?;
+        self.load(values, &mut regs, &[])?;
         run(&self.code, &mut regs, self.dim).map_err(|f| self.fault(&f, &regs, None))?;
         self.finite(regs[self.output as usize], None)
     }
@@ -182,7 +182,7 @@ impl Program {
     /// inner loop of quadrature.
     pub fn eval_bounded(&self, values: &Values) -> Result<Bounded> {
         let mut regs = self.template.clone();
-        self.load(values, &mut regs, None)?;
+        self.load(values, &mut regs, &[])?;
         // Constants were rounded once when folded; inputs are taken as exact.
         let mut err: Vec<f64> = self.template.iter().map(|c| EPS * c.abs()).collect();
         let mut mag: Vec<f64> = regs.iter().map(|v| v.abs()).collect();
@@ -241,7 +241,7 @@ impl Program {
             ));
         }
         let mut regs = self.template.clone();
-        self.load(values, &mut regs, Some(point))?;
+        self.load(values, &mut regs, &[point])?;
         let Some(moving) = self.moving.get(point) else {
             // The value does not depend on the point.
             run(&self.code, &mut regs, self.dim).map_err(|f| self.fault(&f, &regs, None))?;
@@ -284,9 +284,9 @@ impl Program {
         Ok(())
     }
 
-    /// Copies the inputs from `values` into their registers; `skip` is a
-    /// point whose coordinates are supplied later.
-    fn load(&self, values: &Values, regs: &mut [f64], skip: Option<&str>) -> Result<()> {
+    /// Copies the inputs from `values` into their registers; `skip` names
+    /// points and parameter tensors whose values are supplied later.
+    pub(super) fn load(&self, values: &Values, regs: &mut [f64], skip: &[&str]) -> Result<()> {
         if values.dim != self.dim {
             return Err(Error::new(
                 ErrorKind::Numeric,
@@ -324,7 +324,7 @@ impl Program {
                     regs[*reg as usize] = v;
                 }
                 Input::Point { name, base } => {
-                    if skip == Some(name.as_str()) {
+                    if skip.contains(&name.as_str()) {
                         continue;
                     }
                     let c = values
@@ -342,6 +342,9 @@ impl Program {
                     parallel,
                     antisymmetric,
                 } => {
+                    if skip.contains(&name.as_str()) {
+                        continue;
+                    }
                     let t = values
                         .tensors
                         .get(name)
@@ -371,7 +374,12 @@ impl Program {
 
     /// The error for a run that stopped at `fault`, with the operands in
     /// `regs`.
-    fn fault(&self, fault: &Fault, regs: &[f64], at: Option<(usize, &str, &[f64])>) -> Error {
+    pub(super) fn fault(
+        &self,
+        fault: &Fault,
+        regs: &[f64],
+        at: Option<(usize, &str, &[f64])>,
+    ) -> Error {
         let Fault(ins) = fault;
         let x = |r: Reg| regs[r as usize];
         let why = match ins.op {
@@ -649,7 +657,7 @@ fn run_bounded(
 
 /// Runs `code` on `regs`. Stops at the first operation without a real
 /// value.
-fn run(code: &[Instr], regs: &mut [f64], dim: usize) -> std::result::Result<(), Fault> {
+pub(super) fn run(code: &[Instr], regs: &mut [f64], dim: usize) -> std::result::Result<(), Fault> {
     for ins in code {
         let v = match ins.op {
             Op::Add(a, b) => regs[a as usize] + regs[b as usize],
@@ -693,7 +701,14 @@ fn run(code: &[Instr], regs: &mut [f64], dim: usize) -> std::result::Result<(), 
 }
 
 #[inline]
-fn dist2(regs: &[f64], p: usize, q: usize, dim: usize, p_wall: bool, q_wall: bool) -> f64 {
+pub(super) fn dist2(
+    regs: &[f64],
+    p: usize,
+    q: usize,
+    dim: usize,
+    p_wall: bool,
+    q_wall: bool,
+) -> f64 {
     let last = dim - 1;
     let (a, b) = (&regs[p..p + last], &regs[q..q + last]);
     let mut s = 0.0;

@@ -68,7 +68,7 @@ impl Tolerance {
         Tolerance { max_nodes, ..self }
     }
 
-    fn target(&self, value: f64) -> f64 {
+    pub(crate) fn target(&self, value: f64) -> f64 {
         self.abs.max(self.rel * value.abs())
     }
 }
@@ -121,9 +121,40 @@ const ROUND_OFF: f64 = 16.0;
 /// so that no singularity lies on or near it. A NaN or infinite value at any
 /// node ends the integration at once, not converged.
 pub fn integrate(surface: &Surface, f: impl Fn(&[f64], &[f64]) -> f64, tol: Tolerance) -> Estimate {
+    integrate_batch(
+        surface,
+        |points, normals, out| {
+            let dim = surface.dim();
+            for ((x, n), v) in points
+                .chunks_exact(dim)
+                .zip(normals.chunks_exact(dim))
+                .zip(out.iter_mut())
+            {
+                *v = f(x, n);
+            }
+        },
+        tol,
+    )
+}
+
+/// Nodes handed to the integrand at once by [`integrate_batch`].
+pub const BATCH: usize = 4096;
+
+/// [`integrate`] with the integrand evaluated in batches:
+/// `f(points, normals, out)` receives up to [`BATCH`] nodes, their points
+/// and outward normals flat (d coordinates each), and writes one value per
+/// node into `out`.
+pub fn integrate_batch(
+    surface: &Surface,
+    mut f: impl FnMut(&[f64], &[f64], &mut [f64]),
+    tol: Tolerance,
+) -> Estimate {
+    if surface.aligned() {
+        return super::sparse::integrate(surface, &mut f, tol);
+    }
     Driver {
         patches: surface.patches(),
-        f: &f,
+        f: &mut f,
         nodes: 0,
         max_nodes: tol.max_nodes,
         magnitude: 0.0,
@@ -162,7 +193,7 @@ struct State {
 
 struct Driver<'a> {
     patches: &'a [Patch],
-    f: &'a dyn Fn(&[f64], &[f64]) -> f64,
+    f: &'a mut dyn FnMut(&[f64], &[f64], &mut [f64]),
     nodes: usize,
     max_nodes: usize,
     /// Σ|w f| of the current rules.
@@ -302,8 +333,15 @@ impl Driver<'_> {
         }
         self.nodes += size;
         let mut sum = Compensated::default();
-        let f = self.f;
-        patch.for_each(res, &mut |x, normal, w| sum.add(w * f(x, normal)));
+        let dim = patch.vars() + 1;
+        let mut batch = Batch::new(dim);
+        let f = &mut *self.f;
+        patch.for_each(res, &mut |x, normal, w| {
+            if batch.push(x, normal, w) {
+                batch.flush(f, &mut sum);
+            }
+        });
+        batch.flush(f, &mut sum);
         Some(Sum {
             value: sum.value(),
             abs: sum.abs(),
@@ -325,6 +363,50 @@ impl Driver<'_> {
             converged: true,
             ..self.stop(value, error)
         }
+    }
+}
+
+/// Nodes gathered for one call of the integrand.
+struct Batch {
+    points: Vec<f64>,
+    normals: Vec<f64>,
+    weights: Vec<f64>,
+    out: Vec<f64>,
+}
+
+impl Batch {
+    fn new(dim: usize) -> Batch {
+        Batch {
+            points: Vec::with_capacity(BATCH * dim),
+            normals: Vec::with_capacity(BATCH * dim),
+            weights: Vec::with_capacity(BATCH),
+            out: Vec::with_capacity(BATCH),
+        }
+    }
+
+    /// Adds a node; true when the batch is full.
+    fn push(&mut self, x: &[f64], normal: &[f64], w: f64) -> bool {
+        self.points.extend_from_slice(x);
+        self.normals.extend_from_slice(normal);
+        self.weights.push(w);
+        self.weights.len() == BATCH
+    }
+
+    /// Evaluates the nodes gathered and adds w f of each to `sum`, in
+    /// order.
+    fn flush(&mut self, f: &mut dyn FnMut(&[f64], &[f64], &mut [f64]), sum: &mut Compensated) {
+        if self.weights.is_empty() {
+            return;
+        }
+        self.out.clear();
+        self.out.resize(self.weights.len(), 0.0);
+        f(&self.points, &self.normals, &mut self.out);
+        for (w, v) in self.weights.iter().zip(&self.out) {
+            sum.add(w * v);
+        }
+        self.points.clear();
+        self.normals.clear();
+        self.weights.clear();
     }
 }
 

@@ -33,8 +33,10 @@
 
 pub mod adapt;
 pub mod gauss;
+pub mod nested;
+mod sparse;
 pub mod surface;
 
-pub use adapt::{integrate, Estimate, Tolerance};
+pub use adapt::{integrate, integrate_batch, Estimate, Tolerance, BATCH};
 pub use gauss::{gauss_jacobi, gauss_legendre, Gauss};
 pub use surface::{Node, QuadratureError, Rule, Surface, MAX_DIM, MIN_DIM};

@@ -33,6 +33,10 @@ pub const MAX_DIM: usize = 6;
 pub struct Surface {
     dim: usize,
     patches: Vec<Patch>,
+    /// A sphere turned toward the point where its integrand is singular:
+    /// the integrand then varies mostly with the polar variable, and the
+    /// sparse-grid driver ([`super::sparse`]) integrates it.
+    aligned: bool,
 }
 
 impl Surface {
@@ -63,9 +67,10 @@ impl Surface {
             });
         }
         let axis: Vec<f64> = axis.iter().map(|a| a / length).collect();
-        Ok(Surface::one(
-            Patch::new(Shape::Sphere { radius }, centre).turned(&axis),
-        ))
+        Ok(Surface {
+            aligned: true,
+            ..Surface::one(Patch::new(Shape::Sphere { radius }, centre).turned(&axis))
+        })
     }
 
     /// The upper hemisphere {|x - c| = r, y > 0} of a sphere centred on the
@@ -96,6 +101,7 @@ impl Surface {
         check_size("radius", radius)?;
         Ok(Surface {
             dim: centre.len(),
+            aligned: false,
             patches: vec![
                 Patch::new(Shape::Hemisphere { radius }, centre),
                 Patch::new(Shape::Disc { radius }, centre),
@@ -119,6 +125,12 @@ impl Surface {
     /// The dimension d of the space the surface lives in.
     pub fn dim(&self) -> usize {
         self.dim
+    }
+
+    /// Whether the surface is a sphere turned toward a point
+    /// ([`Surface::sphere_along`]): integrated by the sparse grid.
+    pub fn aligned(&self) -> bool {
+        self.aligned
     }
 
     /// The rule with n points in every variable of every patch
@@ -187,6 +199,7 @@ impl Surface {
         Surface {
             dim: patch.centre.len(),
             patches: vec![patch],
+            aligned: false,
         }
     }
 }
@@ -492,6 +505,105 @@ impl Patch {
                 }
                 visit(&point, &normal, slice.weight * w);
             }
+        }
+    }
+
+    /// The Jacobi exponents (α, β) of each variable's weight on [-1, 1]:
+    /// the first variable's, then those of S^{d-2} down to S^1.
+    pub(crate) fn exponents(&self) -> Vec<(f64, f64)> {
+        let d = self.dim() as f64;
+        let first = match self.shape {
+            Shape::Sphere { .. } => (0.5 * (d - 3.0), 0.5 * (d - 3.0)),
+            Shape::Hemisphere { .. } => (0.5 * (d - 3.0), 0.0),
+            Shape::Disc { .. } => (0.0, d - 2.0),
+            Shape::Plane { .. } => (0.0, 0.0),
+        };
+        let mut all = vec![first];
+        for m in (1..self.dim() - 1).rev() {
+            let a = 0.5 * (m as f64 - 2.0);
+            all.push((a, a));
+        }
+        all
+    }
+
+    /// The factor the first variable's node x brings to the weight beyond
+    /// its Jacobi weight: the surface measure and the Jacobian of the map
+    /// from [-1, 1] (as in [`Patch::slices`]).
+    pub(crate) fn factor(&self, x: f64) -> f64 {
+        let d = self.dim() as f64;
+        match self.shape {
+            Shape::Sphere { radius } => radius.powf(d - 1.0),
+            Shape::Hemisphere { radius } => {
+                let a = 0.5 * (d - 3.0);
+                let t = 0.5 * (1.0 + x);
+                radius.powf(d - 1.0) * 2f64.powf(-a - 1.0) * (1.0 + t).powf(a)
+            }
+            Shape::Disc { radius } => (0.5 * radius).powf(d - 1.0),
+            Shape::Plane { scale } => {
+                let theta = 0.25 * PI * (1.0 + x);
+                let (sin, cos) = theta.sin_cos();
+                0.25 * PI * scale.powf(d - 1.0) * (sin / cos).powf(d - 2.0) / (cos * cos)
+            }
+        }
+    }
+
+    /// The point and outward normal (as in [`Patch::for_each`]) of the node
+    /// with variables `xs` (one per variable, in [-1, 1]) and the sign
+    /// `sign` of S^0, written into `point` and `normal`.
+    pub(crate) fn place(&self, xs: &[f64], sign: f64, point: &mut [f64], normal: &mut [f64]) {
+        let dim = self.dim();
+        let x = xs[0];
+        let (along, across, radius) = match self.shape {
+            Shape::Sphere { radius } => (
+                radius * x,
+                radius * ((1.0 - x) * (1.0 + x)).sqrt(),
+                Some(radius),
+            ),
+            Shape::Hemisphere { radius } => {
+                let t = 0.5 * (1.0 + x);
+                (
+                    radius * t,
+                    radius * ((1.0 - t) * (1.0 + t)).sqrt(),
+                    Some(radius),
+                )
+            }
+            Shape::Disc { radius } => (0.0, 0.5 * radius * (1.0 + x), None),
+            Shape::Plane { scale } => {
+                let theta = 0.25 * PI * (1.0 + x);
+                let (sin, cos) = theta.sin_cos();
+                (0.0, scale * sin / cos, None)
+            }
+        };
+        // The direction across: (t_1, s_1 t_2, s_1 s_2 t_3, …, ± s_1 … s_m)
+        // on S^{d-2}, with 0 along y, then turned with the patch.
+        let dir = normal;
+        let mut scale = 1.0;
+        for (k, &t) in xs[1..].iter().enumerate() {
+            dir[k] = scale * t;
+            scale *= ((1.0 - t) * (1.0 + t)).sqrt();
+        }
+        dir[dim - 2] = scale * sign;
+        dir[dim - 1] = 0.0;
+        if let Some(v) = &self.turn {
+            let dot: f64 = dir.iter().zip(v).map(|(a, b)| a * b).sum();
+            for (a, b) in dir.iter_mut().zip(v) {
+                *a -= 2.0 * dot * b;
+            }
+        }
+        for i in 0..dim {
+            let offset = across * dir[i] + along * self.axis[i];
+            point[i] = self.centre[i] + offset;
+            if let Some(r) = radius {
+                dir[i] = offset / r;
+            }
+        }
+        if radius.is_none() {
+            dir.fill(0.0);
+            dir[dim - 1] = if matches!(self.shape, Shape::Disc { .. }) {
+                -1.0
+            } else {
+                1.0
+            };
         }
     }
 

@@ -97,3 +97,69 @@ fn check(d: f64, delta: f64, xi: f64) -> Result<(), SpecialError> {
     }
     Ok(())
 }
+
+/// k_β(x) = x^(β/2) ₂F₁(β/2, β/2; β; x), 0 < x < 1: the one-variable
+/// factor of the four-point blocks (Dolan & Osborn 2001, hep-th/0011040,
+/// for equal external dimensions).
+pub fn collinear_block(beta: f64, x: f64) -> Result<f64, SpecialError> {
+    let h = 0.5 * beta;
+    finite(x.powf(h) * hyp2f1(h, h, beta, x)?)
+}
+
+/// The s-channel block g_{Δ,ℓ}(z, z̄) of a four-point function of identical
+/// scalars without a wall, in d = 2 or d = 4 (docs/conventions.md §13;
+/// Dolan & Osborn 2001, hep-th/0011040, eqs. 2.10 and 2.11, normalised as
+/// below):
+///
+///   d = 2: g = [k_{Δ+ℓ}(z) k_{Δ-ℓ}(z̄) + k_{Δ-ℓ}(z) k_{Δ+ℓ}(z̄)]/(1 + δ_{ℓ0}),
+///   d = 4: g = z z̄/(z - z̄) [k_{Δ+ℓ}(z) k_{Δ-ℓ-2}(z̄) - k_{Δ-ℓ-2}(z) k_{Δ+ℓ}(z̄)],
+///
+/// so that g ~ z^((Δ+ℓ)/2) z̄^((Δ-ℓ)/2) for 0 < z̄ ≪ z ≪ 1. Real z, z̄ in
+/// (0, 1); in d = 4, z = z̄ (a removable 0/0) is refused.
+pub fn four_point_block(
+    d: u32,
+    delta: f64,
+    spin: u32,
+    z: f64,
+    zb: f64,
+) -> Result<f64, SpecialError> {
+    if !(delta.is_finite() && z.is_finite() && zb.is_finite()) {
+        return Err(SpecialError::NotFinite);
+    }
+    if !(z > 0.0 && z < 1.0 && zb > 0.0 && zb < 1.0) {
+        return Err(SpecialError::FourPointRatio);
+    }
+    let l = f64::from(spin);
+    match d {
+        2 => {
+            let s = collinear_block(delta + l, z)? * collinear_block(delta - l, zb)?
+                + collinear_block(delta - l, z)? * collinear_block(delta + l, zb)?;
+            finite(if spin == 0 { 0.5 * s } else { s })
+        }
+        4 => {
+            if z == zb {
+                return Err(SpecialError::FourPointRatio);
+            }
+            let s = collinear_block(delta + l, z)? * collinear_block(delta - l - 2.0, zb)?
+                - collinear_block(delta - l - 2.0, z)? * collinear_block(delta + l, zb)?;
+            finite(z * zb / (z - zb) * s)
+        }
+        _ => Err(SpecialError::FourPointDimension),
+    }
+}
+
+/// z and z̄ of real cross-ratios u = z z̄, v = (1 - z)(1 - z̄), z ≥ z̄:
+/// the roots of t² - (1 + u - v) t + u = 0; `None` when they are complex
+/// ((1 + u - v)² < 4u: a Euclidean configuration with z̄ = z*).
+pub fn z_zbar(u: f64, v: f64) -> Option<(f64, f64)> {
+    let s = 1.0 + u - v;
+    let disc = s * s - 4.0 * u;
+    if !(disc >= 0.0) {
+        return None;
+    }
+    let r = disc.sqrt();
+    let z = 0.5 * (s + r);
+    // u/z avoids the cancellation of (s - r)/2 when z̄ is small.
+    let zb = if z != 0.0 { u / z } else { 0.5 * (s - r) };
+    Some((z, zb))
+}

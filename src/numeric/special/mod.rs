@@ -24,7 +24,7 @@ use std::fmt;
 
 use crate::diagnostic::{Error, ErrorKind};
 
-pub use blocks::{boundary_block, bulk_block};
+pub use blocks::{boundary_block, bulk_block, collinear_block, four_point_block, z_zbar};
 pub use gamma::{digamma, gamma, ln_gamma, rgamma};
 pub use hypergeometric::{hyp2f1, hyp2f1_regularized, hyp2f1_scale, hyp2f1_vanishing_bc};
 
@@ -46,6 +46,10 @@ pub enum SpecialError {
     Divergent,
     /// A block at a cross-ratio ξ that is not positive.
     CrossRatio,
+    /// A four-point block at z or z̄ outside (0, 1), or at z = z̄ in d = 4.
+    FourPointRatio,
+    /// A four-point block asked for in a dimension other than 2 and 4.
+    FourPointDimension,
     /// The value, or a factor it is built from, is beyond the range of
     /// floating point.
     Overflow,
@@ -72,6 +76,12 @@ impl SpecialError {
             }
             SpecialError::Divergent => "₂F₁ diverges at z = 1 when c - a - b ≤ 0",
             SpecialError::CrossRatio => "the cross-ratio ξ must be positive",
+            SpecialError::FourPointRatio => {
+                "a four-point block is evaluated at real z, z̄ in (0, 1), and in d = 4 at z ≠ z̄"
+            }
+            SpecialError::FourPointDimension => {
+                "four-point blocks have closed forms in d = 2 and d = 4 only"
+            }
             SpecialError::Overflow => "the value is beyond the range of floating point",
             SpecialError::Cancellation => {
                 "the value is much smaller than the terms it is summed from (the function oscillates or is near a zero): more than five digits would be lost"
