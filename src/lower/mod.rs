@@ -1411,12 +1411,20 @@ impl Lowerer {
     ) -> Result<usize> {
         let written = attrs.iter().find(|(k, _)| k.text == "spin");
         let spin = match (written, values.get("spin")) {
-            (Some((_, e)), Some(Term::Num(c))) if c.is_integer() && *c >= BigRational::from_integer(0.into()) && *c <= BigRational::from_integer(MAX_SPIN.into()) => {
+            (Some((_, e)), Some(Term::Num(c)))
+                if c.is_integer()
+                    && *c >= BigRational::from_integer(0.into())
+                    && *c <= BigRational::from_integer(MAX_SPIN.into()) =>
+            {
                 Some((c.to_integer().try_into().unwrap_or(0usize), e.span))
             }
             (Some((_, e)), _) => {
                 return Err(self
-                    .err(ErrorKind::Name, e.span, "a spin is a whole number from 0 to 16")
+                    .err(
+                        ErrorKind::Name,
+                        e.span,
+                        "a spin is a whole number from 0 to 16",
+                    )
                     .with_label("not a whole number in range"))
             }
             _ => None,
@@ -1430,7 +1438,11 @@ impl Lowerer {
             (Some(l), None) => Ok(l),
             (Some(l), Some((s, _))) if s == l => Ok(l),
             (Some(l), Some((_, span))) => Err(self
-                .err(ErrorKind::Name, span, format!("this operator has spin {l} by its kind"))
+                .err(
+                    ErrorKind::Name,
+                    span,
+                    format!("this operator has spin {l} by its kind"),
+                )
                 .with_label("disagrees with the kind")
                 .with_note("declare a tensor of spin ℓ with `tensor NAME dim Delta, spin ℓ`")),
             (None, Some((s, _))) if s >= 1 => Ok(s),
@@ -1438,7 +1450,11 @@ impl Lowerer {
                 .err(ErrorKind::Name, span, "a tensor has spin 1 or more")
                 .with_label("spin 0 is a scalar")),
             (None, None) => Err(self
-                .err(ErrorKind::Name, name.span, format!("tensor `{}` has no spin", name.text))
+                .err(
+                    ErrorKind::Name,
+                    name.span,
+                    format!("tensor `{}` has no spin", name.text),
+                )
                 .with_label("missing `spin`")
                 .with_note(format!("write e.g. `tensor {} dim d, spin 2`", name.text))),
         }

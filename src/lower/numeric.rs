@@ -115,7 +115,9 @@ impl Lowerer {
                             "the complex free scalar is modelled without a wall",
                         )
                         .with_label("model")
-                        .with_note("write `model free-scalar complex` in a file without `halfspace`"));
+                        .with_note(
+                            "write `model free-scalar complex` in a file without `halfspace`",
+                        ));
                 }
                 let mut out = Vec::new();
                 for (name, composite) in fields {

@@ -218,12 +218,14 @@ fn local(ctx: &Context, f: &Term) -> Local {
 fn traced_traceless(ctx: &Context, f: &Term) -> bool {
     match f {
         Term::Der(_, _, body) => traced_traceless(ctx, body),
-        Term::Corr(ops) => ops.iter().any(|op| {
-            ctx.is_traceless_op(&op.name)
-                && op.indices.iter().enumerate().any(|(k, i)| {
-                    matches!(i, Index::Named(_)) && op.indices[k + 1..].contains(i)
-                })
-        }),
+        Term::Corr(ops) => {
+            ops.iter().any(|op| {
+                ctx.is_traceless_op(&op.name)
+                    && op.indices.iter().enumerate().any(|(k, i)| {
+                        matches!(i, Index::Named(_)) && op.indices[k + 1..].contains(i)
+                    })
+            })
+        }
         _ => false,
     }
 }

@@ -290,7 +290,9 @@ impl Flavour {
     fn contracts_with(self, other: Flavour) -> bool {
         matches!(
             (self, other),
-            (Flavour::Real, Flavour::Real) | (Flavour::Phi, Flavour::Bar) | (Flavour::Bar, Flavour::Phi)
+            (Flavour::Real, Flavour::Real)
+                | (Flavour::Phi, Flavour::Bar)
+                | (Flavour::Bar, Flavour::Phi)
         )
     }
 }
@@ -917,11 +919,7 @@ impl Model for FreeScalar {
 fn merge_products(products: Vec<Product>) -> Vec<Product> {
     // (the legs with the composite's dummies renamed, the coefficients,
     // the first product's own legs)
-    type Group = (
-        (Vec<Vec<Index>>, Vec<Flavour>),
-        Vec<Term>,
-        Vec<Vec<Index>>,
-    );
+    type Group = ((Vec<Vec<Index>>, Vec<Flavour>), Vec<Term>, Vec<Vec<Index>>);
     let mut out: Vec<Group> = Vec::new();
     for p in products {
         let shape = (own_dummies_renamed(&p.legs), p.flavours.clone());
