@@ -2,6 +2,9 @@
 //! blocks against reference values, their normalisation, z and z̄ from u
 //! and v, and the Casimir equation by finite differences.
 
+// Reference values are written with the digits mpmath printed.
+#![allow(clippy::excessive_precision)]
+
 use wardsmith::numeric::special::{four_point_block, z_zbar};
 
 /// g_block(Δ, ℓ; z, z̄) summed from Dolan & Osborn 2001 (hep-th/0011040),

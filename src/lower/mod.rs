@@ -409,8 +409,8 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                     ))
                 };
                 let dims = Dims::TwistSpin {
-                    twist: tower(&towers[0])?,
-                    spin: tower(&towers[1])?,
+                    twist: Box::new(tower(&towers[0])?),
+                    spin: Box::new(tower(&towers[1])?),
                 };
                 if let Some((name, span)) = output {
                     check_output_name(&lowerer, name, *span)?;
@@ -1624,8 +1624,8 @@ pub enum Dims {
     },
     /// The s-channel's twists and spins, each (from, to, step).
     TwistSpin {
-        twist: (Term, Term, Option<Term>),
-        spin: (Term, Term, Option<Term>),
+        twist: Box<(Term, Term, Option<Term>)>,
+        spin: Box<(Term, Term, Option<Term>)>,
     },
 }
 

@@ -154,7 +154,7 @@ pub fn four_point_block(
 pub fn z_zbar(u: f64, v: f64) -> Option<(f64, f64)> {
     let s = 1.0 + u - v;
     let disc = s * s - 4.0 * u;
-    if !(disc >= 0.0) {
+    if disc.is_nan() || disc < 0.0 {
         return None;
     }
     let r = disc.sqrt();
