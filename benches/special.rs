@@ -22,7 +22,9 @@
 use std::fmt;
 
 use divan::black_box;
-use wardsmith::numeric::special::{boundary_block, bulk_block, hyp2f1};
+use wardsmith::numeric::special::{
+    boundary_block, bulk_block, four_point_block, four_point_block_polar, hyp2f1,
+};
 
 fn main() {
     eprintln!(
@@ -232,6 +234,18 @@ fn boundary_block_d3_unitarity_bound(xi: f64) -> f64 {
     boundary_block(3.0, black_box(0.5), black_box(xi)).expect("defined")
 }
 
+/// The four-point s-channel block g_{Δ,ℓ} (Δ = 5.3, ℓ = 2) in d = 2 and 4,
+/// at real z = 0.3, z̄ = 0.1 and at the Euclidean |z| = 0.2, arg z = 1.
+#[divan::bench(args = [2, 4])]
+fn four_point_block_real(d: u32) -> f64 {
+    four_point_block(d, black_box(5.3), 2, black_box(0.3), black_box(0.1)).expect("defined")
+}
+
+#[divan::bench(args = [2, 4])]
+fn four_point_block_euclidean(d: u32) -> f64 {
+    four_point_block_polar(d, black_box(5.3), 2, black_box(0.2), black_box(1.0)).expect("defined")
+}
+
 // ───────────── ₂F₁ in the language: compiled programs and claims ─────────────
 
 /// `F21(a, b; c; z)` compiled from a term (what `evaluate`, `compare` and
@@ -282,6 +296,7 @@ fn compiled(
     "examples/wall-casimir.ward",
     "tests/cases/integrated/casimir-coordinates.ward",
     "examples/partial-wave.ward",
+    "examples/four-point-blocks.ward",
 ])]
 fn block_files(bencher: divan::Bencher, path: &str) {
     use wardsmith::run::{run_source, Mode, Options};

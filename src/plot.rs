@@ -97,6 +97,19 @@ impl Labels {
             right: "expansion in blocks".into(),
         }
     }
+
+    /// The labels of `decompose … in s-channel blocks …`: G of a four-point
+    /// function against |z| along arg z = π/2 (Euclidean configurations)
+    /// or z̄ = z/2 (real ones), docs/conventions.md §14.
+    pub fn decompose_four_point(title: &str) -> Labels {
+        Labels {
+            title: title.to_string(),
+            x: "|z| (at arg z = π/2, or z̄ = z/2 for real z)".into(),
+            y: "G(u, v)".into(),
+            left: "G of the file".into(),
+            right: "expansion in s-channel blocks".into(),
+        }
+    }
 }
 
 /// "scaling dimension of O, P" when `param` is the declared `dim` of

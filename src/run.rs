@@ -194,7 +194,12 @@ fn write_outputs(checked: &mut FileOutcome, source: &Arc<Source>, base: &Path) -
                 };
                 let table = decomposition_table(&d.fit);
                 let body = s.input.split(" into ").next().unwrap_or(&s.input);
-                let labels = crate::plot::Labels::decompose(&format!("decompose {body}"));
+                let title = format!("decompose {body}");
+                let labels = if d.fit.channel == crate::syntax::ast::Channel::SChannel {
+                    crate::plot::Labels::decompose_four_point(&title)
+                } else {
+                    crate::plot::Labels::decompose(&title)
+                };
                 d.written = write_scan(&table, base, &stem, &labels).map_err(at)?;
             }
             _ => {}
@@ -208,8 +213,9 @@ fn decomposition_table(
     fit: &crate::numeric::decompose::Decomposition,
 ) -> crate::numeric::session::Scan {
     use crate::numeric::agreement::Agreement;
+    let four_point = fit.channel == crate::syntax::ast::Channel::SChannel;
     crate::numeric::session::Scan {
-        param: "xi".into(),
+        param: if four_point { "abs_z" } else { "xi" }.into(),
         labels: vec![String::new()],
         rows: fit
             .rows

@@ -1,12 +1,15 @@
-//! Four-point blocks without a wall (docs/conventions.md §13): the numeric
+//! Four-point blocks without a wall (docs/conventions.md §14): the numeric
 //! blocks against reference values, their normalisation, z and z̄ from u
 //! and v, and the Casimir equation by finite differences.
+
+// Reference values are written with the digits mpmath printed.
+#![allow(clippy::excessive_precision)]
 
 use wardsmith::numeric::special::{four_point_block, z_zbar};
 
 /// g_block(Δ, ℓ; z, z̄) summed from Dolan & Osborn 2001 (hep-th/0011040),
 /// eqs. 2.10 (d = 2) and 2.11 (d = 4), in the normalisation of
-/// docs/conventions.md §13, by mpmath 1.3 (hyp2f1 at 30 digits).
+/// docs/conventions.md §14, by mpmath 1.3 (hyp2f1 at 30 digits).
 const REFERENCE: [(u32, f64, u32, f64, f64, f64); 6] = [
     (2, 1.3, 0, 0.5, 0.2, 0.297_892_467_433_099_646_26),
     (2, 4.5, 3, 0.9, 0.05, 1.919_301_516_739_688_046_1),
@@ -34,7 +37,7 @@ fn blocks_match_reference_values() {
 
 #[test]
 fn blocks_are_normalised_in_the_ope_limit() {
-    // g ~ z^((Δ+ℓ)/2) z̄^((Δ-ℓ)/2) for 0 < z̄ ≪ z ≪ 1 (docs/conventions.md §13):
+    // g ~ z^((Δ+ℓ)/2) z̄^((Δ-ℓ)/2) for 0 < z̄ ≪ z ≪ 1 (docs/conventions.md §14):
     // corrections of relative order z and z̄/z.
     for d in [2, 4] {
         for (delta, l) in [(1.7, 0), (3.2, 1), (6.0, 2), (7.5, 5)] {
@@ -108,4 +111,139 @@ fn blocks_outside_their_domain_are_errors() {
     assert!(four_point_block(3, 3.0, 0, 0.3, 0.2).is_err());
     assert!(four_point_block(2, 3.0, 0, 1.3, 0.2).is_err());
     assert!(four_point_block(2, 3.0, 0, 0.3, -0.2).is_err());
+}
+
+#[test]
+fn blocks_at_euclidean_configurations_match_reference_values() {
+    use wardsmith::numeric::special::four_point_block_polar;
+    // z = r e^(iθ), z̄ = z*: the formulas of Dolan & Osborn 2001 summed by
+    // mpmath 1.3 with complex z (30 digits).
+    for (d, delta, l, r, theta, want) in [
+        (4, 3.3, 2, 0.3, 1.0, -0.007_561_384_963_081_407_353_1),
+        (2, 2.5, 0, 0.4, 2.5, 0.069_635_146_965_291_051_567),
+        (4, 6.0, 4, 0.2, 0.3, 0.000_359_639_754_260_864_407_26),
+    ] {
+        let got = four_point_block_polar(d, delta, l, r, theta).unwrap();
+        assert!(
+            ((got - want) / want).abs() < 1e-13,
+            "d = {d}, Δ = {delta}, ℓ = {l}: {got} vs {want}"
+        );
+    }
+}
+
+/// The JSON item of the one `decompose` of a file, and the exit code.
+fn decompose(text: &str) -> (serde_json::Value, i32) {
+    use std::path::Path;
+    use std::sync::Arc;
+    use wardsmith::diagnostic::Source;
+    use wardsmith::run::{run_source, Mode, Options};
+    let source = Arc::new(Source::new("gff.ward", text));
+    let opts = Options {
+        json: true,
+        ..Options::default()
+    };
+    let out = run_source(&source, Path::new("."), Mode::Check, &opts)
+        .unwrap_or_else(|e| panic!("{}", e.render()));
+    let doc: serde_json::Value = serde_json::from_str(&out.report).unwrap();
+    let item = doc["items"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|i| i["kind"] == "decompose")
+        .cloned()
+        .unwrap_or_else(|| panic!("{}", out.report));
+    (item, out.code)
+}
+
+/// (a)_n.
+fn pochhammer(a: f64, n: u32) -> f64 {
+    (0..n).map(|k| a + f64::from(k)).product()
+}
+
+/// The squared OPE coefficients of the double-twist operators
+/// [φφ]_{n,ℓ}, Δ = 2Δφ + 2n + ℓ, in the generalised free field
+/// ⟨φφφφ⟩ = 1 + u^Δφ + (u/v)^Δφ, h = d/2 (Fitzpatrick & Kaplan 2011,
+/// arXiv:1111.6972, eq. 2.26 — written from memory; the equation number is
+/// the one usually cited, not confirmed here):
+///
+///   P_{n,ℓ} = [1 + (-1)^ℓ] (Δφ - h + 1)_n² (Δφ)_{n+ℓ}²
+///             / [n! ℓ! (ℓ + h)_n (2Δφ + n - 2h + 1)_n (2Δφ + 2n + ℓ - 1)_ℓ (2Δφ + n + ℓ - h)_n],
+///
+/// in the normalisation g ~ z^((Δ+ℓ)/2) z̄^((Δ-ℓ)/2) of docs/conventions.md
+/// §14 (it gives P_{0,0} = 2, the leading 2u^Δφ of G).
+fn gff_coefficient(d: u32, dphi: f64, n: u32, l: u32) -> f64 {
+    let h = f64::from(d) / 2.0;
+    let lf = f64::from(l);
+    let sign = if l % 2 == 0 { 2.0 } else { 0.0 };
+    let factorial = |m: u32| pochhammer(1.0, m);
+    sign * pochhammer(dphi - h + 1.0, n).powi(2) * pochhammer(dphi, n + l).powi(2)
+        / (factorial(n)
+            * factorial(l)
+            * pochhammer(lf + h, n)
+            * pochhammer(2.0 * dphi + f64::from(n) - 2.0 * h + 1.0, n)
+            * pochhammer(2.0 * dphi + 2.0 * f64::from(n) + lf - 1.0, l)
+            * pochhammer(2.0 * dphi + f64::from(n) + lf - h, n))
+}
+
+#[test]
+fn the_generalised_free_field_decomposes_with_its_published_coefficients() {
+    // Five twists 2Δφ + 2n and the even spins to 12: 35 blocks, fitted at
+    // Euclidean configurations (G in u and v). The first three (by Δ:
+    // (n, ℓ) = (0, 0), (0, 2), (1, 0)), relative: the first two to 1e-10,
+    // the third to 2e-9 (measured 1.4e-10 to 1.2e-9: the fit's floor, set by
+    // the conditioning of the radial powers); the next two to 1e-7.
+    for (d, dphi) in [(4u32, 1.5), (4, 1.2), (2, 0.7), (2, 1.3)] {
+        let text = format!(
+            "dimension {d}\nparameters u v Dphi\nmodel conformal\nvalues Dphi = {dphi}\n\
+             decompose 1 + u^Dphi + (u/v)^Dphi in s-channel blocks twist 2 Dphi to 2 Dphi + 8 step 2, spin 0 to 12 step 2\n"
+        );
+        let (item, code) = decompose(&text);
+        assert_eq!(code, 0, "{item}");
+        assert_eq!(item["channel"], "s_channel");
+        assert!(
+            (item["identity"].as_f64().unwrap() - 1.0).abs() < 1e-11,
+            "{item}"
+        );
+        let dims = item["dims"].as_array().unwrap();
+        let spins = item["spins"].as_array().unwrap();
+        let coefficients = item["coefficients"].as_array().unwrap();
+        let found = |n: u32, l: u32| -> f64 {
+            let want = 2.0 * dphi + f64::from(2 * n + l);
+            let k = (0..dims.len())
+                .find(|&k| {
+                    (dims[k].as_f64().unwrap() - want).abs() < 1e-12
+                        && spins[k].as_u64() == Some(u64::from(l))
+                })
+                .unwrap_or_else(|| panic!("no block n = {n}, ℓ = {l}"));
+            coefficients[k].as_f64().unwrap()
+        };
+        for (n, l, tol) in [
+            (0, 0, 1e-10),
+            (0, 2, 1e-10),
+            (1, 0, 2e-9),
+            (0, 4, 1e-7),
+            (1, 2, 1e-7),
+        ] {
+            let (got, want) = (found(n, l), gff_coefficient(d, dphi, n, l));
+            assert!(
+                ((got - want) / want).abs() < tol,
+                "d = {d}, Δφ = {dphi}, n = {n}, ℓ = {l}: {got} vs {want}"
+            );
+        }
+    }
+}
+
+#[test]
+fn real_configurations_fit_too_and_a_wrong_tower_fails() {
+    // G written in z and zb: fitted at real z, z̄ (less well conditioned).
+    let text = "dimension 4\nparameters z zb\nmodel conformal\n\
+        decompose 1 + (z zb)^(3/2) + (z zb/((1 - z) (1 - zb)))^(3/2) in s-channel blocks twist 3 to 9 step 2, spin 0 to 8 step 2\n";
+    let (item, code) = decompose(text);
+    assert_eq!(code, 0, "{item}");
+    let c = item["coefficients"].as_array().unwrap();
+    assert!((c[0].as_f64().unwrap() - 2.0).abs() < 1e-9, "{item}");
+    // Twists shifted by one: no expansion.
+    let wrong = text.replace("twist 3 to 9", "twist 4 to 10");
+    let (item, code) = decompose(&wrong);
+    assert_eq!(code, 1, "{item}");
 }

@@ -24,7 +24,7 @@ pub const BULK_BLOCK: &str = "f_bulk";
 pub const BOUNDARY_BLOCK: &str = "f_bdy";
 
 /// The s-channel block of a four-point function, `g_block(Δ, ℓ; z, z̄)`
-/// (d = 2 and d = 4; docs/conventions.md §13).
+/// (d = 2 and d = 4; docs/conventions.md §14).
 pub const FOUR_POINT_BLOCK: &str = "g_block";
 
 /// The cross-ratios of four points, `u(x1, x2, x3, x4)` and `v(…)`.
@@ -383,7 +383,7 @@ impl Lowerer {
     }
 
     /// `g_block(Δ, ℓ; z, z̄)`: the s-channel block of four identical scalars
-    /// in d = 2 or d = 4 (docs/conventions.md §13), with
+    /// in d = 2 or d = 4 (docs/conventions.md §14), with
     /// k_β(x) = x^(β/2) ₂F₁(β/2, β/2; β; x):
     ///
     ///   d = 2: [k_{Δ+ℓ}(z) k_{Δ-ℓ}(z̄) + k_{Δ-ℓ}(z) k_{Δ+ℓ}(z̄)]/(1 + δ_{ℓ0}),
@@ -392,7 +392,7 @@ impl Lowerer {
     /// ℓ is a whole number ≥ 0 or a symbol; a symbolic ℓ in d = 2 stands
     /// for ℓ ≥ 1 (no 1/2).
     fn four_point_block(&self, c: &Call, span: Span) -> Result<Term> {
-        let form = "the four-point block is written `g_block(Delta, l; z, zb)`: the exchanged dimension and spin, `;`, then z and z̄ (u = z z̄, v = (1 - z)(1 - z̄); docs/conventions.md §13); to differentiate it, name it with `let g(z, zb) = g_block(Delta, l; z, zb)` and write `g[1,0](z, zb)`";
+        let form = "the four-point block is written `g_block(Delta, l; z, zb)`: the exchanged dimension and spin, `;`, then z and z̄ (u = z z̄, v = (1 - z)(1 - z̄); docs/conventions.md §14); to differentiate it, name it with `let g(z, zb) = g_block(Delta, l; z, zb)` and write `g[1,0](z, zb)`";
         if c.orders.is_some() || c.primes > 0 {
             return Err(self
                 .err(

@@ -384,6 +384,54 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                 dims,
                 output,
                 span,
+            } if *channel == Channel::SChannel => {
+                seen_expression = true;
+                let BlockDims::TwistSpin(towers) = dims else {
+                    return Err(lowerer.err(
+                        ErrorKind::Syntax,
+                        *span,
+                        "the s-channel takes a tower of twists and one of spins",
+                    ));
+                };
+                let lowered = lowerer.four_point_function(corr)?;
+                let tower = |t: &(
+                    crate::syntax::ast::Expr,
+                    crate::syntax::ast::Expr,
+                    Option<crate::syntax::ast::Expr>,
+                )|
+                 -> Result<(Term, Term, Option<Term>)> {
+                    Ok((
+                        lowerer.scalar_parameter_expr(&t.0)?,
+                        lowerer.scalar_parameter_expr(&t.1)?,
+                        t.2.as_ref()
+                            .map(|s| lowerer.scalar_parameter_expr(s))
+                            .transpose()?,
+                    ))
+                };
+                let dims = Dims::TwistSpin {
+                    twist: Box::new(tower(&towers[0])?),
+                    spin: Box::new(tower(&towers[1])?),
+                };
+                if let Some((name, span)) = output {
+                    check_output_name(&lowerer, name, *span)?;
+                }
+                items.push(Item {
+                    kind: ItemKind::Decompose {
+                        corr: lowered,
+                        channel: *channel,
+                        dims,
+                        output: output.as_ref().map(|(n, _)| n.clone()),
+                    },
+                    span: *span,
+                    line: source.line(span.start),
+                });
+            }
+            Stmt::Decompose {
+                corr,
+                channel,
+                dims,
+                output,
+                span,
             } => {
                 seen_expression = true;
                 if !lowerer.ctx.has_halfspace() {
@@ -420,6 +468,15 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                             .map(|e| lowerer.scalar_parameter_expr(e))
                             .collect::<Result<_>>()?,
                     ),
+                    BlockDims::TwistSpin(_) => {
+                        return Err(lowerer
+                            .err(
+                                ErrorKind::Syntax,
+                                *span,
+                                "twists and spins are the s-channel's",
+                            )
+                            .with_note("write `in s-channel blocks twist … , spin …`"))
+                    }
                     BlockDims::Tower(tower) => Dims::Tower {
                         from: lowerer.scalar_parameter_expr(&tower.0)?,
                         to: lowerer.scalar_parameter_expr(&tower.1)?,
@@ -973,6 +1030,34 @@ impl Lowerer {
     /// named expressions substituted.
     /// A dimension or other number written with parameters: no points, no
     /// indices.
+    /// The function of a four-point `decompose … in s-channel blocks`: an
+    /// expression in parameters, with `u` and `v` (when declared) standing
+    /// for z z̄ and (1 - z)(1 - z̄) (docs/conventions.md §14), in d = 2 or 4.
+    fn four_point_function(&self, e: &Expr) -> Result<Term> {
+        let d = self.ctx.dim();
+        if d != Term::int(2) && d != Term::int(4) {
+            return Err(self
+                .err(
+                    ErrorKind::Unsupported,
+                    e.span,
+                    "four-point blocks have closed forms in d = 2 and d = 4 only",
+                )
+                .with_note("declare `dimension 2` or `dimension 4`"));
+        }
+        let t = self.expr(e)?;
+        if !parameters_and_hypergeometric(&t) {
+            return Err(self
+                .err(
+                    ErrorKind::Syntax,
+                    e.span,
+                    "an s-channel expansion takes a function of the parameters z and zb (or u and v), e.g. `1 + u^Dphi + (u/v)^Dphi`",
+                )
+                .with_label("mentions points, indices, correlators or functions other than ₂F₁ and the blocks")
+                .with_note("declare the variables with `parameters z zb` (or `parameters u v`); u = z zb, v = (1 - z)(1 - zb)"));
+        }
+        Ok(t)
+    }
+
     fn scalar_parameter_expr(&self, e: &Expr) -> Result<Term> {
         let t = self.expr(e)?;
         if is_constant_term(&t) {
@@ -1618,9 +1703,27 @@ pub enum Dims {
         to: Term,
         step: Option<Term>,
     },
+    /// The s-channel's twists and spins, each (from, to, step).
+    TwistSpin {
+        twist: Box<(Term, Term, Option<Term>)>,
+        spin: Box<(Term, Term, Option<Term>)>,
+    },
 }
 
 /// True for a term of numbers and scalar parameters only.
+/// True for a term of numbers, scalar parameters and ₂F₁ of them.
+fn parameters_and_hypergeometric(t: &Term) -> bool {
+    match t {
+        Term::Num(_) | Term::Sym(_) => true,
+        Term::Add(ts) | Term::Mul(ts) => ts.iter().all(parameters_and_hypergeometric),
+        Term::Pow(a, b) => parameters_and_hypergeometric(a) && parameters_and_hypergeometric(b),
+        Term::Fun(name, _, args) if name == crate::term::HYP2F1 => {
+            args.iter().all(parameters_and_hypergeometric)
+        }
+        _ => false,
+    }
+}
+
 fn is_constant_term(t: &Term) -> bool {
     match t {
         Term::Num(_) | Term::Sym(_) => true,

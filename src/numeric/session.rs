@@ -267,6 +267,9 @@ impl<'a> Session<'a> {
         dims: &crate::lower::Dims,
     ) -> Result<super::decompose::Decomposition> {
         use crate::lower::Dims;
+        if let Dims::TwistSpin { twist, spin } = dims {
+            return self.decompose_four_point(corr, twist, spin);
+        }
         let Term::Corr(ops) = corr else {
             return Err(Error::new(
                 ErrorKind::Numeric,
@@ -299,6 +302,7 @@ impl<'a> Session<'a> {
             ));
         }
         let (list, tower) = match dims {
+            Dims::TwistSpin { .. } => unreachable_dims()?,
             Dims::List(ts) => (ts.iter().map(number).collect::<Result<Vec<f64>>>()?, false),
             Dims::Tower { from, to, step } => {
                 let (a, b) = (number(from)?, number(to)?);
@@ -343,6 +347,88 @@ impl<'a> Session<'a> {
             Ok(c * (4.0 * xi).powf(d1))
         };
         super::decompose::fit(channel, dim as f64, d1, &list, tower, &g)
+    }
+
+    /// The expansion of a four-point function `f` of z, z̄ (parameters `z`,
+    /// `zb`) in the identity and the s-channel blocks of every twist τ and
+    /// even or odd spin ℓ of two towers, Δ = τ + ℓ
+    /// ([`super::decompose::fit_four_point`]).
+    fn decompose_four_point(
+        &self,
+        f: &Term,
+        twist: &(Term, Term, Option<Term>),
+        spin: &(Term, Term, Option<Term>),
+    ) -> Result<super::decompose::Decomposition> {
+        let values = self.values().clone();
+        let number = |t: &Term| -> Result<f64> { Ok(self.value(t, &[], &values)?.value) };
+        let numeric = |m: String| Error::new(ErrorKind::Numeric, m);
+        let tower = |t: &(Term, Term, Option<Term>), what: &str| -> Result<Vec<f64>> {
+            let (a, b) = (number(&t.0)?, number(&t.1)?);
+            let s = match &t.2 {
+                Some(s) => number(s)?,
+                None => 1.0,
+            };
+            let count = ((b - a) / s + 1e-9).floor();
+            if s.is_nan() || s <= 0.0 || !count.is_finite() || count < 0.0 {
+                return Err(numeric(format!(
+                    "the {what} from {a} to {b} in steps of {s} are none"
+                ))
+                .with_note("write `FIRST to LAST step S` with LAST ≥ FIRST and S > 0"));
+            }
+            if count as usize >= super::decompose::MAX_BLOCKS {
+                return Err(numeric(format!(
+                    "{} {what}; at most {} blocks are fitted",
+                    count as usize + 1,
+                    super::decompose::MAX_BLOCKS
+                )));
+            }
+            Ok((0..=count as usize).map(|k| a + s * k as f64).collect())
+        };
+        let twists = tower(twist, "twists")?;
+        let spins = tower(spin, "spins")?;
+        let mut blocks = Vec::new();
+        for l in &spins {
+            if !(l.fract() == 0.0 && *l >= 0.0 && *l <= 1000.0) {
+                return Err(numeric(format!("the spin {l} is not a whole number ≥ 0")));
+            }
+        }
+        for t in &twists {
+            for l in &spins {
+                blocks.push((t + l, *l as u32));
+            }
+        }
+        if blocks.len() > super::decompose::MAX_BLOCKS {
+            return Err(numeric(format!(
+                "{} twists × {} spins are {} blocks; at most {} are fitted",
+                twists.len(),
+                spins.len(),
+                blocks.len(),
+                super::decompose::MAX_BLOCKS
+            )));
+        }
+        let d = values.dim as u32;
+        // In u and v alone: Euclidean configurations z̄ = z*; with z or zb
+        // in it, real z, z̄.
+        let frame = if mentions_symbol(f, "z") || mentions_symbol(f, "zb") {
+            super::decompose::Frame::Real
+        } else {
+            super::decompose::Frame::Euclidean
+        };
+        let g = |p: f64, q: f64| -> Result<f64> {
+            let mut v = values.clone();
+            let (u, w) = match frame {
+                super::decompose::Frame::Real => {
+                    v.scalars.insert("z".into(), p);
+                    v.scalars.insert("zb".into(), q);
+                    (p * q, (1.0 - p) * (1.0 - q))
+                }
+                super::decompose::Frame::Euclidean => (p * p, 1.0 - 2.0 * p * q.cos() + p * p),
+            };
+            v.scalars.insert("u".into(), u);
+            v.scalars.insert("v".into(), w);
+            Ok(self.value(f, &[], &v)?.value)
+        };
+        super::decompose::fit_four_point(d, &blocks, frame, &g)
     }
 
     /// The values of `t` for every assignment of its free indices.
@@ -1401,4 +1487,23 @@ fn norm(v: &[f64]) -> f64 {
 
 fn quadrature_error(e: super::quadrature::QuadratureError) -> Error {
     Error::new(ErrorKind::Numeric, e.to_string())
+}
+
+/// A tower of twists and spins reached the wall channels' code.
+fn unreachable_dims() -> Result<(Vec<f64>, bool)> {
+    Err(Error::new(
+        ErrorKind::Numeric,
+        "twists and spins are the s-channel's",
+    ))
+}
+
+/// True if the symbol `name` occurs in `t`.
+fn mentions_symbol(t: &Term, name: &str) -> bool {
+    match t {
+        Term::Sym(s) => s == name,
+        Term::Pow(a, b) => mentions_symbol(a, name) || mentions_symbol(b, name),
+        Term::Mul(ts) | Term::Add(ts) => ts.iter().any(|s| mentions_symbol(s, name)),
+        Term::Fun(_, _, args) => args.iter().any(|s| mentions_symbol(s, name)),
+        _ => false,
+    }
 }

@@ -401,15 +401,20 @@ fn statement(out: &mut String, s: &Statement) {
             let (dim, coefficient) = match found.channel {
                 Channel::Bulk => ("\\Delta", "\\lambda a"),
                 Channel::Boundary => ("\\hat\\Delta", "\\mu^2"),
+                Channel::SChannel => ("\\Delta", "\\lambda^2"),
             };
             let coefficients = super::coefficients(found);
             let mut lines = Vec::new();
             if let Some(c) = &coefficients.identity {
                 lines.push(format!("\\text{{identity}} &= {}", coefficient_tex(c)));
             }
-            for (dimension, c) in found.dims.iter().zip(&coefficients.blocks) {
+            for (k, (dimension, c)) in found.dims.iter().zip(&coefficients.blocks).enumerate() {
+                let spin = found
+                    .spins
+                    .get(k)
+                    .map_or(String::new(), |l| format!(", \\ell = {l}"));
                 lines.push(format!(
-                    "{coefficient}\\big|_{{{dim} = {}}} &= {}{}",
+                    "{coefficient}\\big|_{{{dim} = {}{spin}}} &= {}{}",
                     number(*dimension, 6)
                         .trim_end_matches('0')
                         .trim_end_matches('.'),

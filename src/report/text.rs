@@ -652,13 +652,26 @@ impl Text {
         let (channel, name, coefficient) = match found.channel {
             Channel::Bulk => ("bulk", "Δ", "λa"),
             Channel::Boundary => ("boundary", "Δ̂", "μ²"),
+            Channel::SChannel => ("s", "Δ", "λ²"),
         };
         let _ = writeln!(
             self.out,
             "line {line}: decompose {}",
             abbreviate(input, INPUT_WIDTH)
         );
-        let _ = writeln!(
+        if found.channel == Channel::SChannel {
+            let _ = writeln!(
+                self.out,
+                "  s-channel: {} block{} fitted at {} configurations, |z| in [{}, {}], checked at {} others",
+                found.dims.len(),
+                if found.dims.len() == 1 { "" } else { "s" },
+                found.fitted_at,
+                found.range.0,
+                found.range.1,
+                found.checked_at
+            );
+        } else {
+            let _ = writeln!(
             self.out,
             "  {channel} channel, Δ = {}: {} block{} fitted at {} values of ξ in [{}, {}], checked at {} others",
             found.delta,
@@ -669,14 +682,19 @@ impl Text {
             found.range.1,
             found.checked_at
         );
+        }
         let coefficients = super::coefficients(found);
         if let Some(c) = &coefficients.identity {
             let _ = writeln!(self.out, "  identity: {}", coefficient_text(c));
         }
-        for (dim, c) in found.dims.iter().zip(&coefficients.blocks) {
+        for (k, (dim, c)) in found.dims.iter().zip(&coefficients.blocks).enumerate() {
+            let spin = found
+                .spins
+                .get(k)
+                .map_or(String::new(), |l| format!(", ℓ = {l}"));
             let _ = writeln!(
                 self.out,
-                "  {name} = {dim}: {coefficient} = {}{}",
+                "  {name} = {dim}{spin}: {coefficient} = {}{}",
                 coefficient_text(c),
                 relative_text(c)
             );

@@ -13,6 +13,9 @@ pub enum Channel {
     Bulk,
     /// Boundary operators exchanged (each point → the wall).
     Boundary,
+    /// The s-channel of a four-point function without a wall (x1 → x2),
+    /// blocks `g_block(Δ, ℓ; z, z̄)`.
+    SChannel,
 }
 
 /// The exchanged dimensions of a block expansion.
@@ -21,6 +24,8 @@ pub enum BlockDims {
     List(Vec<Expr>),
     /// first, last and step (1 when not written).
     Tower(Box<(Expr, Expr, Option<Expr>)>),
+    /// The s-channel's towers of twists and of spins.
+    TwistSpin(Box<[(Expr, Expr, Option<Expr>); 2]>),
 }
 
 /// A byte range in one source text.

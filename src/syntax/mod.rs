@@ -911,7 +911,31 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
         }
         Rule::decompose_stmt => {
             let corr = build_expr(source, next(&mut inner), 0)?;
-            let channel = match next(&mut inner).as_str() {
+            let which = next(&mut inner);
+            let tower = |p: pest::iterators::Pair<'_, Rule>| -> Result<(Expr, Expr, Option<Expr>)> {
+                let mut t = p.into_inner();
+                let from = build_expr(source, next(&mut t), 0)?;
+                let to = build_expr(source, next(&mut t), 0)?;
+                let step = match t.next() {
+                    Some(p) => Some(build_expr(source, p, 0)?),
+                    None => None,
+                };
+                Ok((from, to, step))
+            };
+            if which.as_rule() == Rule::s_channel {
+                let mut t = which.into_inner();
+                let twist = tower(next(&mut t))?;
+                let spin = tower(next(&mut t))?;
+                let output = inner.next().map(|string| output_name(&string));
+                return Ok(Stmt::Decompose {
+                    corr,
+                    channel: Channel::SChannel,
+                    dims: BlockDims::TwistSpin(Box::new([twist, spin])),
+                    output,
+                    span,
+                });
+            }
+            let channel = match which.as_str() {
                 "bulk" => Channel::Bulk,
                 _ => Channel::Boundary,
             };
