@@ -33,10 +33,12 @@ use crate::term::{Index, Integral, Point, Region, Term};
 
 /// The parameter that carries the outward normal at each quadrature node.
 const NORMAL_VALUE: &str = "N#";
-/// Relative accuracy asked of quadrature.
-const QUADRATURE_TOLERANCE: f64 = 1e-11;
-/// Absolute accuracy asked of quadrature, for integrals that vanish.
-const QUADRATURE_FLOOR: f64 = 1e-12;
+/// Relative accuracy asked of quadrature unless a `tolerance` statement
+/// sets it.
+pub const QUADRATURE_TOLERANCE: f64 = 1e-11;
+/// Absolute accuracy asked of quadrature, for integrals that vanish, as a
+/// fraction of the relative one (1e-12 by default).
+const QUADRATURE_FLOOR: f64 = 0.1;
 /// Largest number of integrand evaluations for one integral.
 const QUADRATURE_BUDGET: usize = 400_000;
 /// How far (relative) a third evaluation of `solve` may be off the line
@@ -62,6 +64,9 @@ pub struct Session<'a> {
     /// Their compiled forms, by input term and component: a scan or a grid
     /// evaluates the same component at many configurations.
     compiled_cache: Arc<Mutex<CompiledCache>>,
+    /// The relative accuracy asked of quadrature (`tolerance`, or
+    /// [`QUADRATURE_TOLERANCE`]).
+    tolerance: f64,
 }
 
 type CompiledCache =
@@ -175,6 +180,7 @@ impl<'a> Session<'a> {
             current: AtomicUsize::new(0),
             explicit_cache: Arc::new(Mutex::new(std::collections::HashMap::new())),
             compiled_cache: Arc::new(Mutex::new(std::collections::HashMap::new())),
+            tolerance: spec.tolerance.unwrap_or(QUADRATURE_TOLERANCE),
         })
     }
 
@@ -189,6 +195,7 @@ impl<'a> Session<'a> {
             current: AtomicUsize::new(0),
             explicit_cache: Arc::clone(&self.explicit_cache),
             compiled_cache: Arc::clone(&self.compiled_cache),
+            tolerance: self.tolerance,
         };
         view.select(k);
         view
@@ -854,7 +861,7 @@ impl<'a> Session<'a> {
                 ),
             )
             .with_note(format!(
-                "the product rules grow as n^(d-1) nodes; check this identity in d ≤ {MAX_DIM}, \
+                "the rules grow with the dimension; check this identity in d ≤ {MAX_DIM}, \
                  or without an integral (the local form, with `compare`)"
             )));
         }
@@ -983,8 +990,8 @@ impl<'a> Session<'a> {
                 }
                 count += out.len();
             },
-            Tolerance::relative(QUADRATURE_TOLERANCE)
-                .with_abs(QUADRATURE_FLOOR)
+            Tolerance::relative(self.tolerance)
+                .with_abs(QUADRATURE_FLOOR * self.tolerance)
                 .with_max_nodes(QUADRATURE_BUDGET),
         );
         if let Some(e) = failure {

@@ -137,6 +137,11 @@ pub fn integrate(surface: &Surface, f: impl Fn(&[f64], &[f64]) -> f64, tol: Tole
     )
 }
 
+/// The largest dimension in which surfaces other than turned spheres are
+/// integrated by product rules: above it the product rule's 2·6^(d-1)
+/// starting nodes alone pass the budgets, and the sparse grid takes over.
+pub const PRODUCT_MAX_DIM: usize = 6;
+
 /// Nodes handed to the integrand at once by [`integrate_batch`].
 pub const BATCH: usize = 4096;
 
@@ -149,7 +154,7 @@ pub fn integrate_batch(
     mut f: impl FnMut(&[f64], &[f64], &mut [f64]),
     tol: Tolerance,
 ) -> Estimate {
-    if surface.aligned() {
+    if surface.aligned() || surface.dim() > PRODUCT_MAX_DIM {
         return super::sparse::integrate(surface, &mut f, tol);
     }
     Driver {

@@ -80,6 +80,8 @@ struct Active {
     index: Index,
     delta: f64,
     abs: f64,
+    /// The rounding in Δ: 2ε Σ |w f| over its terms.
+    noise: f64,
 }
 
 /// The sparse grid of one patch.
@@ -178,7 +180,7 @@ impl<'a> Grid<'a> {
 
     /// Δ of `index`: Σ over the nodes of its full tensor rule of
     /// Π_j (w_{l_j} - w_{l_j - 1}) f, from the blocks of every index below it.
-    fn delta(&mut self, index: &Index) -> (f64, f64) {
+    fn delta(&mut self, index: &Index) -> (f64, f64, f64) {
         let m = self.vars();
         for j in 0..m {
             self.rule(j, index[j] as usize);
@@ -186,7 +188,7 @@ impl<'a> Grid<'a> {
         let dws: Vec<&[f64]> = (0..m)
             .map(|j| self.rules[j][index[j] as usize - 1].1.as_slice())
             .collect();
-        let (mut value, mut abs) = (Compensated::default(), 0.0);
+        let (mut value, mut abs, mut noise) = (Compensated::default(), 0.0, 0.0);
         // Every index k ≤ index, and within its block every node.
         let mut below = vec![1usize; m];
         loop {
@@ -202,13 +204,14 @@ impl<'a> Grid<'a> {
                 let w: f64 = (0..m).map(|j| dws[j][starts[j] + at[j]]).product();
                 value.add(w * g);
                 abs += w * a;
+                noise += w.abs() * a;
                 advance(&mut at, |j| sizes[j]);
             }
             if !advance_below(&mut below, index) {
                 break;
             }
         }
-        (value.value(), abs)
+        (value.value(), abs, 2.0 * f64::EPSILON * noise)
     }
 }
 
@@ -397,7 +400,7 @@ impl Driver<'_, '_, '_> {
         }
         for (g, k) in indices {
             let grid = &mut self.grids[*g];
-            let (delta, abs) = grid.delta(k);
+            let (delta, abs, noise) = grid.delta(k);
             let above: usize = k[..grid.vars()].iter().map(|&l| l as usize - 1).sum();
             if above < old_below {
                 grid.old.insert(*k);
@@ -407,6 +410,7 @@ impl Driver<'_, '_, '_> {
                     index: *k,
                     delta,
                     abs,
+                    noise,
                 });
             }
         }
@@ -462,14 +466,15 @@ impl Driver<'_, '_, '_> {
         }
         let abs: f64 = abs.abs();
         let floor = ROUND_OFF * f64::EPSILON * abs;
-        // A |Δ| above the rounding floor counts SAFETY times.
+        // A |Δ| above the rounding floor and its own rounding counts
+        // SAFETY times.
         let error: f64 = self
             .grids
             .iter()
             .flat_map(|g| &g.active)
             .map(|a| {
                 let d = a.delta.abs();
-                if d > floor {
+                if d > floor.max(a.noise) {
                     SAFETY * d
                 } else {
                     d
