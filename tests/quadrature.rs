@@ -504,6 +504,9 @@ fn malformed_surfaces_are_refused() {
     ));
 }
 
+/// An integrand of point and normal.
+type Field<'a> = dyn Fn(&[f64], &[f64]) -> f64 + 'a;
+
 // Closed forms on S^{d-1} of radius r, d = 2 … 8, through the sparse-grid
 // driver (spheres turned toward a point; every surface above d = 6), to
 // 1e-11 (common practice): the area S_d r^{d-1} = 2π^{d/2}/Γ(d/2) r^{d-1};
@@ -521,7 +524,7 @@ fn sphere_and_ball_closed_forms_d2_to_d8() {
         let s = area(d);
         let dd = d as f64;
         let c = centre.clone();
-        let cases: Vec<(&str, Box<dyn Fn(&[f64], &[f64]) -> f64>, f64)> = vec![
+        let cases: Vec<(&str, Box<Field<'_>>, f64)> = vec![
             (
                 "area",
                 Box::new(|_: &[f64], _: &[f64]| 1.0),
@@ -597,7 +600,7 @@ fn convergence_follows_the_tolerance_d7_d8() {
         foot[d - 1] = 0.0;
         let closed = Surface::closed_hemisphere(&foot, 0.8).unwrap();
         let radial = |x: &[f64], n: &[f64]| (0..d).map(|i| (x[i] - foot[i]) * n[i]).sum::<f64>();
-        let cases: [(&str, &Surface, &dyn Fn(&[f64], &[f64]) -> f64, f64); 2] = [
+        let cases: [(&str, &Surface, &Field<'_>, f64); 2] = [
             ("sphere around a source", &sphere, &coulomb(&q), area(d)),
             (
                 "closed hemisphere, x - c",

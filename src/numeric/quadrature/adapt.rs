@@ -142,6 +142,9 @@ pub fn integrate(surface: &Surface, f: impl Fn(&[f64], &[f64]) -> f64, tol: Tole
 /// starting nodes alone pass the budgets, and the sparse grid takes over.
 pub const PRODUCT_MAX_DIM: usize = 6;
 
+/// The integrand as the drivers call it: points, normals, values out.
+pub(crate) type Integrand<'a> = dyn FnMut(&[f64], &[f64], &mut [f64]) + 'a;
+
 /// Nodes handed to the integrand at once by [`integrate_batch`].
 pub const BATCH: usize = 4096;
 
@@ -198,7 +201,7 @@ struct State {
 
 struct Driver<'a> {
     patches: &'a [Patch],
-    f: &'a mut dyn FnMut(&[f64], &[f64], &mut [f64]),
+    f: &'a mut Integrand<'a>,
     nodes: usize,
     max_nodes: usize,
     /// Σ|w f| of the current rules.
@@ -399,7 +402,7 @@ impl Batch {
 
     /// Evaluates the nodes gathered and adds w f of each to `sum`, in
     /// order.
-    fn flush(&mut self, f: &mut dyn FnMut(&[f64], &[f64], &mut [f64]), sum: &mut Compensated) {
+    fn flush(&mut self, f: &mut Integrand<'_>, sum: &mut Compensated) {
         if self.weights.is_empty() {
             return;
         }

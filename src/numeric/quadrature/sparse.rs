@@ -26,7 +26,7 @@
 
 use std::collections::{HashMap, HashSet};
 
-use super::adapt::{Estimate, Tolerance, BATCH};
+use super::adapt::{Estimate, Integrand, Tolerance, BATCH};
 use super::nested::{count, fejer, MAX_LEVEL};
 use super::surface::{Compensated, Patch, Surface, MAX_DIM};
 
@@ -69,9 +69,6 @@ pub(crate) fn integrate(surface: &Surface, f: &mut Integrand<'_>, tol: Tolerance
 /// A multi-index: one level (1 ≤ l ≤ [`MAX_LEVEL`]) per variable, up to
 /// [`MAX_DIM`] - 1 variables; unused entries are 0.
 type Index = [u8; MAX_DIM - 1];
-
-/// The integrand as the driver calls it.
-type Integrand<'a> = dyn FnMut(&[f64], &[f64], &mut [f64]) + 'a;
 
 /// An index of the active set: its contribution Δ to the integral and to
 /// Σ|w f|.
@@ -182,8 +179,8 @@ impl<'a> Grid<'a> {
     /// Π_j (w_{l_j} - w_{l_j - 1}) f, from the blocks of every index below it.
     fn delta(&mut self, index: &Index) -> (f64, f64, f64) {
         let m = self.vars();
-        for j in 0..m {
-            self.rule(j, index[j] as usize);
+        for (j, &level) in index[..m].iter().enumerate() {
+            self.rule(j, level as usize);
         }
         let dws: Vec<&[f64]> = (0..m)
             .map(|j| self.rules[j][index[j] as usize - 1].1.as_slice())
