@@ -890,17 +890,27 @@ impl<'a> Session<'a> {
                 }
                 // Poles towards the nearest other insertion: the integrand
                 // then varies mostly with one variable.
-                let nearest = values
+                let others: Vec<Vec<f64>> = values
                     .points
                     .iter()
                     .filter(|(name, _)| **name != *i.var.name && **name != *center.name)
                     .map(|(_, p)| p.iter().zip(&c).map(|(a, b)| a - b).collect::<Vec<f64>>())
                     .filter(|v| v.iter().any(|a| *a != 0.0))
-                    .min_by(|a, b| norm(a).total_cmp(&norm(b)));
+                    .collect();
+                let nearest = others
+                    .iter()
+                    .min_by(|a, b| norm(a).total_cmp(&norm(b)))
+                    .cloned();
                 let surface = if on_wall {
                     Surface::hemisphere(&c, r)
                 } else {
                     match nearest {
+                        // With a second insertion off the axis, the product
+                        // rules (d ≤ 6): the sparse grid's estimate is not
+                        // to be trusted there.
+                        Some(axis) if others.len() > 1 => {
+                            Surface::sphere_along(&c, r, &axis).map(Surface::with_product_rules)
+                        }
                         Some(axis) => Surface::sphere_along(&c, r, &axis),
                         None => Surface::sphere(&c, r),
                     }

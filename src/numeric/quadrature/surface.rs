@@ -127,6 +127,18 @@ impl Surface {
         self.dim
     }
 
+    /// The same surface integrated by the product rules up to d = 6 (above
+    /// it the sparse grid is the only driver): for a turned sphere with a
+    /// second singular point off its axis, where the sparse grid's
+    /// estimate was found 10⁶ times too small (benches/quadrature.rs, two
+    /// sources).
+    pub fn with_product_rules(self) -> Surface {
+        Surface {
+            aligned: false,
+            ..self
+        }
+    }
+
     /// Whether the surface is a sphere turned toward a point
     /// ([`Surface::sphere_along`]): integrated by the sparse grid.
     pub fn aligned(&self) -> bool {
