@@ -139,6 +139,11 @@ pub const STATEMENTS: &[Entry] = &[
         meaning: "numeric work on 5 seeded random positions of the points not placed",
     },
     Entry {
+        keyword: "tolerance",
+        example: "tolerance 1e-8",
+        meaning: "the relative accuracy asked of quadrature in fluxes and plane integrals",
+    },
+    Entry {
         keyword: "evaluate",
         example: "evaluate <O(x1) O(x2)>",
         meaning: "print the numeric value on the model",

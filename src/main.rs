@@ -35,8 +35,8 @@ enum Command {
     /// Statements: dimension, halfspace, scalar, vector, tensor, boundary,
     /// points, parameters, positive, parallel, function, let, rules, killing,
     /// classify, simplify, claim, derivation, slip, place, model,
-    /// coefficient, values, sample, evaluate, compare, flux, solve, scan,
-    /// decompose.
+    /// coefficient, values, sample, tolerance, evaluate, compare, flux,
+    /// solve, scan, decompose.
     /// One example each: `wardsmith help language`.
     #[command(after_help = CONVENTIONS)]
     Check(FileArgs),

@@ -711,13 +711,13 @@ fn the_boundary_plane_integral_converges_in_six_dimensions() {
 }
 
 #[test]
-fn integrals_above_six_dimensions_are_refused_clearly_and_the_file_goes_on() {
-    let path = scratch("plane7.ward", &boundary_plane(7));
+fn integrals_above_eight_dimensions_are_refused_clearly_and_the_file_goes_on() {
+    let path = scratch("plane9.ward", &boundary_plane(9));
     let (code, stdout, stderr) = wardsmith(&["check", path.to_str().unwrap()]);
     assert_eq!(code, 1, "{stdout}{stderr}");
     assert!(stdout.contains("line 7: compare UNKNOWN"), "{stdout}");
     assert!(
-        stdout.contains("dimensions 2 to 6, and this file is in dimension 7"),
+        stdout.contains("dimensions 2 to 8, and this file is in dimension 9"),
         "{stdout}"
     );
     assert!(!stdout.contains("centre"), "{stdout}");

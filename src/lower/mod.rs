@@ -846,6 +846,7 @@ impl Lowerer {
             }
             Stmt::Values(items) => self.declare_values(items)?,
             Stmt::Sample { count, seed, span } => self.declare_sample(count, seed, *span)?,
+            Stmt::Tolerance { value, span } => self.declare_tolerance(value, *span)?,
             Stmt::Simplify { .. }
             | Stmt::Claim { .. }
             | Stmt::Rules { .. }

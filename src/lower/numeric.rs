@@ -25,7 +25,13 @@ pub struct NumericSpec {
     pub values: BTreeMap<String, ValueSpec>,
     /// `sample N seed S`: N sets of seeded random positions.
     pub sample: Option<(usize, u64)>,
+    /// `tolerance T`: the relative accuracy asked of quadrature.
+    pub tolerance: Option<f64>,
 }
+
+/// The range a `tolerance` may take: below it rounding dominates, above it
+/// a quadrature result says little.
+pub const TOLERANCE_RANGE: (f64, f64) = (1e-14, 1e-2);
 
 /// A checked model choice.
 #[derive(Clone, Debug, PartialEq, Eq)]
@@ -440,6 +446,29 @@ impl Lowerer {
                 .with_label("a second `sample`"));
         }
         self.numeric.sample = Some((n as usize, s));
+        Ok(())
+    }
+
+    pub(super) fn declare_tolerance(&mut self, value: &Expr, span: Span) -> Result<()> {
+        let (lo, hi) = TOLERANCE_RANGE;
+        let Some(t) = constant_value(value)
+            .and_then(|v| num_traits::ToPrimitive::to_f64(&v))
+            .filter(|t| (lo..=hi).contains(t))
+        else {
+            return Err(self
+                .err(
+                    ErrorKind::Syntax,
+                    value.span,
+                    format!("a tolerance is a number from {lo:e} to {hi:e}: the relative accuracy asked of quadrature"),
+                )
+                .with_label("not a tolerance"));
+        };
+        if self.numeric.tolerance.is_some() {
+            return Err(self
+                .err(ErrorKind::Name, span, "a file sets its tolerance once")
+                .with_label("a second `tolerance`"));
+        }
+        self.numeric.tolerance = Some(t);
         Ok(())
     }
 

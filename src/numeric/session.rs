@@ -33,10 +33,12 @@ use crate::term::{Index, Integral, Point, Region, Term};
 
 /// The parameter that carries the outward normal at each quadrature node.
 const NORMAL_VALUE: &str = "N#";
-/// Relative accuracy asked of quadrature.
-const QUADRATURE_TOLERANCE: f64 = 1e-11;
-/// Absolute accuracy asked of quadrature, for integrals that vanish.
-const QUADRATURE_FLOOR: f64 = 1e-12;
+/// Relative accuracy asked of quadrature unless a `tolerance` statement
+/// sets it.
+pub const QUADRATURE_TOLERANCE: f64 = 1e-11;
+/// Absolute accuracy asked of quadrature, for integrals that vanish, as a
+/// fraction of the relative one (1e-12 by default).
+const QUADRATURE_FLOOR: f64 = 0.1;
 /// Largest number of integrand evaluations for one integral.
 const QUADRATURE_BUDGET: usize = 400_000;
 /// How far (relative) a third evaluation of `solve` may be off the line
@@ -62,6 +64,9 @@ pub struct Session<'a> {
     /// Their compiled forms, by input term and component: a scan or a grid
     /// evaluates the same component at many configurations.
     compiled_cache: Arc<Mutex<CompiledCache>>,
+    /// The relative accuracy asked of quadrature (`tolerance`, or
+    /// [`QUADRATURE_TOLERANCE`]).
+    tolerance: f64,
 }
 
 type CompiledCache =
@@ -175,6 +180,7 @@ impl<'a> Session<'a> {
             current: AtomicUsize::new(0),
             explicit_cache: Arc::new(Mutex::new(std::collections::HashMap::new())),
             compiled_cache: Arc::new(Mutex::new(std::collections::HashMap::new())),
+            tolerance: spec.tolerance.unwrap_or(QUADRATURE_TOLERANCE),
         })
     }
 
@@ -189,6 +195,7 @@ impl<'a> Session<'a> {
             current: AtomicUsize::new(0),
             explicit_cache: Arc::clone(&self.explicit_cache),
             compiled_cache: Arc::clone(&self.compiled_cache),
+            tolerance: self.tolerance,
         };
         view.select(k);
         view
@@ -940,7 +947,7 @@ impl<'a> Session<'a> {
                 ),
             )
             .with_note(format!(
-                "the product rules grow as n^(d-1) nodes; check this identity in d ≤ {MAX_DIM}, \
+                "the rules grow with the dimension; check this identity in d ≤ {MAX_DIM}, \
                  or without an integral (the local form, with `compare`)"
             )));
         }
@@ -969,17 +976,27 @@ impl<'a> Session<'a> {
                 }
                 // Poles towards the nearest other insertion: the integrand
                 // then varies mostly with one variable.
-                let nearest = values
+                let others: Vec<Vec<f64>> = values
                     .points
                     .iter()
                     .filter(|(name, _)| **name != *i.var.name && **name != *center.name)
                     .map(|(_, p)| p.iter().zip(&c).map(|(a, b)| a - b).collect::<Vec<f64>>())
                     .filter(|v| v.iter().any(|a| *a != 0.0))
-                    .min_by(|a, b| norm(a).total_cmp(&norm(b)));
+                    .collect();
+                let nearest = others
+                    .iter()
+                    .min_by(|a, b| norm(a).total_cmp(&norm(b)))
+                    .cloned();
                 let surface = if on_wall {
                     Surface::hemisphere(&c, r)
                 } else {
                     match nearest {
+                        // With a second insertion off the axis, the product
+                        // rules (d ≤ 6): the sparse grid's estimate is not
+                        // to be trusted there.
+                        Some(axis) if others.len() > 1 => {
+                            Surface::sphere_along(&c, r, &axis).map(Surface::with_product_rules)
+                        }
                         Some(axis) => Surface::sphere_along(&c, r, &axis),
                         None => Surface::sphere(&c, r),
                     }
@@ -1069,8 +1086,8 @@ impl<'a> Session<'a> {
                 }
                 count += out.len();
             },
-            Tolerance::relative(QUADRATURE_TOLERANCE)
-                .with_abs(QUADRATURE_FLOOR)
+            Tolerance::relative(self.tolerance)
+                .with_abs(QUADRATURE_FLOOR * self.tolerance)
                 .with_max_nodes(QUADRATURE_BUDGET),
         );
         if let Some(e) = failure {

@@ -404,6 +404,11 @@ pub enum Stmt {
         slip: bool,
         span: Span,
     },
+    /// `tolerance 1e-8`: the relative accuracy asked of quadrature.
+    Tolerance {
+        value: Expr,
+        span: Span,
+    },
     /// `sample N seed S`: N sets of seeded random positions.
     Sample {
         count: Expr,

@@ -503,6 +503,7 @@ pub(crate) const STATEMENT_STARTS: &[&str] = &[
     "solve",
     "flux",
     "sample",
+    "tolerance",
     "scan",
     "decompose",
     "derivation",
@@ -1003,6 +1004,10 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                 slip,
                 span,
             }
+        }
+        Rule::tolerance_stmt => {
+            let value = build_expr(source, next(&mut inner), 0)?;
+            Stmt::Tolerance { value, span }
         }
         Rule::sample_stmt => {
             let count = parse_primary(source, next(&mut inner), 0)?;

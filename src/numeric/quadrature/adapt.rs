@@ -137,6 +137,14 @@ pub fn integrate(surface: &Surface, f: impl Fn(&[f64], &[f64]) -> f64, tol: Tole
     )
 }
 
+/// The largest dimension in which surfaces other than turned spheres are
+/// integrated by product rules: above it the product rule's 2·6^(d-1)
+/// starting nodes alone pass the budgets, and the sparse grid takes over.
+pub const PRODUCT_MAX_DIM: usize = 6;
+
+/// The integrand as the drivers call it: points, normals, values out.
+pub(crate) type Integrand<'a> = dyn FnMut(&[f64], &[f64], &mut [f64]) + 'a;
+
 /// Nodes handed to the integrand at once by [`integrate_batch`].
 pub const BATCH: usize = 4096;
 
@@ -149,7 +157,7 @@ pub fn integrate_batch(
     mut f: impl FnMut(&[f64], &[f64], &mut [f64]),
     tol: Tolerance,
 ) -> Estimate {
-    if surface.aligned() {
+    if surface.aligned() || surface.dim() > PRODUCT_MAX_DIM {
         return super::sparse::integrate(surface, &mut f, tol);
     }
     Driver {
@@ -193,7 +201,7 @@ struct State {
 
 struct Driver<'a> {
     patches: &'a [Patch],
-    f: &'a mut dyn FnMut(&[f64], &[f64], &mut [f64]),
+    f: &'a mut Integrand<'a>,
     nodes: usize,
     max_nodes: usize,
     /// Σ|w f| of the current rules.
@@ -394,7 +402,7 @@ impl Batch {
 
     /// Evaluates the nodes gathered and adds w f of each to `sum`, in
     /// order.
-    fn flush(&mut self, f: &mut dyn FnMut(&[f64], &[f64], &mut [f64]), sum: &mut Compensated) {
+    fn flush(&mut self, f: &mut Integrand<'_>, sum: &mut Compensated) {
         if self.weights.is_empty() {
             return;
         }

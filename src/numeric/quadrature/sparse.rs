@@ -26,7 +26,7 @@
 
 use std::collections::{HashMap, HashSet};
 
-use super::adapt::{Estimate, Tolerance, BATCH};
+use super::adapt::{Estimate, Integrand, Tolerance, BATCH};
 use super::nested::{count, fejer, MAX_LEVEL};
 use super::surface::{Compensated, Patch, Surface, MAX_DIM};
 
@@ -70,9 +70,6 @@ pub(crate) fn integrate(surface: &Surface, f: &mut Integrand<'_>, tol: Tolerance
 /// [`MAX_DIM`] - 1 variables; unused entries are 0.
 type Index = [u8; MAX_DIM - 1];
 
-/// The integrand as the driver calls it.
-type Integrand<'a> = dyn FnMut(&[f64], &[f64], &mut [f64]) + 'a;
-
 /// An index of the active set: its contribution Δ to the integral and to
 /// Σ|w f|.
 #[derive(Clone, Copy, Debug)]
@@ -80,6 +77,8 @@ struct Active {
     index: Index,
     delta: f64,
     abs: f64,
+    /// The rounding in Δ: 2ε Σ |w f| over its terms.
+    noise: f64,
 }
 
 /// The sparse grid of one patch.
@@ -178,15 +177,15 @@ impl<'a> Grid<'a> {
 
     /// Δ of `index`: Σ over the nodes of its full tensor rule of
     /// Π_j (w_{l_j} - w_{l_j - 1}) f, from the blocks of every index below it.
-    fn delta(&mut self, index: &Index) -> (f64, f64) {
+    fn delta(&mut self, index: &Index) -> (f64, f64, f64) {
         let m = self.vars();
-        for j in 0..m {
-            self.rule(j, index[j] as usize);
+        for (j, &level) in index[..m].iter().enumerate() {
+            self.rule(j, level as usize);
         }
         let dws: Vec<&[f64]> = (0..m)
             .map(|j| self.rules[j][index[j] as usize - 1].1.as_slice())
             .collect();
-        let (mut value, mut abs) = (Compensated::default(), 0.0);
+        let (mut value, mut abs, mut noise) = (Compensated::default(), 0.0, 0.0);
         // Every index k ≤ index, and within its block every node.
         let mut below = vec![1usize; m];
         loop {
@@ -202,13 +201,14 @@ impl<'a> Grid<'a> {
                 let w: f64 = (0..m).map(|j| dws[j][starts[j] + at[j]]).product();
                 value.add(w * g);
                 abs += w * a;
+                noise += w.abs() * a;
                 advance(&mut at, |j| sizes[j]);
             }
             if !advance_below(&mut below, index) {
                 break;
             }
         }
-        (value.value(), abs)
+        (value.value(), abs, 2.0 * f64::EPSILON * noise)
     }
 }
 
@@ -397,7 +397,7 @@ impl Driver<'_, '_, '_> {
         }
         for (g, k) in indices {
             let grid = &mut self.grids[*g];
-            let (delta, abs) = grid.delta(k);
+            let (delta, abs, noise) = grid.delta(k);
             let above: usize = k[..grid.vars()].iter().map(|&l| l as usize - 1).sum();
             if above < old_below {
                 grid.old.insert(*k);
@@ -407,6 +407,7 @@ impl Driver<'_, '_, '_> {
                     index: *k,
                     delta,
                     abs,
+                    noise,
                 });
             }
         }
@@ -462,14 +463,15 @@ impl Driver<'_, '_, '_> {
         }
         let abs: f64 = abs.abs();
         let floor = ROUND_OFF * f64::EPSILON * abs;
-        // A |Δ| above the rounding floor counts SAFETY times.
+        // A |Δ| above the rounding floor and its own rounding counts
+        // SAFETY times.
         let error: f64 = self
             .grids
             .iter()
             .flat_map(|g| &g.active)
             .map(|a| {
                 let d = a.delta.abs();
-                if d > floor {
+                if d > floor.max(a.noise) {
                     SAFETY * d
                 } else {
                     d

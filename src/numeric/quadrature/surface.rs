@@ -25,7 +25,7 @@ use super::gauss::{gauss_jacobi, gauss_legendre};
 /// The smallest dimension d of R^d a surface can live in.
 pub const MIN_DIM: usize = 2;
 /// The largest dimension d of R^d a surface can live in (the tested range).
-pub const MAX_DIM: usize = 6;
+pub const MAX_DIM: usize = 8;
 
 /// A surface in R^d with its outward normal, to integrate over. The normal
 /// coordinate y is the last one, as in [`crate::numeric::Values`].
@@ -125,6 +125,18 @@ impl Surface {
     /// The dimension d of the space the surface lives in.
     pub fn dim(&self) -> usize {
         self.dim
+    }
+
+    /// The same surface integrated by the product rules up to d = 6 (above
+    /// it the sparse grid is the only driver): for a turned sphere with a
+    /// second singular point off its axis, where the sparse grid's
+    /// estimate was found 10⁶ times too small (benches/quadrature.rs, two
+    /// sources).
+    pub fn with_product_rules(self) -> Surface {
+        Surface {
+            aligned: false,
+            ..self
+        }
     }
 
     /// Whether the surface is a sphere turned toward a point
@@ -295,7 +307,7 @@ impl Compensated {
 /// Why a surface or an integration was refused.
 #[derive(Clone, Debug, PartialEq)]
 pub enum QuadratureError {
-    /// The centre does not have d coordinates with 2 ≤ d ≤ 6, or one is not finite.
+    /// The centre does not have d coordinates with 2 ≤ d ≤ 8, or one is not finite.
     Centre { centre: Vec<f64> },
     /// A radius or scale is not a positive finite number.
     Size { what: &'static str, value: f64 },
