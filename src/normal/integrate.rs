@@ -206,27 +206,17 @@ fn volume(ctx: &Norm, var: &Point, region: &Region, m: Mono) -> Result<Vec<Mono>
     if wall.is_some() && clear_of_wall(ctx, region) {
         return Ok(vec![]);
     }
-    // Over a ball around a boundary point, δ(y(x)) leaves the disc of the
-    // ball on the wall: x becomes x∥, still integrated over the ball.
-    if let (Some(k), Region::Ball(center, _)) = (wall, region) {
-        if ctx.is_boundary_point(center) && !var.par {
-            let mut rest = inside.clone();
-            rest.factors.remove(k);
-            let projected = Point {
-                par: true,
-                ..var.clone()
-            };
-            let body = substitute(ctx, &collect(vec![rest]), var, &projected);
-            let mut out = Vec::new();
-            for m in expand(ctx, &body)? {
-                for r in volume(ctx, &projected, region, m)? {
-                    out.push(outside.mul(&r));
-                }
-            }
-            return Ok(out);
+    // δ(y(x)) over the half-space leaves the boundary plane; over a ball
+    // around a boundary point, the disc of the ball on the wall. Either
+    // way x becomes x∥.
+    let wall_region = match region {
+        Region::Halfspace | Region::Space => Some(Region::Boundary),
+        Region::Ball(center, _) if ctx.is_boundary_point(center) && !var.par => {
+            Some(region.clone())
         }
-    }
-    if let (Some(k), Region::Halfspace | Region::Space) = (wall, region) {
+        _ => None,
+    };
+    if let (Some(k), Some(wall_region)) = (wall, wall_region) {
         let mut rest = inside.clone();
         rest.factors.remove(k);
         let projected = Point {
@@ -236,7 +226,7 @@ fn volume(ctx: &Norm, var: &Point, region: &Region, m: Mono) -> Result<Vec<Mono>
         let body = substitute(ctx, &collect(vec![rest]), var, &projected);
         let mut out = Vec::new();
         for m in expand(ctx, &body)? {
-            for r in volume(ctx, &projected, &Region::Boundary, m)? {
+            for r in volume(ctx, &projected, &wall_region, m)? {
                 out.push(outside.mul(&r));
             }
         }
