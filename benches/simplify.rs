@@ -103,6 +103,27 @@ fn verify_special_conformal_file(bencher: divan::Bencher) {
     });
 }
 
+/// The special conformal claim on a product of powers of all distances
+/// between n points, every exponent a symbol, in d = 4
+/// (tests/cases/integrated/special-conformal-n{3,4,5,6}.ward), whole file.
+/// Target of issue 11: each under 100 ms.
+#[divan::bench(args = [3, 4, 5, 6])]
+fn verify_special_conformal_n_points(bencher: divan::Bencher, n: usize) {
+    let text = match n {
+        3 => include_str!("../tests/cases/integrated/special-conformal-n3.ward"),
+        4 => include_str!("../tests/cases/integrated/special-conformal-n4.ward"),
+        5 => include_str!("../tests/cases/integrated/special-conformal-n5.ward"),
+        _ => include_str!("../tests/cases/integrated/special-conformal-n6.ward"),
+    };
+    let source = Source::new("special.ward", text);
+    bencher.bench(|| {
+        let out =
+            run_source(&source, Path::new("."), Mode::Check, &Options::default()).expect("valid");
+        assert_eq!(out.code, 0, "{}", out.report);
+        out
+    });
+}
+
 /// The proof alone: the engine on the lowered claim.
 #[divan::bench]
 fn verify_special_conformal_engine(bencher: divan::Bencher) {

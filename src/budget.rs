@@ -39,13 +39,24 @@ pub const MAX_TERMS: usize = 500_000;
 /// Bytes of one input file (`.ward` or `.rules`).
 pub const MAX_FILE_BYTES: u64 = 16 << 20;
 
+/// The start of the message of [`too_many_terms`].
+const TOO_MANY_TERMS: &str = "expression too large: ";
+
 /// The error for an expression whose expansion passes [`MAX_TERMS`].
 pub fn too_many_terms(n: usize) -> Error {
     Error::new(
         ErrorKind::Limit,
-        format!("expression too large: {n} terms (limit {MAX_TERMS})"),
+        format!("{TOO_MANY_TERMS}{n} terms (limit {MAX_TERMS})"),
     )
     .with_note("its expansion grows past what can be checked; split it into smaller statements")
+}
+
+/// True when `e` is [`too_many_terms`]: a claim whose normalisation
+/// meets it is unknown (`Stop::TermLimit`), not an input error.
+pub fn is_too_many_terms(e: &Error) -> bool {
+    e.kind == ErrorKind::Limit
+        && e.message.starts_with(TOO_MANY_TERMS)
+        && e.message.ends_with(&format!(" terms (limit {MAX_TERMS})"))
 }
 
 thread_local! {

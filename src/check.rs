@@ -177,7 +177,9 @@ impl<'a> Checker<'a> {
             ) => {
                 let v = engine.check(expr, r)?;
                 // The normal form `test --accept` would write instead.
-                let replacement = if v.holds() {
+                let replacement = if v.holds()
+                    || matches!(v.simplified().stop, crate::egraph::Stop::TermLimit(_))
+                {
                     None
                 } else {
                     Some(self.expr(&engine.simplify(expr)?.term))

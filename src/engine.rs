@@ -178,7 +178,23 @@ impl Engine {
     /// Checks `lhs = rhs` by simplifying their difference to zero.
     pub fn check(&self, lhs: &Term, rhs: &Term) -> Result<Verdict> {
         let difference = Term::Add(vec![lhs.clone(), rhs.clone().negated()]);
-        let mut s = self.simplify(&difference)?;
+        let mut s = match self.simplify(&difference) {
+            Ok(s) => s,
+            // An expansion past the term budget decides nothing: the claim
+            // is unknown, with the difference as written and the reason.
+            Err(e) if crate::budget::is_too_many_terms(&e) => {
+                return Ok(Verdict::NotProved(Simplified {
+                    term: difference,
+                    stop: Stop::TermLimit(crate::budget::MAX_TERMS),
+                    nodes: 0,
+                    iterations: 0,
+                    rounds: 0,
+                    applied: BTreeMap::new(),
+                    caveats: Default::default(),
+                }))
+            }
+            Err(e) => return Err(e),
+        };
         if !s.term.is_zero() && s.stop.is_saturated() {
             if crate::normal::vanishes_identically(&self.ctx, &s.term) {
                 // Zero over the common denominator: a cancellation the

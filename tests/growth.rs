@@ -184,3 +184,35 @@ fn the_match_limit_leaves_the_shipped_rules_room() {
     .unwrap_or_else(|e| panic!("{}", e.render()));
     assert!(out.report.contains("[saturated;"), "{}", out.report);
 }
+
+#[test]
+fn a_claim_past_the_term_budget_is_unknown_with_its_reason() {
+    // (36 monomials)^12 in coordinates: billions of monomials, refused at
+    // the normaliser's budget of terms; a claim, so unknown (exit 1), not
+    // an input error, and the next statement is still checked.
+    use wardsmith::budget::MAX_TERMS;
+    use wardsmith::egraph::Stop;
+    use wardsmith::outcome::{Finding, Status};
+    let text = "dimension 6\npoints x1 x2 x3 x4 x5 x6\n\
+        let S = |x1 - x2|^2 + |x3 - x4|^2 + |x5 - x6|^2\n\
+        claim S^12 = S^12 + 1\nclaim S^2 - S S = 0\n";
+    let out = check(text).unwrap_or_else(|e| panic!("{}", e.render()));
+    assert_eq!(out.code, 1, "{}", out.report);
+    let statements = &out.checked.as_ref().expect("an outcome").statements;
+    let Finding::Claim(first) = &statements[0].finding else {
+        panic!("not a claim: {:?}", statements[0].finding)
+    };
+    assert_eq!(first.check.status, Status::Unknown);
+    assert_eq!(first.check.search.stop, Stop::TermLimit(MAX_TERMS));
+    assert!(
+        out.report.contains(&format!(
+            "stop reason: the normaliser stopped at its term budget ({MAX_TERMS} monomials)"
+        )),
+        "{}",
+        out.report
+    );
+    let Finding::Claim(second) = &statements[1].finding else {
+        panic!("not a claim")
+    };
+    assert_eq!(second.check.status, Status::Proved, "{}", out.report);
+}

@@ -59,6 +59,9 @@ pub enum Stop {
     /// The engine's outer loop (e-graph, extraction, normalisation) ran
     /// its rounds without reaching a fixpoint (`Limits::rounds`, 8).
     RoundLimit(usize),
+    /// The normaliser produced more monomials than its budget
+    /// ([`crate::budget::MAX_TERMS`]) while expanding the claim.
+    TermLimit(usize),
     Other(String),
     /// The rules saturated, but the remainder left is one the engine cannot
     /// tell from zero (see `Engine::check`): the reason.
@@ -85,6 +88,9 @@ impl Stop {
             Stop::TimeLimit => "stopped at the time limit".into(),
             Stop::RoundLimit(n) => format!(
                 "stopped at the round limit ({n} rounds of rules and normalisation without a fixpoint)"
+            ),
+            Stop::TermLimit(n) => format!(
+                "stopped at its term budget ({n} monomials): the expansion grows past what can be checked"
             ),
             Stop::Other(s) => format!("stopped: {s}"),
             Stop::Undecided(_) => "saturated; the remainder is undecided".into(),

@@ -284,11 +284,19 @@ impl Text {
                     "UNKNOWN"
                 };
                 let _ = writeln!(self.out, "line {line}: {what} {status}: {input}");
-                let _ = writeln!(
-                    self.out,
-                    "  left side minus right side simplifies to:\n    {}",
-                    self.layout(&c.remainder, "    ")
-                );
+                if let crate::egraph::Stop::TermLimit(_) = &c.search.stop {
+                    let _ = writeln!(
+                        self.out,
+                        "  left side minus right side, not normalised:\n    {}",
+                        self.layout_capped(&c.remainder, "    ", REMAINDER_TERMS)
+                    );
+                } else {
+                    let _ = writeln!(
+                        self.out,
+                        "  left side minus right side simplifies to:\n    {}",
+                        self.layout(&c.remainder, "    ")
+                    );
+                }
                 let reason = if c.search.stop.is_saturated() {
                     "the rules saturated: nothing more applies, so the two sides differ by the remainder above".to_string()
                 } else if let crate::egraph::Stop::Uncovered(why) = &c.search.stop {
@@ -734,6 +742,7 @@ impl Text {
 fn stopper(stop: &crate::egraph::Stop) -> &'static str {
     match stop {
         crate::egraph::Stop::RoundLimit(_) => "the engine",
+        crate::egraph::Stop::TermLimit(_) => "the normaliser",
         _ => "the e-graph",
     }
 }
