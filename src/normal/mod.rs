@@ -140,6 +140,9 @@ pub struct Norm<'c> {
     /// Symbolic powers of one base already combined: the atoms → their
     /// product in canonical form.
     powers: std::cell::RefCell<std::collections::HashMap<Vec<(Term, BigRational)>, Mono>>,
+    /// The index algebra already applied, by the factors of a monomial
+    /// (see [`contracted`]).
+    contracted: std::cell::RefCell<std::collections::HashMap<Vec<Term>, Vec<Mono>>>,
 }
 
 impl<'c> Norm<'c> {
@@ -150,6 +153,7 @@ impl<'c> Norm<'c> {
             caveats: Default::default(),
             pointwise: false,
             powers: Default::default(),
+            contracted: Default::default(),
         }
     }
 
@@ -176,7 +180,7 @@ pub(crate) fn normalize_in(ctx: &Norm, t: &Term) -> Result<Term> {
 fn canonical(ctx: &Norm, monos: Vec<Mono>) -> Vec<Mono> {
     let mut out = Vec::new();
     for m in monos {
-        for m in contract::contract(ctx, m) {
+        for m in contracted(ctx, m) {
             // A failure leaves the powers as they were: still exact.
             let m = match combine_powers(ctx, m.clone()) {
                 Ok(combined) => combined,
@@ -185,6 +189,50 @@ fn canonical(ctx: &Norm, monos: Vec<Mono>) -> Vec<Mono> {
             out.push(contract::canonical_dummies(ctx, m));
         }
     }
+    out
+}
+
+/// Most factor lists [`contracted`] remembers in one normalisation (a
+/// bound on memory; the memo is a cache).
+const MAX_CONTRACTED: usize = 1 << 15;
+
+/// [`contract::contract`] through a memo on the factors: the index algebra
+/// rewrites the factors and multiplies in scalars, while the coefficient
+/// and the atoms only ride along (except next to δ(y), where the atoms say
+/// whether the height vanishes), so a monomial is its coefficient and atoms
+/// times the contraction of its factors alone. In a Wick expansion the
+/// same index structure recurs with many different atoms.
+fn contracted(ctx: &Norm, m: Mono) -> Vec<Mono> {
+    if m.factors.is_empty() || m.factors.iter().any(|f| matches!(f, Term::DeltaY(_))) {
+        return contract::contract(ctx, m);
+    }
+    let Mono {
+        coef,
+        atoms,
+        factors,
+    } = m;
+    let rest = Mono {
+        coef,
+        atoms,
+        factors: Vec::new(),
+    };
+    if let Some(done) = ctx.contracted.borrow().get(&factors) {
+        return done.iter().map(|s| rest.mul(s)).collect();
+    }
+    let done = contract::contract(
+        ctx,
+        Mono {
+            coef: BigRational::one(),
+            atoms: Atoms::new(),
+            factors: factors.clone(),
+        },
+    );
+    let out = done.iter().map(|s| rest.mul(s)).collect();
+    let mut memo = ctx.contracted.borrow_mut();
+    if memo.len() >= MAX_CONTRACTED {
+        memo.clear();
+    }
+    memo.insert(factors, done);
     out
 }
 
