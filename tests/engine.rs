@@ -257,3 +257,35 @@ fn zero_stands_for_a_tensor_of_any_rank() {
     assert_eq!(code, 0, "{report}");
     assert!(report.ends_with("2 proved, 0 not proved\n"), "{report}");
 }
+
+#[test]
+fn contraction_memo_gives_the_normal_form_of_each_term_alone() {
+    // The normaliser remembers the index algebra of a monomial by its
+    // factors (src/normal/mod.rs `contracted`): the same dot products with
+    // different atoms, in one sum, must normalise to the sum of the terms
+    // normalised one by one (each with a fresh memo).
+    let source = Source::new(
+        "memo.ward",
+        "dimension 4\nhalfspace y >= 0\nparameters a\npoints x1 x2 x3\n\
+         simplify (x1[i] - x3[i]) (x2[i] - x3[i]) |x1 - x2|^a\n\
+           + (x1[i] - x3[i]) (x2[i] - x3[i]) |x1 - x3|^2 δ[k,j] x2[j] x1[k]\n\
+           - 3 (x1[i] - x3[i]) (x2[i] - x3[i]) |x2 - x3|^(-a) x1[n]\n",
+    );
+    let program = lower(&source, &parse_file(&source).expect("parses")).expect("lowers");
+    let Some(ItemKind::Simplify { expr, .. }) = program.items.last().map(|i| &i.kind) else {
+        panic!("the file ends with a simplify");
+    };
+    let wardsmith::term::Term::Add(terms) = expr else {
+        panic!("a sum: {expr:?}");
+    };
+    let ctx = &program.ctx;
+    let together = wardsmith::normal::normalize(ctx, expr).expect("normalises");
+    let alone: Vec<_> = terms
+        .iter()
+        .map(|t| wardsmith::normal::normalize(ctx, t).expect("normalises"))
+        .collect();
+    let summed =
+        wardsmith::normal::normalize(ctx, &wardsmith::term::Term::Add(alone)).expect("normalises");
+    assert_eq!(together, summed);
+    assert!(!together.is_zero());
+}
