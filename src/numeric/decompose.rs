@@ -228,7 +228,8 @@ pub enum Frame {
 /// dimension `d` (2 or 4): G = c_1 + Σ c_k g_block(Δ_k, ℓ_k; z, z̄)
 /// (docs/conventions.md §14). `g` takes the frame's two coordinates. The
 /// fit values are a grid: the radius r (z itself in the real frame) from
-/// [`FOUR_POINT_RANGE`] (logarithmic) resolves the dimensions, the angle
+/// [`FOUR_POINT_RANGE`] (logarithmic; at Chebyshev values of
+/// [`EUCLIDEAN_RANGE`] in the Euclidean frame) resolves the dimensions, the angle
 /// θ in [1/10, π - 1/10] (z̄/z in [1/50, 49/50] in the real frame) the
 /// spins; the check values lie between them; the second fit, for the
 /// uncertainties, is on r halved. Euclidean configurations condition the
@@ -263,7 +264,17 @@ pub fn fit_four_point(
         let (a, b) = (r.0.ln(), r.1.ln());
         let mut out = Vec::with_capacity(n_r * n_t);
         for i in 0..n_r {
-            let rr = (a + (b - a) * (i as f64 + shift) / (n_r - 1) as f64).exp();
+            let rr = match frame {
+                // Chebyshev nodes of the radial range (shift 1/2: the values
+                // between them): the blocks are near powers of r, which
+                // log-spaced radii crowded at small r resolve worse.
+                Frame::Euclidean => {
+                    let k = i as f64 + shift;
+                    let t = 0.5 * (1.0 - (std::f64::consts::PI * (k + 0.5) / n_r as f64).cos());
+                    r.0 + (r.1 - r.0) * t
+                }
+                Frame::Real => (a + (b - a) * (i as f64 + shift) / (n_r - 1) as f64).exp(),
+            };
             for j in 0..n_t {
                 let t = angle((j as f64 + shift) / (n_t - 1) as f64);
                 out.push(match frame {
@@ -367,7 +378,7 @@ fn at(frame: Frame, p: f64, q: f64) -> String {
 }
 
 /// The range of |z| of a four-point fit at Euclidean configurations.
-pub const EUCLIDEAN_RANGE: (f64, f64) = (0.05, 0.25);
+pub const EUCLIDEAN_RANGE: (f64, f64) = (0.02, 0.2);
 
 /// The range of z of a four-point fit (z̄ below z).
 pub const FOUR_POINT_RANGE: (f64, f64) = (0.02, 0.3);
