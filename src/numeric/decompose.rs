@@ -464,7 +464,7 @@ mod tests {
     #[test]
     fn dependent_blocks_are_refused() {
         let g = |xi: f64| Ok(1.0 + xi);
-        let err = fit(Channel::Boundary, 3.0, 0.5, &[1.5, 1.5], false, &g).unwrap_err();
+        let err = fit(Channel::Boundary, 3.0, 0.5, None, &[1.5, 1.5], false, &g).unwrap_err();
         assert!(err.message.contains("not independent"), "{}", err.message);
     }
 }
