@@ -171,7 +171,7 @@ pub const STATEMENTS: &[Entry] = &[
     Entry {
         keyword: "decompose",
         example: "decompose <O(x1) O(x2)> in boundary blocks Delta to Delta + 8 step 2 into \"channel\"",
-        meaning: "a two-point function next to the wall in one channel's blocks (bulk: a list of dimensions, identity included; boundary: a list or a tower); `in s-channel blocks twist 2 Dphi to 2 Dphi + 8 step 2, spin 0 to 12 step 2`: a four-point function in u, v (or z, zb) in d = 2, 4",
+        meaning: "a two-point function next to the wall in one channel's blocks (bulk: a list of dimensions, identity included; boundary: a list or a tower; `<O(x) H1(s1) H2(s2)>` in boundary blocks fits F(χ) of a bulk–boundary–boundary function); `in s-channel blocks twist 2 Dphi to 2 Dphi + 8 step 2, spin 0 to 12 step 2`: a four-point function in u, v (or z, zb) in d = 2, 4",
     },
 ];
 
@@ -190,6 +190,7 @@ Expressions:
   u(x1, x2, x3, x4)       cross-ratios of four points, also v(…) (docs/conventions.md §12)
   F21(a, b; c; z)         the hypergeometric function ₂F₁ (also written so); F21'(…) in z
   f_bulk(Delta; xi)       the wall blocks f_bulk(Δ; ξ), f_bdy(Δ̂; ξ) (docs/conventions.md §9)
+  f_bdy3(Dhat, dh12; chi) the boundary-channel block of ⟨O Ô1 Ô2⟩ (docs/conventions.md §15)
   g_block(Delta, l; z, zb)  the four-point s-channel block in d = 2, 4 (docs/conventions.md §14)
   eps[nu](x)              a declared Killing vector's components
   ∫[x in space] { … }     integrals over space, halfspace, boundary, ball(x1, r) (ASCII int)

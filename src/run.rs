@@ -215,7 +215,14 @@ fn decomposition_table(
     use crate::numeric::agreement::Agreement;
     let four_point = fit.channel == crate::syntax::ast::Channel::SChannel;
     crate::numeric::session::Scan {
-        param: if four_point { "abs_z" } else { "xi" }.into(),
+        param: if four_point {
+            "abs_z"
+        } else if fit.delta12.is_some() {
+            "chi"
+        } else {
+            "xi"
+        }
+        .into(),
         labels: vec![String::new()],
         rows: fit
             .rows

@@ -23,6 +23,10 @@ pub const BULK_BLOCK: &str = "f_bulk";
 /// The boundary-channel block `f_bdy(Δ̂; ξ)`.
 pub const BOUNDARY_BLOCK: &str = "f_bdy";
 
+/// The boundary-channel block of a bulk–boundary–boundary function,
+/// `f_bdy3(Δ̂, δ̂; χ)` (docs/conventions.md §15).
+pub const BOUNDARY_THREE_POINT_BLOCK: &str = "f_bdy3";
+
 /// The s-channel block of a four-point function, `g_block(Δ, ℓ; z, z̄)`
 /// (d = 2 and d = 4; docs/conventions.md §14).
 pub const FOUR_POINT_BLOCK: &str = "g_block";
@@ -68,6 +72,9 @@ impl Lowerer {
             }
             if name == FOUR_POINT_BLOCK {
                 return self.four_point_block(c, span);
+            }
+            if name == BOUNDARY_THREE_POINT_BLOCK {
+                return self.three_point_block(c, span);
             }
             if (name == CROSS_RATIO_U || name == CROSS_RATIO_V) && c.args.len() == 4 {
                 self.plain_call(c, span, &format!("the cross-ratio {name}"))?;
@@ -380,6 +387,61 @@ impl Lowerer {
         };
         let body = self.differentiate(body, &var, c.primes, c.name.span)?;
         Ok(diff::substitute(&body, &var, &xi))
+    }
+
+    /// `f_bdy3(Δ̂, δ̂; χ)`: the boundary-channel block of ⟨O Ô1 Ô2⟩,
+    /// χ^(Δ̂/2) ₂F₁((Δ̂ + δ̂)/2, (Δ̂ - δ̂)/2; Δ̂ + (3 - d)/2; χ) with
+    /// δ̂ = Δ̂1 - Δ̂2 (docs/conventions.md §15); primes differentiate in χ.
+    fn three_point_block(&self, c: &Call, span: Span) -> Result<Term> {
+        let form = "the boundary-channel block of a bulk–boundary–boundary function is written `f_bdy3(Dhat, dhat12; chi)`: the exchanged dimension and the difference Δ̂1 - Δ̂2 of the two boundary dimensions, `;`, then the cross-ratio χ (docs/conventions.md §15); primes differentiate in χ";
+        if c.orders.is_some() || c.args.len() != 3 || c.separators != [',', ';'] {
+            return Err(self
+                .err(
+                    ErrorKind::Syntax,
+                    span,
+                    "the bulk–boundary–boundary block takes a dimension and a difference of dimensions, `;`, then the cross-ratio",
+                )
+                .with_label("not `f_bdy3(Dhat, dhat12; chi)`")
+                .with_note(form));
+        }
+        if c.primes > MAX_ORDER {
+            return Err(self.too_many_derivatives(c.name.span));
+        }
+        let mut lowered = Vec::with_capacity(3);
+        for (k, a) in c.args.iter().enumerate() {
+            self.scalar_argument(a, "an argument of the block")?;
+            let t = self.expr(a)?;
+            if k < 2 && t.mentions_any_point() {
+                return Err(self
+                    .err(
+                        ErrorKind::Syntax,
+                        a.span,
+                        "the dimensions of a block cannot depend on points",
+                    )
+                    .with_label("depends on a point")
+                    .with_note(form));
+            }
+            lowered.push(t);
+        }
+        let [delta, delta12, chi] = <[Term; 3]>::try_from(lowered)
+            .map_err(|_| Error::new(ErrorKind::Syntax, "the block takes three arguments"))?;
+        let var = self.fresh_symbol("chi");
+        let x = Term::Sym(var.clone());
+        let half = |t: Term| Term::Mul(vec![Term::Num(ratio(1, 2)), t]);
+        let d = self.ctx.dim();
+        let a = half(Term::Add(vec![delta.clone(), delta12.clone()]));
+        let b = half(Term::Add(vec![delta.clone(), delta12.negated()]));
+        let cc = Term::Add(vec![
+            delta.clone(),
+            Term::Num(ratio(3, 2)),
+            half(d).negated(),
+        ]);
+        let body = Term::Mul(vec![
+            Term::Pow(Box::new(x.clone()), Box::new(half(delta))),
+            Term::hyp2f1(0, a, b, cc, x),
+        ]);
+        let body = self.differentiate(body, &var, c.primes, c.name.span)?;
+        Ok(diff::substitute(&body, &var, &chi))
     }
 
     /// `g_block(Δ, ℓ; z, z̄)`: the s-channel block of four identical scalars

@@ -453,12 +453,37 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                     }
                     _ => false,
                 };
-                if !two_bulk_scalars {
+                // ⟨O(x) Ô1(s1) Ô2(s2)⟩: one bulk scalar first, then two
+                // boundary scalars, in the boundary channel
+                // (docs/conventions.md §15).
+                let bulk_boundary_boundary = match &lowered {
+                    Term::Corr(ops) => {
+                        ops.len() == 3
+                            && ops.iter().all(|o| o.indices.is_empty())
+                            && ops
+                                .iter()
+                                .filter(|o| lowerer.ctx.is_boundary_point(&o.point))
+                                .count()
+                                == 2
+                    }
+                    _ => false,
+                };
+                if bulk_boundary_boundary && *channel != Channel::Boundary {
                     return Err(lowerer
                         .err(
                             ErrorKind::Syntax,
                             corr.span,
-                            "a block expansion takes a correlator of two bulk scalars, e.g. `<O(x1) O(x2)>`",
+                            "a bulk–boundary–boundary function is expanded in the boundary channel only",
+                        )
+                        .with_label("three points")
+                        .with_note("write `decompose <O(x) H1(s1) H2(s2)> in boundary blocks …`"));
+                }
+                if !two_bulk_scalars && !bulk_boundary_boundary {
+                    return Err(lowerer
+                        .err(
+                            ErrorKind::Syntax,
+                            corr.span,
+                            "a block expansion takes a correlator of two bulk scalars, e.g. `<O(x1) O(x2)>`, or of one bulk and two boundary scalars, `<O(x) H1(s1) H2(s2)>`",
                         )
                         .with_label("not a two-point function of bulk scalars"));
                 }

@@ -19,7 +19,8 @@
 //! are not determined).
 
 use super::special::blocks::{
-    boundary_block, bulk_block, four_point_block, four_point_block_polar,
+    boundary_block, boundary_three_point_block, bulk_block, four_point_block,
+    four_point_block_polar,
 };
 use crate::diagnostic::{Error, ErrorKind, Result};
 use crate::lower::Channel;
@@ -42,6 +43,10 @@ pub struct Decomposition {
     /// The spin of each exchanged operator (s-channel only; empty next to
     /// a wall).
     pub spins: Vec<u32>,
+    /// Δ̂1 - Δ̂2 for a bulk–boundary–boundary function ⟨O Ô1 Ô2⟩ in the
+    /// boundary channel, fitted in χ (docs/conventions.md §15); `None` for
+    /// a two-point function (fitted in ξ) and the s-channel.
+    pub delta12: Option<f64>,
     /// The identity's coefficient (bulk channel only).
     pub identity: Option<f64>,
     /// One coefficient per exchanged dimension.
@@ -71,7 +76,22 @@ fn numeric(why: impl Into<String>) -> Error {
 }
 
 /// The basis function of one exchanged dimension at ξ.
-fn block(channel: Channel, d: f64, delta: f64, dim: f64, xi: f64) -> Result<f64> {
+fn block(
+    channel: Channel,
+    d: f64,
+    delta: f64,
+    delta12: Option<f64>,
+    dim: f64,
+    xi: f64,
+) -> Result<f64> {
+    if let Some(d12) = delta12 {
+        return boundary_three_point_block(d, dim, d12, xi).map_err(|e| {
+            numeric(format!(
+                "the block of dimension {dim} has no value at χ = {xi}: {}",
+                e.reason()
+            ))
+        });
+    }
     let v = match channel {
         Channel::Bulk => bulk_block(d, dim, xi),
         Channel::Boundary => boundary_block(d, dim, xi).map(|f| xi.powf(delta) * f),
@@ -88,11 +108,15 @@ fn block(channel: Channel, d: f64, delta: f64, dim: f64, xi: f64) -> Result<f64>
 /// Fits `g` in the blocks of `channel` with exchanged dimensions `dims`, in
 /// dimension `d` for external operators of dimension `delta`. `tower` says
 /// the dimensions are a truncated infinite family (fitted where it
-/// converges).
+/// converges). With `delta12` = Δ̂1 - Δ̂2, `g` is the F(χ) of a
+/// bulk–boundary–boundary function and the blocks are `f_bdy3`
+/// (docs/conventions.md §15), fitted at small χ (near the wall) for a
+/// tower.
 pub fn fit(
     channel: Channel,
     d: f64,
     delta: f64,
+    delta12: Option<f64>,
     dims: &[f64],
     tower: bool,
     g: &dyn Fn(f64) -> Result<f64>,
@@ -102,17 +126,27 @@ pub fn fit(
     }
     let columns = dims.len() + usize::from(channel == Channel::Bulk);
     let range: (f64, f64) = match (channel, tower) {
+        _ if delta12.is_some() && tower => (0.001, 0.3),
+        _ if delta12.is_some() => (0.001, 0.3),
         (Channel::Boundary, true) => (4.0, 400.0),
         (Channel::Bulk, true) => (0.0025, 0.25),
         _ => (0.05, 20.0),
     };
     // The second fit, further into the channel's convergence region.
     let further = match channel {
+        _ if delta12.is_some() => (0.5 * range.0, 0.5 * range.1),
         Channel::Boundary => (2.0 * range.0, 2.0 * range.1),
         Channel::Bulk | Channel::SChannel => (0.5 * range.0, 0.5 * range.1),
     };
     let n_fit = (2 * columns + 10).max(16);
     let sample = |r: (f64, f64), k: f64| {
+        if delta12.is_some() {
+            // Chebyshev nodes of [r.0, r.1] (k whole) and the values between
+            // them (k + 1/2): the blocks are near powers of χ there, which
+            // log-spaced values crowded at small χ resolve far worse.
+            let t = 0.5 * (1.0 - (std::f64::consts::PI * (k + 0.5) / n_fit as f64).cos());
+            return r.0 + (r.1 - r.0) * t;
+        }
         let (a, b) = (r.0.ln(), r.1.ln());
         (a + (b - a) * k / (n_fit - 1) as f64).exp()
     };
@@ -122,7 +156,7 @@ pub fn fit(
             r.push(1.0);
         }
         for &dim in dims {
-            r.push(block(channel, d, delta, dim, xi)?);
+            r.push(block(channel, d, delta, delta12, dim, xi)?);
         }
         Ok(r)
     };
@@ -167,6 +201,7 @@ pub fn fit(
         delta,
         dims: dims.to_vec(),
         spins: Vec::new(),
+        delta12,
         identity,
         coefficients,
         spread,
@@ -193,7 +228,8 @@ pub enum Frame {
 /// dimension `d` (2 or 4): G = c_1 + Σ c_k g_block(Δ_k, ℓ_k; z, z̄)
 /// (docs/conventions.md §14). `g` takes the frame's two coordinates. The
 /// fit values are a grid: the radius r (z itself in the real frame) from
-/// [`FOUR_POINT_RANGE`] (logarithmic) resolves the dimensions, the angle
+/// [`FOUR_POINT_RANGE`] (logarithmic; at Chebyshev values of
+/// [`EUCLIDEAN_RANGE`] in the Euclidean frame) resolves the dimensions, the angle
 /// θ in [1/10, π - 1/10] (z̄/z in [1/50, 49/50] in the real frame) the
 /// spins; the check values lie between them; the second fit, for the
 /// uncertainties, is on r halved. Euclidean configurations condition the
@@ -228,7 +264,17 @@ pub fn fit_four_point(
         let (a, b) = (r.0.ln(), r.1.ln());
         let mut out = Vec::with_capacity(n_r * n_t);
         for i in 0..n_r {
-            let rr = (a + (b - a) * (i as f64 + shift) / (n_r - 1) as f64).exp();
+            let rr = match frame {
+                // Chebyshev nodes of the radial range (shift 1/2: the values
+                // between them): the blocks are near powers of r, which
+                // log-spaced radii crowded at small r resolve worse.
+                Frame::Euclidean => {
+                    let k = i as f64 + shift;
+                    let t = 0.5 * (1.0 - (std::f64::consts::PI * (k + 0.5) / n_r as f64).cos());
+                    r.0 + (r.1 - r.0) * t
+                }
+                Frame::Real => (a + (b - a) * (i as f64 + shift) / (n_r - 1) as f64).exp(),
+            };
             for j in 0..n_t {
                 let t = angle((j as f64 + shift) / (n_t - 1) as f64);
                 out.push(match frame {
@@ -312,6 +358,7 @@ pub fn fit_four_point(
         delta: 0.0,
         dims: blocks.iter().map(|b| b.0).collect(),
         spins: blocks.iter().map(|b| b.1).collect(),
+        delta12: None,
         identity: Some(x[0]),
         coefficients: x[1..].to_vec(),
         spread,
@@ -331,7 +378,7 @@ fn at(frame: Frame, p: f64, q: f64) -> String {
 }
 
 /// The range of |z| of a four-point fit at Euclidean configurations.
-pub const EUCLIDEAN_RANGE: (f64, f64) = (0.05, 0.25);
+pub const EUCLIDEAN_RANGE: (f64, f64) = (0.02, 0.2);
 
 /// The range of z of a four-point fit (z̄ below z).
 pub const FOUR_POINT_RANGE: (f64, f64) = (0.02, 0.3);
@@ -417,7 +464,7 @@ mod tests {
     #[test]
     fn dependent_blocks_are_refused() {
         let g = |xi: f64| Ok(1.0 + xi);
-        let err = fit(Channel::Boundary, 3.0, 0.5, &[1.5, 1.5], false, &g).unwrap_err();
+        let err = fit(Channel::Boundary, 3.0, 0.5, None, &[1.5, 1.5], false, &g).unwrap_err();
         assert!(err.message.contains("not independent"), "{}", err.message);
     }
 }

@@ -299,8 +299,20 @@ impl<'a> Session<'a> {
                 })?;
             number(dim)
         };
-        let (d1, d2) = (dim_of(&ops[0])?, dim_of(&ops[1])?);
-        if (d1 - d2).abs() > 1e-12 * d1.abs().max(1.0) {
+        // ⟨O(x) Ô1(s1) Ô2(s2)⟩ in the boundary channel (docs/conventions.md §15).
+        let three = ops.len() == 3;
+        let bulk_first: Vec<&crate::term::Op> = if three {
+            let mut v: Vec<&crate::term::Op> = ops
+                .iter()
+                .filter(|o| !self.ctx.is_boundary_point(&o.point))
+                .collect();
+            v.extend(ops.iter().filter(|o| self.ctx.is_boundary_point(&o.point)));
+            v
+        } else {
+            ops.iter().collect()
+        };
+        let (d1, d2) = (dim_of(bulk_first[0])?, dim_of(bulk_first[1])?);
+        if !three && (d1 - d2).abs() > 1e-12 * d1.abs().max(1.0) {
             return Err(Error::new(
                 ErrorKind::Numeric,
                 format!(
@@ -342,6 +354,30 @@ impl<'a> Session<'a> {
             }
         };
         let dim = values.dim;
+        if three {
+            let d3 = dim_of(bulk_first[2])?;
+            let delta12 = d2 - d3;
+            // s1, s2 = ∓e_0 on the wall, x = (0, …, 0, y) above their midpoint:
+            // χ = 4y²/(1 + y²)², so y² = (2 - χ - 2√(1 - χ))/χ (the root below 1),
+            // and F = ⟨O Ô1 Ô2⟩ (2y)^Δ 2^(Δ̂1 + Δ̂2) (|x - s1| = |x - s2|).
+            let g = |chi: f64| -> Result<f64> {
+                let mut v = values.clone();
+                // y = √χ/(1 + √(1 - χ)): the same root without cancellation.
+                let y = chi.sqrt() / (1.0 + (1.0 - chi).sqrt());
+                let mut p = vec![0.0; dim];
+                p[dim - 1] = y;
+                let mut q1 = vec![0.0; dim];
+                q1[0] = -1.0;
+                let mut q2 = vec![0.0; dim];
+                q2[0] = 1.0;
+                v.points.insert(bulk_first[0].point.name.to_string(), p);
+                v.points.insert(bulk_first[1].point.name.to_string(), q1);
+                v.points.insert(bulk_first[2].point.name.to_string(), q2);
+                let c = self.value(corr, &[], &v)?.value;
+                Ok(c * (2.0 * y).powf(d1) * 2f64.powf(d2 + d3))
+            };
+            return super::decompose::fit(channel, dim as f64, d1, Some(delta12), &list, tower, &g);
+        }
         let g = |xi: f64| -> Result<f64> {
             let mut v = values.clone();
             let mut p1 = vec![0.0; dim];
@@ -353,7 +389,7 @@ impl<'a> Session<'a> {
             let c = self.value(corr, &[], &v)?.value;
             Ok(c * (4.0 * xi).powf(d1))
         };
-        super::decompose::fit(channel, dim as f64, d1, &list, tower, &g)
+        super::decompose::fit(channel, dim as f64, d1, None, &list, tower, &g)
     }
 
     /// The expansion of a four-point function `f` of z, z̄ (parameters `z`,

@@ -681,11 +681,13 @@ impl Text {
         } else {
             let _ = writeln!(
             self.out,
-            "  {channel} channel, Δ = {}: {} block{} fitted at {} values of ξ in [{}, {}], checked at {} others",
+            "  {channel} channel, Δ = {}{}: {} block{} fitted at {} values of {} in [{}, {}], checked at {} others",
             found.delta,
+            found.delta12.map_or(String::new(), |x| format!(", Δ̂1 - Δ̂2 = {x}")),
             found.dims.len(),
             if found.dims.len() == 1 { "" } else { "s" },
             found.fitted_at,
+            if found.delta12.is_some() { "χ" } else { "ξ" },
             found.range.0,
             found.range.1,
             found.checked_at

@@ -88,6 +88,36 @@ pub fn boundary_block(d: f64, delta_hat: f64, xi: f64) -> Result<f64, SpecialErr
     finite(xi.powf(-delta_hat) * f)
 }
 
+/// The boundary-channel block of a bulk–boundary–boundary function of
+/// scalars ⟨O(x) Ô1(s1) Ô2(s2)⟩ (docs/conventions.md §15, derived here):
+///
+///   f_bdy3(Δ̂, δ̂; χ) = χ^(Δ̂/2) ₂F₁((Δ̂ + δ̂)/2, (Δ̂ - δ̂)/2; Δ̂ + (3 - d)/2; χ),
+///
+/// δ̂ = Δ̂1 - Δ̂2, χ = y² s12²/(|x - s1|² |x - s2|²) in (0, 1), with
+/// ⟨O Ô1 Ô2⟩ = (2y)^(-Δ) (|x - s2|/|x - s1|)^δ̂ s12^(-Δ̂1-Δ̂2) F(χ) and
+/// F = Σ 2^Δ̂ b_{OÔ} c_{ÔÔ1Ô2} f_bdy3(Δ̂, δ̂; χ). Normalised by
+/// f_bdy3 ~ χ^(Δ̂/2) as χ → 0 (the wall limit y → 0).
+pub fn boundary_three_point_block(
+    d: f64,
+    delta_hat: f64,
+    delta12: f64,
+    chi: f64,
+) -> Result<f64, SpecialError> {
+    if !(d.is_finite() && delta_hat.is_finite() && delta12.is_finite() && chi.is_finite()) {
+        return Err(SpecialError::NotFinite);
+    }
+    if !(chi > 0.0 && chi < 1.0) {
+        return Err(SpecialError::ThreePointRatio);
+    }
+    let f = hyp2f1(
+        0.5 * (delta_hat + delta12),
+        0.5 * (delta_hat - delta12),
+        delta_hat + 0.5 * (3.0 - d),
+        chi,
+    )?;
+    finite(chi.powf(0.5 * delta_hat) * f)
+}
+
 fn check(d: f64, delta: f64, xi: f64) -> Result<(), SpecialError> {
     if !(d.is_finite() && delta.is_finite() && xi.is_finite()) {
         return Err(SpecialError::NotFinite);

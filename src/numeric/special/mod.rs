@@ -25,7 +25,8 @@ use std::fmt;
 use crate::diagnostic::{Error, ErrorKind};
 
 pub use blocks::{
-    boundary_block, bulk_block, collinear_block, four_point_block, four_point_block_polar, z_zbar,
+    boundary_block, boundary_three_point_block, bulk_block, collinear_block, four_point_block,
+    four_point_block_polar, z_zbar,
 };
 pub use gamma::{digamma, gamma, ln_gamma, rgamma};
 pub use hypergeometric::{hyp2f1, hyp2f1_regularized, hyp2f1_scale, hyp2f1_vanishing_bc};
@@ -50,6 +51,8 @@ pub enum SpecialError {
     CrossRatio,
     /// A four-point block at z or z̄ outside (0, 1), or at z = z̄ in d = 4.
     FourPointRatio,
+    /// A bulk–boundary–boundary block at a cross-ratio χ outside (0, 1).
+    ThreePointRatio,
     /// A four-point block asked for in a dimension other than 2 and 4.
     FourPointDimension,
     /// The value, or a factor it is built from, is beyond the range of
@@ -80,6 +83,9 @@ impl SpecialError {
             SpecialError::CrossRatio => "the cross-ratio ξ must be positive",
             SpecialError::FourPointRatio => {
                 "a four-point block is evaluated at real z, z̄ in (0, 1), and in d = 4 at z ≠ z̄"
+            }
+            SpecialError::ThreePointRatio => {
+                "the cross-ratio χ of a bulk–boundary–boundary function lies in (0, 1) (χ = 1 only on the geodesic, where a block may diverge)"
             }
             SpecialError::FourPointDimension => {
                 "four-point blocks have closed forms in d = 2 and d = 4 only"
