@@ -1006,7 +1006,7 @@ pub fn list(setup: &Setup, start: u64) -> Result<(Listing, Vec<Structure>)> {
         prefactor = if setup.ops.len() == 3 {
             let (a, b, c) = (&setup.ops[0], &setup.ops[1], &setup.ops[2]);
             format!(
-                "|{p} - {q}|^(Δ[{r}] - Δ[{pn}] - Δ[{qn}]) |{p} - {rp}|^(Δ[{qn}] - Δ[{pn}] - Δ[{r}]) |{q} - {rp}|^(Δ[{pn}] - Δ[{qn}] - Δ[{r}])",
+                "|{p} - {q}|^(Δ[{r}] - Δ[{pn}] - Δ[{qn}]) |{p} - {rp}|^(Δ[{qn}] - Δ[{pn}] - Δ[{r}]) |{q} - {rp}|^(Δ[{pn}] - Δ[{qn}] - Δ[{r}]) |Z|^(-ℓ)",
                 p = a.point,
                 q = b.point,
                 rp = c.point,
@@ -1096,6 +1096,15 @@ fn divergence<F: Field>(
             let r2 = dot(&w, &w);
             for i in 0..d {
                 dlog[i] = dlog[i].sub(&expo.mul(&w[i]).div(&r2));
+            }
+        }
+        // Z has weight 1 at x: the prefactor carries |Z|^(-ℓ).
+        if others.len() == 2 {
+            let (z, m) = block(setup, cfg, p, Label::Pair(others[0], others[1]));
+            let z2 = dot(&z, &z);
+            for i in 0..d {
+                let mz = (0..d).fold(F::int(0), |acc, j| acc.add(&m[i][j].mul(&z[j])));
+                dlog[i] = dlog[i].sub(&F::int(l as i64).mul(&mz).div(&z2));
             }
         }
     }
@@ -1323,12 +1332,12 @@ fn conservation(
             }
         }
         if setup.ops[p].spin == 1 && !setup.wall {
-            // Without a wall the divergence is c K |Z|: c² = (div/K)²/|Z|²
-            // is rational, and zero exactly when the structure is conserved.
+            // Without a wall the divergence is c K |Z| = c (K |Z|^(-1)) |Z|²:
+            // c = div/(K_eff |Z|²) is a number.
             let z2 = dot(&vecs[0], &vecs[0]);
             let row = divs
                 .iter()
-                .map(|(a, _)| (&a[0] * &a[0] / &z2, BigRational::zero()))
+                .map(|(a, _)| (&a[0] / &z2, BigRational::zero()))
                 .collect();
             per_block.push(row);
         } else if setup.ops[p].spin == 1 {
@@ -1343,8 +1352,10 @@ fn conservation(
                 let norm = if setup.wall {
                     y.clone()
                 } else {
-                    // Z is not a unit vector: divide by |Z|² and |Z|.
-                    BigRational::one() / dot(v, v)
+                    // div = c K |Z| Ẑ = c K_eff |Z|² Z with K_eff = K |Z|^(-2):
+                    // c = Z·div/(K_eff |Z|⁴).
+                    let z2 = dot(v, v);
+                    BigRational::one() / (&z2 * &z2)
                 };
                 let row = divs
                     .iter()
@@ -1401,11 +1412,6 @@ fn conservation(
                     vec![first]
                 };
                 if poly.iter().all(Zero::is_zero) {
-                    continue;
-                }
-                if setup.ops[p].spin == 1 && !setup.wall {
-                    // c² ≠ 0: the structure is not conserved.
-                    terms.push(names[i].clone());
                     continue;
                 }
                 let f = if which == 0 {
