@@ -480,16 +480,39 @@ impl<'a> Session<'a> {
             if let Some(last) = p.last_mut() {
                 *last = 0.0;
             }
+            // A boundary point of the file that the correlator does not use.
+            let spare = self
+                .ctx
+                .points
+                .iter()
+                .find(|q| q.boundary && ops.iter().all(|o| *o.point.name != *q.name))
+                .ok_or_else(|| {
+                    Error::new(
+                        ErrorKind::Numeric,
+                        "the wall limit needs a spare boundary point for D",
+                    )
+                    .with_note("declare one more: `boundary points s1 s2 s3`")
+                })?;
+            let (rank, _) = self.ctx.point(&spare.name).ok_or_else(|| {
+                Error::new(ErrorKind::Numeric, "the spare boundary point is not declared")
+            })?;
             let mut replaced = ops.clone();
             replaced[k] = crate::term::Op {
-                point: ops[k].point.clone(),
+                point: crate::term::Point {
+                    rank,
+                    par: false,
+                    name: spare.name.as_str().into(),
+                },
                 name: crate::context::DISPLACEMENT.to_string(),
                 indices: Vec::new(),
             };
+            replaced.sort();
             for (i, (op, q)) in ops.iter().zip(&cfg).enumerate() {
-                v.points
-                    .insert(op.point.name.to_string(), if i == k { p.clone() } else { q.clone() });
+                if i != k {
+                    v.points.insert(op.point.name.to_string(), q.clone());
+                }
             }
+            v.points.insert(spare.name.clone(), p.clone());
             let value = self.value(&Term::Corr(replaced), &[], &v)?.value;
             let others: Vec<usize> = (0..ops.len()).filter(|&i| i != k).collect();
             let dist = |a: &[f64], b: &[f64]| -> f64 {

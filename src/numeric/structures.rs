@@ -1479,10 +1479,10 @@ pub struct StructureFit {
     pub checked_at: usize,
     /// The largest relative residual over every check configuration.
     pub residual: f64,
-    /// The wall limit: lim_{η→0} η^((Δ̂1 + Δ̂2 - Δ)/2) Σ_i f_i S^i_nn|_{X = n}
-    /// extrapolated, with its error estimate, and the same number from the
-    /// model's boundary three-point function with the bulk insertion replaced
-    /// by the one at the wall (|s12| |s1p| |s2p|)^Δ ⟨D(p) …⟩.
+    /// The wall limit: x moved straight to the wall, K Σ_i f_i(η) S^i_nn
+    /// times |s1 - s2|^(Δ̂1 + Δ̂2 - Δ) |p - s1|^(Δ + Δ̂1 - Δ̂2) |p - s2|^(Δ +
+    /// Δ̂2 - Δ̂1) (p = x∥), extrapolated to y = 0 (Richardson in y²) with its
+    /// error estimate; and the same number from the model's ⟨D(p) …⟩.
     pub wall_limit: Option<(f64, f64, f64)>,
 }
 
@@ -1591,42 +1591,59 @@ pub fn fit(
     let wall_limit = match boundary_three {
         None => None,
         Some(model) => {
-            let mut cfg = config_at_eta(setup, 0.5, &mut state)
+            // x moves straight to the wall at fixed x∥: the decomposition's
+            // nn component, K Σ f_i(η) S^i_nn, times the distances of the
+            // boundary three-point function, Richardson in y².
+            let base = config_at_eta(setup, 0.5, &mut state)
                 .ok_or_else(|| numeric("no configuration near the wall"))?;
-            cfg[p][d - 1] = 1e-9;
-            let sigma: Vec<f64> = kept
-                .iter()
-                .map(|s| {
-                    let c = components(setup, &cfg, s);
-                    if setup.ops[p].spin == 1 {
-                        c[d - 1]
-                    } else {
-                        c[(d - 1) * d + d - 1]
-                    }
-                })
+            let bdy: Vec<usize> = (0..setup.ops.len())
+                .filter(|&k| setup.ops[k].boundary)
                 .collect();
-            let power: f64 = (setup
-                .ops
-                .iter()
-                .enumerate()
-                .filter(|(_, o)| o.boundary)
-                .map(|(i, _)| dims[i])
-                .sum::<f64>()
-                - dims[p])
-                / 2.0;
-            // h(η) at η0/2^k, Richardson in powers of η.
-            let eta0 = 1.0 / 64.0;
+            let (i, j) = (bdy[0], bdy[1]);
+            let dist = |a: &[f64], b: &[f64]| -> f64 {
+                a.iter()
+                    .zip(b)
+                    .take(d - 1)
+                    .map(|(x, y)| (x - y) * (x - y))
+                    .sum::<f64>()
+                    .sqrt()
+            };
+            let (a, b, c) = (
+                dims[i] + dims[j] - dims[p],
+                dims[p] + dims[i] - dims[j],
+                dims[p] + dims[j] - dims[i],
+            );
+            let distances = dist(&base[i], &base[j]).powf(a)
+                * dist(&base[p], &base[i]).powf(b)
+                * dist(&base[p], &base[j]).powf(c);
+            let y0 = base[p][d - 1] / 8.0;
             let mut table: Vec<f64> = Vec::new();
             for k in 0..5 {
-                let eta = eta0 / f64::from(1u32 << k);
+                let mut cfg = base.clone();
+                cfg[p][d - 1] = y0 / f64::from(1u32 << k);
+                let eta = eta_value(setup, &cfg).unwrap_or(f64::NAN);
                 let (f, _) = coefficients(eta, &mut state)?;
-                let h: f64 = f.iter().zip(&sigma).map(|(a, s)| a * s).sum::<f64>() * eta.powf(power);
+                let kf = prefactor(setup, &cfg, &dims);
+                let nn: f64 = kept
+                    .iter()
+                    .zip(&f)
+                    .map(|(s, x)| {
+                        let comp = components(setup, &cfg, s);
+                        let at = if setup.ops[p].spin == 1 {
+                            d - 1
+                        } else {
+                            (d - 1) * d + d - 1
+                        };
+                        comp[at] * x
+                    })
+                    .sum();
+                let h = kf * nn * distances;
                 table.push(h);
             }
             let mut level = table;
             let mut last_two = (0.0, 0.0);
             for j in 1..level.len() {
-                let factor = f64::from(1u32 << j);
+                let factor = 4f64.powi(j as i32);
                 level = level
                     .windows(2)
                     .map(|w| (factor * w[1] - w[0]) / (factor - 1.0))

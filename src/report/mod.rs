@@ -273,7 +273,7 @@ pub(crate) fn structures_lines(f: &crate::outcome::StructuresFound) -> Vec<Strin
         }
         if let Some((v, e, m)) = fit.wall_limit {
             out.push(format!(
-                "wall limit: lim η→0 of η^((Δ̂1 + Δ̂2 - Δ)/2) Σ f_i S_i,nn = {v:.10e} ± {e:.1e}; the model's boundary three-point coefficient {m:.10e}: {}",
+                "wall limit, x → x∥ = p: (|s1 - s2| |p - s1| |p - s2|)^Δ-weights × K Σ f_i S_i,nn → {v:.10e} ± {e:.1e} (Richardson in y²); the model's ⟨D(p) …⟩ with the same weights {m:.10e}: {}",
                 if (v - m).abs() <= (10.0 * e).max(1e-8 * m.abs()) {
                     "agree"
                 } else {
