@@ -226,7 +226,9 @@ fn structure_table(
     use crate::numeric::agreement::Agreement;
     crate::numeric::session::Scan {
         param: "eta".into(),
-        labels: (1..=fit.structures.len()).map(|k| format!("f{k}")).collect(),
+        labels: (1..=fit.structures.len())
+            .map(|k| format!("f{k}"))
+            .collect(),
         rows: fit
             .rows
             .iter()

@@ -30,7 +30,12 @@ fn counts_next_to_the_wall() {
     let counts: Vec<usize> = f.iter().map(|f| f.listing.structures.len()).collect();
     assert_eq!(counts, [2, 3, 1, 1]);
     assert_eq!(f[0].listing.rank, 2);
-    assert!(f[0].listing.exchange.as_deref().unwrap().contains("3 without"));
+    assert!(f[0]
+        .listing
+        .exchange
+        .as_deref()
+        .unwrap()
+        .contains("3 without"));
     assert!(f.iter().all(|f| f.holds));
     // ⟨T D⟩: conserved as it stands (Δ̂ = d); ⟨T A⟩ with Δ̂ = 2 ≠ 3:
     // (Δ̂ - d)(d - 1)/d f1 = -2/3 f1 = 0 (derived; Billò et al. 2016 for
@@ -69,6 +74,9 @@ fn t_d_d_of_the_free_scalar_decomposes_exactly() {
         assert!(fit.residual < 1e-10, "{path}: {}", fit.residual);
         assert_eq!(fit.structures.len(), 2);
         let (v, e, m) = fit.wall_limit.expect("a wall limit");
-        assert!((v - m).abs() < 1e-5 * m.abs() && e.is_finite(), "{path}: {v} {e} {m}");
+        assert!(
+            (v - m).abs() < 1e-5 * m.abs() && e.is_finite(),
+            "{path}: {v} {e} {m}"
+        );
     }
 }

@@ -450,11 +450,18 @@ impl<'a> Session<'a> {
         texts: &[String],
     ) -> Result<super::structures::StructureFit> {
         let Term::Corr(ops) = corr else {
-            return Err(Error::new(ErrorKind::Numeric, "a decomposition takes a correlator"));
+            return Err(Error::new(
+                ErrorKind::Numeric,
+                "a decomposition takes a correlator",
+            ));
         };
         let free: Vec<String> = ops
             .iter()
-            .flat_map(|o| o.indices.iter().filter_map(|i| i.name().map(str::to_string)))
+            .flat_map(|o| {
+                o.indices
+                    .iter()
+                    .filter_map(|i| i.name().map(str::to_string))
+            })
             .collect();
         let base = self.values().clone();
         let g = |cfg: &super::structures::Config<f64>| -> Result<Vec<f64>> {
@@ -494,7 +501,10 @@ impl<'a> Session<'a> {
                     .with_note("declare one more: `boundary points s1 s2 s3`")
                 })?;
             let (rank, _) = self.ctx.point(&spare.name).ok_or_else(|| {
-                Error::new(ErrorKind::Numeric, "the spare boundary point is not declared")
+                Error::new(
+                    ErrorKind::Numeric,
+                    "the spare boundary point is not declared",
+                )
             })?;
             let mut replaced = ops.clone();
             replaced[k] = crate::term::Op {
@@ -516,7 +526,11 @@ impl<'a> Session<'a> {
             let value = self.value(&Term::Corr(replaced), &[], &v)?.value;
             let others: Vec<usize> = (0..ops.len()).filter(|&i| i != k).collect();
             let dist = |a: &[f64], b: &[f64]| -> f64 {
-                a.iter().zip(b).map(|(x, y)| (x - y) * (x - y)).sum::<f64>().sqrt()
+                a.iter()
+                    .zip(b)
+                    .map(|(x, y)| (x - y) * (x - y))
+                    .sum::<f64>()
+                    .sqrt()
             };
             let (i, j) = (others[0], others[1]);
             let (a, b, c) = (

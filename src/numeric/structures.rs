@@ -238,18 +238,19 @@ impl Setup {
         let spinning = self.spinning();
         let mut out = Vec::new();
         let pair_max = if spinning.len() == 2 {
-            self.ops[spinning[0]]
-                .spin
-                .min(self.ops[spinning[1]].spin)
+            self.ops[spinning[0]].spin.min(self.ops[spinning[1]].spin)
         } else {
             0
         };
         for k in 0..=pair_max {
             // Multisets of labels at each spinning op.
-            let mut partial: Vec<Vec<Factor>> = vec![vec![Factor::Inversion(
-                spinning[0],
-                *spinning.get(1).unwrap_or(&spinning[0]),
-            ); k]];
+            let mut partial: Vec<Vec<Factor>> = vec![vec![
+                Factor::Inversion(
+                    spinning[0],
+                    *spinning.get(1).unwrap_or(&spinning[0]),
+                );
+                k
+            ]];
             for &p in &spinning {
                 let need = self.ops[p].spin - k;
                 let labels = self.labels(p);
@@ -299,7 +300,12 @@ fn normal<F: Field>(d: usize) -> Vec<F> {
 
 /// The building block `label` at point `x` (op `p`) and ∂_μ of it, as
 /// M[μ][ν].
-fn block<F: Field>(setup: &Setup, cfg: &Config<F>, p: usize, label: Label) -> (Vec<F>, Vec<Vec<F>>) {
+fn block<F: Field>(
+    setup: &Setup,
+    cfg: &Config<F>,
+    p: usize,
+    label: Label,
+) -> (Vec<F>, Vec<Vec<F>>) {
     let d = setup.d;
     let x = &cfg[p];
     let delta = |m: usize, n: usize| F::int(i64::from(m == n));
@@ -477,9 +483,7 @@ pub fn random_config(setup: &Setup, state: &mut u64) -> Config<f64> {
             .ops
             .iter()
             .map(|op| {
-                let mut p: Vec<f64> = (0..d)
-                    .map(|_| 2.0 * super::splitmix(state) - 1.0)
-                    .collect();
+                let mut p: Vec<f64> = (0..d).map(|_| 2.0 * super::splitmix(state) - 1.0).collect();
                 if setup.wall {
                     p[d - 1] = if op.boundary {
                         0.0
@@ -509,7 +513,12 @@ fn rational_config(setup: &Setup, state: &mut u64, den: i64) -> Config<BigRation
     cfg.iter()
         .map(|p| {
             p.iter()
-                .map(|v| BigRational::new(BigInt::from((v * den as f64).round() as i64), BigInt::from(den)))
+                .map(|v| {
+                    BigRational::new(
+                        BigInt::from((v * den as f64).round() as i64),
+                        BigInt::from(den),
+                    )
+                })
                 .collect()
         })
         .collect()
@@ -604,11 +613,9 @@ pub fn config_at_eta(setup: &Setup, target: f64, state: &mut u64) -> Option<Conf
         let p1 = vec![0.0; d];
         // A rotation of the parallel plane spanned by the first two axes,
         // a shift along the wall and a scale.
-        let angle = 6.283 * super::splitmix(state);
+        let angle = std::f64::consts::TAU * super::splitmix(state);
         let scale = 0.5 + super::splitmix(state);
-        let shift: Vec<f64> = (0..d - 1)
-            .map(|_| super::splitmix(state) - 0.5)
-            .collect();
+        let shift: Vec<f64> = (0..d - 1).map(|_| super::splitmix(state) - 0.5).collect();
         let map = |q: &[f64]| -> Vec<f64> {
             let mut r = q.to_vec();
             let (c, s) = (angle.cos(), angle.sin());
@@ -727,8 +734,11 @@ pub struct Listing {
 
 impl Listing {
     pub fn holds(&self) -> bool {
-        self.expected.is_none_or(|e| e == self.structures.len())
-            && self.conservation_note.as_deref().is_none_or(|n| !n.starts_with("failed"))
+        self.expected.map_or(true, |e| e == self.structures.len())
+            && self
+                .conservation_note
+                .as_deref()
+                .map_or(true, |n| !n.starts_with("failed"))
     }
 }
 
@@ -982,10 +992,7 @@ pub fn list(setup: &Setup, start: u64) -> Result<(Listing, Vec<Structure>)> {
         let bulk = &setup.ops[spinning[0]];
         let mut p = format!("{y}^(-Δ[{}])", bulk.name);
         for b in &bdy {
-            p.push_str(&format!(
-                " ({y}/|{x} - {}|²)^(Δ[{}])",
-                b.point, b.name
-            ));
+            p.push_str(&format!(" ({y}/|{x} - {}|²)^(Δ[{}])", b.point, b.name));
         }
         prefactor = p;
         if bdy.len() == 2 {
@@ -1146,11 +1153,15 @@ fn divergence<F: Field>(
                 let half = F::int(1).div(&F::int(2));
                 let mut t = tr(ma).mul(&vb[nu]).add(&tr(mb).mul(&va[nu]));
                 for mu in 0..d {
-                    t = t.add(&va[mu].mul(&mb[mu][nu])).add(&vb[mu].mul(&ma[mu][nu]));
+                    t = t
+                        .add(&va[mu].mul(&mb[mu][nu]))
+                        .add(&vb[mu].mul(&ma[mu][nu]));
                 }
                 let mut g = F::int(0);
                 for rho in 0..d {
-                    g = g.add(&ma[nu][rho].mul(&vb[rho])).add(&va[rho].mul(&mb[nu][rho]));
+                    g = g
+                        .add(&ma[nu][rho].mul(&vb[rho]))
+                        .add(&va[rho].mul(&mb[nu][rho]));
                 }
                 t.mul(&half).sub(&g.div(&F::int(d as i64)))
             };
@@ -1286,7 +1297,9 @@ fn conservation(
         .iter()
         .map(|o| o.dim.clone())
         .collect::<Option<Vec<_>>>()
-        .ok_or("not derived: every dimension must be a number (declare `dimension` and numeric `dim`)")?;
+        .ok_or(
+            "not derived: every dimension must be a number (declare `dimension` and numeric `dim`)",
+        )?;
     let labels = setup.labels(p);
     let has_eta = setup.wall && setup.ops.iter().filter(|o| o.boundary).count() == 2;
     let mut state = start ^ 0x2545_f491;
@@ -1299,7 +1312,9 @@ fn conservation(
     while samples.len() < total {
         tries += 1;
         if tries > 20 * total {
-            return Err("not derived: no rational configurations with distinct cross-ratios".into());
+            return Err(
+                "not derived: no rational configurations with distinct cross-ratios".into(),
+            );
         }
         let cfg = rational_config(setup, &mut state, 64);
         let e = eta(setup, &cfg).map_or(BigRational::zero(), |(e, _)| e);
@@ -1311,7 +1326,8 @@ fn conservation(
         } else {
             BigRational::one()
         };
-        let vecs: Vec<Vec<BigRational>> = labels.iter().map(|&l| block(setup, &cfg, p, l).0).collect();
+        let vecs: Vec<Vec<BigRational>> =
+            labels.iter().map(|&l| block(setup, &cfg, p, l).0).collect();
         let mut per_block = Vec::new();
         let divs: Vec<(Vec<BigRational>, Vec<BigRational>)> = kept
             .iter()
@@ -1342,10 +1358,7 @@ fn conservation(
             per_block.push(row);
         } else if setup.ops[p].spin == 1 {
             // A scalar divergence, in slot 0, normalised by K/y.
-            let row = divs
-                .iter()
-                .map(|(a, b)| (&a[0] * &y, &b[0] * &y))
-                .collect();
+            let row = divs.iter().map(|(a, b)| (&a[0] * &y, &b[0] * &y)).collect();
             per_block.push(row);
         } else {
             for v in &vecs {
@@ -1395,11 +1408,15 @@ fn conservation(
                 let poly = if has_eta {
                     let fit = interpolate(&pts[..INTERPOLATION_POINTS]);
                     if fit.len() >= INTERPOLATION_POINTS - 1 {
-                        return Err("failed: a coefficient is not a polynomial of low degree in η".into());
+                        return Err(
+                            "failed: a coefficient is not a polynomial of low degree in η".into(),
+                        );
                     }
                     for (x, v) in &pts[INTERPOLATION_POINTS..] {
                         if poly_at(&fit, x) != *v {
-                            return Err("failed: a coefficient does not pass the exact check".into());
+                            return Err(
+                                "failed: a coefficient does not pass the exact check".into()
+                            );
                         }
                     }
                     fit
@@ -1489,9 +1506,9 @@ pub struct StructureFit {
 impl StructureFit {
     pub fn holds(&self) -> bool {
         self.residual <= STRUCTURE_TOLERANCE
-            && self
-                .wall_limit
-                .is_none_or(|(v, e, m)| (v - m).abs() <= (10.0 * e).max(1e-8 * m.abs()))
+            && self.wall_limit.map_or(true, |(v, e, m)| {
+                (v - m).abs() <= (10.0 * e).max(1e-8 * m.abs())
+            })
     }
 }
 
@@ -1674,7 +1691,9 @@ fn exact(t: &crate::term::Term, d: usize) -> Option<BigRational> {
     use crate::term::Term;
     match t {
         Term::Num(r) => Some(r.clone()),
-        Term::Sym(s) if s == crate::context::DIMENSION => Some(BigRational::from_integer(BigInt::from(d))),
+        Term::Sym(s) if s == crate::context::DIMENSION => {
+            Some(BigRational::from_integer(BigInt::from(d)))
+        }
         Term::Add(ts) => ts
             .iter()
             .try_fold(BigRational::zero(), |acc, t| Some(acc + exact(t, d)?)),
@@ -1702,14 +1721,16 @@ pub fn setup_of(ctx: &crate::context::Context, corr: &crate::term::Term) -> Resu
         return Err(numeric("structures are listed for a correlator"));
     };
     let d = match ctx.dimension.as_ref().and_then(|t| exact(t, 0)) {
-        Some(r) if r.is_integer() && r >= BigRational::from_integer(3.into()) && r <= BigRational::from_integer(8.into()) => {
+        Some(r)
+            if r.is_integer()
+                && r >= BigRational::from_integer(3.into())
+                && r <= BigRational::from_integer(8.into()) =>
+        {
             r.to_integer().to_usize().unwrap_or(3)
         }
-        _ => {
-            return Err(numeric(
-                "structures are listed in a numeric dimension from 3 to 8: declare `dimension 3`, say",
-            ))
-        }
+        _ => return Err(numeric(
+            "structures are listed in a numeric dimension from 3 to 8: declare `dimension 3`, say",
+        )),
     };
     let ops = ops
         .iter()

@@ -215,11 +215,7 @@ impl Text {
             Finding::Scan(x) => self.scanned(line, input, x),
             Finding::Decompose(x) => self.decomposed(line, input, x),
             Finding::Structures(x) => {
-                let _ = writeln!(
-                    self.out,
-                    "line {line}: {}",
-                    abbreviate(input, INPUT_WIDTH)
-                );
+                let _ = writeln!(self.out, "line {line}: {}", abbreviate(input, INPUT_WIDTH));
                 for l in super::structures_lines(x) {
                     let _ = writeln!(self.out, "  {l}");
                 }
