@@ -325,7 +325,13 @@ impl<'a> Checker<'a> {
                         if *fit {
                             let s = self.session()?;
                             let started = std::time::Instant::now();
-                            match s.structure_fit(corr, &setup, &kept, &listing.structures) {
+                            match s.structure_fit(
+                                corr,
+                                &setup,
+                                &kept,
+                                &listing.structures,
+                                &listing.relations,
+                            ) {
                                 Ok(f) => {
                                     holds = holds && f.holds();
                                     fitted = Some(f);

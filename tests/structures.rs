@@ -73,6 +73,10 @@ fn t_d_d_of_the_free_scalar_decomposes_exactly() {
         let fit = f[0].fit.as_ref().expect("a decomposition");
         assert!(fit.residual < 1e-10, "{path}: {}", fit.residual);
         assert_eq!(fit.structures.len(), 2);
+        // The exact conservation relations hold on the model's f_i (f_i' by
+        // central differences, good to about 1e-8).
+        let (r, n) = fit.conservation_check.expect("relations checked");
+        assert!(r < 1e-6 && n >= 6, "{path}: {r}");
         let (v, e, m) = fit.wall_limit.expect("a wall limit");
         assert!(
             (v - m).abs() < 1e-5 * m.abs() && e.is_finite(),

@@ -448,6 +448,7 @@ impl<'a> Session<'a> {
         setup: &super::structures::Setup,
         kept: &[super::structures::Structure],
         texts: &[String],
+        relations: &[super::structures::Relation],
     ) -> Result<super::structures::StructureFit> {
         let Term::Corr(ops) = corr else {
             return Err(Error::new(
@@ -551,6 +552,7 @@ impl<'a> Session<'a> {
             texts,
             &g,
             limit.as_ref().map(|f| f as &dyn Fn() -> Result<f64>),
+            relations,
             0x9e37_79b9,
         )
     }

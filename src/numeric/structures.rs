@@ -729,6 +729,9 @@ pub struct Listing {
     /// Conservation: the differential relations (each `… = 0`), or why
     /// none were derived.
     pub conservation: Vec<String>,
+    /// The same relations as numbers, for checking a model's f_i.
+    #[serde(skip)]
+    pub relations: Vec<Relation>,
     pub conservation_note: Option<String>,
 }
 
@@ -1035,10 +1038,10 @@ pub fn list(setup: &Setup, start: u64) -> Result<(Listing, Vec<Structure>)> {
             setup.ops[a].name, setup.ops[a].point, setup.ops[b].name, setup.ops[b].point, raw_rank
         )
     });
-    let (conservation, conservation_note) = match conservation(setup, &kept, start) {
-        Ok(Some(rel)) => (rel, None),
-        Ok(None) => (vec![], None),
-        Err(e) => (vec![], Some(e)),
+    let (conservation, relations, conservation_note) = match conservation(setup, &kept, start) {
+        Ok(Some((rel, floats))) => (rel, floats, None),
+        Ok(None) => (vec![], vec![], None),
+        Err(e) => (vec![], vec![], Some(e)),
     };
     let listing = Listing {
         cross_ratios: cross,
@@ -1052,6 +1055,7 @@ pub fn list(setup: &Setup, start: u64) -> Result<(Listing, Vec<Structure>)> {
         exchange,
         gap,
         conservation,
+        relations,
         conservation_note,
     };
     Ok((listing, kept))
@@ -1286,7 +1290,7 @@ fn conservation(
     setup: &Setup,
     kept: &[Structure],
     start: u64,
-) -> std::result::Result<Option<Vec<String>>, String> {
+) -> std::result::Result<Option<(Vec<String>, Vec<Relation>)>, String> {
     let spinning = setup.spinning();
     if spinning.len() != 1 || !setup.ops[spinning[0]].conserved {
         return Ok(None);
@@ -1386,7 +1390,9 @@ fn conservation(
     let names: Vec<String> = (1..=kept.len()).map(|i| format!("f{i}")).collect();
     let mut out = Vec::new();
     let blocks_n = samples[0].1.len();
+    let mut relations = Vec::new();
     for a in 0..blocks_n {
+        let mut relation: Relation = vec![(Vec::new(), Vec::new()); kept.len()];
         let what = if setup.ops[p].spin == 1 {
             "∂·J".to_string()
         } else {
@@ -1428,6 +1434,15 @@ fn conservation(
                     }
                     vec![first]
                 };
+                let floats: Vec<f64> = poly
+                    .iter()
+                    .map(|c| c.to_f64().unwrap_or(f64::NAN))
+                    .collect();
+                if which == 0 {
+                    relation[i].0 = floats;
+                } else {
+                    relation[i].1 = floats;
+                }
                 if poly.iter().all(Zero::is_zero) {
                     continue;
                 }
@@ -1446,9 +1461,14 @@ fn conservation(
             terms.join(" + ")
         };
         out.push(format!("{what}: {body} = 0"));
+        relations.push(relation);
     }
-    Ok(Some(out))
+    Ok(Some((out, relations)))
 }
+
+/// One conservation relation: per structure, the coefficients (low to
+/// high in η) of f_i and of f_i'.
+pub type Relation = Vec<(Vec<f64>, Vec<f64>)>;
 
 /// True if `v` is an exact combination of `basis`.
 fn in_span(v: &[BigRational], basis: &[Vec<BigRational>]) -> bool {
@@ -1476,6 +1496,9 @@ fn in_span(v: &[BigRational], basis: &[Vec<BigRational>]) -> bool {
 
 /// Largest relative residual at which a decomposition counts as exact.
 pub const STRUCTURE_TOLERANCE: f64 = 1e-10;
+/// Largest relative residual of a conservation relation on a model's f_i
+/// (the central differences are good to about 1e-8).
+pub const CONSERVATION_TOLERANCE: f64 = 1e-6;
 /// Values of η at which the coefficient functions are fitted.
 pub const FIT_ETAS: usize = 24;
 /// Configurations per η: two to fit, three more to check.
@@ -1501,11 +1524,18 @@ pub struct StructureFit {
     /// Δ̂2 - Δ̂1) (p = x∥), extrapolated to y = 0 (Richardson in y²) with its
     /// error estimate; and the same number from the model's ⟨D(p) …⟩.
     pub wall_limit: Option<(f64, f64, f64)>,
+    /// The conservation relations evaluated on the fitted f_i (f_i' by
+    /// central differences): the largest |sum| over the largest term, and
+    /// at how many values of η.
+    pub conservation_check: Option<(f64, usize)>,
 }
 
 impl StructureFit {
     pub fn holds(&self) -> bool {
         self.residual <= STRUCTURE_TOLERANCE
+            && self
+                .conservation_check
+                .map_or(true, |(r, _)| r <= CONSERVATION_TOLERANCE)
             && self.wall_limit.map_or(true, |(v, e, m)| {
                 (v - m).abs() <= (10.0 * e).max(1e-8 * m.abs())
             })
@@ -1538,6 +1568,7 @@ pub fn fit(
     structures: &[String],
     g: &(dyn Fn(&Config<f64>) -> Result<Vec<f64>> + Sync),
     boundary_three: Option<&dyn Fn() -> Result<f64>>,
+    relations: &[Relation],
     start: u64,
 ) -> Result<StructureFit> {
     let has_eta = setup.wall && setup.ops.iter().filter(|o| o.boundary).count() == 2;
@@ -1602,6 +1633,36 @@ pub fn fit(
         worst = worst.max(residual);
         rows.push((eta, f, residual));
     }
+    // The conservation relations on the model's f_i: f_i' by central
+    // differences (step 1e-4 in η, error O(1e-8)), at η = 0.3 … 0.8.
+    let conservation_check = if relations.is_empty() {
+        None
+    } else {
+        let mut worst = 0.0f64;
+        let etas = [0.3, 0.4, 0.5, 0.6, 0.7, 0.8];
+        let step = 1e-4;
+        for &eta in &etas {
+            let (f, _) = coefficients(eta, &mut state)?;
+            let (fp, _) = coefficients(eta + step, &mut state)?;
+            let (fm, _) = coefficients(eta - step, &mut state)?;
+            let horner = |c: &[f64]| c.iter().rev().fold(0.0, |acc, v| acc * eta + v);
+            for rel in relations {
+                let mut sum = 0.0;
+                let mut size = 0.0f64;
+                for (i, (pc, qc)) in rel.iter().enumerate() {
+                    let deriv = (fp[i] - fm[i]) / (2.0 * step);
+                    let a = horner(pc) * f[i];
+                    let b = horner(qc) * deriv;
+                    sum += a + b;
+                    size = size.max(a.abs()).max(b.abs());
+                }
+                if size > 0.0 {
+                    worst = worst.max(sum.abs() / size);
+                }
+            }
+        }
+        Some((worst, etas.len()))
+    };
     // The wall limit: the nn component of each structure with every X = n.
     let p = setup.spinning()[0];
     let d = setup.d;
@@ -1683,6 +1744,7 @@ pub fn fit(
         checked_at: checked,
         residual: worst,
         wall_limit,
+        conservation_check,
     })
 }
 

@@ -271,6 +271,16 @@ pub(crate) fn structures_lines(f: &crate::outcome::StructuresFound) -> Vec<Strin
             }
             out.push(row);
         }
+        if let Some((r, n)) = fit.conservation_check {
+            out.push(format!(
+                "conservation relations on the fitted f_i (f_i' by central differences) at {n} values of η: largest |sum| {r:.1e} of the largest term ({})",
+                if r <= crate::numeric::structures::CONSERVATION_TOLERANCE {
+                    "hold"
+                } else {
+                    "FAIL"
+                }
+            ));
+        }
         if let Some((v, e, m)) = fit.wall_limit {
             out.push(format!(
                 "wall limit, x → x∥ = p: (|s1 - s2| |p - s1| |p - s2|)^Δ-weights × K Σ f_i S_i,nn → {v:.10e} ± {e:.1e} (Richardson in y²); the model's ⟨D(p) …⟩ with the same weights {m:.10e}: {}",
