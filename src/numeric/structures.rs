@@ -1290,7 +1290,7 @@ fn conservation(
     setup: &Setup,
     kept: &[Structure],
     start: u64,
-) -> std::result::Result<Option<(Vec<String>, Vec<Relation>)>, String> {
+) -> std::result::Result<Option<Relations>, String> {
     let spinning = setup.spinning();
     if spinning.len() != 1 || !setup.ops[spinning[0]].conserved {
         return Ok(None);
@@ -1469,6 +1469,9 @@ fn conservation(
 /// One conservation relation: per structure, the coefficients (low to
 /// high in η) of f_i and of f_i'.
 pub type Relation = Vec<(Vec<f64>, Vec<f64>)>;
+
+/// The relations printed, and as numbers.
+type Relations = (Vec<String>, Vec<Relation>);
 
 /// True if `v` is an exact combination of `basis`.
 fn in_span(v: &[BigRational], basis: &[Vec<BigRational>]) -> bool {
