@@ -308,6 +308,58 @@ impl<'a> Checker<'a> {
                 };
                 self.push(item, input, finding);
             }
+            (ItemKind::Structures { corr, fit, output }, _) => {
+                let input = text.to_string();
+                let started = std::time::Instant::now();
+                let listed = crate::numeric::structures::setup_of(&self.program.ctx, corr)
+                    .and_then(|setup| {
+                        crate::numeric::structures::list(&setup, 0x2545_f491).map(|l| (setup, l))
+                    });
+                let listing_time = started.elapsed().as_secs_f64();
+                let finding = match listed {
+                    Err(e) if e.kind == ErrorKind::Numeric => failure("structures", &e),
+                    Err(e) => return Err(e),
+                    Ok((setup, (listing, kept))) => {
+                        let mut holds = listing.holds();
+                        let mut fitted = None;
+                        let mut fit_time = 0.0;
+                        let mut failed = None;
+                        if *fit {
+                            let s = self.session()?;
+                            let started = std::time::Instant::now();
+                            match s.structure_fit(
+                                corr,
+                                &setup,
+                                &kept,
+                                &listing.structures,
+                                &listing.relations,
+                            ) {
+                                Ok(f) => {
+                                    holds = holds && f.holds();
+                                    fitted = Some(f);
+                                }
+                                Err(e) if e.kind == ErrorKind::Numeric => {
+                                    failed = Some(failure("decompose", &e))
+                                }
+                                Err(e) => return Err(e),
+                            }
+                            fit_time = started.elapsed().as_secs_f64();
+                        }
+                        match failed {
+                            Some(f) => f,
+                            None => Finding::Structures(crate::outcome::StructuresFound {
+                                listing,
+                                fit: fitted,
+                                holds,
+                                seconds: (listing_time, fit_time),
+                                written: Vec::new(),
+                                output: output.clone(),
+                            }),
+                        }
+                    }
+                };
+                self.push(item, input, finding);
+            }
             (
                 ItemKind::Evaluate { .. }
                 | ItemKind::Solve { .. }

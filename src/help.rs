@@ -173,6 +173,11 @@ pub const STATEMENTS: &[Entry] = &[
         example: "decompose <O(x1) O(x2)> in boundary blocks Delta to Delta + 8 step 2 into \"channel\"",
         meaning: "a two-point function next to the wall in one channel's blocks (bulk: a list of dimensions, identity included; boundary: a list or a tower; `<O(x) H1(s1) H2(s2)>` in boundary blocks fits F(χ) of a bulk–boundary–boundary function); `in s-channel blocks twist 2 Dphi to 2 Dphi + 8 step 2, spin 0 to 12 step 2`: a four-point function in u, v (or z, zb) in d = 2, 4",
     },
+    Entry {
+        keyword: "structures",
+        example: "structures <T[mu,nu](x) D(s1) D(s2)>",
+        meaning: "the independent tensor structures of a correlator with spinning insertions (rank at random configurations against the count the symmetry predicts), its cross-ratios, and for one conserved insertion the exact differential relations among the coefficient functions; `decompose <…> in structures into \"name\"`: the model's correlator expanded in them, f_i(η) in name.csv/.svg, and the wall limit against ⟨D …⟩ (docs/conventions.md §16)",
+    },
 ];
 
 /// What `wardsmith help language` prints after the statements.

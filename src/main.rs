@@ -29,14 +29,14 @@ enum Command {
     Simplify(FileArgs),
     /// Check every statement of FILE that states something: each `claim`,
     /// each `simplify … expect …`, each step of a `derivation`, and on the
-    /// file's model each `compare`, `flux`, `scan` and `decompose`; print
+    /// file's model each `compare`, `flux`, `scan`, `decompose` and `structures`; print
     /// what `simplify`, `evaluate`, `classify` and `solve` find.
     ///
     /// Statements: dimension, halfspace, scalar, vector, tensor, boundary,
     /// points, parameters, positive, parallel, function, let, rules, killing,
     /// classify, simplify, claim, derivation, slip, place, model,
     /// coefficient, values, sample, tolerance, evaluate, compare, flux,
-    /// solve, scan, decompose.
+    /// solve, scan, decompose, structures.
     /// One example each: `wardsmith help language`.
     #[command(after_help = CONVENTIONS)]
     Check(FileArgs),

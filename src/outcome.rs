@@ -368,6 +368,8 @@ pub enum Finding {
     Compare(Compared),
     Scan(Scanned),
     Decompose(Decomposed),
+    /// `structures ⟨…⟩`, `decompose ⟨…⟩ in structures`.
+    Structures(StructuresFound),
     /// A numeric statement that could not be carried out (a quadrature
     /// that did not converge, a value without a real value, …): unknown.
     Failed(Failure),
@@ -390,6 +392,11 @@ impl Finding {
             } else {
                 Status::NotProved
             }),
+            Finding::Structures(s) => Some(if s.holds {
+                Status::Confirmed
+            } else {
+                Status::NotProved
+            }),
             Finding::Failed(_) => Some(Status::Unknown),
         }
     }
@@ -407,6 +414,13 @@ impl Finding {
             Finding::Compare(_) => "compare",
             Finding::Scan(_) => "scan",
             Finding::Decompose(_) => "decompose",
+            Finding::Structures(s) => {
+                if s.fit.is_some() {
+                    "decompose"
+                } else {
+                    "structures"
+                }
+            }
             Finding::Failed(f) => &f.statement,
         }
     }
@@ -817,6 +831,24 @@ pub struct Decomposed {
     pub fit: crate::numeric::decompose::Decomposition,
     /// The residual is within the tolerance.
     pub holds: bool,
+    /// The CSV and SVG files written.
+    pub written: Vec<String>,
+    #[serde(skip)]
+    pub output: Option<String>,
+}
+
+/// `structures ⟨…⟩`: the structures, their count against the residual
+/// symmetry's, the cross-ratios, the conservation relations; with `decompose
+/// ⟨…⟩ in structures` also the model's coefficient functions.
+#[derive(Clone, Debug, Serialize)]
+pub struct StructuresFound {
+    pub listing: crate::numeric::structures::Listing,
+    pub fit: Option<crate::numeric::structures::StructureFit>,
+    /// The count agrees with the symmetry's, every relation was derived,
+    /// and a decomposition is exact.
+    pub holds: bool,
+    /// Seconds spent (listing and relations; the decomposition).
+    pub seconds: (f64, f64),
     /// The CSV and SVG files written.
     pub written: Vec<String>,
     #[serde(skip)]

@@ -98,6 +98,19 @@ impl Labels {
         }
     }
 
+    /// The labels of `decompose ⟨…⟩ in structures`: the coefficient
+    /// functions f_i against η (both sides are f_i; the lower panel is the
+    /// residual at the check configurations of each η).
+    pub fn structures(title: &str) -> Labels {
+        Labels {
+            title: format!("decompose {title}"),
+            x: "cross-ratio η".into(),
+            y: "f_i(η)".into(),
+            left: "f_i(η) fitted".into(),
+            right: "f_i(η) (residual below: check configurations)".into(),
+        }
+    }
+
     /// The labels of `decompose … in s-channel blocks …`: G of a four-point
     /// function against |z| along arg z = π/2 (Euclidean configurations)
     /// or z̄ = z/2 (real ones), docs/conventions.md §14.

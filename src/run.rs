@@ -202,10 +202,52 @@ fn write_outputs(checked: &mut FileOutcome, source: &Arc<Source>, base: &Path) -
                 };
                 d.written = write_scan(&table, base, &stem, &labels).map_err(at)?;
             }
+            Finding::Structures(f) => {
+                let (Some(stem), Some(fit)) = (f.output.clone(), f.fit.as_ref()) else {
+                    continue;
+                };
+                let table = structure_table(fit);
+                let body = s.input.split(" into ").next().unwrap_or(&s.input);
+                let labels = crate::plot::Labels::structures(body);
+                f.written = write_scan(&table, base, &stem, &labels).map_err(at)?;
+            }
             _ => {}
         }
     }
     Ok(())
+}
+
+/// The coefficient functions f_i(η) of a decomposition into structures as
+/// a scan table: both sides are f_i, and each row's verdict is that of the
+/// residual at the check configurations of its η.
+fn structure_table(
+    fit: &crate::numeric::structures::StructureFit,
+) -> crate::numeric::session::Scan {
+    use crate::numeric::agreement::Agreement;
+    crate::numeric::session::Scan {
+        param: "eta".into(),
+        labels: (1..=fit.structures.len())
+            .map(|k| format!("f{k}"))
+            .collect(),
+        rows: fit
+            .rows
+            .iter()
+            .map(|(x, f, _)| (*x, f.clone(), f.clone()))
+            .collect(),
+        judged: fit
+            .rows
+            .iter()
+            .map(|(_, f, r)| {
+                let verdict = if *r <= crate::numeric::structures::STRUCTURE_TOLERANCE {
+                    Agreement::Agree
+                } else {
+                    Agreement::Disagree
+                };
+                f.iter().map(|_| (*r, verdict.clone())).collect()
+            })
+            .collect(),
+        errors: Vec::new(),
+    }
 }
 
 /// A fit's G(ξ) and expansion as a scan table, for its CSV and SVG.

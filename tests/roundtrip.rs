@@ -81,6 +81,7 @@ fn check_file(path: &str) {
                 .chain(steps.iter().map(|s| &s.expr))
                 .collect(),
             ItemKind::Decompose { corr, .. } => vec![corr],
+            ItemKind::Structures { corr, .. } => vec![corr],
             ItemKind::Classify { .. } => vec![],
         };
         for expr in exprs {

@@ -245,6 +245,7 @@ fn every_example_and_case_fits_the_schema() {
         "compare",
         "scan",
         "decompose",
+        "structures",
     ] {
         assert!(kinds.contains(kind), "no `{kind}` checked: {kinds:?}");
     }

@@ -105,6 +105,15 @@ pub enum ItemKind {
         /// File stem for the CSV and SVG output, as written.
         output: Option<String>,
     },
+    /// `structures ⟨…⟩` / `decompose ⟨…⟩ in structures`: the tensor
+    /// structures of a correlator, and with `fit` the model's correlator
+    /// expanded in them.
+    Structures {
+        corr: Term,
+        fit: bool,
+        /// File stem for the CSV and SVG output, as written.
+        output: Option<String>,
+    },
     /// `decompose ⟨O(x1) O(x2)⟩ in CHANNEL blocks …`: the two-point
     /// function expanded in the blocks of one channel.
     Decompose {
@@ -372,6 +381,49 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                         lhs: lowerer.expr(lhs)?,
                         rhs: lowerer.expr(rhs)?,
                         free: profile.into_iter().collect(),
+                        output: output.as_ref().map(|(n, _)| n.clone()),
+                    },
+                    span: *span,
+                    line: source.line(span.start),
+                });
+            }
+            Stmt::Structures {
+                corr,
+                fit,
+                output,
+                span,
+            } => {
+                seen_expression = true;
+                let lowered = lowerer.expr(corr)?;
+                let fine = match &lowered {
+                    Term::Corr(ops) => ops.iter().all(|o| {
+                        let mut names: Vec<&crate::term::Index> = o.indices.iter().collect();
+                        let n = names.len();
+                        names.sort();
+                        names.dedup();
+                        names.len() == n
+                            && o.indices
+                                .iter()
+                                .all(|i| matches!(i, crate::term::Index::Named(_)))
+                    }),
+                    _ => false,
+                };
+                if !fine {
+                    return Err(lowerer
+                        .err(
+                            ErrorKind::Syntax,
+                            corr.span,
+                            "structures are listed for a correlator with distinct named indices, e.g. `<T[mu,nu](x) D(s1) D(s2)>`",
+                        )
+                        .with_label("not a correlator with free indices"));
+                }
+                if let Some((name, span)) = output {
+                    check_output_name(&lowerer, name, *span)?;
+                }
+                items.push(Item {
+                    kind: ItemKind::Structures {
+                        corr: lowered,
+                        fit: *fit,
                         output: output.as_ref().map(|(n, _)| n.clone()),
                     },
                     span: *span,
@@ -881,6 +933,7 @@ impl Lowerer {
             | Stmt::Flux { .. }
             | Stmt::Scan { .. }
             | Stmt::Decompose { .. }
+            | Stmt::Structures { .. }
             | Stmt::Derivation { .. }
             | Stmt::Compare { .. } => {}
         }

@@ -386,7 +386,7 @@ pub const FOUR_POINT_RANGE: (f64, f64) = (0.02, 0.3);
 /// Least squares min |A x - b| by Householder QR, columns scaled to unit
 /// length first (common practice). `a` is rows × `n`.
 #[allow(clippy::needless_range_loop)] // the reflections read best as index loops
-fn least_squares(a: &mut [Vec<f64>], b: &mut [f64], n: usize) -> Result<Vec<f64>> {
+pub(crate) fn least_squares(a: &mut [Vec<f64>], b: &mut [f64], n: usize) -> Result<Vec<f64>> {
     let m = a.len();
     let mut scale = vec![0.0; n];
     for (j, s) in scale.iter_mut().enumerate() {

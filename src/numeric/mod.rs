@@ -16,6 +16,7 @@ pub mod nonzero;
 pub mod quadrature;
 pub mod session;
 pub mod special;
+pub mod structures;
 
 use std::collections::BTreeMap;
 

@@ -474,6 +474,125 @@ impl<'a> Session<'a> {
         super::decompose::fit_four_point(d, &blocks, frame, &g)
     }
 
+    /// The model's correlator `corr` expanded in its tensor structures
+    /// ([`super::structures::fit`]): its components at configurations of
+    /// given η. For ⟨T … ⟩ next to the wall, the wall limit is set beside
+    /// the model's ⟨D(p) …⟩ with p where x meets the wall.
+    pub fn structure_fit(
+        &self,
+        corr: &Term,
+        setup: &super::structures::Setup,
+        kept: &[super::structures::Structure],
+        texts: &[String],
+        relations: &[super::structures::Relation],
+    ) -> Result<super::structures::StructureFit> {
+        let Term::Corr(ops) = corr else {
+            return Err(Error::new(
+                ErrorKind::Numeric,
+                "a decomposition takes a correlator",
+            ));
+        };
+        let free: Vec<String> = ops
+            .iter()
+            .flat_map(|o| {
+                o.indices
+                    .iter()
+                    .filter_map(|i| i.name().map(str::to_string))
+            })
+            .collect();
+        let base = self.values().clone();
+        let g = |cfg: &super::structures::Config<f64>| -> Result<Vec<f64>> {
+            let mut v = base.clone();
+            for (op, p) in ops.iter().zip(cfg) {
+                v.points.insert(op.point.name.to_string(), p.clone());
+            }
+            let e = self.evaluate_with(corr, &free, &v)?;
+            Ok(e.components.iter().map(|(_, x)| x.value).collect())
+        };
+        let bulk = ops.iter().position(|o| o.name == STRESS_TENSOR);
+        let dims: Vec<f64> = setup
+            .ops
+            .iter()
+            .map(|o| o.dim.as_ref().and_then(|r| r.to_f64()).unwrap_or(f64::NAN))
+            .collect();
+        let three = |k: usize| -> Result<f64> {
+            // D where x meets the wall; the boundary points as placed.
+            let mut state = 0x2545_f491_u64;
+            let cfg = super::structures::random_config(setup, &mut state);
+            let mut v = base.clone();
+            let mut p = cfg[k].clone();
+            if let Some(last) = p.last_mut() {
+                *last = 0.0;
+            }
+            // A boundary point of the file that the correlator does not use.
+            let spare = self
+                .ctx
+                .points
+                .iter()
+                .find(|q| q.boundary && ops.iter().all(|o| *o.point.name != *q.name))
+                .ok_or_else(|| {
+                    Error::new(
+                        ErrorKind::Numeric,
+                        "the wall limit needs a spare boundary point for D",
+                    )
+                    .with_note("declare one more: `boundary points s1 s2 s3`")
+                })?;
+            let (rank, _) = self.ctx.point(&spare.name).ok_or_else(|| {
+                Error::new(
+                    ErrorKind::Numeric,
+                    "the spare boundary point is not declared",
+                )
+            })?;
+            let mut replaced = ops.clone();
+            replaced[k] = crate::term::Op {
+                point: crate::term::Point {
+                    rank,
+                    par: false,
+                    name: spare.name.as_str().into(),
+                },
+                name: crate::context::DISPLACEMENT.to_string(),
+                indices: Vec::new(),
+            };
+            replaced.sort();
+            for (i, (op, q)) in ops.iter().zip(&cfg).enumerate() {
+                if i != k {
+                    v.points.insert(op.point.name.to_string(), q.clone());
+                }
+            }
+            v.points.insert(spare.name.clone(), p.clone());
+            let value = self.value(&Term::Corr(replaced), &[], &v)?.value;
+            let others: Vec<usize> = (0..ops.len()).filter(|&i| i != k).collect();
+            let dist = |a: &[f64], b: &[f64]| -> f64 {
+                a.iter()
+                    .zip(b)
+                    .map(|(x, y)| (x - y) * (x - y))
+                    .sum::<f64>()
+                    .sqrt()
+            };
+            let (i, j) = (others[0], others[1]);
+            let (a, b, c) = (
+                dims[i] + dims[j] - dims[k],
+                dims[k] + dims[i] - dims[j],
+                dims[k] + dims[j] - dims[i],
+            );
+            Ok(value
+                * dist(&cfg[i], &cfg[j]).powf(a)
+                * dist(&p, &cfg[i]).powf(b)
+                * dist(&p, &cfg[j]).powf(c))
+        };
+        let wall = bulk.filter(|_| self.ctx.has_halfspace() && ops.len() == 3);
+        let limit = wall.map(|k| move || three(k));
+        super::structures::fit(
+            setup,
+            kept,
+            texts,
+            &g,
+            limit.as_ref().map(|f| f as &dyn Fn() -> Result<f64>),
+            relations,
+            0x9e37_79b9,
+        )
+    }
+
     /// The values of `t` for every assignment of its free indices.
     pub fn evaluate(&self, t: &Term, free: &[String]) -> Result<Evaluation> {
         self.evaluate_with(t, free, self.values())

@@ -435,6 +435,12 @@ fn statement(out: &mut String, s: &Statement) {
             }
             display(out, &lines);
         }
+        Finding::Structures(x) => {
+            let _ = writeln!(out, "% line {}: {}", s.line, comment(&s.input));
+            for l in super::structures_lines(x) {
+                let _ = writeln!(out, "% {}", comment(&l));
+            }
+        }
         Finding::Failed(f) => {
             let reason = f.reason.lines().next().unwrap_or("");
             let _ = writeln!(

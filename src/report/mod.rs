@@ -200,3 +200,100 @@ pub(crate) fn coefficients(found: &Decomposition) -> Coefficients {
             .collect(),
     }
 }
+
+/// The lines of a `structures` finding (or `decompose … in structures`),
+/// without the statement line.
+pub(crate) fn structures_lines(f: &crate::outcome::StructuresFound) -> Vec<String> {
+    let l = &f.listing;
+    let mut out = Vec::new();
+    for c in &l.cross_ratios {
+        out.push(format!("cross-ratio: {c}"));
+    }
+    for b in &l.blocks {
+        out.push(format!("building block: {b}"));
+    }
+    out.push(format!("prefactor: K = {}", l.prefactor));
+    let expected = match l.expected {
+        Some(e) => format!("{e} expected"),
+        None => "no count expected".to_string(),
+    };
+    out.push(format!(
+        "{} structure{} ({} candidate{}, rank {} at pseudo-random configurations, singular values kept ≥ {:.1e}, dropped ≤ {:.1e} of the largest; {expected})",
+        l.structures.len(),
+        if l.structures.len() == 1 { "" } else { "s" },
+        l.candidates,
+        if l.candidates == 1 { "" } else { "s" },
+        l.rank,
+        l.gap.0,
+        l.gap.1,
+    ));
+    out.push(format!("  why: {}", l.why));
+    if let Some(x) = &l.exchange {
+        out.push(format!("  exchange symmetry {x}"));
+    }
+    for (k, s) in l.structures.iter().enumerate() {
+        out.push(format!("  S{} = {s}  (symmetric traceless part)", k + 1));
+    }
+    if !l.conservation.is_empty() {
+        out.push(
+            "conservation, ∂_μ Σ_i f_i K S_i = 0 (exact: rational interpolation at rational configurations, checked exactly at others):"
+                .into(),
+        );
+        for r in &l.conservation {
+            out.push(format!("  {r}"));
+        }
+    }
+    if let Some(n) = &l.conservation_note {
+        out.push(format!("conservation {n}"));
+    }
+    if let Some(fit) = &f.fit {
+        out.push(format!(
+            "decomposition: fitted at {} configurations, checked at {} others of the same η: largest relative difference {:.1e} ({})",
+            fit.fitted_at,
+            fit.checked_at,
+            fit.residual,
+            if fit.residual <= crate::numeric::structures::STRUCTURE_TOLERANCE {
+                "exact"
+            } else {
+                "NOT exact"
+            }
+        ));
+        let mut header = "  η".to_string();
+        for k in 0..fit.structures.len() {
+            header.push_str(&format!("  f{}(η)", k + 1));
+        }
+        out.push(header);
+        let step = (fit.rows.len() / 6).max(1);
+        for (eta, f, _) in fit.rows.iter().step_by(step) {
+            let mut row = format!("  {eta:.4}");
+            for v in f {
+                row.push_str(&format!("  {v:.10e}"));
+            }
+            out.push(row);
+        }
+        if let Some((r, n)) = fit.conservation_check {
+            out.push(format!(
+                "conservation relations on the fitted f_i (f_i' by central differences) at {n} values of η: largest |sum| {r:.1e} of the largest term ({})",
+                if r <= crate::numeric::structures::CONSERVATION_TOLERANCE {
+                    "hold"
+                } else {
+                    "FAIL"
+                }
+            ));
+        }
+        if let Some((v, e, m)) = fit.wall_limit {
+            out.push(format!(
+                "wall limit, x → x∥ = p: (|s1 - s2| |p - s1| |p - s2|)^Δ-weights × K Σ f_i S_i,nn → {v:.10e} ± {e:.1e} (Richardson in y²); the model's ⟨D(p) …⟩ with the same weights {m:.10e}: {}",
+                if (v - m).abs() <= (10.0 * e).max(1e-8 * m.abs()) {
+                    "agree"
+                } else {
+                    "DISAGREE"
+                }
+            ));
+        }
+    }
+    if !f.written.is_empty() {
+        out.push(format!("written: {}", f.written.join(", ")));
+    }
+    out
+}

@@ -214,6 +214,12 @@ impl Text {
             Finding::Compare(x) => self.compared(line, input, x),
             Finding::Scan(x) => self.scanned(line, input, x),
             Finding::Decompose(x) => self.decomposed(line, input, x),
+            Finding::Structures(x) => {
+                let _ = writeln!(self.out, "line {line}: {}", abbreviate(input, INPUT_WIDTH));
+                for l in super::structures_lines(x) {
+                    let _ = writeln!(self.out, "  {l}");
+                }
+            }
             Finding::Failed(x) => self.failed(line, input, x),
         }
         if let Some(mark) = s.slip {

@@ -360,6 +360,14 @@ pub enum Stmt {
         expr: Expr,
         span: Span,
     },
+    /// `structures ⟨…⟩` (`fit` false) or `decompose ⟨…⟩ in structures
+    /// [into "name"]` (`fit` true).
+    Structures {
+        corr: Expr,
+        fit: bool,
+        output: Option<(String, Span)>,
+        span: Span,
+    },
     /// `decompose ⟨O(x1) O(x2)⟩ in bulk|boundary blocks … [into "name"]`.
     Decompose {
         corr: Expr,

@@ -506,6 +506,7 @@ pub(crate) const STATEMENT_STARTS: &[&str] = &[
     "tolerance",
     "scan",
     "decompose",
+    "structures",
     "derivation",
     "slip",
 ];
@@ -907,6 +908,25 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                 unknown,
                 lhs,
                 rhs,
+                span,
+            }
+        }
+        Rule::structures_stmt => {
+            let corr = build_expr(source, next(&mut inner), 0)?;
+            Stmt::Structures {
+                corr,
+                fit: false,
+                output: None,
+                span,
+            }
+        }
+        Rule::decompose_structures_stmt => {
+            let corr = build_expr(source, next(&mut inner), 0)?;
+            let output = inner.next().map(|string| output_name(&string));
+            Stmt::Structures {
+                corr,
+                fit: true,
+                output,
                 span,
             }
         }
