@@ -320,27 +320,40 @@ impl Lowerer {
         if c.primes > MAX_ORDER {
             return Err(self.too_many_derivatives(c.name.span));
         }
-        let mut lowered = Vec::with_capacity(4);
-        for (k, a) in c.args.iter().enumerate() {
-            self.scalar_argument(a, "an argument of ₂F₁")?;
-            let t = self.expr(a)?;
-            if k < 3 && t.mentions_any_point() {
-                return Err(self
-                    .err(
-                        ErrorKind::Syntax,
-                        a.span,
-                        "the parameters a, b, c of ₂F₁ cannot depend on points",
-                    )
-                    .with_label("depends on a point")
-                    .with_note(
-                        "only the argument z, after the last `;`, may: `F21(a, b; c; -xi(x1, x2))`",
-                    ));
-            }
-            lowered.push(t);
-        }
+        let lowered = self.parameters_then_argument(
+            c.args,
+            "an argument of ₂F₁",
+            "the parameters a, b, c of ₂F₁ cannot depend on points",
+            "only the argument z, after the last `;`, may: `F21(a, b; c; -xi(x1, x2))`",
+        )?;
         let [a, b, cc, z] = <[Term; 4]>::try_from(lowered)
             .map_err(|_| Error::new(ErrorKind::Syntax, "₂F₁ takes four arguments"))?;
         Ok(Term::hyp2f1(c.primes, a, b, cc, z))
+    }
+
+    /// The lowered arguments of a special function whose last argument is
+    /// its variable: every argument a scalar, and none but the last may
+    /// depend on a point (`message`, with `note`, at the one that does).
+    fn parameters_then_argument(
+        &self,
+        args: &[Expr],
+        what: &str,
+        message: &str,
+        note: &str,
+    ) -> Result<Vec<Term>> {
+        let mut lowered = Vec::with_capacity(args.len());
+        for (k, a) in args.iter().enumerate() {
+            self.scalar_argument(a, what)?;
+            let t = self.expr(a)?;
+            if k + 1 < args.len() && t.mentions_any_point() {
+                return Err(self
+                    .err(ErrorKind::Syntax, a.span, message.to_string())
+                    .with_label("depends on a point")
+                    .with_note(note.to_string()));
+            }
+            lowered.push(t);
+        }
+        Ok(lowered)
     }
 
     /// `f_bulk(Δ; ξ)` or `f_bdy(Δ̂; ξ)`, and their derivatives in ξ.
@@ -407,22 +420,12 @@ impl Lowerer {
         if c.primes > MAX_ORDER {
             return Err(self.too_many_derivatives(c.name.span));
         }
-        let mut lowered = Vec::with_capacity(3);
-        for (k, a) in c.args.iter().enumerate() {
-            self.scalar_argument(a, "an argument of the block")?;
-            let t = self.expr(a)?;
-            if k < 2 && t.mentions_any_point() {
-                return Err(self
-                    .err(
-                        ErrorKind::Syntax,
-                        a.span,
-                        "the dimensions of a block cannot depend on points",
-                    )
-                    .with_label("depends on a point")
-                    .with_note(form));
-            }
-            lowered.push(t);
-        }
+        let lowered = self.parameters_then_argument(
+            c.args,
+            "an argument of the block",
+            "the dimensions of a block cannot depend on points",
+            form,
+        )?;
         let [delta, delta12, chi] = <[Term; 3]>::try_from(lowered)
             .map_err(|_| Error::new(ErrorKind::Syntax, "the block takes three arguments"))?;
         let var = self.fresh_symbol("chi");
