@@ -283,7 +283,27 @@ fn factored_coefficients_round_trip() {
         "3 (g + 1)^(-2)/2",
         "(2 d^2 - 5 d + 3)/(d^2 + 1) |x1 - x2|^(-Delta)",
         "(d^2 - 1/4) g/(d - 3)",
+        // A denominator whose collected sum carries its sign outside,
+        // -(d - 1)^2, factors as the positive one does.
+        "1/(2 d - d^2 - 1)",
+        "g/(g^2 - 1) + 1/(g + 1)^2",
     ]);
+}
+
+#[test]
+fn normal_form_is_idempotent_on_factored_denominators() {
+    // Normalising twice gives the normal form again: the sum-cancelling
+    // step must not rebuild an expanded denominator.
+    for text in [
+        "(4 d - d^2 - 4)/(2 d - d^2 - 1)",
+        "1/(g^2 + 2 g + 1) - (g + 1)^(-2)",
+        "(d^2 - 4)/(d^2 - 4 d + 4)",
+    ] {
+        let p = program(&format!("dimension d\nparameters g\nsimplify {text}\n"));
+        let once = normalize(&p.ctx, &last_expr(&p)).expect("normalises");
+        let twice = normalize(&p.ctx, &once).expect("normalises");
+        assert_eq!(once, twice, "{text}");
+    }
 }
 
 #[test]

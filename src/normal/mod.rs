@@ -565,6 +565,34 @@ fn power(ctx: &Norm, b: &Term, e: &Term) -> Result<Vec<Mono>> {
         }
         return Ok(out);
     }
+    // A negative whole power of a polynomial in one symbol with rational
+    // roots is the product of its linear factors' powers, so that one
+    // rational function has one normal form: (g^2 + 2 g + 1)^(-1) and
+    // (g + 1)^(-2) are the same atom, and the division of `cancel` sees the
+    // factors. Exact for whole powers only ((a b)^q = a^q b^q needs a, b ≥ 0
+    // otherwise).
+    if q.is_integer() && q.is_negative() {
+        // The collected sum may carry its sign outside: -(d^2 - 2 d + 1).
+        let (sign, sum) = match collect(base.clone()) {
+            Term::Mul(fs) if fs.len() == 2 && matches!(fs[1], Term::Add(_)) => match &fs[..] {
+                [Term::Num(c), sum] => (c.clone(), sum.clone()),
+                _ => (BigRational::one(), Term::Mul(fs)),
+            },
+            other => (BigRational::one(), other),
+        };
+        if let Some((content, linear)) = crate::term::factor::factor_sum(&sum) {
+            let mut out = vec![Mono::scalar(content * sign).scalar_power(q)?];
+            for (factor, m) in linear {
+                let e = q * BigRational::from_integer(m.into());
+                let part = power(ctx, &factor, &Term::Num(e))?;
+                out = out
+                    .iter()
+                    .flat_map(|a| part.iter().map(|b| a.mul(b)))
+                    .collect();
+            }
+            return Ok(out);
+        }
+    }
     // A non-integer or negative power of a sum: the sum, in normal form, is
     // a scalar atom carrying the exponent, so (A)^(3/2) (A)^(-1) = (A)^(1/2).
     // Its content comes out first, (4 d - 4)^(-1) = (d - 1)^(-1)/4, so that

@@ -66,7 +66,15 @@ pub fn factored(t: &Term) -> Term {
                     );
                 }
             }
-            None => push(&mut out, base, exp),
+            None => match fraction_content(&base).zip(exp.to_integer().to_i32()) {
+                // `(2 g + 3)/2`, not `(g + 3/2)`: fractions come out of a sum.
+                Some(((content, whole), e)) if e > 0 => {
+                    changed = true;
+                    coefficient *= pow(&content, e);
+                    push(&mut out, whole, exp);
+                }
+                _ => push(&mut out, base, exp),
+            },
         }
     }
     if !changed {
@@ -87,6 +95,67 @@ pub fn factored(t: &Term) -> Term {
     match fs.len() {
         1 => fs.pop().unwrap_or_else(Term::one),
         _ => Term::Mul(fs),
+    }
+}
+
+/// A sum with a fractional coefficient as 1/L times the sum with whole
+/// coefficients, L the least common multiple of the denominators:
+/// `g + 3/2` = (1/2)(2 g + 3). `None` when every coefficient is whole.
+fn fraction_content(t: &Term) -> Option<(BigRational, Term)> {
+    let Term::Add(terms) = t else {
+        return None;
+    };
+    // Only coefficients such as `g + 3/2` or `d^2/4 - 1`: a long sum of
+    // functions reads better with its fractions where they are.
+    if !terms.iter().all(scalar_monomial) {
+        return None;
+    }
+    let coefficient = |t: &Term| match t {
+        Term::Num(c) => c.clone(),
+        Term::Mul(fs) => match fs.first() {
+            Some(Term::Num(c)) => c.clone(),
+            _ => BigRational::one(),
+        },
+        _ => BigRational::one(),
+    };
+    let lcm = terms
+        .iter()
+        .fold(BigInt::one(), |acc, t| acc.lcm(coefficient(t).denom()));
+    if lcm.is_one() {
+        return None;
+    }
+    let scale = BigRational::from_integer(lcm);
+    let scaled = terms
+        .iter()
+        .map(|t| {
+            let c = coefficient(t) * &scale;
+            let rest: Vec<Term> = match t {
+                Term::Num(_) => vec![],
+                Term::Mul(fs) if matches!(fs.first(), Some(Term::Num(_))) => fs[1..].to_vec(),
+                Term::Mul(fs) => fs.clone(),
+                other => vec![other.clone()],
+            };
+            let mut fs = Vec::new();
+            if !c.is_one() || rest.is_empty() {
+                fs.push(Term::Num(c));
+            }
+            fs.extend(rest);
+            match fs.len() {
+                1 => fs.pop().unwrap_or_else(Term::one),
+                _ => Term::Mul(fs),
+            }
+        })
+        .collect();
+    Some((scale.recip(), Term::Add(scaled)))
+}
+
+/// A number times powers of symbols.
+fn scalar_monomial(t: &Term) -> bool {
+    match t {
+        Term::Num(_) | Term::Sym(_) => true,
+        Term::Pow(b, e) => matches!((&**b, &**e), (Term::Sym(_), Term::Num(_))),
+        Term::Mul(fs) => fs.iter().all(scalar_monomial),
+        _ => false,
     }
 }
 
@@ -136,6 +205,11 @@ pub fn is_univariate(t: &Term) -> bool {
     polynomial(t).is_some()
 }
 
+/// The one symbol of a sum that is a polynomial in one symbol.
+pub fn univariate_symbol(t: &Term) -> Option<String> {
+    polynomial(t).map(|(s, _)| s)
+}
+
 /// Adds `base^exp` to a product, merging with an equal base.
 fn push(out: &mut Vec<(Term, BigRational)>, base: Term, exp: BigRational) {
     match out.iter_mut().find(|(b, _)| *b == base) {
@@ -160,7 +234,7 @@ fn pow(c: &BigRational, e: i32) -> BigRational {
 /// (and degree at least 2, or a content other than ±1): its content and its
 /// factors with multiplicities, linear ones monic (`d - 2`), the rest as a
 /// sum with a positive leading coefficient.
-fn factor_sum(t: &Term) -> Option<(BigRational, Vec<(Term, u32)>)> {
+pub(crate) fn factor_sum(t: &Term) -> Option<(BigRational, Vec<(Term, u32)>)> {
     let (symbol, mut coefs) = polynomial(t)?;
     let degree = coefs.len() - 1;
     // A linear sum is as short as it gets: `2 d - 3`, not `2 (d - 3/2)`.
@@ -321,8 +395,22 @@ fn rational_root(coefs: &[BigRational]) -> Option<BigRational> {
     None
 }
 
+/// The positive divisors of n ≥ 1, by trial division up to √n.
 fn divisors(n: i64) -> Vec<i64> {
-    (1..=n).filter(|k| n % k == 0).collect()
+    let mut small = Vec::new();
+    let mut large = Vec::new();
+    let mut k = 1i64;
+    while k * k <= n {
+        if n % k == 0 {
+            small.push(k);
+            if k * k != n {
+                large.push(n / k);
+            }
+        }
+        k += 1;
+    }
+    small.extend(large.into_iter().rev());
+    small
 }
 
 fn evaluate(coefs: &[BigRational], x: &BigRational) -> BigRational {

@@ -93,8 +93,15 @@ impl<'a> Printer<'a> {
     /// negative powers written as one denominator (`3 g/(7 (d + 2))`), then
     /// δ-functions, tensors and correlators.
     fn product(&self, t: &Term, out: &mut String) {
-        let Term::Mul(fs) = t else {
-            return self.factor(t, out);
+        let single;
+        let fs = match t {
+            Term::Mul(fs) => fs,
+            // A lone negative power prints as a fraction too: `1/(g + 1)^2`.
+            Term::Pow(_, e) if matches!(**e, Term::Num(ref q) if q.is_negative()) => {
+                single = [t.clone()];
+                &single[..]
+            }
+            _ => return self.factor(t, out),
         };
         let mut numer: Vec<Term> = Vec::new();
         let mut denom: Vec<Term> = Vec::new();
@@ -130,6 +137,20 @@ impl<'a> Printer<'a> {
                 _ => rest.push(f),
             }
         }
+        // `d/2` and `3 g/20`, not `1/2 d` and `3/20 g`.
+        if denom.is_empty() && numer.len() > 1 {
+            if let Some(Term::Num(c)) = numer.first() {
+                if !c.is_integer() {
+                    let (p, q) = (c.numer().clone(), c.denom().clone());
+                    denom.push(Term::Num(BigRational::from_integer(q)));
+                    if p.is_one() {
+                        numer.remove(0);
+                    } else {
+                        numer[0] = Term::Num(BigRational::from_integer(p));
+                    }
+                }
+            }
+        }
         if !denom.is_empty() {
             // `1/(2 y)`, not `1/2/y`: the denominator of a fraction joins
             // the others below the line.
@@ -143,7 +164,7 @@ impl<'a> Printer<'a> {
             // A power of a sum shares the line only with nothing: read back,
             // `1/(2 (d - 1)^2)` would expand the square, so it stays above
             // as `(d - 1)^(-2)` when anything else is below.
-            if denom.len() > 1 {
+            if denom.len() > 1 && !one_symbol_sums(&denom) {
                 let (powers, others): (Vec<Term>, Vec<Term>) = denom
                     .into_iter()
                     .partition(|f| matches!(f, Term::Pow(b, _) if matches!(**b, Term::Add(_))));
@@ -187,7 +208,7 @@ impl<'a> Printer<'a> {
             .count();
         match denom.len() {
             0 => {}
-            _ if denom.len() == 1 || sums > 1 => {
+            _ if denom.len() == 1 || (sums > 1 && !one_symbol_sums(&denom)) => {
                 for f in &denom {
                     out.push('/');
                     self.factor(f, out);
@@ -440,6 +461,32 @@ impl<'a> Printer<'a> {
 }
 
 /// Splits a leading negative coefficient off a product.
+/// True when every sum below the line (or base of a power there) is a
+/// polynomial in one and the same symbol: such a denominator reads back as
+/// written, because the normaliser factors a negative power of a
+/// polynomial in one symbol into its linear factors, so `/((g - 1) (g +
+/// 1)^2)` may share one bracket. Sums in several symbols would read back as
+/// the inverse of their expanded product.
+fn one_symbol_sums(denom: &[Term]) -> bool {
+    let mut symbol: Option<String> = None;
+    for f in denom {
+        let base = match f {
+            Term::Pow(b, _) => &**b,
+            other => other,
+        };
+        if !matches!(base, Term::Add(_)) {
+            continue;
+        }
+        let Some(s) = super::factor::univariate_symbol(base) else {
+            return false;
+        };
+        if symbol.get_or_insert_with(|| s.clone()) != &s {
+            return false;
+        }
+    }
+    true
+}
+
 fn split_sign(t: &Term) -> (bool, Term) {
     match t {
         Term::Num(c) if c.is_negative() => (true, Term::Num(-c)),
