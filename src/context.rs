@@ -132,6 +132,10 @@ pub struct Context {
     /// Coordinates that depend on parameters (`place x at (0, 0, h)`),
     /// worked out by the numeric layer; these points are not in `positions`.
     pub moving: BTreeMap<String, Vec<Term>>,
+    /// The pairs of points whose cross-ratio the file writes as
+    /// `xi(p, q)` (the lower-ranked point first): results print the
+    /// cross-ratio of these pairs as `xi(p, q)` again.
+    pub cross_ratios: BTreeSet<(crate::term::Point, crate::term::Point)>,
 }
 
 impl Context {

@@ -751,6 +751,9 @@ impl Lowerer {
         }
         // ξ = |p - q|² / (4 y_p y_q).
         let (a, b) = if p < q { (p, q) } else { (q, p) };
+        self.cross_ratios
+            .borrow_mut()
+            .insert((a.clone(), b.clone()));
         Ok(Term::Mul(vec![
             Term::Pow(
                 Box::new(Term::Dist(a.clone(), b.clone())),

@@ -164,6 +164,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
         nodes: std::cell::Cell::new(0),
         numeric: NumericSpec::default(),
         scope: explicit::Scope::new(file),
+        cross_ratios: Default::default(),
     };
     lowerer.ctx.add_builtins();
     lowerer.collect_indices(file);
@@ -664,6 +665,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
             decl => lowerer.declare(decl)?,
         }
     }
+    lowerer.ctx.cross_ratios = lowerer.cross_ratios.take();
     Ok(Program {
         source: source.clone(),
         ctx: Arc::new(lowerer.ctx),
@@ -729,6 +731,8 @@ struct Lowerer {
     scope: explicit::Scope,
     /// Numeric set-up gathered from `model`, `coefficient` and `values`.
     numeric: NumericSpec,
+    /// The pairs written as `xi(p, q)`, for [`Context::cross_ratios`].
+    cross_ratios: std::cell::RefCell<std::collections::BTreeSet<(Point, Point)>>,
 }
 
 impl Lowerer {

@@ -149,6 +149,206 @@ fn fraction_content(t: &Term) -> Option<(BigRational, Term)> {
     Some((scale.recip(), Term::Add(scaled)))
 }
 
+/// An exponent as a rational multiple of a symbolic rest: `2 Delta` is
+/// (2, Delta), `3` is (3, none).
+fn scaled(e: &Term) -> (BigRational, Option<Term>) {
+    match e {
+        Term::Num(c) => (c.clone(), None),
+        Term::Mul(fs) => match fs.split_first() {
+            Some((Term::Num(c), rest)) => (
+                c.clone(),
+                Some(match rest {
+                    [one] => one.clone(),
+                    _ => Term::Mul(rest.to_vec()),
+                }),
+            ),
+            _ => (BigRational::one(), Some(e.clone())),
+        },
+        other => (BigRational::one(), Some(other.clone())),
+    }
+}
+
+fn unscaled(c: BigRational, rest: Option<Term>) -> Term {
+    match rest {
+        None => Term::Num(c),
+        Some(r) if c.is_one() => r,
+        Some(Term::Mul(mut fs)) => {
+            fs.insert(0, Term::Num(c));
+            Term::Mul(fs)
+        }
+        Some(r) => Term::Mul(vec![Term::Num(c), r]),
+    }
+}
+
+/// The normal form of ξ(p, q) = |p - q|²/(4 p[n] q[n]), which
+/// [`cross_ratio_points`] recognises and the printers write `xi(p, q)`.
+fn cross_ratio_term(p: &super::Point, q: &super::Point) -> Term {
+    let height = |a: &super::Point| {
+        Term::Pow(
+            Box::new(Term::Comp(a.clone(), super::Index::N)),
+            Box::new(Term::int(-1)),
+        )
+    };
+    Term::Mul(vec![
+        Term::Num(BigRational::new(1.into(), 4.into())),
+        Term::Pow(
+            Box::new(Term::Dist(p.clone(), q.clone())),
+            Box::new(Term::int(2)),
+        ),
+        height(p),
+        height(q),
+    ])
+}
+
+/// A product with the cross-ratio of each written pair taken back out of
+/// its expansion, for display: |p - q|^(2a) p[n]^(-a) q[n]^(-a) (1/4)^a is
+/// printed `xi(p, q)^(a)`, and with a number a the heights may keep a
+/// remainder of the same sign (`|p - q|^2/(4 p[n]^2 q[n])` is
+/// `xi(p, q)/p[n]`). The result reads back to the same normal form.
+pub fn with_cross_ratios(
+    t: &Term,
+    pairs: &std::collections::BTreeSet<(super::Point, super::Point)>,
+) -> Term {
+    if pairs.is_empty() {
+        return t.clone();
+    }
+    let mut fs: Vec<Term> = match t {
+        Term::Mul(fs) => fs.clone(),
+        _ => return t.clone(),
+    };
+    let mut changed = false;
+    for (p, q) in pairs {
+        if let Some(next) = take_cross_ratio(&fs, p, q) {
+            fs = next;
+            changed = true;
+        }
+    }
+    if changed {
+        Term::Mul(fs)
+    } else {
+        t.clone()
+    }
+}
+
+/// One pair's ξ out of the factors, or `None` when it does not fit.
+fn take_cross_ratio(fs: &[Term], p: &super::Point, q: &super::Point) -> Option<Vec<Term>> {
+    let position = |want: &dyn Fn(&Term) -> bool| {
+        fs.iter().position(|f| match f {
+            Term::Pow(b, _) => want(b),
+            other => want(other),
+        })
+    };
+    let exponent = |f: &Term| match f {
+        Term::Pow(_, e) => (**e).clone(),
+        _ => Term::one(),
+    };
+    let dist = position(&|b| matches!(b, Term::Dist(a, c) if a == p && c == q))?;
+    let yp = position(&|b| matches!(b, Term::Comp(a, super::Index::N) if a == p))?;
+    let yq = position(&|b| matches!(b, Term::Comp(a, super::Index::N) if a == q))?;
+    let (c, rest) = scaled(&exponent(&fs[dist]));
+    let a = (c / BigRational::from_integer(2.into()), rest);
+    let (cp, rp) = scaled(&exponent(&fs[yp]));
+    let (cq, rq) = scaled(&exponent(&fs[yq]));
+    let mut out: Vec<Term> = Vec::new();
+    let mut coefficient: Option<BigRational> = None;
+    let mut heights: Vec<(usize, BigRational)> = Vec::new();
+    match &a.1 {
+        None => {
+            // A number: the heights keep what is left, of the same sign.
+            let k = &a.0;
+            if !(k * BigRational::from_integer(2.into())).is_integer() {
+                return None;
+            }
+            for (i, (ci, ri)) in [(yp, (&cp, &rp)), (yq, (&cq, &rq))] {
+                let left = ci + k;
+                if ri.is_some() || (!left.is_zero() && left.is_positive() == k.is_positive()) {
+                    return None;
+                }
+                heights.push((i, left));
+            }
+            // 4^a = 2^(2a), a whole power of two.
+            let two = BigRational::from_integer(2.into());
+            let e = (k * &two).to_integer().to_i32()?;
+            coefficient = Some(pow(&two, e));
+        }
+        Some(r) => {
+            // A symbolic power: the heights carry exactly -a, and a factor
+            // (1/4)^a (or 4^(-a), 2^(-2a), (1/2)^(2a)) is there.
+            let minus = (-a.0.clone(), Some(r.clone()));
+            if (cp.clone(), rp.clone()) != minus || (cq.clone(), rq.clone()) != minus {
+                return None;
+            }
+            heights.push((yp, BigRational::zero()));
+            heights.push((yq, BigRational::zero()));
+            let four = fs.iter().position(|f| match f {
+                Term::Pow(b, e) => match &**b {
+                    Term::Num(base) => {
+                        let (ce, re) = scaled(e);
+                        let want = |m: i64, base_num: i64, base_den: i64| {
+                            *base == BigRational::new(base_num.into(), base_den.into())
+                                && re.as_ref() == Some(r)
+                                && ce == &a.0 * BigRational::from_integer(m.into())
+                        };
+                        want(1, 1, 4) || want(-1, 4, 1) || want(-2, 2, 1) || want(2, 1, 2)
+                    }
+                    _ => false,
+                },
+                _ => false,
+            })?;
+            heights.push((four, BigRational::zero()));
+        }
+    }
+    let xi = cross_ratio_term(p, q);
+    let power = unscaled(a.0.clone(), a.1.clone());
+    let xi_power = if matches!(&power, Term::Num(c) if c.is_one()) {
+        xi
+    } else {
+        Term::Pow(Box::new(xi), Box::new(power))
+    };
+    let mut placed = false;
+    for (i, f) in fs.iter().enumerate() {
+        if i == dist {
+            continue;
+        }
+        if let Some((_, left)) = heights.iter().find(|(j, _)| *j == i) {
+            if !left.is_zero() {
+                let base = match f {
+                    Term::Pow(b, _) => (**b).clone(),
+                    other => other.clone(),
+                };
+                out.push(if left.is_one() {
+                    base
+                } else {
+                    Term::Pow(Box::new(base), Box::new(Term::Num(left.clone())))
+                });
+            }
+            continue;
+        }
+        if let (Some(c), Term::Num(n)) = (&coefficient, f) {
+            let value = n * c;
+            if !value.is_one() {
+                out.push(Term::Num(value));
+            }
+            coefficient = None;
+            continue;
+        }
+        if !placed && !matches!(f, Term::Num(_)) {
+            out.push(xi_power.clone());
+            placed = true;
+        }
+        out.push(f.clone());
+    }
+    if let Some(c) = coefficient {
+        if !c.is_one() {
+            out.insert(0, Term::Num(c));
+        }
+    }
+    if !placed {
+        out.push(xi_power);
+    }
+    Some(out)
+}
+
 /// A number times powers of symbols.
 fn scalar_monomial(t: &Term) -> bool {
     match t {

@@ -55,7 +55,7 @@ impl<'a> Printer<'a> {
             .iter()
             .enumerate()
             .map(|(i, term)| {
-                let (negative, magnitude) = split_sign(&super::factor::factored(term));
+                let (negative, magnitude) = split_sign(&self.display(term));
                 let mut out = String::from(match (i, negative) {
                     (_, true) => "- ",
                     (0, false) => "",
@@ -65,6 +65,26 @@ impl<'a> Printer<'a> {
                 out
             })
             .collect()
+    }
+
+    /// A term of a sum as it is shown: coefficients factored, written
+    /// cross-ratios taken back out of their expansion.
+    fn display(&self, term: &Term) -> Term {
+        super::factor::with_cross_ratios(&super::factor::factored(term), &self.ctx.cross_ratios)
+    }
+
+    /// `xi(p, q)` for the normal form of a cross-ratio.
+    fn cross_ratio(&self, t: &Term, out: &mut String) -> bool {
+        let Some((p, q)) = super::factor::cross_ratio_points(t) else {
+            return false;
+        };
+        out.push_str("xi");
+        out.push('(');
+        self.point(p, out);
+        out.push_str(", ");
+        self.point(q, out);
+        out.push(')');
+        true
     }
 
     fn unicode(&self) -> bool {
@@ -78,7 +98,7 @@ impl<'a> Printer<'a> {
             _ => vec![t],
         };
         for (i, term) in terms.iter().enumerate() {
-            let (negative, magnitude) = split_sign(&super::factor::factored(term));
+            let (negative, magnitude) = split_sign(&self.display(term));
             match (i, negative) {
                 (0, true) => out.push_str("- "),
                 (0, false) => {}
@@ -233,6 +253,9 @@ impl<'a> Printer<'a> {
 
     /// One factor of a product: sums and negative numbers get parentheses.
     fn factor(&self, t: &Term, out: &mut String) {
+        if self.cross_ratio(t, out) {
+            return;
+        }
         match t {
             Term::Add(_) | Term::Mul(_) => {
                 out.push('(');
@@ -254,6 +277,7 @@ impl<'a> Printer<'a> {
             Term::Sym(s) => out.push_str(s),
             Term::Pow(b, e) => {
                 match **b {
+                    _ if super::factor::cross_ratio_points(b).is_some() => self.factor(b, out),
                     Term::Sym(_)
                     | Term::Dist(..)
                     | Term::Fun(..)
