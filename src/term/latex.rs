@@ -110,7 +110,9 @@ fn sum(ctx: &Context, t: &Term, out: &mut String) {
         _ => vec![t],
     };
     for (i, term) in terms.iter().enumerate() {
-        let (negative, magnitude) = split_sign(&super::factor::factored(term));
+        let shown =
+            super::factor::with_cross_ratios(&super::factor::factored(term), &ctx.cross_ratios);
+        let (negative, magnitude) = split_sign(&shown);
         match (i, negative) {
             (0, true) => out.push('-'),
             (0, false) => {}
@@ -158,6 +160,14 @@ fn product(ctx: &Context, t: &Term, out: &mut String) {
             numer.insert(0, Term::Num(BigRational::from_integer(c.numer().clone())));
         }
         denom.insert(0, Term::Num(BigRational::from_integer(c.denom().clone())));
+        coefficient = None;
+    }
+    // A whole coefficient joins the numerator too: \frac{2 g}{d - 1}.
+    if let Some(c) = coefficient
+        .clone()
+        .filter(|c| c.is_integer() && !c.is_one() && !denom.is_empty())
+    {
+        numer.insert(0, Term::Num(c));
         coefficient = None;
     }
     let alone = numer.is_empty() && denom.is_empty() && trailing.is_empty();
@@ -209,6 +219,9 @@ fn is_operator(t: &Term) -> bool {
 }
 
 fn factor(ctx: &Context, t: &Term, out: &mut String) {
+    if cross_ratio(ctx, t, out) {
+        return;
+    }
     match t {
         Term::Add(_) | Term::Mul(_) => {
             out.push_str("\\left(");
@@ -226,6 +239,14 @@ fn atom(ctx: &Context, t: &Term, out: &mut String) {
         Term::Sym(s) => out.push_str(&name(s)),
         Term::Pow(b, e) => {
             match **b {
+                _ if cross_ratio(ctx, b, out) => {}
+                // (1/4)^{Δ}, (-2)^{k}: a fraction or a sign under a power
+                // needs its brackets.
+                Term::Num(ref c) if !c.is_integer() || c.is_negative() => {
+                    out.push_str("\\left(");
+                    out.push_str(&number(c));
+                    out.push_str("\\right)");
+                }
                 Term::Add(_) | Term::Mul(_) => {
                     out.push_str("\\left(");
                     sum(ctx, b, out);
@@ -304,6 +325,17 @@ fn atom(ctx: &Context, t: &Term, out: &mut String) {
             out.push_str(&parts.join("\\, "));
             out.push_str(" \\rangle");
         }
+    }
+}
+
+/// `\xi(p, q)` for the normal form of a cross-ratio in a half-space.
+fn cross_ratio(ctx: &Context, t: &Term, out: &mut String) -> bool {
+    match super::factor::cross_ratio_points(t) {
+        Some((p, q)) if ctx.has_halfspace() => {
+            out.push_str(&format!("\\xi({}, {})", wrap(&point(p)), wrap(&point(q))));
+            true
+        }
+        _ => false,
     }
 }
 
