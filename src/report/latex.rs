@@ -148,13 +148,12 @@ fn tex(e: &Expr) -> String {
 
 fn statement(out: &mut String, s: &Statement) {
     let input: String = s.input.chars().take(COMMENT_WIDTH).collect();
-    let _ = writeln!(
-        out,
-        "% line {}: {} {}",
-        s.line,
-        s.keyword(),
-        comment(&input)
-    );
+    // Some statements keep their keyword in the input text.
+    let keyword = match input.strip_prefix(s.keyword()) {
+        Some(rest) if rest.starts_with(' ') => String::new(),
+        _ => format!("{} ", s.keyword()),
+    };
+    let _ = writeln!(out, "% line {}: {keyword}{}", s.line, comment(&input));
     if let Some(sample) = &s.sample {
         let points: Vec<String> = sample
             .points
