@@ -607,6 +607,13 @@ impl Text {
             abbreviate(input, INPUT_WIDTH)
         );
         let n = scan.rows.len();
+        if n > 0 {
+            let _ = writeln!(
+                self.out,
+                "  columns: {}, then left side | right side | relative difference",
+                scan.param
+            );
+        }
         let shown: Vec<usize> = if n <= 21 {
             (0..n).collect()
         } else {
