@@ -129,6 +129,142 @@ pub fn normalize_pointwise(ctx: &Context, t: &Term) -> Result<Term> {
     normalize_in(&cx, t)
 }
 
+/// The normal form of a sum of products, `Σ_k Π_j products[k][j]`, as a
+/// function at distinct points: the same term as [`normalize_pointwise`]
+/// of the sum written out, computed with less repeated work (a Wick
+/// expansion is such a sum, its factors the propagators). Each distinct
+/// factor is expanded once; the monomials of a product are multiplied
+/// group by group (monomials with the same non-scalar factors together),
+/// with like monomials merged after every factor; like monomials of all
+/// products are merged before the index algebra, which then runs once per
+/// distinct list of factors. This is the same result because the index
+/// algebra and the canonical renaming act on the non-scalar factors and
+/// only multiply the coefficient (they are linear in it): merging before
+/// them or after them gives the same sums.
+pub fn normalize_products_pointwise(ctx: &Context, products: &[Vec<Term>]) -> Result<Term> {
+    let _work = crate::budget::Work::enter();
+    let cx = Norm {
+        pointwise: true,
+        ..Norm::new(ctx)
+    };
+    // A polynomial in the scalar atoms, with exact coefficients.
+    type Poly = std::collections::HashMap<Atoms, BigRational>;
+    // The monomials of each distinct factor, grouped by their non-scalar
+    // factors.
+    let mut expanded: std::collections::HashMap<&Term, Vec<(Vec<Term>, Poly)>> =
+        std::collections::HashMap::new();
+    // Every product's monomials, merged: factors → polynomial.
+    let mut pending: std::collections::HashMap<Vec<Term>, Poly> = std::collections::HashMap::new();
+    for product in products {
+        let mut acc: Vec<(Vec<Term>, Poly)> =
+            vec![(Vec::new(), Poly::from([(Atoms::new(), BigRational::one())]))];
+        for t in product {
+            if !expanded.contains_key(t) {
+                let mut groups: Vec<(Vec<Term>, Poly)> = Vec::new();
+                for m in expand(&cx, t)? {
+                    let slot = match groups.iter().position(|(f, _)| *f == m.factors) {
+                        Some(k) => k,
+                        None => {
+                            groups.push((m.factors, Poly::new()));
+                            groups.len() - 1
+                        }
+                    };
+                    *groups[slot]
+                        .1
+                        .entry(m.atoms)
+                        .or_insert_with(BigRational::zero) += m.coef;
+                }
+                for (_, poly) in &mut groups {
+                    poly.retain(|_, c| !c.is_zero());
+                }
+                groups.retain(|(_, poly)| !poly.is_empty());
+                expanded.insert(t, groups);
+            }
+            let groups = &expanded[t];
+            let mut next: Vec<(Vec<Term>, Poly)> = Vec::new();
+            let mut count = 0usize;
+            for (fa, pa) in &acc {
+                for (fb, pb) in groups {
+                    let mut factors = fa.clone();
+                    factors.extend(fb.iter().cloned());
+                    let slot = match next.iter().position(|(f, _)| *f == factors) {
+                        Some(k) => k,
+                        None => {
+                            next.push((factors, Poly::new()));
+                            next.len() - 1
+                        }
+                    };
+                    let poly = &mut next[slot].1;
+                    count = count.saturating_add(pa.len().saturating_mul(pb.len()));
+                    for (aa, ca) in pa {
+                        for (ab, cb) in pb {
+                            let atoms = multiply_atoms(aa, ab);
+                            *poly.entry(atoms).or_insert_with(BigRational::zero) += ca * cb;
+                        }
+                    }
+                }
+            }
+            crate::budget::spend(count)?;
+            for (_, poly) in &mut next {
+                poly.retain(|_, c| !c.is_zero());
+                if poly
+                    .values()
+                    .any(|c| crate::budget::bits(c) > crate::budget::MAX_BITS)
+                {
+                    let monos: Vec<Mono> = poly
+                        .iter()
+                        .map(|(a, c)| Mono {
+                            coef: c.clone(),
+                            atoms: a.clone(),
+                            factors: Vec::new(),
+                        })
+                        .collect();
+                    crate::budget::coefficients(&monos)?;
+                }
+            }
+            next.retain(|(_, poly)| !poly.is_empty());
+            acc = next;
+            if acc.is_empty() {
+                break;
+            }
+        }
+        for (factors, poly) in acc {
+            let slot = pending.entry(factors).or_default();
+            for (atoms, c) in poly {
+                *slot.entry(atoms).or_insert_with(BigRational::zero) += c;
+            }
+        }
+    }
+    let mut monos = Vec::new();
+    for (factors, poly) in pending {
+        for (atoms, coef) in poly {
+            if !coef.is_zero() {
+                monos.push(Mono {
+                    coef,
+                    atoms,
+                    factors: factors.clone(),
+                });
+            }
+        }
+    }
+    Ok(collect(merge(canonical(&cx, monos))))
+}
+
+/// The product of two monomials' atoms (exponents added, zeros dropped),
+/// as [`Mono::mul`] forms it.
+fn multiply_atoms(a: &Atoms, b: &Atoms) -> Atoms {
+    let (small, large) = if a.len() < b.len() { (a, b) } else { (b, a) };
+    let mut atoms = large.clone();
+    for (k, e) in small {
+        let slot = atoms.entry(k.clone()).or_insert_with(BigRational::zero);
+        *slot += e;
+        if slot.is_zero() {
+            atoms.remove(k);
+        }
+    }
+    atoms
+}
+
 /// The declarations of a file while one term is normalised, and what the
 /// derivatives of explicit functions found on the way.
 pub struct Norm<'c> {
