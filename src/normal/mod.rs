@@ -235,19 +235,76 @@ pub fn normalize_products_pointwise(ctx: &Context, products: &[Vec<Term>]) -> Re
             }
         }
     }
-    let mut monos = Vec::new();
+    // The index algebra once per list of factors ([`contracted`] without
+    // its memo), the canonical names once per contracted list; then each
+    // coefficient and atoms as [`canonical`] treats them.
+    let mut out = Vec::new();
     for (factors, poly) in pending {
-        for (atoms, coef) in poly {
-            if !coef.is_zero() {
-                monos.push(Mono {
+        let poly = poly.into_iter().filter(|(_, c)| !c.is_zero());
+        if factors.is_empty() || factors.iter().any(|f| matches!(f, Term::DeltaY(_))) {
+            let monos = poly
+                .map(|(atoms, coef)| Mono {
                     coef,
                     atoms,
                     factors: factors.clone(),
-                });
+                })
+                .collect();
+            out.extend(canonical(&cx, monos));
+            continue;
+        }
+        let done = contract::contract(
+            &cx,
+            Mono {
+                coef: BigRational::one(),
+                atoms: Atoms::new(),
+                factors,
+            },
+        );
+        let done: Vec<(Mono, Option<(bool, Vec<Term>)>)> = done
+            .into_iter()
+            .map(|s| {
+                let renamed = contract::dummies_renamed(&cx, s.factors.clone());
+                (s, renamed)
+            })
+            .collect();
+        for (atoms, coef) in poly {
+            let rest = Mono {
+                coef,
+                atoms,
+                factors: Vec::new(),
+            };
+            for (s, renamed) in &done {
+                match renamed {
+                    Some((negate, factors)) => {
+                        let scalar = Mono {
+                            coef: s.coef.clone(),
+                            atoms: s.atoms.clone(),
+                            factors: Vec::new(),
+                        };
+                        let m = rest.mul(&scalar);
+                        let mut m = match combine_powers(&cx, m.clone()) {
+                            Ok(combined) => combined,
+                            Err(_) => m,
+                        };
+                        if *negate {
+                            m.coef = -m.coef;
+                        }
+                        m.factors = factors.clone();
+                        out.push(m);
+                    }
+                    None => {
+                        let m = rest.mul(s);
+                        let m = match combine_powers(&cx, m.clone()) {
+                            Ok(combined) => combined,
+                            Err(_) => m,
+                        };
+                        out.push(contract::canonical_dummies(&cx, m));
+                    }
+                }
             }
         }
     }
-    Ok(collect(merge(canonical(&cx, monos))))
+    Ok(collect(merge(out)))
 }
 
 /// The product of two monomials' atoms (exponents added, zeros dropped),
@@ -265,6 +322,46 @@ fn multiply_atoms(a: &Atoms, b: &Atoms) -> Atoms {
     atoms
 }
 
+/// Derivatives of explicit functions already expanded, by term, shared by
+/// pointwise normalisations in one file's context
+/// ([`normalize_pointwise_with`]): the derivatives of one propagator taken
+/// in many orders and combinations share their inner derivatives.
+#[derive(Debug, Default)]
+pub struct Derivatives {
+    expanded: std::sync::Mutex<std::collections::HashMap<Term, Vec<Mono>>>,
+}
+
+impl Derivatives {
+    fn get(&self, t: &Term) -> Option<Vec<Mono>> {
+        self.expanded.lock().ok()?.get(t).cloned()
+    }
+
+    fn put(&self, t: &Term, monos: &[Mono]) {
+        if let Ok(mut map) = self.expanded.lock() {
+            // A bound on memory: the memo is a cache, not a record.
+            if map.len() > 4096 {
+                map.clear();
+            }
+            map.insert(t.clone(), monos.to_vec());
+        }
+    }
+}
+
+/// [`normalize_pointwise`], with the derivatives expanded on the way
+/// remembered in `derivatives` (which must only ever serve `ctx`'s file).
+pub fn normalize_pointwise_with(
+    ctx: &Context,
+    t: &Term,
+    derivatives: &Derivatives,
+) -> Result<Term> {
+    let cx = Norm {
+        pointwise: true,
+        derivatives: Some(derivatives),
+        ..Norm::new(ctx)
+    };
+    normalize_in(&cx, t)
+}
+
 /// The declarations of a file while one term is normalised, and what the
 /// derivatives of explicit functions found on the way.
 pub struct Norm<'c> {
@@ -279,6 +376,8 @@ pub struct Norm<'c> {
     /// The index algebra already applied, by the factors of a monomial
     /// (see [`contracted`]).
     contracted: std::cell::RefCell<std::collections::HashMap<Vec<Term>, Vec<Mono>>>,
+    /// Derivatives expanded in earlier pointwise normalisations.
+    derivatives: Option<&'c Derivatives>,
 }
 
 impl<'c> Norm<'c> {
@@ -290,6 +389,7 @@ impl<'c> Norm<'c> {
             pointwise: false,
             powers: Default::default(),
             contracted: Default::default(),
+            derivatives: None,
         }
     }
 
@@ -529,8 +629,16 @@ fn expand(ctx: &Norm, t: &Term) -> Result<Vec<Mono>> {
             vec![Mono::factor(Term::Corr(ops))]
         }
         Term::Der(i, p, body) => {
+            // Only pointwise: elsewhere a derivative records caveats.
+            let memo = ctx.derivatives.filter(|_| ctx.pointwise);
+            if let Some(known) = memo.and_then(|m| m.get(t)) {
+                return Ok(known);
+            }
             let d = distribution::differentiate(ctx, i, p, expand(ctx, body)?)?;
             crate::budget::spend(d.len())?;
+            if let Some(m) = memo {
+                m.put(t, &d);
+            }
             d
         }
         Term::Dist(p, q) => {

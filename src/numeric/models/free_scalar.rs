@@ -57,7 +57,10 @@ use super::{describe_op, index_names, node_count, rename_indices, substitute_poi
 use crate::budget::Pairings;
 use crate::context::{Context, DISPLACEMENT, STRESS_TENSOR};
 use crate::diagnostic::Result;
-use crate::normal::{normalize_pointwise as normalize, normalize_products_pointwise};
+use crate::normal::{
+    normalize_pointwise as normalize, normalize_pointwise_with, normalize_products_pointwise,
+    Derivatives,
+};
 use crate::term::{Index, Op, Point, Term};
 
 /// The boundary condition at y = 0.
@@ -289,6 +292,8 @@ pub struct FreeScalar {
 struct Memory {
     correlators: Mutex<HashMap<Vec<Op>, Term>>,
     contractions: Mutex<HashMap<SharedKey, Option<Contracted>>>,
+    /// The propagators' derivatives, expanded.
+    derivatives: Derivatives,
 }
 
 /// What determines a contraction across correlators: each end's point and
@@ -673,7 +678,10 @@ impl FreeScalar {
         for i in a.derivs.iter().rev() {
             t = Term::Der(i.clone(), a.point.clone(), Box::new(t));
         }
-        let split = normalize(ctx, &t)?;
+        let split = match &self.memory {
+            Some(memory) => normalize_pointwise_with(ctx, &t, &memory.derivatives)?,
+            None => normalize(ctx, &t)?,
+        };
         let back = BTreeMap::from([
             (a.point.name.clone(), ops[a.op].point.clone()),
             (b.point.name.clone(), ops[b.op].point.clone()),
