@@ -237,8 +237,17 @@ pub fn normalize_products_pointwise(ctx: &Context, products: &[Vec<Term>]) -> Re
     }
     // The index algebra once per list of factors ([`contracted`] without
     // its memo), the canonical names once per contracted list; then each
-    // coefficient and atoms as [`canonical`] treats them.
-    let mut out = Vec::new();
+    // coefficient and atoms as [`canonical`] treats them, summed by their
+    // factors (`collect` sums like monomials itself, so this is `merge`
+    // done a list of factors at a time).
+    let mut sums: std::collections::HashMap<Vec<Term>, Poly> = std::collections::HashMap::new();
+    let add_to = |sums: &mut std::collections::HashMap<Vec<Term>, Poly>, m: Mono| {
+        *sums
+            .entry(m.factors)
+            .or_default()
+            .entry(m.atoms)
+            .or_insert_with(BigRational::zero) += m.coef;
+    };
     for (factors, poly) in pending {
         let poly = poly.into_iter().filter(|(_, c)| !c.is_zero());
         if factors.is_empty() || factors.iter().any(|f| matches!(f, Term::DeltaY(_))) {
@@ -249,7 +258,9 @@ pub fn normalize_products_pointwise(ctx: &Context, products: &[Vec<Term>]) -> Re
                     factors: factors.clone(),
                 })
                 .collect();
-            out.extend(canonical(&cx, monos));
+            for m in canonical(&cx, monos) {
+                add_to(&mut sums, m);
+            }
             continue;
         }
         let done = contract::contract(
@@ -267,44 +278,62 @@ pub fn normalize_products_pointwise(ctx: &Context, products: &[Vec<Term>]) -> Re
                 (s, renamed)
             })
             .collect();
-        for (atoms, coef) in poly {
-            let rest = Mono {
-                coef,
-                atoms,
+        let poly: Vec<(Atoms, BigRational)> = poly.collect();
+        for (s, renamed) in &done {
+            let Some((negate, factors)) = renamed else {
+                for (atoms, coef) in &poly {
+                    let rest = Mono {
+                        coef: coef.clone(),
+                        atoms: atoms.clone(),
+                        factors: Vec::new(),
+                    };
+                    let m = rest.mul(s);
+                    let m = match combine_powers(&cx, m.clone()) {
+                        Ok(combined) => combined,
+                        Err(_) => m,
+                    };
+                    add_to(&mut sums, contract::canonical_dummies(&cx, m));
+                }
+                continue;
+            };
+            let scalar = Mono {
+                coef: if *negate {
+                    -s.coef.clone()
+                } else {
+                    s.coef.clone()
+                },
+                atoms: s.atoms.clone(),
                 factors: Vec::new(),
             };
-            for (s, renamed) in &done {
-                match renamed {
-                    Some((negate, factors)) => {
-                        let scalar = Mono {
-                            coef: s.coef.clone(),
-                            atoms: s.atoms.clone(),
-                            factors: Vec::new(),
-                        };
-                        let m = rest.mul(&scalar);
-                        let mut m = match combine_powers(&cx, m.clone()) {
-                            Ok(combined) => combined,
-                            Err(_) => m,
-                        };
-                        if *negate {
-                            m.coef = -m.coef;
-                        }
-                        m.factors = factors.clone();
-                        out.push(m);
-                    }
-                    None => {
-                        let m = rest.mul(s);
-                        let m = match combine_powers(&cx, m.clone()) {
-                            Ok(combined) => combined,
-                            Err(_) => m,
-                        };
-                        out.push(contract::canonical_dummies(&cx, m));
-                    }
-                }
+            let slot = sums.entry(factors.clone()).or_default();
+            for (atoms, coef) in &poly {
+                let rest = Mono {
+                    coef: coef.clone(),
+                    atoms: atoms.clone(),
+                    factors: Vec::new(),
+                };
+                let m = rest.mul(&scalar);
+                let m = match combine_powers(&cx, m.clone()) {
+                    Ok(combined) => combined,
+                    Err(_) => m,
+                };
+                *slot.entry(m.atoms).or_insert_with(BigRational::zero) += m.coef;
             }
         }
     }
-    Ok(collect(merge(out)))
+    let mut out = Vec::new();
+    for (factors, poly) in sums {
+        for (atoms, coef) in poly {
+            if !coef.is_zero() {
+                out.push(Mono {
+                    coef,
+                    atoms,
+                    factors: factors.clone(),
+                });
+            }
+        }
+    }
+    Ok(collect(out))
 }
 
 /// The product of two monomials' atoms (exponents added, zeros dropped),
