@@ -271,7 +271,9 @@ pub fn normalize_products_pointwise(ctx: &Context, products: &[Vec<Term>]) -> Re
                 factors,
             },
         );
-        let done: Vec<(Mono, Option<(bool, Vec<Term>)>)> = done
+        // Each contracted monomial with its renaming (sign, factors).
+        type Renamed = Option<(bool, Vec<Term>)>;
+        let done: Vec<(Mono, Renamed)> = done
             .into_iter()
             .map(|s| {
                 let renamed = contract::dummies_renamed(&cx, s.factors.clone());
