@@ -4,14 +4,15 @@
 //! `check` (the C_T and C_D files compare with the known value; ⟨D D D⟩ is
 //! evaluated), and next to a reflecting wall (docs/conventions.md §11):
 //! b1 from ⟨D D D⟩ at ρ = 1/3, and a 50-point scan of C_D(g) with the
-//! wall coupled to χ. Positions are invented.
+//! wall coupled to χ. Positions are invented. `free_scalar_files` times
+//! the slowest shipped files that use the free scalar, whole.
 //!
 //! Run with `cargo bench --bench wick`.
 
 use std::path::Path;
 
 use wardsmith::diagnostic::Source;
-use wardsmith::run::{run_source, Mode, Options};
+use wardsmith::run::{run_path, run_source, Mode, Options};
 
 fn main() {
     divan::main();
@@ -125,6 +126,26 @@ fn scan_c_d_coupling(bencher: divan::Bencher) {
     };
     bencher.bench(|| {
         let out = run_source(&source, Path::new("."), Mode::Check, &options).expect("valid");
+        assert_eq!(out.code, 0, "{}", out.report);
+        out
+    });
+}
+
+/// Shipped files whose correlators are Wick expansions of the free scalar
+/// (⟨D D⟩ and ⟨D D D⟩ with a Neumann wall, next to a reflecting wall, ⟨T D D⟩
+/// decomposed in structures and as hemisphere fluxes, the symbolic-d
+/// derivation of C_D), each checked whole.
+#[divan::bench(args = [
+    "tests/cases/numeric/anomaly-b-neumann.ward",
+    "tests/cases/numeric/reflection-anomaly.ward",
+    "tests/cases/numeric/tdd-neumann-d3.ward",
+    "tests/cases/numeric/tdd-hemisphere-neumann-d3.ward",
+    "examples/displacement-neumann.ward",
+])]
+fn free_scalar_files(bencher: divan::Bencher, file: &str) {
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join(file);
+    bencher.bench(|| {
+        let out = run_path(&path, Mode::Check, &Options::default()).expect("valid");
         assert_eq!(out.code, 0, "{}", out.report);
         out
     });

@@ -371,6 +371,28 @@ fn canonical_factor(ctx: &Context, f: Term, negate: &mut bool) -> Term {
 /// the names of summed indices become identical. A monomial that equals
 /// minus itself when two summed indices swap (an antisymmetric tensor
 /// contracted with a symmetric one) is zero.
+/// [`canonical_dummies`] of a monomial with these factors, as far as it
+/// depends on them alone: whether the coefficient changes sign, and the
+/// renamed factors. `None` when a factor is antisymmetric (then the
+/// coefficient and the atoms take part).
+pub(super) fn dummies_renamed(ctx: &Context, factors: Vec<Term>) -> Option<(bool, Vec<Term>)> {
+    let antisymmetric = factors
+        .iter()
+        .any(|f| matches!(f, Term::Param(name, _) if is_antisymmetric(ctx, name)));
+    if antisymmetric {
+        return None;
+    }
+    let m = rename_canonically(
+        ctx,
+        Mono {
+            coef: BigRational::one(),
+            atoms: Default::default(),
+            factors,
+        },
+    );
+    Some((m.coef.is_negative(), m.factors))
+}
+
 pub fn canonical_dummies(ctx: &Context, m: Mono) -> Mono {
     let m = rename_canonically(ctx, m);
     let antisymmetric = m

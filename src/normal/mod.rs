@@ -129,6 +129,270 @@ pub fn normalize_pointwise(ctx: &Context, t: &Term) -> Result<Term> {
     normalize_in(&cx, t)
 }
 
+/// The normal form of a sum of products, `Σ_k Π_j products[k][j]`, as a
+/// function at distinct points: the same term as [`normalize_pointwise`]
+/// of the sum written out, computed with less repeated work (a Wick
+/// expansion is such a sum, its factors the propagators). Each distinct
+/// factor is expanded once; the monomials of a product are multiplied
+/// group by group (monomials with the same non-scalar factors together),
+/// with like monomials merged after every factor; like monomials of all
+/// products are merged before the index algebra, which then runs once per
+/// distinct list of factors. This is the same result because the index
+/// algebra and the canonical renaming act on the non-scalar factors and
+/// only multiply the coefficient (they are linear in it): merging before
+/// them or after them gives the same sums.
+pub fn normalize_products_pointwise(ctx: &Context, products: &[Vec<Term>]) -> Result<Term> {
+    let _work = crate::budget::Work::enter();
+    let cx = Norm {
+        pointwise: true,
+        ..Norm::new(ctx)
+    };
+    // A polynomial in the scalar atoms, with exact coefficients.
+    type Poly = std::collections::HashMap<Atoms, BigRational>;
+    // The monomials of each distinct factor, grouped by their non-scalar
+    // factors.
+    let mut expanded: std::collections::HashMap<&Term, Vec<(Vec<Term>, Poly)>> =
+        std::collections::HashMap::new();
+    // Every product's monomials, merged: factors → polynomial.
+    let mut pending: std::collections::HashMap<Vec<Term>, Poly> = std::collections::HashMap::new();
+    for product in products {
+        let mut acc: Vec<(Vec<Term>, Poly)> =
+            vec![(Vec::new(), Poly::from([(Atoms::new(), BigRational::one())]))];
+        for t in product {
+            if !expanded.contains_key(t) {
+                let mut groups: Vec<(Vec<Term>, Poly)> = Vec::new();
+                for m in expand(&cx, t)? {
+                    let slot = match groups.iter().position(|(f, _)| *f == m.factors) {
+                        Some(k) => k,
+                        None => {
+                            groups.push((m.factors, Poly::new()));
+                            groups.len() - 1
+                        }
+                    };
+                    *groups[slot]
+                        .1
+                        .entry(m.atoms)
+                        .or_insert_with(BigRational::zero) += m.coef;
+                }
+                for (_, poly) in &mut groups {
+                    poly.retain(|_, c| !c.is_zero());
+                }
+                groups.retain(|(_, poly)| !poly.is_empty());
+                expanded.insert(t, groups);
+            }
+            let groups = &expanded[t];
+            let mut next: Vec<(Vec<Term>, Poly)> = Vec::new();
+            let mut count = 0usize;
+            for (fa, pa) in &acc {
+                for (fb, pb) in groups {
+                    let mut factors = fa.clone();
+                    factors.extend(fb.iter().cloned());
+                    let slot = match next.iter().position(|(f, _)| *f == factors) {
+                        Some(k) => k,
+                        None => {
+                            next.push((factors, Poly::new()));
+                            next.len() - 1
+                        }
+                    };
+                    let poly = &mut next[slot].1;
+                    count = count.saturating_add(pa.len().saturating_mul(pb.len()));
+                    for (aa, ca) in pa {
+                        for (ab, cb) in pb {
+                            let atoms = multiply_atoms(aa, ab);
+                            *poly.entry(atoms).or_insert_with(BigRational::zero) += ca * cb;
+                        }
+                    }
+                }
+            }
+            crate::budget::spend(count)?;
+            for (_, poly) in &mut next {
+                poly.retain(|_, c| !c.is_zero());
+                if poly
+                    .values()
+                    .any(|c| crate::budget::bits(c) > crate::budget::MAX_BITS)
+                {
+                    let monos: Vec<Mono> = poly
+                        .iter()
+                        .map(|(a, c)| Mono {
+                            coef: c.clone(),
+                            atoms: a.clone(),
+                            factors: Vec::new(),
+                        })
+                        .collect();
+                    crate::budget::coefficients(&monos)?;
+                }
+            }
+            next.retain(|(_, poly)| !poly.is_empty());
+            acc = next;
+            if acc.is_empty() {
+                break;
+            }
+        }
+        for (factors, poly) in acc {
+            let slot = pending.entry(factors).or_default();
+            for (atoms, c) in poly {
+                *slot.entry(atoms).or_insert_with(BigRational::zero) += c;
+            }
+        }
+    }
+    // The index algebra once per list of factors ([`contracted`] without
+    // its memo), the canonical names once per contracted list; then each
+    // coefficient and atoms as [`canonical`] treats them, summed by their
+    // factors (`collect` sums like monomials itself, so this is `merge`
+    // done a list of factors at a time).
+    let mut sums: std::collections::HashMap<Vec<Term>, Poly> = std::collections::HashMap::new();
+    let add_to = |sums: &mut std::collections::HashMap<Vec<Term>, Poly>, m: Mono| {
+        *sums
+            .entry(m.factors)
+            .or_default()
+            .entry(m.atoms)
+            .or_insert_with(BigRational::zero) += m.coef;
+    };
+    for (factors, poly) in pending {
+        let poly = poly.into_iter().filter(|(_, c)| !c.is_zero());
+        if factors.is_empty() || factors.iter().any(|f| matches!(f, Term::DeltaY(_))) {
+            let monos = poly
+                .map(|(atoms, coef)| Mono {
+                    coef,
+                    atoms,
+                    factors: factors.clone(),
+                })
+                .collect();
+            for m in canonical(&cx, monos) {
+                add_to(&mut sums, m);
+            }
+            continue;
+        }
+        let done = contract::contract(
+            &cx,
+            Mono {
+                coef: BigRational::one(),
+                atoms: Atoms::new(),
+                factors,
+            },
+        );
+        // Each contracted monomial with its renaming (sign, factors).
+        type Renamed = Option<(bool, Vec<Term>)>;
+        let done: Vec<(Mono, Renamed)> = done
+            .into_iter()
+            .map(|s| {
+                let renamed = contract::dummies_renamed(&cx, s.factors.clone());
+                (s, renamed)
+            })
+            .collect();
+        let poly: Vec<(Atoms, BigRational)> = poly.collect();
+        for (s, renamed) in &done {
+            let Some((negate, factors)) = renamed else {
+                for (atoms, coef) in &poly {
+                    let rest = Mono {
+                        coef: coef.clone(),
+                        atoms: atoms.clone(),
+                        factors: Vec::new(),
+                    };
+                    let m = rest.mul(s);
+                    let m = match combine_powers(&cx, m.clone()) {
+                        Ok(combined) => combined,
+                        Err(_) => m,
+                    };
+                    add_to(&mut sums, contract::canonical_dummies(&cx, m));
+                }
+                continue;
+            };
+            let scalar = Mono {
+                coef: if *negate {
+                    -s.coef.clone()
+                } else {
+                    s.coef.clone()
+                },
+                atoms: s.atoms.clone(),
+                factors: Vec::new(),
+            };
+            let slot = sums.entry(factors.clone()).or_default();
+            for (atoms, coef) in &poly {
+                let rest = Mono {
+                    coef: coef.clone(),
+                    atoms: atoms.clone(),
+                    factors: Vec::new(),
+                };
+                let m = rest.mul(&scalar);
+                let m = match combine_powers(&cx, m.clone()) {
+                    Ok(combined) => combined,
+                    Err(_) => m,
+                };
+                *slot.entry(m.atoms).or_insert_with(BigRational::zero) += m.coef;
+            }
+        }
+    }
+    let mut out = Vec::new();
+    for (factors, poly) in sums {
+        for (atoms, coef) in poly {
+            if !coef.is_zero() {
+                out.push(Mono {
+                    coef,
+                    atoms,
+                    factors: factors.clone(),
+                });
+            }
+        }
+    }
+    Ok(collect(out))
+}
+
+/// The product of two monomials' atoms (exponents added, zeros dropped),
+/// as [`Mono::mul`] forms it.
+fn multiply_atoms(a: &Atoms, b: &Atoms) -> Atoms {
+    let (small, large) = if a.len() < b.len() { (a, b) } else { (b, a) };
+    let mut atoms = large.clone();
+    for (k, e) in small {
+        let slot = atoms.entry(k.clone()).or_insert_with(BigRational::zero);
+        *slot += e;
+        if slot.is_zero() {
+            atoms.remove(k);
+        }
+    }
+    atoms
+}
+
+/// Derivatives of explicit functions already expanded, by term, shared by
+/// pointwise normalisations in one file's context
+/// ([`normalize_pointwise_with`]): the derivatives of one propagator taken
+/// in many orders and combinations share their inner derivatives.
+#[derive(Debug, Default)]
+pub struct Derivatives {
+    expanded: std::sync::Mutex<std::collections::HashMap<Term, Vec<Mono>>>,
+}
+
+impl Derivatives {
+    fn get(&self, t: &Term) -> Option<Vec<Mono>> {
+        self.expanded.lock().ok()?.get(t).cloned()
+    }
+
+    fn put(&self, t: &Term, monos: &[Mono]) {
+        if let Ok(mut map) = self.expanded.lock() {
+            // A bound on memory: the memo is a cache, not a record.
+            if map.len() > 4096 {
+                map.clear();
+            }
+            map.insert(t.clone(), monos.to_vec());
+        }
+    }
+}
+
+/// [`normalize_pointwise`], with the derivatives expanded on the way
+/// remembered in `derivatives` (which must only ever serve `ctx`'s file).
+pub fn normalize_pointwise_with(
+    ctx: &Context,
+    t: &Term,
+    derivatives: &Derivatives,
+) -> Result<Term> {
+    let cx = Norm {
+        pointwise: true,
+        derivatives: Some(derivatives),
+        ..Norm::new(ctx)
+    };
+    normalize_in(&cx, t)
+}
+
 /// The declarations of a file while one term is normalised, and what the
 /// derivatives of explicit functions found on the way.
 pub struct Norm<'c> {
@@ -143,6 +407,8 @@ pub struct Norm<'c> {
     /// The index algebra already applied, by the factors of a monomial
     /// (see [`contracted`]).
     contracted: std::cell::RefCell<std::collections::HashMap<Vec<Term>, Vec<Mono>>>,
+    /// Derivatives expanded in earlier pointwise normalisations.
+    derivatives: Option<&'c Derivatives>,
 }
 
 impl<'c> Norm<'c> {
@@ -154,6 +420,7 @@ impl<'c> Norm<'c> {
             pointwise: false,
             powers: Default::default(),
             contracted: Default::default(),
+            derivatives: None,
         }
     }
 
@@ -393,8 +660,16 @@ fn expand(ctx: &Norm, t: &Term) -> Result<Vec<Mono>> {
             vec![Mono::factor(Term::Corr(ops))]
         }
         Term::Der(i, p, body) => {
+            // Only pointwise: elsewhere a derivative records caveats.
+            let memo = ctx.derivatives.filter(|_| ctx.pointwise);
+            if let Some(known) = memo.and_then(|m| m.get(t)) {
+                return Ok(known);
+            }
             let d = distribution::differentiate(ctx, i, p, expand(ctx, body)?)?;
             crate::budget::spend(d.len())?;
+            if let Some(m) = memo {
+                m.put(t, &d);
+            }
             d
         }
         Term::Dist(p, q) => {

@@ -1436,7 +1436,8 @@ pub fn build_model(
             if *complex {
                 model = model.complex();
             }
-            Box::new(model)
+            // The model serves this file only: it may remember its work.
+            Box::new(model.remembering())
         }
     })
 }

@@ -49,14 +49,18 @@
 //! one insertion are paired once, with weight 2. The pairings are
 //! enumerated depth first within [`crate::budget::MAX_WICK`].
 
-use std::collections::{BTreeMap, BTreeSet};
+use std::collections::{BTreeMap, BTreeSet, HashMap};
+use std::sync::{Arc, Mutex};
 
 use super::{add, dist_pow, inv, minus, mul, normal_coord, pow, rational, sphere, unknown, Model};
 use super::{describe_op, index_names, node_count, rename_indices, substitute_points};
 use crate::budget::Pairings;
 use crate::context::{Context, DISPLACEMENT, STRESS_TENSOR};
 use crate::diagnostic::Result;
-use crate::normal::normalize_pointwise as normalize;
+use crate::normal::{
+    normalize_pointwise as normalize, normalize_pointwise_with, normalize_products_pointwise,
+    Derivatives,
+};
 use crate::term::{Index, Op, Point, Term};
 
 /// The boundary condition at y = 0.
@@ -85,7 +89,7 @@ impl Wall {
 }
 
 /// The composite an operator name stands for.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
 pub enum Composite {
     /// φ.
     Field,
@@ -275,7 +279,27 @@ pub struct FreeScalar {
     /// instead of one real field: φ names φ, φ2 names :φ̄φ:, T is the sum
     /// of the two real T's, and φ̄ and J are there too.
     pub complex: bool,
+    /// Work remembered between correlators (see [`FreeScalar::remembering`]);
+    /// `None` remembers nothing past one correlator.
+    memory: Option<Arc<Memory>>,
 }
+
+/// Correlators and contractions already worked out by a model that serves
+/// one file (one [`Context`]): the same correlator asked again (⟨D D D⟩
+/// for C_DDD and for b1), and the same contraction in another correlator
+/// (⟨∂φ(s1) ∂φ(s2)⟩ of ⟨D D⟩ inside ⟨D D D⟩), are not worked out again.
+#[derive(Debug, Default)]
+struct Memory {
+    correlators: Mutex<HashMap<Vec<Op>, Term>>,
+    contractions: Mutex<HashMap<SharedKey, Option<Contracted>>>,
+    /// The propagators' derivatives, expanded.
+    derivatives: Derivatives,
+}
+
+/// What determines a contraction across correlators: each end's point and
+/// composite, and the derivatives on each end with index names replaced by
+/// their order of first appearance.
+type SharedKey = (Point, Composite, Point, Composite, Vec<Vec<Index>>);
 
 /// Which field a leg is: the real φ, or the complex φ or φ̄. Only φ with
 /// φ̄ (and real with real) contract: ⟨φ φ⟩ = 0 for the complex field.
@@ -327,7 +351,16 @@ impl FreeScalar {
             normalisation: Normalisation::Canonical,
             mapping,
             complex: false,
+            memory: None,
         }
+    }
+
+    /// The same model remembering correlators and contractions between
+    /// calls. Only for a model that serves one file: what it remembers
+    /// holds for the declarations (the context) of that file.
+    pub fn remembering(mut self) -> FreeScalar {
+        self.memory = Some(Arc::default());
+        self
     }
 
     /// The complex scalar instead of the real one.
@@ -645,7 +678,10 @@ impl FreeScalar {
         for i in a.derivs.iter().rev() {
             t = Term::Der(i.clone(), a.point.clone(), Box::new(t));
         }
-        let split = normalize(ctx, &t)?;
+        let split = match &self.memory {
+            Some(memory) => normalize_pointwise_with(ctx, &t, &memory.derivatives)?,
+            None => normalize(ctx, &t)?,
+        };
         let back = BTreeMap::from([
             (a.point.name.clone(), ops[a.op].point.clone()),
             (b.point.name.clone(), ops[b.op].point.clone()),
@@ -855,6 +891,29 @@ impl Model for FreeScalar {
     }
 
     fn correlator(&self, ctx: &Context, ops: &[Op]) -> Result<Term> {
+        if let Some(memory) = &self.memory {
+            let known = memory
+                .correlators
+                .lock()
+                .ok()
+                .and_then(|m| m.get(ops).cloned());
+            if let Some(t) = known {
+                return Ok(t);
+            }
+        }
+        let t = self.correlator_uncached(ctx, ops)?;
+        if let Some(memory) = &self.memory {
+            if let Ok(mut m) = memory.correlators.lock() {
+                m.insert(ops.to_vec(), t.clone());
+            }
+        }
+        Ok(t)
+    }
+}
+
+impl FreeScalar {
+    /// The Wick expansion of one correlator, in normal form.
+    fn correlator_uncached(&self, ctx: &Context, ops: &[Op]) -> Result<Term> {
         let composites = self.check(ctx, ops)?;
         if ops.is_empty() {
             return Ok(Term::one());
@@ -899,7 +958,7 @@ impl Model for FreeScalar {
             let mut k = 0;
             loop {
                 if k == ops.len() {
-                    return normalize(ctx, &add(sum));
+                    return normalize_products_pointwise(ctx, &sum);
                 }
                 choice[k] += 1;
                 if choice[k] < expansions[k].len() {
@@ -1000,6 +1059,7 @@ type Key = (usize, usize, Vec<Vec<Index>>);
 /// A contraction computed once for its [`Key`]: the propagator with the
 /// derivatives taken, at the insertion points, written with the key's
 /// index names; and the names summed inside it.
+#[derive(Clone, Debug)]
 struct Contracted {
     term: Term,
     summed: BTreeSet<String>,
@@ -1030,7 +1090,7 @@ impl Wick<'_> {
         used: &mut [bool],
         weight: i64,
         factors: &mut Vec<Term>,
-        sum: &mut Vec<Term>,
+        sum: &mut Vec<Vec<Term>>,
     ) -> Result<()> {
         let Some(first) = used.iter().position(|u| !u) else {
             let mut product = Vec::with_capacity(factors.len() + 1);
@@ -1038,8 +1098,9 @@ impl Wick<'_> {
                 product.push(Term::int(weight));
             }
             product.extend(factors.iter().cloned());
-            let product = mul(product);
-            self.budget.build(node_count(&product))?;
+            // The nodes of the product written as one term.
+            self.budget
+                .build(1 + product.iter().map(node_count).sum::<usize>())?;
             sum.push(product);
             return Ok(());
         };
@@ -1083,14 +1144,39 @@ impl Wick<'_> {
         let key: Key = (a.op, b.op, shape);
         if !self.cache.contains_key(&key) {
             let comps = (self.composites[a.op], self.composites[b.op]);
-            let (da, db) = (&key.2[0], &key.2[1]);
-            let value = self
-                .model
-                .contraction(self.ctx, self.ops, (a.op, da), (b.op, db), comps)?
-                .map(|term| {
-                    let summed = summed_names(&term, da, db);
-                    Contracted { term, summed }
-                });
+            let shared: SharedKey = (
+                self.ops[a.op].point.clone(),
+                comps.0,
+                self.ops[b.op].point.clone(),
+                comps.1,
+                key.2.clone(),
+            );
+            let memory = self.model.memory.as_ref();
+            let known = memory.and_then(|m| {
+                m.contractions
+                    .lock()
+                    .ok()
+                    .and_then(|c| c.get(&shared).cloned())
+            });
+            let value = match known {
+                Some(value) => value,
+                None => {
+                    let (da, db) = (&key.2[0], &key.2[1]);
+                    let value = self
+                        .model
+                        .contraction(self.ctx, self.ops, (a.op, da), (b.op, db), comps)?
+                        .map(|term| {
+                            let summed = summed_names(&term, da, db);
+                            Contracted { term, summed }
+                        });
+                    if let Some(m) = memory {
+                        if let Ok(mut c) = m.contractions.lock() {
+                            c.insert(shared, value.clone());
+                        }
+                    }
+                    value
+                }
+            };
             self.cache.insert(key.clone(), value);
         }
         let Some(Some(c)) = self.cache.get(&key) else {
