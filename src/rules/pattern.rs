@@ -542,11 +542,15 @@ fn var_span(e: &Expr, v: &str) -> Option<Span> {
         ExprKind::DeltaPoints(p, q) => point(p).or_else(|| point(q)),
         ExprKind::DeltaNormal { point: p, .. } => point(p),
         ExprKind::Sum {
+            slot,
             splice,
             filter,
             body,
             ..
-        } => name(splice)
+        } => slot
+            .as_ref()
+            .and_then(|(r, to)| name(r).or_else(|| name(to)))
+            .or_else(|| name(splice))
             .or_else(|| match filter.as_ref().map(|c| &c.kind) {
                 Some(ast::ConditionKind::Is(n, _) | ast::ConditionKind::Has(n, _)) => name(n),
                 _ => None,
