@@ -574,8 +574,14 @@ impl Conformal {
         let mu = &v.indices[0];
         // Z_μ = x_12μ/x_12² - x_13μ/x_13², times |x_12| |x_13|/|x_23|.
         let z = minus(
-            mul(vec![difference(x1, x2, mu), dist_pow(x1, x2, Term::int(-2))]),
-            mul(vec![difference(x1, x3, mu), dist_pow(x1, x3, Term::int(-2))]),
+            mul(vec![
+                difference(x1, x2, mu),
+                dist_pow(x1, x2, Term::int(-2)),
+            ]),
+            mul(vec![
+                difference(x1, x3, mu),
+                dist_pow(x1, x3, Term::int(-2)),
+            ]),
         );
         let mut factors = vec![
             lambda,
