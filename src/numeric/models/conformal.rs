@@ -21,9 +21,9 @@
 //!   Z_μ = x_12μ/x_12² - x_13μ/x_13² (Z/|Z| the unit vector at x_1; common
 //!   practice), λ declared for the order (V, A, B) (λ_VBA = -λ_VAB); for a
 //!   conserved V of dimension d - 1 next to charged A, B of equal dimension
-//!   with ⟨A B⟩ = C_AB, the charge Ward identity ∂_μ⟨V_μ(x) X⟩ =
-//!   - Σ q_i δ(x - x_i)⟨X⟩ fixes λ = -q_A C_AB/S_d unless declared
-//!   (docs/conventions.md §13, derived);
+//!   with ⟨A B⟩ = C_AB, the charge Ward identity
+//!   ∂_μ⟨V_μ(x) X⟩ = -Σ q_i δ(x - x_i)⟨X⟩ fixes λ = -q_A C_AB/S_d unless
+//!   declared (docs/conventions.md §13, derived);
 //! - ⟨O⟩ = ⟨T⟩ = ⟨T O⟩ = ⟨V⟩ = ⟨V O⟩ = 0 without a boundary.
 //!
 //! With a half-space y ≥ 0, in the (2y) or the y convention (a setting,
