@@ -1378,6 +1378,9 @@ pub fn build_model(
                     [a, b] if boundary(a) => model.bulk_to_boundary(b, a, v),
                     [a, b] => model.two_point(a, b, v),
                     [t, a, b] if t == STRESS_TENSOR => model.stress_coupling(a, b, v),
+                    [w, a, b] if ctx.operator(w).is_some_and(|o| o.rank == 1 && !o.boundary) => {
+                        model.vector_scalar_scalar(w, a, b, v)
+                    }
                     [a, b, c] => model.three_point([a, b, c], v),
                     _ => model,
                 };

@@ -78,6 +78,7 @@ pub fn instantiate(eg: &mut EGraph, ctx: &Context, pat: &Pat, b: &Binding) -> Op
         }
         Pat::Sum {
             op,
+            slot,
             point: pt,
             splice,
             filter,
@@ -85,15 +86,38 @@ pub fn instantiate(eg: &mut EGraph, ctx: &Context, pat: &Pat, b: &Binding) -> Op
         } => {
             let elements = b.splice(splice)?.to_vec();
             let mut terms = Vec::new();
-            for element in elements {
-                let (name, at, _) = insertion(eg, element)?;
+            for (k, &element) in elements.iter().enumerate() {
+                let (name, at, indices) = insertion(eg, element)?;
+                let indices = indices.to_vec();
                 let mut local = b.clone();
                 local.vars.push((op.clone(), name));
                 local.vars.push((pt.clone(), at));
                 if filter.as_ref().is_some_and(|c| !holds(eg, ctx, c, &local)) {
                     continue;
                 }
-                terms.push(instantiate(eg, ctx, body, &local)?);
+                let Some((r, to)) = slot else {
+                    terms.push(instantiate(eg, ctx, body, &local)?);
+                    continue;
+                };
+                // One copy per index slot j: ?r is its index, and the
+                // sequence has that one slot's index replaced by ?s.
+                for (j, &slot_index) in indices.iter().enumerate() {
+                    let mut inner = local.clone();
+                    inner.vars.push((r.clone(), slot_index));
+                    let target = index(eg, &IdxPat::Var(to.clone()), &inner)?;
+                    if inner.var(to).is_none() {
+                        inner.vars.push((to.clone(), target));
+                    }
+                    let mut children = vec![name, at];
+                    children.extend(indices.iter().copied());
+                    children[2 + j] = target;
+                    let replaced = eg.add(Ward::Op(children.into()));
+                    let mut sequence = elements.clone();
+                    sequence[k] = replaced;
+                    inner.splices.retain(|(n, _)| n != splice);
+                    inner.splices.push((splice.clone(), sequence));
+                    terms.push(instantiate(eg, ctx, body, &inner)?);
+                }
             }
             match terms.len() {
                 0 => eg.add(Ward::Num(num_traits::Zero::zero())),

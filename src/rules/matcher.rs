@@ -350,6 +350,11 @@ pub fn holds(eg: &EGraph, ctx: &Context, cond: &Cond, b: &Binding) -> bool {
         Cond::NoHalfspace => !ctx.has_halfspace(),
         Cond::Is(v, prop) => {
             if let Some(ids) = b.splice(v) {
+                // `spinning` on a sequence: at least one insertion has
+                // indices; every other property holds for all of them.
+                if *prop == Property::Spinning {
+                    return ids.iter().any(|id| insertion_has(eg, ctx, *id, *prop));
+                }
                 return ids.iter().all(|id| insertion_has(eg, ctx, *id, *prop));
             }
             let Some(id) = b.var(v) else { return false };
@@ -376,6 +381,7 @@ fn insertion_has(eg: &EGraph, ctx: &Context, class: Id, prop: Property) -> bool 
     };
     match prop {
         Property::Scalar => indices.is_empty(),
+        Property::Spinning => !indices.is_empty(),
         Property::Bulk => point_on_boundary(eg, ctx, point) == Some(false),
         Property::Boundary => point_on_boundary(eg, ctx, point) == Some(true),
         Property::Parallel | Property::Normal => false,
@@ -395,6 +401,7 @@ fn operator_is(ctx: &Context, op: &str, prop: Property) -> bool {
         Property::Scalar => decl.rank == 0,
         Property::Vector => decl.rank == 1,
         Property::Spin(l) => decl.rank == l as usize,
+        Property::Spinning => decl.rank > 0,
         Property::Conserved => ctx.is_conserved(op),
         _ => false,
     }
@@ -415,7 +422,11 @@ fn class_is(eg: &EGraph, ctx: &Context, class: Id, prop: Property) -> bool {
     // An operator's name (`?v` in `?v[?rho](?p)`): its spin.
     if matches!(
         prop,
-        Property::Vector | Property::Spin(_) | Property::Conserved | Property::Scalar
+        Property::Vector
+            | Property::Spin(_)
+            | Property::Conserved
+            | Property::Scalar
+            | Property::Spinning
     ) {
         return operator_is(ctx, name, prop);
     }

@@ -51,6 +51,26 @@ pub struct Rule {
     splices: Vec<String>,
 }
 
+impl Rule {
+    /// True for a rule from one correlator to one correlator with as many
+    /// insertions and the same sequence: a symmetry, no reduction.
+    fn is_renaming(&self) -> bool {
+        match (&self.from, &self.to) {
+            (
+                Pat::Corr {
+                    items: a,
+                    splice: s,
+                },
+                Pat::Corr {
+                    items: b,
+                    splice: t,
+                },
+            ) => a.len() == b.len() && s == t,
+            _ => false,
+        }
+    }
+}
+
 /// All rules in force for one run.
 #[derive(Debug, Default)]
 pub struct RuleBook {
@@ -144,7 +164,12 @@ impl RuleBook {
     /// [`budget::Matching`](crate::budget::Matching) span ran out first.
     pub fn redexes(&self, eg: &EGraph, ctx: &Context) -> Option<HashSet<Ward>> {
         let mut out = HashSet::new();
-        for rule in self.enabled(ctx) {
+        // A rule that rewrites a correlator into the same correlator with
+        // its indices renamed (`ward-symmetry`) reduces nothing: counted,
+        // it would make every correlator with T a redex, and extraction
+        // would keep ∂⟨T T …⟩ rather than the contact terms, which hold
+        // several correlators with the second T.
+        for rule in self.enabled(ctx).filter(|r| !r.is_renaming()) {
             for class in eg.classes() {
                 for node in &class.nodes {
                     let mut matched = false;

@@ -37,8 +37,12 @@ pub enum Pat {
     Normal(IdxPat),
     DeltaFn(PtPat, PtPat),
     DeltaY(PtPat),
+    /// `sum ?o(?p) in ?rest { … }`; with `slot` = (r, s), one copy per
+    /// index slot of each insertion, ?r bound to that slot's index and the
+    /// body's `...?rest` with that slot's index replaced by ?s.
     Sum {
         op: String,
+        slot: Option<(String, String)>,
         point: String,
         splice: String,
         filter: Option<Cond>,
@@ -165,7 +169,19 @@ fn count_index_vars(p: &Pat, counts: &mut std::collections::BTreeMap<String, usi
             idx(j, counts);
         }
         Pat::Normal(i) => idx(i, counts),
-        Pat::Sum { body, .. } => count_index_vars(body, counts),
+        Pat::Sum { body, slot, .. } => match slot {
+            None => count_index_vars(body, counts),
+            Some((r, to)) => {
+                // ?r is bound by the sum; ?s is written once in the header.
+                let mut inner = std::collections::BTreeMap::new();
+                count_index_vars(body, &mut inner);
+                inner.remove(r);
+                *inner.entry(to.clone()).or_insert(0) += 1;
+                for (v, n) in inner {
+                    *counts.entry(v).or_insert(0) += n;
+                }
+            }
+        },
         _ => {}
     }
 }
@@ -320,6 +336,7 @@ impl Lowering<'_> {
             ExprKind::DeltaNormal { point, .. } => Pat::DeltaY(self.point(point)?),
             ExprKind::Sum {
                 op,
+                slot,
                 point,
                 splice,
                 filter,
@@ -333,6 +350,7 @@ impl Lowering<'_> {
                 }
                 Pat::Sum {
                     op: op.text.clone(),
+                    slot: slot.as_ref().map(|(r, s)| (r.text.clone(), s.text.clone())),
                     point: point.text.clone(),
                     splice: splice.text.clone(),
                     filter: filter.as_ref().map(|c| self.cond(c)).transpose()?,
@@ -440,6 +458,7 @@ impl Lowering<'_> {
             Pat::DeltaY(a) => self.check_point(e, a, &known),
             Pat::Sum {
                 op,
+                slot,
                 point,
                 splice,
                 filter,
@@ -452,6 +471,9 @@ impl Lowering<'_> {
                 let mut inner = local.clone();
                 inner.insert(op.clone());
                 inner.insert(point.clone());
+                if let Some((r, _)) = slot {
+                    inner.insert(r.clone());
+                }
                 if let Some(Cond::Is(v, _) | Cond::Has(v, _)) = filter {
                     let known_inside = |w: &str| inner.contains(w) || bound.vars.contains(w);
                     self.check_var(e, v, &known_inside)?;
@@ -520,11 +542,15 @@ fn var_span(e: &Expr, v: &str) -> Option<Span> {
         ExprKind::DeltaPoints(p, q) => point(p).or_else(|| point(q)),
         ExprKind::DeltaNormal { point: p, .. } => point(p),
         ExprKind::Sum {
+            slot,
             splice,
             filter,
             body,
             ..
-        } => name(splice)
+        } => slot
+            .as_ref()
+            .and_then(|(r, to)| name(r).or_else(|| name(to)))
+            .or_else(|| name(splice))
             .or_else(|| match filter.as_ref().map(|c| &c.kind) {
                 Some(ast::ConditionKind::Is(n, _) | ast::ConditionKind::Has(n, _)) => name(n),
                 _ => None,

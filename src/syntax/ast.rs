@@ -173,9 +173,11 @@ pub enum ExprKind {
         surface: bool,
         body: Box<Expr>,
     },
-    /// Rule template: `sum ?o(?p) in ?rest if COND { body }`.
+    /// Rule template: `sum ?o(?p) in ?rest if COND { body }`, or with a
+    /// slot `sum ?o[?r -> ?s](?p) in …` (one copy per index slot).
     Sum {
         op: Name,
+        slot: Option<(Name, Name)>,
         point: Name,
         splice: Name,
         filter: Option<Condition>,
@@ -482,6 +484,8 @@ pub enum Property {
     Conserved,
     /// Declared spin ℓ (T has spin 2).
     Spin(u32),
+    /// An operator with indices; a sequence with at least one.
+    Spinning,
 }
 
 /// One rule of a `.rules` file.

@@ -1143,6 +1143,7 @@ fn parse_condition(pair: Pair<Rule>) -> Condition {
                         "normal" => Property::Normal,
                         "vector" => Property::Vector,
                         "conserved" => Property::Conserved,
+                        "spinning" => Property::Spinning,
                         _ => Property::Scalar,
                     },
                 ),
@@ -1428,6 +1429,13 @@ fn parse_primary(source: &Arc<Source>, pair: Pair<Rule>, depth: usize) -> Result
             let depth = deeper(source, depth, span)?;
             let mut inner = pair.into_inner();
             let op = parse_name(next(&mut inner));
+            let mut slot = None;
+            if inner.peek().map(|p| p.as_rule()) == Some(Rule::sum_slot) {
+                let mut names = next(&mut inner).into_inner();
+                let from = parse_name(next(&mut names));
+                let to = parse_name(next(&mut names));
+                slot = Some((from, to));
+            }
             let point = parse_name(next(&mut inner));
             let splice = parse_name(next(&mut inner));
             let mut rest = next(&mut inner);
@@ -1438,6 +1446,7 @@ fn parse_primary(source: &Arc<Source>, pair: Pair<Rule>, depth: usize) -> Result
             }
             ExprKind::Sum {
                 op,
+                slot,
                 point,
                 splice,
                 filter,

@@ -14,7 +14,17 @@
 //!   Petkou 1994, hep-th/9307010; sign as in docs/conventions.md §3). X² is written
 //!   as x_23²/(x_12² x_13²), an identity of the three distances;
 //! - ⟨T_{μν}(x) T_{ρσ}(0)⟩ = C_T I_{μν,ρσ}(x)/x^{2d} (Osborn & Petkou 1994);
-//! - ⟨O⟩ = ⟨T⟩ = ⟨T O⟩ = 0 without a boundary.
+//! - ⟨V_μ(x_1) W_ν(x_2)⟩ = C_VW I_μν(x_12)/|x_12|^{2Δ} for bulk vectors of
+//!   equal dimension (Osborn & Petkou 1994 §2, from memory; common practice);
+//! - ⟨V_μ(x_1) A(x_2) B(x_3)⟩ = λ Z_μ |x_12| |x_13| / |x_23|
+//!   / (|x_12|^{Δ_V+Δ_A-Δ_B} |x_13|^{Δ_V+Δ_B-Δ_A} |x_23|^{Δ_A+Δ_B-Δ_V}),
+//!   Z_μ = x_12μ/x_12² - x_13μ/x_13² (Z/|Z| the unit vector at x_1; common
+//!   practice), λ declared for the order (V, A, B) (λ_VBA = -λ_VAB); for a
+//!   conserved V of dimension d - 1 next to charged A, B of equal dimension
+//!   with ⟨A B⟩ = C_AB, the charge Ward identity
+//!   ∂_μ⟨V_μ(x) X⟩ = -Σ q_i δ(x - x_i)⟨X⟩ fixes λ = -q_A C_AB/S_d unless
+//!   declared (docs/conventions.md §13, derived);
+//! - ⟨O⟩ = ⟨T⟩ = ⟨T O⟩ = ⟨V⟩ = ⟨V O⟩ = 0 without a boundary.
 //!
 //! With a half-space y ≥ 0, in the (2y) or the y convention (a setting,
 //! [`Convention`], printed by [`Model::describe`]):
@@ -86,6 +96,8 @@ pub struct Conformal {
     bulk_boundary: BTreeMap<(String, String), Term>,
     boundary_two_point: BTreeMap<(String, String), Term>,
     stress_one_point: BTreeMap<String, Term>,
+    /// λ of ⟨V A B⟩, keyed by (V, A, B) in this order.
+    vector_scalar_scalar: BTreeMap<(String, String, String), Term>,
 }
 
 fn pair(a: &str, b: &str) -> (String, String) {
@@ -147,6 +159,14 @@ impl Conformal {
         self
     }
 
+    /// λ of ⟨V_μ(x_1) A(x_2) B(x_3)⟩ for a bulk vector V, in this order
+    /// (⟨V B A⟩ has -λ); replaces the charge Ward value.
+    pub fn vector_scalar_scalar(mut self, v: &str, a: &str, b: &str, c: Term) -> Conformal {
+        self.vector_scalar_scalar
+            .insert((v.to_string(), a.to_string(), b.to_string()), c);
+        self
+    }
+
     /// K of ⟨T O⟩ next to the wall, in place of the Ward value.
     pub fn stress_one_point(mut self, op: &str, k: Term) -> Conformal {
         self.stress_one_point.insert(op.to_string(), k);
@@ -159,6 +179,8 @@ impl Conformal {
 enum Kind {
     Stress,
     BulkScalar,
+    /// A bulk operator with one index.
+    BulkVector,
     BoundaryScalar,
 }
 
@@ -175,10 +197,11 @@ impl Model for Conformal {
             kinds.push(kind(ctx, ops, op)?);
         }
         let count = |k: Kind| kinds.iter().filter(|x| **x == k).count();
-        let (stress, bulk, boundary) = (
+        let (stress, bulk, boundary, vector) = (
             count(Kind::Stress),
             count(Kind::BulkScalar),
             count(Kind::BoundaryScalar),
+            count(Kind::BulkVector),
         );
         let of = |k: Kind| -> Vec<&Op> {
             ops.iter()
@@ -189,6 +212,31 @@ impl Model for Conformal {
         };
         if ops.is_empty() {
             return Ok(Term::one());
+        }
+        if ctx.has_halfspace() && vector > 0 {
+            return Err(unknown(
+                NAME,
+                ops,
+                "next to a wall the conformal forms know scalars and T",
+            ));
+        }
+        if !ctx.has_halfspace() && vector > 0 {
+            return match (stress, bulk, vector) {
+                (0, 0, 1) | (0, 1, 1) => Ok(Term::zero()),
+                (0, 0, 2) => {
+                    let v = of(Kind::BulkVector);
+                    self.vector_two_point_fn(ctx, ops, v[0], v[1])
+                }
+                (0, 2, 1) => {
+                    let b = of(Kind::BulkScalar);
+                    self.vector_scalar_scalar_fn(ctx, ops, of(Kind::BulkVector)[0], b[0], b[1])
+                }
+                _ => Err(unknown(
+                    NAME,
+                    ops,
+                    "the conformal forms with vectors are ⟨V W⟩ and ⟨V O O'⟩",
+                )),
+            };
         }
         if ctx.has_halfspace() {
             match (stress, bulk, boundary) {
@@ -270,12 +318,15 @@ fn kind(ctx: &Context, ops: &[Op], op: &Op) -> Result<Kind> {
             format!("the operator {} is not declared", op.name),
         ));
     };
+    if decl.rank == 1 && op.indices.len() == 1 && !decl.boundary {
+        return Ok(Kind::BulkVector);
+    }
     if decl.rank != 0 || !op.indices.is_empty() {
         return Err(unknown(
             NAME,
             ops,
             format!(
-                "{} carries indices; the conformal forms know scalars and T",
+                "{} carries indices; the conformal forms know scalars, bulk vectors and T",
                 op.name
             ),
         ));
@@ -451,6 +502,104 @@ impl Conformal {
             dist_pow(x1, x3, neg(d.clone())),
             dist_pow(x2, x3, minus(d, mul(vec![Term::int(2), da]))),
         ]))
+    }
+
+    /// C I_μν(x_12)/|x_12|^{2Δ}, I_μν = δ_μν - 2 x_μ x_ν/x².
+    fn vector_two_point_fn(&self, ctx: &Context, ops: &[Op], a: &Op, b: &Op) -> Result<Term> {
+        let scalar = self.two_point_fn(ctx, ops, a, b)?;
+        if scalar.is_zero() {
+            return Ok(scalar);
+        }
+        let (m, n) = (&a.indices[0], &b.indices[0]);
+        let inversion = minus(
+            Term::Kron(m.clone(), n.clone()),
+            mul(vec![
+                Term::int(2),
+                difference(&a.point, &b.point, m),
+                difference(&a.point, &b.point, n),
+                dist_pow(&a.point, &b.point, Term::int(-2)),
+            ]),
+        );
+        Ok(mul(vec![inversion, scalar]))
+    }
+
+    /// λ_VAB of ⟨V A B⟩ in the order of `a`, `b`: declared (either order,
+    /// with the sign of Z), or -q_A C_AB/S_d for a conserved V.
+    fn vector_coupling(&self, ctx: &Context, ops: &[Op], v: &Op, a: &Op, b: &Op) -> Result<Term> {
+        let key = |x: &Op, y: &Op| (v.name.clone(), x.name.clone(), y.name.clone());
+        if let Some(c) = self.vector_scalar_scalar.get(&key(a, b)) {
+            return Ok(c.clone());
+        }
+        if let Some(c) = self.vector_scalar_scalar.get(&key(b, a)) {
+            return Ok(neg(c.clone()));
+        }
+        let charge = ctx.attribute(&a.name, "charge");
+        match (ctx.is_conserved(&v.name), charge) {
+            (true, Some(q)) => {
+                let c = Self::coefficient(
+                    &self.two_point,
+                    ops,
+                    &a.name,
+                    &b.name,
+                    "two-point coefficient (it fixes ⟨V O O'⟩)",
+                )?;
+                Ok(mul(vec![Term::int(-1), q.clone(), c.clone(), inv(sphere())]))
+            }
+            _ => Err(unknown(
+                NAME,
+                ops,
+                format!(
+                    "no three-point coefficient is declared for {} {} {}                      (`coefficient <{} {} {}> = …`; for a conserved current the                      charges of the scalars fix it)",
+                    v.name, a.name, b.name, v.name, a.name, b.name
+                ),
+            )),
+        }
+    }
+
+    fn vector_scalar_scalar_fn(
+        &self,
+        ctx: &Context,
+        ops: &[Op],
+        v: &Op,
+        a: &Op,
+        b: &Op,
+    ) -> Result<Term> {
+        let lambda = self.vector_coupling(ctx, ops, v, a, b)?;
+        let dims = [
+            dimension(ctx, ops, v)?,
+            dimension(ctx, ops, a)?,
+            dimension(ctx, ops, b)?,
+        ];
+        let (x1, x2, x3) = (&v.point, &a.point, &b.point);
+        let mu = &v.indices[0];
+        // Z_μ = x_12μ/x_12² - x_13μ/x_13², times |x_12| |x_13|/|x_23|.
+        let z = minus(
+            mul(vec![
+                difference(x1, x2, mu),
+                dist_pow(x1, x2, Term::int(-2)),
+            ]),
+            mul(vec![
+                difference(x1, x3, mu),
+                dist_pow(x1, x3, Term::int(-2)),
+            ]),
+        );
+        let mut factors = vec![
+            lambda,
+            z,
+            dist_pow(x1, x2, Term::one()),
+            dist_pow(x1, x3, Term::one()),
+            dist_pow(x2, x3, Term::int(-1)),
+        ];
+        let points = [x1, x2, x3];
+        for (i, j, k) in [(0, 1, 2), (0, 2, 1), (1, 2, 0)] {
+            let e = neg(add(vec![
+                dims[i].clone(),
+                dims[j].clone(),
+                neg(dims[k].clone()),
+            ]));
+            factors.push(dist_pow(points[i], points[j], e));
+        }
+        Ok(mul(factors))
     }
 
     fn stress_two_point_fn(&self, ctx: &Context, ops: &[Op], t1: &Op, t2: &Op) -> Result<Term> {
