@@ -365,3 +365,26 @@ fn real_configurations_fit_too_and_a_wrong_tower_fails() {
     let (item, code) = decompose(&wrong);
     assert_eq!(code, 1, "{item}");
 }
+
+#[test]
+fn the_equal_dimension_casimir_is_refuted_on_mixed_blocks() {
+    // tests/cases/numeric/four-point-casimir-mixed-d4.ward proves the
+    // Casimir with the a b and (a + b) terms; without them (the operator of
+    // equal external dimensions) the claim is refuted by its remainder's
+    // value (docs/conventions.md §12).
+    use std::path::Path;
+    use std::sync::Arc;
+    use wardsmith::diagnostic::Source;
+    use wardsmith::run::{run_source, Mode, Options};
+    let text = "dimension 4\npositive z zb Delta l\nparameters D12 D34\n\
+        let g(z, zb) = g_block(Delta, l, D12, D34; z, zb)\n\
+        claim 2 z^2 (1 - z) g[2,0](z, zb) - 2 z^2 g[1,0](z, zb)\n\
+            + 2 zb^2 (1 - zb) g[0,2](z, zb) - 2 zb^2 g[0,1](z, zb)\n\
+            + 4 z zb/(z - zb) ((1 - z) g[1,0](z, zb) - (1 - zb) g[0,1](z, zb))\n\
+          = (Delta (Delta - 4) + l (l + 2)) g(z, zb)\n";
+    let source = Arc::new(Source::new("slip.ward", text));
+    let out = run_source(&source, Path::new("."), Mode::Check, &Options::default())
+        .unwrap_or_else(|e| panic!("{}", e.render()));
+    assert_eq!(out.code, 1);
+    assert!(out.report.contains("claim NOT PROVED"), "{}", out.report);
+}

@@ -187,22 +187,61 @@ impl Series {
             prec: rel_cap.clone(),
         }
         .clip();
-        let step = t.valuation();
-        let mut sum = Series::constant(Q::one(), n, &rel_cap);
-        if step > Q::zero() {
-            let mut power = Series::constant(Q::one(), n, &rel_cap);
-            let mut binom = Q::one();
-            let mut k = 0i64;
-            while q(k + 1) * &step < rel_cap {
-                binom = binom * (p - q(k)) / q(k + 1);
-                power = power.mul(&t, &rel_cap)?;
-                sum = sum.add(&power.scale(&binom));
-                k += 1;
-                if k > 4000 {
-                    return None;
+        // (1 + T)^p by degrees: with E the total-degree operator,
+        // (1 + T) E(P) = p E(T) P, so that for the part of degree k
+        // P_k = Σ_{0<j≤k} (p j - (k - j)) T_j P_{k-j} / k (J. C. P. Miller's
+        // recurrence; common practice), one product's work in all.
+        let mut by_degree: BTreeMap<Q, Vec<(&Vec<Q>, &Q)>> = BTreeMap::new();
+        for (e, c) in &t.terms {
+            by_degree.entry(degree(e)).or_default().push((e, c));
+        }
+        let mut lcm = BigInt::one();
+        for d in by_degree.keys() {
+            lcm = num_integer::Integer::lcm(&lcm, d.denom());
+        }
+        if lcm > BigInt::from(1000) {
+            return None;
+        }
+        let step = Q::new(BigInt::one(), lcm);
+        let mut parts: BTreeMap<Q, BTreeMap<Vec<Q>, Q>> = BTreeMap::new();
+        let mut unit = BTreeMap::new();
+        unit.insert(vec![Q::zero(); n], Q::one());
+        parts.insert(Q::zero(), unit);
+        let mut k = step.clone();
+        let mut count = 0usize;
+        while k < rel_cap {
+            let mut acc: BTreeMap<Vec<Q>, Q> = BTreeMap::new();
+            for (j, tj) in by_degree.range(..=k.clone()) {
+                let Some(prev) = parts.get(&(&k - j)) else {
+                    continue;
+                };
+                let factor = (p * j - (&k - j)) / &k;
+                if factor.is_zero() {
+                    continue;
+                }
+                for (e, c) in tj {
+                    let f = &factor * *c;
+                    for (e2, c2) in prev {
+                        let sum: Vec<Q> = e.iter().zip(e2).map(|(a, b)| a + b).collect();
+                        *acc.entry(sum).or_insert_with(Q::zero) += &f * c2;
+                    }
                 }
             }
+            acc.retain(|_, c| !c.is_zero());
+            count += acc.len();
+            if count > MAX_TERMS {
+                return None;
+            }
+            if !acc.is_empty() {
+                parts.insert(k.clone(), acc);
+            }
+            k += &step;
         }
+        let sum = Series {
+            terms: parts.into_values().flatten().collect(),
+            prec: rel_cap,
+        }
+        .clip();
         let scaled: Vec<Q> = m.iter().map(|x| x * p).collect();
         let shift = degree(&scaled);
         let terms = sum
