@@ -159,7 +159,11 @@ fn generalised_free_field_tower() {
         // this replaces determined only the first two to 1e-10.)
         assert_eq!(items[0]["method"], "series", "{}", items[0]);
         assert_eq!(items[0]["unmatched"], 0);
-        assert!(items[0]["residual"].as_f64().unwrap() < 1e-11, "{}", items[0]);
+        assert!(
+            items[0]["residual"].as_f64().unwrap() < 1e-11,
+            "{}",
+            items[0]
+        );
         for n in 0..6 {
             assert!(
                 (got[n] - want[n]).abs() <= 1e-10 * want[n].abs().max(1.0),
@@ -191,7 +195,11 @@ fn generalised_free_field_bulk_channel_by_series() {
     assert_eq!(items[0]["exact"][0], "1");
     // The first block: ξ^Δ of (ξ/(1 + ξ))^Δ, coefficient 1.
     assert_eq!(items[0]["exact"][1], "1");
-    assert!(items[0]["residual"].as_f64().unwrap() < 1e-11, "{}", items[0]);
+    assert!(
+        items[0]["residual"].as_f64().unwrap() < 1e-11,
+        "{}",
+        items[0]
+    );
 }
 
 #[test]

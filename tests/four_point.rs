@@ -218,7 +218,17 @@ fn the_generalised_free_field_decomposes_with_its_published_coefficients() {
                 })
                 .unwrap_or_else(|| panic!("no block n = {n}, ℓ = {l}"))
         };
-        for (n, l) in [(0, 0), (0, 2), (1, 0), (0, 4), (1, 2), (2, 0), (1, 4), (2, 2), (3, 0)] {
+        for (n, l) in [
+            (0, 0),
+            (0, 2),
+            (1, 0),
+            (0, 4),
+            (1, 2),
+            (2, 0),
+            (1, 4),
+            (2, 2),
+            (3, 0),
+        ] {
             let got = coefficients[index(n, l)].as_f64().unwrap();
             let want = gff_coefficient(d, dphi, n, l);
             assert!(
@@ -249,9 +259,36 @@ fn an_irrational_dimension_falls_back_on_the_fit() {
 /// g_block(Δ, ℓ, Δ12, Δ34; z, z̄) from Dolan & Osborn 2001 (hep-th/0011040),
 /// eqs. 2.10-2.11 with a = -Δ12/2, b = Δ34/2, by mpmath 1.3 (30 digits).
 const MIXED: [(u32, f64, u32, f64, f64, f64, f64, f64); 3] = [
-    (4, 3.3, 2, 0.4, -0.7, 0.3, 0.1, 0.018_257_909_518_716_846_853_49),
-    (2, 2.5, 1, 1.1, 0.3, 0.6, 0.2, 0.265_917_711_997_437_598_531_3),
-    (4, 5.2, 0, -0.5, 0.5, 0.45, 0.2, 0.006_577_736_675_826_940_865_007),
+    (
+        4,
+        3.3,
+        2,
+        0.4,
+        -0.7,
+        0.3,
+        0.1,
+        0.018_257_909_518_716_846_853_49,
+    ),
+    (
+        2,
+        2.5,
+        1,
+        1.1,
+        0.3,
+        0.6,
+        0.2,
+        0.265_917_711_997_437_598_531_3,
+    ),
+    (
+        4,
+        5.2,
+        0,
+        -0.5,
+        0.5,
+        0.45,
+        0.2,
+        0.006_577_736_675_826_940_865_007,
+    ),
 ];
 
 #[test]
@@ -346,7 +383,10 @@ fn unequal_external_dimensions_decompose() {
         // The lowest twist's first spins (the fit's best determined).
         for k in 0..3 {
             let (x, y) = (a[k].as_f64().unwrap(), b[k].as_f64().unwrap());
-            assert!((x - y).abs() < 1e-6 * x.abs().max(1e-3), "d = {d}, block {k}: {x} vs {y}");
+            assert!(
+                (x - y).abs() < 1e-6 * x.abs().max(1e-3),
+                "d = {d}, block {k}: {x} vs {y}"
+            );
         }
     }
 }

@@ -23,9 +23,9 @@ use super::special::blocks::{
     boundary_block, boundary_three_point_block, bulk_block, four_point_block_mixed,
     four_point_block_polar_mixed, Externals,
 };
-use num_traits::{One, Zero};
 use crate::diagnostic::{Error, ErrorKind, Result};
 use crate::lower::Channel;
+use num_traits::{One, Zero};
 
 /// Largest relative residual at which an expansion counts as exact.
 pub const DECOMPOSE_TOLERANCE: f64 = 1e-9;
@@ -128,7 +128,11 @@ fn rat(n: i64) -> Q {
 }
 
 /// G to at least `want` (raising the cap while products lose precision).
-fn series_to(g: &dyn Fn(&Q) -> Option<Series>, want: &Q, fix: &dyn Fn(Series) -> Option<Series>) -> Option<Series> {
+fn series_to(
+    g: &dyn Fn(&Q) -> Option<Series>,
+    want: &Q,
+    fix: &dyn Fn(Series) -> Option<Series>,
+) -> Option<Series> {
     for margin in [0, 2, 4, 8, 16] {
         let gs = fix(g(&(want + rat(margin)))?)?;
         if gs.prec >= *want {
@@ -179,7 +183,11 @@ fn truncation_edge(beyond: &Series, g: &Series, lo: f64, hi: f64, factor: f64) -
 /// coefficients (the identity's first in the bulk channel), the count of
 /// unmatched terms, and the largest value of ξ (bulk) or 1/ξ (boundary)
 /// where the tower's truncation is negligible.
-fn solve_two_point(channel: Channel, s: &TwoPointSeries, x_max: f64) -> Option<(Vec<Q>, usize, f64)> {
+fn solve_two_point(
+    channel: Channel,
+    s: &TwoPointSeries,
+    x_max: f64,
+) -> Option<(Vec<Q>, usize, f64)> {
     let half = Q::new(1.into(), 2.into());
     let mut bases = Vec::new();
     let pivot = |dim: &Q| -> Q {
@@ -676,8 +684,7 @@ pub fn fit_four_point(
         check.extend(grid(check_range, 0.0));
     }
     check.retain(|p| {
-        p.0 <= check_range.1
-            && angle(1.0) >= p.1 / if frame == Frame::Real { p.0 } else { 1.0 }
+        p.0 <= check_range.1 && angle(1.0) >= p.1 / if frame == Frame::Real { p.0 } else { 1.0 }
     });
     let (mut worst, mut size) = (0.0f64, 0.0f64);
     for &(p, q) in &check {
@@ -707,7 +714,11 @@ pub fn fit_four_point(
         coefficients: x[1..].to_vec(),
         spread,
         range: check_range,
-        fitted_at: if method == Method::Series { 0 } else { n_r * n_t },
+        fitted_at: if method == Method::Series {
+            0
+        } else {
+            n_r * n_t
+        },
         checked_at: check.len(),
         residual: if size > 0.0 { worst / size } else { worst },
         method,
@@ -811,7 +822,17 @@ mod tests {
     #[test]
     fn dependent_blocks_are_refused() {
         let g = |xi: f64| Ok(1.0 + xi);
-        let err = fit(Channel::Boundary, 3.0, 0.5, None, &[1.5, 1.5], false, &g, None).unwrap_err();
+        let err = fit(
+            Channel::Boundary,
+            3.0,
+            0.5,
+            None,
+            &[1.5, 1.5],
+            false,
+            &g,
+            None,
+        )
+        .unwrap_err();
         assert!(err.message.contains("not independent"), "{}", err.message);
     }
 }

@@ -95,11 +95,7 @@ impl Series {
 
     pub fn scale(&self, c: &Q) -> Series {
         Series {
-            terms: self
-                .terms
-                .iter()
-                .map(|(e, v)| (e.clone(), v * c))
-                .collect(),
+            terms: self.terms.iter().map(|(e, v)| (e.clone(), v * c)).collect(),
             prec: self.prec.clone(),
         }
         .clip()
@@ -442,7 +438,11 @@ pub fn solve(
     if g.prec <= *top || bases.iter().any(|b| b.series.prec <= *top) {
         return None;
     }
-    let pivots: BTreeMap<&Vec<Q>, usize> = bases.iter().enumerate().map(|(k, b)| (&b.pivot, k)).collect();
+    let pivots: BTreeMap<&Vec<Q>, usize> = bases
+        .iter()
+        .enumerate()
+        .map(|(k, b)| (&b.pivot, k))
+        .collect();
     let mut rest = g.clone();
     let mut coefficients = vec![Q::zero(); bases.len()];
     let mut unmatched = Vec::new();
