@@ -258,7 +258,10 @@ fn an_irrational_dimension_falls_back_on_the_fit() {
 
 /// g_block(Δ, ℓ, Δ12, Δ34; z, z̄) from Dolan & Osborn 2001 (hep-th/0011040),
 /// eqs. 2.10-2.11 with a = -Δ12/2, b = Δ34/2, by mpmath 1.3 (30 digits).
-const MIXED: [(u32, f64, u32, f64, f64, f64, f64, f64); 3] = [
+/// d, Δ, ℓ, Δ12, Δ34, z, z̄, value.
+type Mixed = (u32, f64, u32, f64, f64, f64, f64, f64);
+
+const MIXED: [Mixed; 3] = [
     (
         4,
         3.3,

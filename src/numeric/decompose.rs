@@ -387,6 +387,7 @@ fn block(
 /// bulk–boundary–boundary function and the blocks are `f_bdy3`
 /// (docs/conventions.md §15), fitted at small χ (near the wall) for a
 /// tower.
+#[allow(clippy::too_many_arguments)] // the channel's data, then G two ways
 pub fn fit(
     channel: Channel,
     d: f64,

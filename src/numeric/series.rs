@@ -314,7 +314,7 @@ pub fn hyp2f1_coefficients(a: &Q, b: &Q, c: &Q, s: &Q, terms: usize) -> Option<V
         let kq = q(k as i64);
         let num = (a + &kq) * (b + &kq);
         if num.is_zero() {
-            out.extend(std::iter::repeat_n(Q::zero(), terms - k - 1));
+            out.extend(std::iter::repeat(Q::zero()).take(terms - k - 1));
             break;
         }
         let den = (c + &kq) * (&kq + Q::one());
