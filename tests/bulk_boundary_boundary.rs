@@ -221,3 +221,43 @@ fn free_scalar_phi_squared_with_two_wall_values() {
         }
     }
 }
+
+#[test]
+fn the_cross_ratio_chi_prints_recombined_and_refuses_misplaced_points() {
+    // `chi(x, s1, s2)` as a function's argument prints back as itself (as
+    // `xi(x1, x2)` does), and reads back to the same normal form.
+    let text = "dimension 3\nhalfspace y >= 0\npoints x\nboundary points s1 s2\n\
+                function F\nsimplify F(chi(x, s1, s2)) + F'(chi(x, s1, s2))\n";
+    let source = wardsmith::diagnostic::Source::new("chi.ward", text.to_string());
+    let out = run_source(
+        &source,
+        std::path::Path::new("."),
+        Mode::Simplify,
+        &Options::default(),
+    )
+    .unwrap_or_else(|e| panic!("{}", e.render()));
+    assert!(
+        out.report.contains("F(chi(x, s1, s2))") && out.report.contains("F'(chi(x, s1, s2))"),
+        "{}",
+        out.report
+    );
+    // A boundary point first, or a bulk point among the last two: errors
+    // at the argument.
+    for bad in ["chi(s1, x, s2)", "chi(x, s1, s1)", "chi(x, s1)"] {
+        let text = format!(
+            "dimension 3\nhalfspace y >= 0\npoints x\nboundary points s1 s2\n\
+             function F\nsimplify F({bad})\n"
+        );
+        let source = wardsmith::diagnostic::Source::new("chi.ward", text);
+        assert!(
+            run_source(
+                &source,
+                std::path::Path::new("."),
+                Mode::Simplify,
+                &Options::default()
+            )
+            .is_err(),
+            "{bad}"
+        );
+    }
+}

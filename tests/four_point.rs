@@ -187,13 +187,13 @@ fn gff_coefficient(d: u32, dphi: f64, n: u32, l: u32) -> f64 {
 
 #[test]
 fn the_generalised_free_field_decomposes_with_its_published_coefficients() {
-    // Five twists 2Δφ + 2n and the even spins to 12: 35 blocks, fitted at
-    // Euclidean configurations (G in u and v), Chebyshev radii in
-    // [0.02, 0.2]. The first six (by Δ: (n, ℓ) = (0, 0), (0, 2), (1, 0),
-    // (0, 4), (1, 2), (2, 0)), relative, measured: 4e-13, 3e-11, 3.4e-10,
-    // 2e-8, 3e-8, 6.5e-7 at worst over the four cases (log-spaced radii in
-    // [0.05, 0.25] gave the third to 1.2e-9): the fit's floor, set by the
-    // conditioning of the radial powers against the truncation of the towers.
+    // Five twists 2Δφ + 2n and the even spins to 12: 35 blocks, solved
+    // order by order in the series of G and the blocks in z, z̄ (exact
+    // rationals: Δφ is), checked at Euclidean configurations where the
+    // towers' truncation is below 1e-12. The least-squares fit this
+    // replaces gave the first six to 4e-13, 3e-11, 3.4e-10, 2e-8, 3e-8,
+    // 6.5e-7 at worst over the four cases; the series solve gives them to
+    // rounding of the closed form (1e-12 asked here).
     for (d, dphi) in [(4u32, 1.5), (4, 1.2), (2, 0.7), (2, 1.3)] {
         let text = format!(
             "dimension {d}\nparameters u v Dphi\nmodel conformal\nvalues Dphi = {dphi}\n\
@@ -202,35 +202,193 @@ fn the_generalised_free_field_decomposes_with_its_published_coefficients() {
         let (item, code) = decompose(&text);
         assert_eq!(code, 0, "{item}");
         assert_eq!(item["channel"], "s_channel");
-        assert!(
-            (item["identity"].as_f64().unwrap() - 1.0).abs() < 1e-11,
-            "{item}"
-        );
+        assert_eq!(item["method"], "series", "{item}");
+        assert_eq!(item["unmatched"], 0, "{item}");
+        assert_eq!(item["exact"][0], "1", "{item}");
+        assert!(item["residual"].as_f64().unwrap() < 1e-11, "{item}");
         let dims = item["dims"].as_array().unwrap();
         let spins = item["spins"].as_array().unwrap();
         let coefficients = item["coefficients"].as_array().unwrap();
-        let found = |n: u32, l: u32| -> f64 {
+        let index = |n: u32, l: u32| -> usize {
             let want = 2.0 * dphi + f64::from(2 * n + l);
-            let k = (0..dims.len())
+            (0..dims.len())
                 .find(|&k| {
                     (dims[k].as_f64().unwrap() - want).abs() < 1e-12
                         && spins[k].as_u64() == Some(u64::from(l))
                 })
-                .unwrap_or_else(|| panic!("no block n = {n}, ℓ = {l}"));
-            coefficients[k].as_f64().unwrap()
+                .unwrap_or_else(|| panic!("no block n = {n}, ℓ = {l}"))
         };
-        for (n, l, tol) in [
-            (0, 0, 1e-11),
-            (0, 2, 1e-10),
-            (1, 0, 1e-9),
-            (0, 4, 1e-7),
-            (1, 2, 1e-7),
-            (2, 0, 3e-6),
+        for (n, l) in [
+            (0, 0),
+            (0, 2),
+            (1, 0),
+            (0, 4),
+            (1, 2),
+            (2, 0),
+            (1, 4),
+            (2, 2),
+            (3, 0),
         ] {
-            let (got, want) = (found(n, l), gff_coefficient(d, dphi, n, l));
+            let got = coefficients[index(n, l)].as_f64().unwrap();
+            let want = gff_coefficient(d, dphi, n, l);
             assert!(
-                ((got - want) / want).abs() < tol,
+                ((got - want) / want).abs() < 1e-12,
                 "d = {d}, Δφ = {dphi}, n = {n}, ℓ = {l}: {got} vs {want}"
+            );
+        }
+        if (d, dphi) == (4, 1.5) {
+            // Exact: 2 and 45/64 (examples/four-point-blocks.ward).
+            assert_eq!(item["exact"][1 + index(0, 0)], "2");
+            assert_eq!(item["exact"][1 + index(0, 2)], "45/64");
+        }
+    }
+}
+
+#[test]
+fn an_irrational_dimension_falls_back_on_the_fit() {
+    // S_d/S_d = 1 keeps π in G: not a rational series, so least squares.
+    let text = "dimension 4\nparameters u v\nmodel conformal\n\
+        decompose 1 + S_d/S_d u^(3/2) + (u/v)^(3/2) in s-channel blocks twist 3 to 11 step 2, spin 0 to 12 step 2\n";
+    let (item, code) = decompose(text);
+    assert_eq!(code, 0, "{item}");
+    assert_eq!(item["method"], "fit", "{item}");
+    let c = item["coefficients"].as_array().unwrap();
+    assert!((c[0].as_f64().unwrap() - 2.0).abs() < 1e-10, "{item}");
+}
+
+/// g_block(Δ, ℓ, Δ12, Δ34; z, z̄) from Dolan & Osborn 2001 (hep-th/0011040),
+/// eqs. 2.10-2.11 with a = -Δ12/2, b = Δ34/2, by mpmath 1.3 (30 digits).
+/// d, Δ, ℓ, Δ12, Δ34, z, z̄, value.
+type Mixed = (u32, f64, u32, f64, f64, f64, f64, f64);
+
+const MIXED: [Mixed; 3] = [
+    (
+        4,
+        3.3,
+        2,
+        0.4,
+        -0.7,
+        0.3,
+        0.1,
+        0.018_257_909_518_716_846_853_49,
+    ),
+    (
+        2,
+        2.5,
+        1,
+        1.1,
+        0.3,
+        0.6,
+        0.2,
+        0.265_917_711_997_437_598_531_3,
+    ),
+    (
+        4,
+        5.2,
+        0,
+        -0.5,
+        0.5,
+        0.45,
+        0.2,
+        0.006_577_736_675_826_940_865_007,
+    ),
+];
+
+#[test]
+fn blocks_with_unequal_external_dimensions() {
+    use wardsmith::numeric::special::{
+        four_point_block_mixed, four_point_block_polar_mixed, Externals,
+    };
+    for (d, delta, l, d12, d34, z, zb, want) in MIXED {
+        let ext = Externals {
+            delta12: d12,
+            delta34: d34,
+        };
+        let got = four_point_block_mixed(d, delta, l, ext, z, zb).unwrap();
+        assert!(
+            ((got - want) / want).abs() < 1e-13,
+            "d = {d}, Δ = {delta}, ℓ = {l}: {got} vs {want}"
+        );
+    }
+    // z = 0.3 e^(i), z̄ = z*: mpmath 1.3 with complex z.
+    let ext = Externals {
+        delta12: 0.4,
+        delta34: -0.7,
+    };
+    let got = four_point_block_polar_mixed(4, 3.3, 2, ext, 0.3, 1.0).unwrap();
+    let want = -0.007_597_786_731_109_175_098_989;
+    assert!(((got - want) / want).abs() < 1e-13, "{got} vs {want}");
+    // The Casimir equation (Dolan & Osborn 2004, hep-th/0309180, eqs.
+    // 2.10-2.11, from memory) by five-point differences: 2 D_z + 2 D_z̄ +
+    // 2(d - 2) z z̄/(z - z̄)((1 - z)∂_z - (1 - z̄)∂_z̄), D_x = x²(1 - x)∂²
+    // - (a + b + 1) x²∂ - a b x.
+    let h = 1e-3;
+    for (d, delta, l, d12, d34, z, zb, _) in MIXED {
+        let ext = Externals {
+            delta12: d12,
+            delta34: d34,
+        };
+        let (a, b) = ext.ab();
+        let g = |p: f64, q: f64| four_point_block_mixed(d, delta, l, ext, p, q).unwrap();
+        let d1 = |f: &dyn Fn(f64) -> f64, x: f64| {
+            (f(x - 2.0 * h) - 8.0 * f(x - h) + 8.0 * f(x + h) - f(x + 2.0 * h)) / (12.0 * h)
+        };
+        let d2 = |f: &dyn Fn(f64) -> f64, x: f64| {
+            (-f(x - 2.0 * h) + 16.0 * f(x - h) - 30.0 * f(x) + 16.0 * f(x + h) - f(x + 2.0 * h))
+                / (12.0 * h * h)
+        };
+        let (gz, gzz) = (d1(&|p| g(p, zb), z), d2(&|p| g(p, zb), z));
+        let (gb, gbb) = (d1(&|q| g(z, q), zb), d2(&|q| g(z, q), zb));
+        let g0 = g(z, zb);
+        let dx = |x: f64, f1: f64, f2: f64| {
+            x * x * (1.0 - x) * f2 - (a + b + 1.0) * x * x * f1 - a * b * x * g0
+        };
+        let dd = f64::from(d);
+        let lhs = 2.0 * dx(z, gz, gzz)
+            + 2.0 * dx(zb, gb, gbb)
+            + 2.0 * (dd - 2.0) * z * zb / (z - zb) * ((1.0 - z) * gz - (1.0 - zb) * gb);
+        let c = delta * (delta - dd) + f64::from(l) * (f64::from(l) + dd - 2.0);
+        assert!(
+            (lhs - c * g0).abs() < 1e-7 * (c * g0).abs().max(1e-3),
+            "d = {d}, Δ = {delta}, ℓ = {l}: {lhs} vs {}",
+            c * g0
+        );
+    }
+}
+
+#[test]
+fn unequal_external_dimensions_decompose() {
+    // ⟨φ1 φ2 φ1 φ2⟩ = 1/(x13^(2Δ1) x24^(2Δ2)) of two generalised free
+    // fields: with the prefactor of Dolan & Osborn 2001 (hep-th/0011040,
+    // eq. 2.1), Δ12 = Δ34 = Δ1 - Δ2, it is G = u^((Δ1 + Δ2)/2) (derived
+    // here), expanded in the double twists Δ1 + Δ2 + 2n + ℓ of every spin.
+    // Δ1 = 6/5, Δ2 = 1/2: the series solve (exact) and the least-squares
+    // fit (with S_d/S_d, not a rational series) agree, and the leading
+    // coefficient is 1 (the normalisation g ~ z^((Δ+ℓ)/2) z̄^((Δ-ℓ)/2)).
+    for d in [2u32, 4] {
+        let series = format!(
+            "dimension {d}\nparameters u v\nmodel conformal\n\
+             decompose u^(17/20) in s-channel blocks twist 17/10 to 17/10 + 8 step 2, spin 0 to 10, delta12 = 7/10, delta34 = 7/10\n"
+        );
+        let (exact, code) = decompose(&series);
+        assert_eq!(code, 0, "{exact}");
+        assert_eq!(exact["method"], "series", "{exact}");
+        assert_eq!(exact["unmatched"], 0, "{exact}");
+        assert!(exact["residual"].as_f64().unwrap() < 1e-11, "{exact}");
+        assert_eq!(exact["exact"][0], "0");
+        assert_eq!(exact["exact"][1], "1");
+        let fitted = series.replace("decompose u^", "decompose S_d/S_d u^");
+        let (fit, code) = decompose(&fitted);
+        assert_eq!(code, 0, "{fit}");
+        assert_eq!(fit["method"], "fit");
+        let a = exact["coefficients"].as_array().unwrap();
+        let b = fit["coefficients"].as_array().unwrap();
+        // The lowest twist's first spins (the fit's best determined).
+        for k in 0..3 {
+            let (x, y) = (a[k].as_f64().unwrap(), b[k].as_f64().unwrap());
+            assert!(
+                (x - y).abs() < 1e-6 * x.abs().max(1e-3),
+                "d = {d}, block {k}: {x} vs {y}"
             );
         }
     }
@@ -249,4 +407,27 @@ fn real_configurations_fit_too_and_a_wrong_tower_fails() {
     let wrong = text.replace("twist 3 to 9", "twist 4 to 10");
     let (item, code) = decompose(&wrong);
     assert_eq!(code, 1, "{item}");
+}
+
+#[test]
+fn the_equal_dimension_casimir_is_refuted_on_mixed_blocks() {
+    // tests/cases/numeric/four-point-casimir-mixed-d4.ward proves the
+    // Casimir with the a b and (a + b) terms; without them (the operator of
+    // equal external dimensions) the claim is refuted by its remainder's
+    // value (docs/conventions.md §12).
+    use std::path::Path;
+    use std::sync::Arc;
+    use wardsmith::diagnostic::Source;
+    use wardsmith::run::{run_source, Mode, Options};
+    let text = "dimension 4\npositive z zb Delta l\nparameters D12 D34\n\
+        let g(z, zb) = g_block(Delta, l, D12, D34; z, zb)\n\
+        claim 2 z^2 (1 - z) g[2,0](z, zb) - 2 z^2 g[1,0](z, zb)\n\
+            + 2 zb^2 (1 - zb) g[0,2](z, zb) - 2 zb^2 g[0,1](z, zb)\n\
+            + 4 z zb/(z - zb) ((1 - z) g[1,0](z, zb) - (1 - zb) g[0,1](z, zb))\n\
+          = (Delta (Delta - 4) + l (l + 2)) g(z, zb)\n";
+    let source = Arc::new(Source::new("slip.ward", text));
+    let out = run_source(&source, Path::new("."), Mode::Check, &Options::default())
+        .unwrap_or_else(|e| panic!("{}", e.render()));
+    assert_eq!(out.code, 1);
+    assert!(out.report.contains("claim NOT PROVED"), "{}", out.report);
 }

@@ -34,6 +34,8 @@ pub const FOUR_POINT_BLOCK: &str = "g_block";
 /// The cross-ratios of four points, `u(x1, x2, x3, x4)` and `v(…)`.
 pub const CROSS_RATIO_U: &str = "u";
 pub const CROSS_RATIO_V: &str = "v";
+/// The bulk–boundary–boundary cross-ratio `chi(x, s1, s2)`.
+pub const CROSS_RATIO_CHI: &str = "chi";
 
 const HYP_FORM: &str = "the Gauss hypergeometric function ₂F₁(a, b; c; z) is written `F21(a, b; c; z)` (or `₂F₁(a, b; c; z)`), its derivatives in z `F21'(a, b; c; z)`, `F21''(a, b; c; z)`";
 
@@ -75,6 +77,10 @@ impl Lowerer {
             }
             if name == BOUNDARY_THREE_POINT_BLOCK {
                 return self.three_point_block(c, span);
+            }
+            if name == CROSS_RATIO_CHI && c.args.len() == 3 {
+                self.plain_call(c, span, "the cross-ratio chi")?;
+                return self.three_point_ratio(c, span);
             }
             if (name == CROSS_RATIO_U || name == CROSS_RATIO_V) && c.args.len() == 4 {
                 self.plain_call(c, span, &format!("the cross-ratio {name}"))?;
@@ -225,6 +231,81 @@ impl Lowerer {
             format!("more than {MAX_ORDER} derivatives of one function"),
         )
         .with_label("too many derivatives")
+    }
+
+    /// χ = y² s12²/(|x - s1|² |x - s2|²) of a bulk point x (height y) and
+    /// two boundary points s1, s2 (docs/conventions.md §15).
+    fn three_point_ratio(&self, c: &Call, span: Span) -> Result<Term> {
+        let form = "χ = y² |s1 - s2|²/(|x - s1|² |x - s2|²), written `chi(x, s1, s2)`: a bulk point, then two boundary points";
+        self.need_halfspace(span, "the cross-ratio chi")?;
+        if c.primes > 0 {
+            return Err(self
+                .err(
+                    ErrorKind::Syntax,
+                    c.name.span,
+                    "the cross-ratio chi cannot carry primes",
+                )
+                .with_label("primes")
+                .with_note(form));
+        }
+        let mut points = Vec::with_capacity(3);
+        for (k, arg) in c.args.iter().enumerate() {
+            let crate::syntax::ast::ExprKind::Name(n) = &arg.kind else {
+                return Err(self
+                    .err(
+                        ErrorKind::Syntax,
+                        arg.span,
+                        "the cross-ratio chi takes points, not expressions",
+                    )
+                    .with_label("not a point")
+                    .with_note(form));
+            };
+            let p = self.point(&crate::syntax::ast::PointRef {
+                name: n.clone(),
+                par: false,
+                span: n.span,
+            })?;
+            let boundary = self.ctx.is_boundary_point(&p);
+            if (k == 0) == boundary {
+                return Err(self
+                    .err(
+                        ErrorKind::Placement,
+                        arg.span,
+                        if k == 0 {
+                            format!("the first point of chi is a bulk point, and `{}` is a boundary point", n.text)
+                        } else {
+                            format!("the last two points of chi are boundary points, and `{}` is a bulk point", n.text)
+                        },
+                    )
+                    .with_label(if k == 0 { "a boundary point" } else { "a bulk point" })
+                    .with_note(form));
+            }
+            if points.contains(&p) {
+                return Err(self
+                    .err(
+                        ErrorKind::Placement,
+                        arg.span,
+                        format!("`{}` is named twice in the cross-ratio chi", n.text),
+                    )
+                    .with_label("the same point again")
+                    .with_note(form));
+            }
+            points.push(p);
+        }
+        let square = |i: usize, j: usize, e: i64| {
+            let (a, b) = (points[i].clone(), points[j].clone());
+            let (a, b) = if a < b { (a, b) } else { (b, a) };
+            Term::Pow(Box::new(Term::Dist(a, b)), Box::new(Term::int(e)))
+        };
+        Ok(Term::Mul(vec![
+            Term::Pow(
+                Box::new(Term::Comp(points[0].clone(), crate::term::Index::N)),
+                Box::new(Term::int(2)),
+            ),
+            square(1, 2, 2),
+            square(0, 1, -2),
+            square(0, 2, -2),
+        ]))
     }
 
     /// u = x12² x34²/(x13² x24²) and v = x14² x23²/(x13² x24²) of four
@@ -457,7 +538,7 @@ impl Lowerer {
     /// ℓ is a whole number ≥ 0 or a symbol; a symbolic ℓ in d = 2 stands
     /// for ℓ ≥ 1 (no 1/2).
     fn four_point_block(&self, c: &Call, span: Span) -> Result<Term> {
-        let form = "the four-point block is written `g_block(Delta, l; z, zb)`: the exchanged dimension and spin, `;`, then z and z̄ (u = z z̄, v = (1 - z)(1 - z̄); docs/conventions.md §14); to differentiate it, name it with `let g(z, zb) = g_block(Delta, l; z, zb)` and write `g[1,0](z, zb)`";
+        let form = "the four-point block is written `g_block(Delta, l; z, zb)`, or `g_block(Delta, l, D12, D34; z, zb)` with D12 = Δ1 - Δ2, D34 = Δ3 - Δ4: the exchanged dimension and spin, `;`, then z and z̄ (u = z z̄, v = (1 - z)(1 - z̄); docs/conventions.md §14); to differentiate it, name it with `let g(z, zb) = g_block(Delta, l; z, zb)` and write `g[1,0](z, zb)`";
         if c.orders.is_some() || c.primes > 0 {
             return Err(self
                 .err(
@@ -468,12 +549,15 @@ impl Lowerer {
                 .with_label("derivatives of g_block")
                 .with_note(form));
         }
-        if c.args.len() != 4 || c.separators != [',', ';', ','] {
+        // `g_block(Δ, ℓ; z, z̄)`, or `g_block(Δ, ℓ, Δ12, Δ34; z, z̄)` for
+        // unequal external dimensions.
+        let mixed = c.args.len() == 6 && c.separators == [',', ',', ',', ';', ','];
+        if !mixed && (c.args.len() != 4 || c.separators != [',', ';', ',']) {
             return Err(self
                 .err(
                     ErrorKind::Syntax,
                     span,
-                    "the four-point block takes a dimension and a spin, `;`, then z and z̄",
+                    "the four-point block takes a dimension and a spin (and Δ12, Δ34), `;`, then z and z̄",
                 )
                 .with_label("not `g_block(Delta, l; z, zb)`")
                 .with_note(form));
@@ -492,16 +576,16 @@ impl Lowerer {
                     .with_note("declare `dimension 2` or `dimension 4`"))
             }
         };
-        let mut lowered = Vec::with_capacity(4);
+        let mut lowered = Vec::with_capacity(6);
         for (k, a) in c.args.iter().enumerate() {
             self.scalar_argument(a, "an argument of the four-point block")?;
             let t = self.expr(a)?;
-            if k < 2 && t.mentions_any_point() {
+            if k + 2 < c.args.len() && t.mentions_any_point() {
                 return Err(self
                     .err(
                         ErrorKind::Syntax,
                         a.span,
-                        "the dimension and spin of a block cannot depend on points",
+                        "the dimensions and spin of a block cannot depend on points",
                     )
                     .with_label("depends on a point")
                     .with_note(form));
@@ -525,18 +609,25 @@ impl Lowerer {
             }
             _ => false,
         };
-        let [delta, l, z, zb] = <[Term; 4]>::try_from(lowered).map_err(|_| {
+        if !mixed {
+            lowered.splice(2..2, [Term::int(0), Term::int(0)]);
+        }
+        let [delta, l, d12, d34, z, zb] = <[Term; 6]>::try_from(lowered).map_err(|_| {
             Error::new(
                 ErrorKind::Syntax,
-                "the four-point block takes four arguments",
+                "the four-point block takes four or six arguments",
             )
         })?;
         let half = |t: Term| Term::Mul(vec![Term::Num(ratio(1, 2)), t]);
+        // k_β(x) = x^(β/2) ₂F₁(β/2 - Δ12/2, β/2 + Δ34/2; β; x) (Dolan &
+        // Osborn 2001, hep-th/0011040, eqs. 2.10-2.11: a = -Δ12/2, b = Δ34/2).
         let k = |beta: Term, x: &Term| {
             let h = half(beta.clone());
+            let a = Term::Add(vec![h.clone(), half(d12.clone().negated())]);
+            let b = Term::Add(vec![h.clone(), half(d34.clone())]);
             Term::Mul(vec![
-                Term::Pow(Box::new(x.clone()), Box::new(h.clone())),
-                Term::hyp2f1(0, h.clone(), h, beta, x.clone()),
+                Term::Pow(Box::new(x.clone()), Box::new(h)),
+                Term::hyp2f1(0, a, b, beta, x.clone()),
             ])
         };
         let plus = Term::Add(vec![delta.clone(), l.clone()]);

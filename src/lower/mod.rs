@@ -439,7 +439,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                 span,
             } if *channel == Channel::SChannel => {
                 seen_expression = true;
-                let BlockDims::TwistSpin(towers) = dims else {
+                let BlockDims::TwistSpin(towers, externals) = dims else {
                     return Err(lowerer.err(
                         ErrorKind::Syntax,
                         *span,
@@ -464,6 +464,13 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                 let dims = Dims::TwistSpin {
                     twist: Box::new(tower(&towers[0])?),
                     spin: Box::new(tower(&towers[1])?),
+                    externals: match externals {
+                        Some(e) => Some(Box::new((
+                            lowerer.scalar_parameter_expr(&e.0)?,
+                            lowerer.scalar_parameter_expr(&e.1)?,
+                        ))),
+                        None => None,
+                    },
                 };
                 if let Some((name, span)) = output {
                     check_output_name(&lowerer, name, *span)?;
@@ -546,7 +553,7 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                             .map(|e| lowerer.scalar_parameter_expr(e))
                             .collect::<Result<_>>()?,
                     ),
-                    BlockDims::TwistSpin(_) => {
+                    BlockDims::TwistSpin(..) => {
                         return Err(lowerer
                             .err(
                                 ErrorKind::Syntax,
@@ -1790,6 +1797,8 @@ pub enum Dims {
     TwistSpin {
         twist: Box<(Term, Term, Option<Term>)>,
         spin: Box<(Term, Term, Option<Term>)>,
+        /// Δ12 = Δ1 - Δ2 and Δ34 = Δ3 - Δ4 (0 when not written).
+        externals: Option<Box<(Term, Term)>>,
     },
 }
 

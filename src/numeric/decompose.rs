@@ -18,12 +18,14 @@
 //! (the high members of a truncated tower absorb the truncation error and
 //! are not determined).
 
+use super::series::{self, Basis, Series, Q};
 use super::special::blocks::{
-    boundary_block, boundary_three_point_block, bulk_block, four_point_block,
-    four_point_block_polar,
+    boundary_block, boundary_three_point_block, bulk_block, four_point_block_mixed,
+    four_point_block_polar_mixed, Externals,
 };
 use crate::diagnostic::{Error, ErrorKind, Result};
 use crate::lower::Channel;
+use num_traits::{One, Zero};
 
 /// Largest relative residual at which an expansion counts as exact.
 pub const DECOMPOSE_TOLERANCE: f64 = 1e-9;
@@ -61,14 +63,287 @@ pub struct Decomposition {
     pub checked_at: usize,
     /// Largest |G - expansion| at the check values over the largest |G|.
     pub residual: f64,
+    /// How the coefficients were found: order by order in the series of
+    /// G and the blocks about the channel's limit (exact), or by least
+    /// squares (where G or a dimension is not a rational series).
+    pub method: Method,
+    /// The exact coefficients of the series solve (the identity's first,
+    /// as in `spread`), `p` or `p/q`; empty for a fit.
+    pub exact: Vec<String>,
+    /// Terms of G's series inside the span of the blocks that no block
+    /// matched (an expansion has none); 0 for a fit.
+    pub unmatched: usize,
     /// (ξ, G, expansion) at every fit and check value, ξ increasing.
     pub rows: Vec<(f64, f64, f64)>,
 }
 
 impl Decomposition {
     pub fn holds(&self) -> bool {
-        self.residual <= DECOMPOSE_TOLERANCE
+        self.residual <= DECOMPOSE_TOLERANCE && self.unmatched == 0
     }
+}
+
+/// How a decomposition's coefficients were found.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Method {
+    Fit,
+    Series,
+}
+
+/// Relative size below which the truncation of a tower is negligible at a
+/// check value: the check range of a series solve ends where the first
+/// terms of the remainder's series reach it.
+pub const TRUNCATION_TARGET: f64 = 1e-12;
+
+/// How many orders beyond the highest block the series are taken, for the
+/// truncation estimate.
+const EXTRA_ORDERS: i64 = 3;
+
+/// A two-point function's exact data for the series solve: d, Δ and the
+/// exchanged dimensions as rationals, and G as a series in the channel's
+/// variable (1/ξ for the boundary channel, ξ for the bulk channel) known
+/// to a given degree.
+pub struct TwoPointSeries<'a> {
+    pub d: Q,
+    pub delta: Q,
+    pub dims: Vec<Q>,
+    pub g: &'a dyn Fn(&Q) -> Option<Series>,
+}
+
+/// A four-point function's exact data: the blocks (Δ, ℓ), Δ12 and Δ34 as
+/// rationals, the largest twist and spin of the towers, and G as a series
+/// in z, z̄ known to a given total degree.
+pub struct FourPointSeries<'a> {
+    pub blocks: Vec<(Q, u32)>,
+    pub delta12: Q,
+    pub delta34: Q,
+    pub twist_max: Q,
+    pub spin_max: u32,
+    pub g: &'a dyn Fn(&Q) -> Option<Series>,
+}
+
+fn rat(n: i64) -> Q {
+    Q::from_integer(n.into())
+}
+
+/// G to at least `want` (raising the cap while products lose precision).
+fn series_to(
+    g: &dyn Fn(&Q) -> Option<Series>,
+    want: &Q,
+    fix: &dyn Fn(Series) -> Option<Series>,
+) -> Option<Series> {
+    for margin in [0, 2, 4, 8, 16] {
+        let gs = fix(g(&(want + rat(margin)))?)?;
+        if gs.prec >= *want {
+            return Some(gs);
+        }
+    }
+    None
+}
+
+/// x^offset ₂F₁(a, b; c; s x) in variable `var` of `n`, known to `cap`.
+fn hyp_series(n: usize, var: usize, offset: &Q, abc: [&Q; 3], s: &Q, cap: &Q) -> Option<Series> {
+    let count = series::to_f64(&(cap - offset)).ceil().max(0.0) as usize + 2;
+    if count > 2000 {
+        return None;
+    }
+    let coeffs = series::hyp2f1_coefficients(abc[0], abc[1], abc[2], s, count)?;
+    series::power_series(n, var, offset, &coeffs, cap)
+}
+
+/// The largest value of the channel variable in (lo, hi] where the
+/// remainder's first terms are below [`TRUNCATION_TARGET`] of G's lowest
+/// ones (`hi` when the remainder has none).
+fn truncation_edge(beyond: &Series, g: &Series, lo: f64, hi: f64, factor: f64) -> f64 {
+    if beyond.terms.is_empty() {
+        return hi;
+    }
+    let val = g.valuation();
+    let lead = Series {
+        terms: g
+            .terms
+            .iter()
+            .filter(|(e, _)| series::degree(e) == val)
+            .map(|(e, c)| (e.clone(), c.clone()))
+            .collect(),
+        prec: g.prec.clone(),
+    };
+    let mut t = hi;
+    while t > lo {
+        if beyond.size_at(t) * factor.max(1.0) <= TRUNCATION_TARGET * lead.size_at(t) {
+            return t;
+        }
+        t *= 0.95;
+    }
+    lo
+}
+
+/// The series solve of a two-point function next to the wall: the
+/// coefficients (the identity's first in the bulk channel), the count of
+/// unmatched terms, and the largest value of ξ (bulk) or 1/ξ (boundary)
+/// where the tower's truncation is negligible.
+fn solve_two_point(
+    channel: Channel,
+    s: &TwoPointSeries,
+    x_max: f64,
+) -> Option<(Vec<Q>, usize, f64)> {
+    let half = Q::new(1.into(), 2.into());
+    let mut bases = Vec::new();
+    let pivot = |dim: &Q| -> Q {
+        match channel {
+            Channel::Bulk => dim * &half,
+            _ => dim - &s.delta,
+        }
+    };
+    let top = s.dims.iter().map(pivot).max()?.max(Q::zero());
+    let want = &top + rat(EXTRA_ORDERS);
+    if channel == Channel::Bulk {
+        bases.push(Basis {
+            pivot: vec![Q::zero()],
+            series: Series::constant(Q::one(), 1, &want),
+        });
+    }
+    let block = |dim: &Q| -> Option<Series> {
+        let e = pivot(dim);
+        match channel {
+            Channel::Bulk => {
+                let h = dim * &half;
+                let c = dim + Q::one() - &s.d * &half;
+                hyp_series(1, 0, &h, [&h, &h, &c], &rat(-1), &want)
+            }
+            Channel::Boundary => {
+                let b = dim + Q::one() - &s.d * &half;
+                if b.is_zero() {
+                    // ₂F₁(a, ε; 2ε; z) → (1 + (1 - z)^(-a))/2, z = -w.
+                    let one = Series::constant(Q::one(), 1, &want);
+                    let w = Series::monomial(vec![Q::one()], Q::one(), &want);
+                    let p = one.add(&w).pow(&(-dim), 1, &want)?;
+                    one.add(&p)
+                        .scale(&half)
+                        .mul(&Series::monomial(vec![e], Q::one(), &want), &want)
+                } else {
+                    let c = &b + &b;
+                    hyp_series(1, 0, &e, [dim, &b, &c], &rat(-1), &want)
+                }
+            }
+            Channel::SChannel => None,
+        }
+    };
+    for dim in &s.dims {
+        bases.push(Basis {
+            pivot: vec![pivot(dim)],
+            series: block(dim)?,
+        });
+    }
+    // The dimension whose block a monomial x^e leads.
+    let dimension_of = |e: &Q| -> Q {
+        match channel {
+            Channel::Bulk => e + e,
+            _ => e + &s.delta,
+        }
+    };
+    let g = series_to(s.g, &want, &|g| Some(g))?;
+    let m = series::solve(&g, &bases, &top, &|_| true, &|e| e[0] <= top, &|e| {
+        // Not the identity (the bulk channel's is a given basis function).
+        if e[0].is_zero() && channel == Channel::Bulk {
+            return None;
+        }
+        block(&dimension_of(&e[0]))
+    })?;
+    let edge = truncation_edge(&m.beyond, &g, 1e-4 * x_max, x_max, 1.0);
+    Some((m.coefficients, m.unmatched.len(), edge))
+}
+
+/// The series solve of a four-point function: the identity's coefficient
+/// and the blocks', the count of unmatched terms, and the largest |z| where
+/// the towers' truncation is negligible.
+fn solve_four_point(d: u32, s: &FourPointSeries, r_max: f64) -> Option<(Vec<Q>, usize, f64)> {
+    let half = Q::new(1.into(), 2.into());
+    let a = -(&s.delta12 * &half);
+    let b = &s.delta34 * &half;
+    let shift = if d == 4 { rat(1) } else { rat(0) };
+    // Pivots: z^((Δ+ℓ)/2) z̄^((Δ-ℓ)/2) (d = 2), z̄^(-1) less in d = 4,
+    // where G and the blocks are multiplied by (z - z̄)/(z z̄).
+    let pivot = |dim: &Q, l: u32| -> Vec<Q> {
+        let l = rat(i64::from(l));
+        vec![(dim + &l) * &half, (dim - &l) * &half - &shift]
+    };
+    let top = s
+        .blocks
+        .iter()
+        .map(|(dim, l)| series::degree(&pivot(dim, *l)))
+        .max()?
+        .max(Q::zero());
+    let want = &top + rat(EXTRA_ORDERS);
+    let z = |e: Q| Series::monomial(vec![e, Q::zero()], Q::one(), &want);
+    let zb = |e: Q| Series::monomial(vec![Q::zero(), e], Q::one(), &want);
+    let mut bases = vec![Basis {
+        pivot: vec![Q::zero(), -shift.clone()],
+        series: if d == 4 {
+            zb(rat(-1)).add(&z(rat(-1)).scale(&rat(-1)))
+        } else {
+            Series::constant(Q::one(), 2, &want)
+        },
+    }];
+    let k = |beta: &Q, var: usize, other: &Q| -> Option<Series> {
+        let h = beta * &half;
+        let cap = &want + rat(1) + (-other).max(Q::zero());
+        hyp_series(2, var, &h, [&(&h + &a), &(&h + &b), beta], &rat(1), &cap)
+    };
+    let block = |dim: &Q, l: u32| -> Option<Series> {
+        let lq = rat(i64::from(l));
+        let (b1, b2) = if d == 4 {
+            (dim + &lq, dim - &lq - rat(2))
+        } else {
+            (dim + &lq, dim - &lq)
+        };
+        let (h1, h2) = (&b1 * &half, &b2 * &half);
+        let one = k(&b1, 0, &h2)?.mul(&k(&b2, 1, &h1)?, &want)?;
+        let two = k(&b2, 0, &h1)?.mul(&k(&b1, 1, &h2)?, &want)?;
+        Some(match (d, l) {
+            (4, _) => one.add(&two.scale(&rat(-1))),
+            (_, 0) => one.add(&two).scale(&half),
+            _ => one.add(&two),
+        })
+    };
+    for (dim, l) in &s.blocks {
+        bases.push(Basis {
+            pivot: pivot(dim, *l),
+            series: block(dim, *l)?,
+        });
+    }
+    let fix = |g: Series| -> Option<Series> {
+        if d != 4 {
+            return Some(g);
+        }
+        let cap = g.prec.clone();
+        let factor = Series::monomial(vec![rat(0), rat(-1)], Q::one(), &cap)
+            .add(&Series::monomial(vec![rat(-1), rat(0)], rat(-1), &cap));
+        g.mul(&factor, &cap)
+    };
+    let g = series_to(s.g, &want, &fix)?;
+    let inside = |e: &[Q]| -> bool {
+        let l = &e[0] - &e[1] - &shift;
+        let twist = &e[1] + &e[1] + &shift + &shift;
+        twist <= s.twist_max && l <= rat(i64::from(s.spin_max))
+    };
+    // The block a monomial z^a z̄^b (a ≥ b) leads: Δ = a + b (+ 1 in d = 4),
+    // ℓ = a - b (- 1 in d = 4), a whole number ≥ 0.
+    let make = |e: &[Q]| -> Option<Series> {
+        let l = &e[0] - &e[1] - &shift;
+        if !l.is_integer() || l < Q::zero() {
+            return None;
+        }
+        let dim = &e[0] + &e[1] + &shift;
+        if dim.is_zero() {
+            return None;
+        }
+        block(&dim, num_traits::ToPrimitive::to_u32(&l.to_integer())?)
+    };
+    let m = series::solve(&g, &bases, &top, &|e: &[Q]| e[0] >= e[1], &inside, &make)?;
+    let edge = truncation_edge(&m.beyond, &g, 1e-3, r_max, 1.0);
+    Some((m.coefficients, m.unmatched.len(), edge))
 }
 
 fn numeric(why: impl Into<String>) -> Error {
@@ -112,6 +387,7 @@ fn block(
 /// bulk–boundary–boundary function and the blocks are `f_bdy3`
 /// (docs/conventions.md §15), fitted at small χ (near the wall) for a
 /// tower.
+#[allow(clippy::too_many_arguments)] // the channel's data, then G two ways
 pub fn fit(
     channel: Channel,
     d: f64,
@@ -120,6 +396,7 @@ pub fn fit(
     dims: &[f64],
     tower: bool,
     g: &dyn Fn(f64) -> Result<f64>,
+    exact: Option<&TwoPointSeries>,
 ) -> Result<Decomposition> {
     if dims.is_empty() {
         return Err(numeric("no dimension to expand in"));
@@ -171,25 +448,75 @@ pub fn fit(
         let at: Vec<(f64, f64)> = xs.iter().copied().zip(b.iter().copied()).collect();
         Ok((least_squares(&mut a, &mut b, columns)?, at))
     };
-    let (x, fit_rows) = solve(range)?;
-    let (y, _) = solve(further)?;
-    let spread: Vec<f64> = x.iter().zip(&y).map(|(p, q)| (p - q).abs()).collect();
+    // The variable of the series: 1/ξ (boundary), ξ (bulk).
+    let x_max = match channel {
+        Channel::Boundary => 1.0 / range.0,
+        _ => range.1,
+    };
+    let solved = match exact {
+        Some(s) if delta12.is_none() => solve_two_point(channel, s, x_max),
+        _ => None,
+    };
+    let (x, spread, fit_rows, check_range, method, exact_text, unmatched) = match solved {
+        Some((c, unmatched, edge)) => {
+            let check_range = match channel {
+                Channel::Boundary => {
+                    let lo = (1.0 / edge).max(range.0);
+                    (lo, range.1.max(10.0 * lo))
+                }
+                _ => {
+                    let hi = edge.min(range.1);
+                    (range.0.min(0.1 * hi), hi)
+                }
+            };
+            let x: Vec<f64> = c.iter().map(series::to_f64).collect();
+            let fit_rows = (0..n_fit)
+                .map(|k| {
+                    let xi = sample(check_range, k as f64);
+                    Ok((xi, g(xi)?))
+                })
+                .collect::<Result<Vec<_>>>()?;
+            (
+                x,
+                vec![0.0; c.len()],
+                fit_rows,
+                check_range,
+                Method::Series,
+                c.iter().map(series::text).collect(),
+                unmatched,
+            )
+        }
+        None => {
+            let (x, fit_rows) = solve(range)?;
+            let (y, _) = solve(further)?;
+            let spread: Vec<f64> = x.iter().zip(&y).map(|(p, q)| (p - q).abs()).collect();
+            (x, spread, fit_rows, range, Method::Fit, Vec::new(), 0)
+        }
+    };
     let check_xi: Vec<f64> = (0..n_fit - 1)
-        .map(|k| sample(range, k as f64 + 0.5))
+        .map(|k| sample(check_range, k as f64 + 0.5))
         .collect();
     let expansion =
         |xi: f64| -> Result<f64> { Ok(row(xi)?.iter().zip(&x).map(|(r, c)| r * c).sum()) };
     let mut rows = Vec::new();
     let (mut worst, mut size) = (0.0f64, 0.0f64);
+    let mut checked = check_xi.clone();
+    if method == Method::Series {
+        checked.extend(fit_rows.iter().map(|r| r.0));
+    }
     for &xi in &check_xi {
         let gv = g(xi)?;
         let e = expansion(xi)?;
-        worst = worst.max((gv - e).abs());
-        size = size.max(gv.abs());
         rows.push((xi, gv, e));
     }
     for (xi, gv) in fit_rows {
         rows.push((xi, gv, expansion(xi)?));
+    }
+    for &(xi, gv, e) in &rows {
+        if checked.contains(&xi) {
+            worst = worst.max((gv - e).abs());
+            size = size.max(gv.abs());
+        }
     }
     rows.sort_by(|p, q| p.0.total_cmp(&q.0));
     let (identity, coefficients) = match channel {
@@ -205,10 +532,13 @@ pub fn fit(
         identity,
         coefficients,
         spread,
-        range,
-        fitted_at: n_fit,
-        checked_at: check_xi.len(),
+        range: check_range,
+        fitted_at: if method == Method::Series { 0 } else { n_fit },
+        checked_at: checked.len(),
         residual: if size > 0.0 { worst / size } else { worst },
+        method,
+        exact: exact_text,
+        unmatched,
         rows,
     })
 }
@@ -238,8 +568,10 @@ pub enum Frame {
 pub fn fit_four_point(
     d: u32,
     blocks: &[(f64, u32)],
+    ext: Externals,
     frame: Frame,
     g: &dyn Fn(f64, f64) -> Result<f64>,
+    exact: Option<&FourPointSeries>,
 ) -> Result<Decomposition> {
     if blocks.is_empty() {
         return Err(numeric("no block to expand in"));
@@ -290,8 +622,8 @@ pub fn fit_four_point(
         r.push(1.0);
         for &(dim, spin) in blocks {
             let v = match frame {
-                Frame::Real => four_point_block(d, dim, spin, p, q),
-                Frame::Euclidean => four_point_block_polar(d, dim, spin, p, q),
+                Frame::Real => four_point_block_mixed(d, dim, spin, ext, p, q),
+                Frame::Euclidean => four_point_block_polar_mixed(d, dim, spin, ext, p, q),
             };
             r.push(v.map_err(|e| {
                 numeric(format!(
@@ -326,14 +658,34 @@ pub fn fit_four_point(
             .collect::<Result<_>>()?;
         least_squares(&mut a, &mut b, columns)
     };
-    let x = solve(range)?;
-    let y = solve((0.5 * range.0, 0.5 * range.1))?;
-    let spread: Vec<f64> = x.iter().zip(&y).map(|(p, q)| (p - q).abs()).collect();
+    let solved = exact.and_then(|s| solve_four_point(d, s, range.1));
+    let (x, spread, check_range, method, exact_text, unmatched) = match solved {
+        Some((c, unmatched, edge)) => {
+            let hi = edge.min(range.1);
+            (
+                c.iter().map(series::to_f64).collect::<Vec<f64>>(),
+                vec![0.0; c.len()],
+                (0.25 * hi, hi),
+                Method::Series,
+                c.iter().map(series::text).collect::<Vec<String>>(),
+                unmatched,
+            )
+        }
+        None => {
+            let x = solve(range)?;
+            let y = solve((0.5 * range.0, 0.5 * range.1))?;
+            let spread: Vec<f64> = x.iter().zip(&y).map(|(p, q)| (p - q).abs()).collect();
+            (x, spread, range, Method::Fit, Vec::new(), 0)
+        }
+    };
     let expansion =
         |p: f64, q: f64| -> Result<f64> { Ok(row(p, q)?.iter().zip(&x).map(|(r, c)| r * c).sum()) };
-    let mut check: Vec<(f64, f64)> = grid(range, 0.5);
+    let mut check: Vec<(f64, f64)> = grid(check_range, 0.5);
+    if method == Method::Series {
+        check.extend(grid(check_range, 0.0));
+    }
     check.retain(|p| {
-        p.0 <= range.1 && angle(1.0) >= p.1 / if frame == Frame::Real { p.0 } else { 1.0 }
+        p.0 <= check_range.1 && angle(1.0) >= p.1 / if frame == Frame::Real { p.0 } else { 1.0 }
     });
     let (mut worst, mut size) = (0.0f64, 0.0f64);
     for &(p, q) in &check {
@@ -345,7 +697,7 @@ pub fn fit_four_point(
     // r, along z̄ = z/2 (real) or θ = π/2 (Euclidean).
     let mut rows = Vec::new();
     for k in 0..2 * n_r {
-        let (a, b) = (range.0.ln(), range.1.ln());
+        let (a, b) = (check_range.0.ln(), check_range.1.ln());
         let r = (a + (b - a) * k as f64 / (2 * n_r - 1) as f64).exp();
         let q = match frame {
             Frame::Real => 0.5 * r,
@@ -362,10 +714,17 @@ pub fn fit_four_point(
         identity: Some(x[0]),
         coefficients: x[1..].to_vec(),
         spread,
-        range,
-        fitted_at: n_r * n_t,
+        range: check_range,
+        fitted_at: if method == Method::Series {
+            0
+        } else {
+            n_r * n_t
+        },
         checked_at: check.len(),
         residual: if size > 0.0 { worst / size } else { worst },
+        method,
+        exact: exact_text,
+        unmatched,
         rows,
     })
 }
@@ -464,7 +823,17 @@ mod tests {
     #[test]
     fn dependent_blocks_are_refused() {
         let g = |xi: f64| Ok(1.0 + xi);
-        let err = fit(Channel::Boundary, 3.0, 0.5, None, &[1.5, 1.5], false, &g).unwrap_err();
+        let err = fit(
+            Channel::Boundary,
+            3.0,
+            0.5,
+            None,
+            &[1.5, 1.5],
+            false,
+            &g,
+            None,
+        )
+        .unwrap_err();
         assert!(err.message.contains("not independent"), "{}", err.message);
     }
 }

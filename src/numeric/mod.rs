@@ -14,6 +14,7 @@ pub mod eval;
 pub mod models;
 pub mod nonzero;
 pub mod quadrature;
+pub mod series;
 pub mod session;
 pub mod special;
 pub mod structures;

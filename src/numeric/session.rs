@@ -13,7 +13,7 @@
 use std::sync::atomic::{AtomicUsize, Ordering};
 use std::sync::{Arc, Mutex};
 
-use num_traits::ToPrimitive;
+use num_traits::{One, ToPrimitive, Zero};
 
 use super::agreement::{
     agreement, describe_loss, relative_difference, Agreement, ERROR_SAFETY, RESOLUTION,
@@ -23,6 +23,7 @@ use super::models::conformal::{Conformal, Convention};
 use super::models::free_scalar::{Composite, FreeScalar, Mapping, Reflection, Wall};
 use super::models::{apply, pointwise_pairs, sphere_area, Model, SPHERE_AREA};
 use super::quadrature::{integrate_batch, Surface, Tolerance, MAX_DIM, MIN_DIM};
+use super::series::{Series, Q};
 use super::Values;
 use crate::context::{Context, IndexKind, DIMENSION, STRESS_TENSOR};
 use crate::diagnostic::{Error, ErrorKind, Result};
@@ -67,6 +68,9 @@ pub struct Session<'a> {
     /// The relative accuracy asked of quadrature (`tolerance`, or
     /// [`QUADRATURE_TOLERANCE`]).
     tolerance: f64,
+    /// The scalar parameters' values as given (exact rationals), for the
+    /// series solve of `decompose`.
+    exact: Arc<std::collections::BTreeMap<String, Q>>,
 }
 
 type CompiledCache =
@@ -181,6 +185,13 @@ impl<'a> Session<'a> {
             explicit_cache: Arc::new(Mutex::new(std::collections::HashMap::new())),
             compiled_cache: Arc::new(Mutex::new(std::collections::HashMap::new())),
             tolerance: spec.tolerance.unwrap_or(QUADRATURE_TOLERANCE),
+            exact: Arc::new(
+                spec.values
+                    .iter()
+                    .filter(|(n, v)| v.len() == 1 && !ctx.params.contains_key(*n))
+                    .map(|(n, v)| (n.clone(), v[0].clone()))
+                    .collect(),
+            ),
         })
     }
 
@@ -196,6 +207,7 @@ impl<'a> Session<'a> {
             explicit_cache: Arc::clone(&self.explicit_cache),
             compiled_cache: Arc::clone(&self.compiled_cache),
             tolerance: self.tolerance,
+            exact: Arc::clone(&self.exact),
         };
         view.select(k);
         view
@@ -274,8 +286,17 @@ impl<'a> Session<'a> {
         dims: &crate::lower::Dims,
     ) -> Result<super::decompose::Decomposition> {
         use crate::lower::Dims;
-        if let Dims::TwistSpin { twist, spin } = dims {
-            return self.decompose_four_point(corr, twist, spin);
+        if let Dims::TwistSpin {
+            twist,
+            spin,
+            externals,
+        } = dims
+        {
+            let (d12, d34) = match externals {
+                Some(e) => (Some(&e.0), Some(&e.1)),
+                None => (None, None),
+            };
+            return self.decompose_four_point(corr, twist, spin, d12, d34);
         }
         let Term::Corr(ops) = corr else {
             return Err(Error::new(
@@ -376,7 +397,16 @@ impl<'a> Session<'a> {
                 let c = self.value(corr, &[], &v)?.value;
                 Ok(c * (2.0 * y).powf(d1) * 2f64.powf(d2 + d3))
             };
-            return super::decompose::fit(channel, dim as f64, d1, Some(delta12), &list, tower, &g);
+            return super::decompose::fit(
+                channel,
+                dim as f64,
+                d1,
+                Some(delta12),
+                &list,
+                tower,
+                &g,
+                None,
+            );
         }
         let g = |xi: f64| -> Result<f64> {
             let mut v = values.clone();
@@ -389,7 +419,70 @@ impl<'a> Session<'a> {
             let c = self.value(corr, &[], &v)?.value;
             Ok(c * (4.0 * xi).powf(d1))
         };
-        super::decompose::fit(channel, dim as f64, d1, None, &list, tower, &g)
+        // The series solve: G at heights 1/2 (4 y1 y2 = 1), |x1 - x2| = √ξ,
+        // in w = 1/ξ (boundary channel) or ξ (bulk channel).
+        let exact_dims: Option<Vec<Q>> = match dims {
+            Dims::List(ts) => ts.iter().map(|t| self.exact_number(t)).collect(),
+            Dims::Tower { from, step, .. } => {
+                let a = self.exact_number(from);
+                let s = match step {
+                    Some(s) => self.exact_number(s),
+                    None => Some(Q::one()),
+                };
+                a.zip(s).map(|(a, s)| {
+                    (0..list.len())
+                        .map(|k| &a + &s * Q::from_integer(k.into()))
+                        .collect()
+                })
+            }
+            Dims::TwistSpin { .. } => None,
+        };
+        let delta_exact = self
+            .ctx
+            .operator(&ops[0].name)
+            .and_then(|o| o.attrs.get("dim"))
+            .and_then(|t| self.exact_number(t));
+        let boundary = channel == crate::lower::Channel::Boundary;
+        let half = Q::new(1.into(), 2.into());
+        let (p1, p2) = (&ops[0].point, &ops[1].point);
+        let explicit = self.explicit_term(corr).ok();
+        let series_g = |cap: &Q| -> Option<Series> {
+            let e = explicit.as_ref()?;
+            let delta = delta_exact.as_ref()?;
+            let sign = if boundary { -Q::one() } else { Q::one() };
+            let leaf = |t: &Term| -> Option<Series> {
+                match t {
+                    Term::Dist(a, b) if (a == p1 && b == p2) || (a == p2 && b == p1) => {
+                        Some(Series::monomial(vec![&sign * &half], Q::one(), cap))
+                    }
+                    Term::Comp(p, Index::N) if p == p1 || p == p2 => {
+                        Some(Series::constant(half.clone(), 1, cap))
+                    }
+                    _ => self.exact_leaf(t, 1, cap),
+                }
+            };
+            let corr = super::series::of_term(e, 1, cap, &leaf)?;
+            corr.mul(&Series::monomial(vec![&sign * delta], Q::one(), cap), cap)
+        };
+        let exact = match (exact_dims, &delta_exact) {
+            (Some(dims), Some(delta)) => Some(super::decompose::TwoPointSeries {
+                d: Q::from_integer(dim.into()),
+                delta: delta.clone(),
+                dims,
+                g: &series_g,
+            }),
+            _ => None,
+        };
+        super::decompose::fit(
+            channel,
+            dim as f64,
+            d1,
+            None,
+            &list,
+            tower,
+            &g,
+            exact.as_ref(),
+        )
     }
 
     /// The expansion of a four-point function `f` of z, z̄ (parameters `z`,
@@ -401,9 +494,21 @@ impl<'a> Session<'a> {
         f: &Term,
         twist: &(Term, Term, Option<Term>),
         spin: &(Term, Term, Option<Term>),
+        delta12: Option<&Term>,
+        delta34: Option<&Term>,
     ) -> Result<super::decompose::Decomposition> {
         let values = self.values().clone();
         let number = |t: &Term| -> Result<f64> { Ok(self.value(t, &[], &values)?.value) };
+        let external = |t: Option<&Term>| -> Result<(f64, Option<Q>)> {
+            match t {
+                None => Ok((0.0, Some(Q::zero()))),
+                Some(t) => Ok((number(t)?, self.exact_number(t))),
+            }
+        };
+        let (e12, x12) = external(delta12)?;
+        let (e34, x34) = external(delta34)?;
+        let externals = (e12, e34);
+        let ext = (x12, x34);
         let numeric = |m: String| Error::new(ErrorKind::Numeric, m);
         let tower = |t: &(Term, Term, Option<Term>), what: &str| -> Result<Vec<f64>> {
             let (a, b) = (number(&t.0)?, number(&t.1)?);
@@ -471,7 +576,62 @@ impl<'a> Session<'a> {
             v.scalars.insert("v".into(), w);
             Ok(self.value(f, &[], &v)?.value)
         };
-        super::decompose::fit_four_point(d, &blocks, frame, &g)
+        // The series solve: G in z, z̄ (u = z z̄, v = (1 - z)(1 - z̄)).
+        let exact_tower = |t: &(Term, Term, Option<Term>), count: usize| -> Option<Vec<Q>> {
+            let a = self.exact_number(&t.0)?;
+            let s = match &t.2 {
+                Some(s) => self.exact_number(s)?,
+                None => Q::one(),
+            };
+            Some(
+                (0..count)
+                    .map(|k| &a + &s * Q::from_integer(k.into()))
+                    .collect(),
+            )
+        };
+        let series_g = |cap: &Q| -> Option<Series> {
+            let var = |k: usize| {
+                let mut e = vec![Q::zero(), Q::zero()];
+                e[k] = Q::one();
+                Series::monomial(e, Q::one(), cap)
+            };
+            let one = Series::constant(Q::one(), 2, cap);
+            let leaf = |t: &Term| -> Option<Series> {
+                match t {
+                    Term::Sym(s) if s == "z" => Some(var(0)),
+                    Term::Sym(s) if s == "zb" => Some(var(1)),
+                    Term::Sym(s) if s == "u" => var(0).mul(&var(1), cap),
+                    Term::Sym(s) if s == "v" => one
+                        .add(&var(0).scale(&-Q::one()))
+                        .mul(&one.add(&var(1).scale(&-Q::one())), cap),
+                    _ => self.exact_leaf(t, 2, cap),
+                }
+            };
+            super::series::of_term(f, 2, cap, &leaf)
+        };
+        let exact = (|| {
+            let ts = exact_tower(twist, twists.len())?;
+            let ls = exact_tower(spin, spins.len())?;
+            let mut exact_blocks = Vec::new();
+            for t in &ts {
+                for l in &ls {
+                    exact_blocks.push((t + l, l.to_integer().to_u32()?));
+                }
+            }
+            Some(super::decompose::FourPointSeries {
+                blocks: exact_blocks,
+                delta12: ext.0.clone()?,
+                delta34: ext.1.clone()?,
+                twist_max: ts.last()?.clone(),
+                spin_max: ls.last()?.to_integer().to_u32()?,
+                g: &series_g,
+            })
+        })();
+        let externals = crate::numeric::special::Externals {
+            delta12: externals.0,
+            delta34: externals.1,
+        };
+        super::decompose::fit_four_point(d, &blocks, externals, frame, &g, exact.as_ref())
     }
 
     /// The model's correlator `corr` expanded in its tensor structures
@@ -1064,11 +1224,8 @@ impl<'a> Session<'a> {
         Ok(p)
     }
 
-    fn explicit_uncached(
-        &self,
-        t: &Term,
-        free: &[(String, usize)],
-    ) -> Result<super::eval::Program> {
+    /// The model's explicit, normalised term for `t` (cached).
+    fn explicit_term(&self, t: &Term) -> Result<Term> {
         // The symbolic work is the same for every component and sample.
         // Threads that miss at once both do the work; the results are equal.
         let cached = self
@@ -1076,7 +1233,7 @@ impl<'a> Session<'a> {
             .lock()
             .ok()
             .and_then(|c| c.get(t).cloned());
-        let explicit = match cached {
+        Ok(match cached {
             Some(e) => e,
             None => {
                 let simplified = self.engine.simplify(t)?.term;
@@ -1087,7 +1244,40 @@ impl<'a> Session<'a> {
                 }
                 e
             }
-        };
+        })
+    }
+
+    /// The exact value of a term of numbers, `d` and parameters with
+    /// rational values (`values`), for the series solve of `decompose`.
+    fn exact_number(&self, t: &Term) -> Option<Q> {
+        let cap = Q::one();
+        super::series::of_term(t, 0, &cap, &|t| self.exact_leaf(t, 0, &cap))?.constant_value()
+    }
+
+    /// `d` and the parameters with rational values as constant series.
+    fn exact_leaf(&self, t: &Term, n: usize, cap: &Q) -> Option<Series> {
+        match t {
+            Term::Sym(s) if s == DIMENSION => Some(Series::constant(
+                Q::from_integer(self.values().dim.into()),
+                n,
+                cap,
+            )),
+            Term::Sym(s) => {
+                let v = self.exact.get(s)?;
+                // Only while the value in force is the one given.
+                let now = self.values().scalars.get(s)?;
+                (super::series::to_f64(v) == *now).then(|| Series::constant(v.clone(), n, cap))
+            }
+            _ => None,
+        }
+    }
+
+    fn explicit_uncached(
+        &self,
+        t: &Term,
+        free: &[(String, usize)],
+    ) -> Result<super::eval::Program> {
+        let explicit = self.explicit_term(t)?;
         compile(self.ctx, &explicit, free, self.values().dim)
     }
 

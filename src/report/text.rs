@@ -680,7 +680,29 @@ impl Text {
             "line {line}: decompose {}",
             abbreviate(input, INPUT_WIDTH)
         );
-        if found.channel == Channel::SChannel {
+        use crate::numeric::decompose::Method;
+        if found.method == Method::Series {
+            let _ = writeln!(
+                self.out,
+                "  {channel} channel{}: {} block{} solved order by order in the series about the channel's limit (exact), {} unmatched term{}, checked at {} {} in [{}, {}]",
+                if found.channel == Channel::SChannel {
+                    String::new()
+                } else {
+                    format!(", Δ = {}", found.delta)
+                },
+                found.dims.len(),
+                if found.dims.len() == 1 { "" } else { "s" },
+                found.unmatched,
+                if found.unmatched == 1 { "" } else { "s" },
+                found.checked_at,
+                match found.channel {
+                    Channel::SChannel => "configurations, |z|",
+                    _ => "values of ξ",
+                },
+                found.range.0,
+                found.range.1,
+            );
+        } else if found.channel == Channel::SChannel {
             let _ = writeln!(
                 self.out,
                 "  s-channel: {} block{} fitted at {} configurations, |z| in [{}, {}], checked at {} others",

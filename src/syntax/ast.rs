@@ -24,8 +24,12 @@ pub enum BlockDims {
     List(Vec<Expr>),
     /// first, last and step (1 when not written).
     Tower(Box<(Expr, Expr, Option<Expr>)>),
-    /// The s-channel's towers of twists and of spins.
-    TwistSpin(Box<[(Expr, Expr, Option<Expr>); 2]>),
+    /// The s-channel's towers of twists and of spins, and Δ12, Δ34 when
+    /// written.
+    TwistSpin(
+        Box<[(Expr, Expr, Option<Expr>); 2]>,
+        Option<Box<(Expr, Expr)>>,
+    ),
 }
 
 /// A byte range in one source text.

@@ -947,11 +947,20 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                 let mut t = which.into_inner();
                 let twist = tower(next(&mut t))?;
                 let spin = tower(next(&mut t))?;
+                let externals = match t.next() {
+                    Some(p) => {
+                        let mut e = p.into_inner();
+                        let a = build_expr(source, next(&mut e), 0)?;
+                        let b = build_expr(source, next(&mut e), 0)?;
+                        Some(Box::new((a, b)))
+                    }
+                    None => None,
+                };
                 let output = inner.next().map(|string| output_name(&string));
                 return Ok(Stmt::Decompose {
                     corr,
                     channel: Channel::SChannel,
-                    dims: BlockDims::TwistSpin(Box::new([twist, spin])),
+                    dims: BlockDims::TwistSpin(Box::new([twist, spin]), externals),
                     output,
                     span,
                 });

@@ -398,6 +398,42 @@ pub fn cross_ratio_points(t: &Term) -> Option<(&super::Point, &super::Point)> {
     matches.then_some((p, q))
 }
 
+/// The bulk point x and boundary points s1, s2 when `t` is the normal form
+/// of the bulk–boundary–boundary cross-ratio χ = y² s12²/(|x - s1|²
+/// |x - s2|²), so that a function's argument prints as `chi(x, s1, s2)`
+/// again (s1 before s2 as in the distance |s1 - s2|).
+pub fn chi_points(t: &Term) -> Option<(&super::Point, &super::Point, &super::Point)> {
+    let Term::Mul(fs) = t else {
+        return None;
+    };
+    if fs.len() != 4 {
+        return None;
+    }
+    let two = BigRational::from_integer(2.into());
+    let mut height = None;
+    let mut top = None;
+    let mut below = Vec::new();
+    for f in fs {
+        let Term::Pow(b, e) = f else {
+            return None;
+        };
+        match (&**b, &**e) {
+            (Term::Comp(p, super::Index::N), Term::Num(k)) if *k == two => height = Some(p),
+            (Term::Dist(p, q), Term::Num(k)) if *k == two => top = Some((p, q)),
+            (Term::Dist(p, q), Term::Num(k)) if *k == -two.clone() => below.push((p, q)),
+            _ => return None,
+        }
+    }
+    let (x, (s1, s2)) = (height?, top?);
+    let other = |a: &super::Point, b: &super::Point| {
+        below
+            .iter()
+            .any(|(p, q)| (*p == a && *q == b) || (*p == b && *q == a))
+    };
+    let distinct = x != s1 && x != s2 && s1 != s2;
+    (distinct && below.len() == 2 && other(x, s1) && other(x, s2)).then_some((x, s1, s2))
+}
+
 /// True for a sum that is a polynomial in one symbol: its powers read back
 /// as written (`/(d - 1)^2`), unlike sums of coordinates, whose powers the
 /// normaliser expands.

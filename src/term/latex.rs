@@ -287,7 +287,22 @@ fn atom(ctx: &Context, t: &Term, out: &mut String) {
                     Some((p, q)) if ctx.has_halfspace() => {
                         out.push_str(&format!("\\xi({}, {})", wrap(&point(p)), wrap(&point(q))))
                     }
-                    _ => sum(ctx, a, out),
+                    _ => match super::factor::chi_points(a) {
+                        Some((x, s1, s2))
+                            if ctx.has_halfspace()
+                                && ctx.is_boundary_point(s1)
+                                && ctx.is_boundary_point(s2)
+                                && !ctx.is_boundary_point(x) =>
+                        {
+                            out.push_str(&format!(
+                                "\\chi({}, {}, {})",
+                                wrap(&point(x)),
+                                wrap(&point(s1)),
+                                wrap(&point(s2))
+                            ))
+                        }
+                        _ => sum(ctx, a, out),
+                    },
                 }
             }
             out.push_str("\\right)");

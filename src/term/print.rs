@@ -351,7 +351,23 @@ impl<'a> Printer<'a> {
                             self.point(q, out);
                             out.push(')');
                         }
-                        _ => self.sum(a, out),
+                        _ => match super::factor::chi_points(a) {
+                            Some((x, s1, s2))
+                                if self.ctx.has_halfspace()
+                                    && self.ctx.is_boundary_point(s1)
+                                    && self.ctx.is_boundary_point(s2)
+                                    && !self.ctx.is_boundary_point(x) =>
+                            {
+                                out.push_str("chi(");
+                                self.point(x, out);
+                                out.push_str(", ");
+                                self.point(s1, out);
+                                out.push_str(", ");
+                                self.point(s2, out);
+                                out.push(')');
+                            }
+                            _ => self.sum(a, out),
+                        },
                     }
                 }
                 out.push(')');

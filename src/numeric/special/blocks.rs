@@ -132,8 +132,36 @@ fn check(d: f64, delta: f64, xi: f64) -> Result<(), SpecialError> {
 /// factor of the four-point blocks (Dolan & Osborn 2001, hep-th/0011040,
 /// for equal external dimensions).
 pub fn collinear_block(beta: f64, x: f64) -> Result<f64, SpecialError> {
+    collinear_block_mixed(beta, Externals::EQUAL, x)
+}
+
+/// The external dimensions' differences that enter the four-point blocks:
+/// Δ12 = Δ1 - Δ2 and Δ34 = Δ3 - Δ4 (Dolan & Osborn 2001, hep-th/0011040,
+/// eqs. 2.10, 2.11 with a = -Δ12/2, b = Δ34/2).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Externals {
+    pub delta12: f64,
+    pub delta34: f64,
+}
+
+impl Externals {
+    pub const EQUAL: Externals = Externals {
+        delta12: 0.0,
+        delta34: 0.0,
+    };
+
+    /// a = -Δ12/2 and b = Δ34/2.
+    pub fn ab(self) -> (f64, f64) {
+        (-0.5 * self.delta12, 0.5 * self.delta34)
+    }
+}
+
+/// k_β(x) = x^(β/2) ₂F₁(β/2 + a, β/2 + b; β; x), a = -Δ12/2, b = Δ34/2,
+/// 0 < x < 1 (Dolan & Osborn 2001, hep-th/0011040, eqs. 2.10-2.11).
+pub fn collinear_block_mixed(beta: f64, ext: Externals, x: f64) -> Result<f64, SpecialError> {
     let h = 0.5 * beta;
-    finite(x.powf(h) * hyp2f1(h, h, beta, x)?)
+    let (a, b) = ext.ab();
+    finite(x.powf(h) * hyp2f1(h + a, h + b, beta, x)?)
 }
 
 /// The s-channel block g_{Δ,ℓ}(z, z̄) of a four-point function of identical
@@ -153,25 +181,43 @@ pub fn four_point_block(
     z: f64,
     zb: f64,
 ) -> Result<f64, SpecialError> {
-    if !(delta.is_finite() && z.is_finite() && zb.is_finite()) {
+    four_point_block_mixed(d, delta, spin, Externals::EQUAL, z, zb)
+}
+
+/// [`four_point_block`] for unequal external dimensions: the same formulas
+/// with [`collinear_block_mixed`] (Dolan & Osborn 2001, eqs. 2.10-2.11).
+pub fn four_point_block_mixed(
+    d: u32,
+    delta: f64,
+    spin: u32,
+    ext: Externals,
+    z: f64,
+    zb: f64,
+) -> Result<f64, SpecialError> {
+    if !(delta.is_finite()
+        && z.is_finite()
+        && zb.is_finite()
+        && ext.delta12.is_finite()
+        && ext.delta34.is_finite())
+    {
         return Err(SpecialError::NotFinite);
     }
     if !(z > 0.0 && z < 1.0 && zb > 0.0 && zb < 1.0) {
         return Err(SpecialError::FourPointRatio);
     }
     let l = f64::from(spin);
+    let k = |beta: f64, x: f64| collinear_block_mixed(beta, ext, x);
     match d {
         2 => {
-            let s = collinear_block(delta + l, z)? * collinear_block(delta - l, zb)?
-                + collinear_block(delta - l, z)? * collinear_block(delta + l, zb)?;
+            let s = k(delta + l, z)? * k(delta - l, zb)? + k(delta - l, z)? * k(delta + l, zb)?;
             finite(if spin == 0 { 0.5 * s } else { s })
         }
         4 => {
             if z == zb {
                 return Err(SpecialError::FourPointRatio);
             }
-            let s = collinear_block(delta + l, z)? * collinear_block(delta - l - 2.0, zb)?
-                - collinear_block(delta - l - 2.0, z)? * collinear_block(delta + l, zb)?;
+            let s = k(delta + l, z)? * k(delta - l - 2.0, zb)?
+                - k(delta - l - 2.0, z)? * k(delta + l, zb)?;
             finite(z * zb / (z - zb) * s)
         }
         _ => Err(SpecialError::FourPointDimension),
@@ -217,13 +263,19 @@ impl Complex {
 /// Most terms of the series of k_β at complex z.
 const COMPLEX_TERMS: usize = 2000;
 
-/// k_β(z) = z^(β/2) ₂F₁(β/2, β/2; β; z) at z = r e^(iθ), 0 < r ≤ 0.9, by
+/// k_β(z) = z^(β/2) ₂F₁(β/2 + a, β/2 + b; β; z) at z = r e^(iθ), 0 < r ≤ 0.9, by
 /// the defining series (DLMF 15.2.1) with the principal power.
-fn collinear_block_complex(beta: f64, r: f64, theta: f64) -> Result<Complex, SpecialError> {
+fn collinear_block_complex(
+    beta: f64,
+    ext: Externals,
+    r: f64,
+    theta: f64,
+) -> Result<Complex, SpecialError> {
     let h = 0.5 * beta;
+    let (a, b) = ext.ab();
     if beta <= 0.0 && beta.fract() == 0.0 {
         // β = 0: k_0 = 1 (the series' terms are 0/0 with a = 0 first).
-        if beta == 0.0 {
+        if beta == 0.0 && (h + a == 0.0 || h + b == 0.0) {
             return Ok(Complex(1.0, 0.0));
         }
         return Err(SpecialError::ParameterPole);
@@ -234,7 +286,7 @@ fn collinear_block_complex(beta: f64, r: f64, theta: f64) -> Result<Complex, Spe
     let mut size = 1.0f64;
     for k in 0..COMPLEX_TERMS {
         let k = k as f64;
-        let f = (h + k) * (h + k) / ((beta + k) * (k + 1.0));
+        let f = (h + a + k) * (h + b + k) / ((beta + k) * (k + 1.0));
         term = term.mul(z).scale(f);
         sum = sum.add(term);
         size = size.max(term.abs());
@@ -260,7 +312,24 @@ pub fn four_point_block_polar(
     r: f64,
     theta: f64,
 ) -> Result<f64, SpecialError> {
-    if !(delta.is_finite() && r.is_finite() && theta.is_finite()) {
+    four_point_block_polar_mixed(d, delta, spin, Externals::EQUAL, r, theta)
+}
+
+/// [`four_point_block_polar`] for unequal external dimensions.
+pub fn four_point_block_polar_mixed(
+    d: u32,
+    delta: f64,
+    spin: u32,
+    ext: Externals,
+    r: f64,
+    theta: f64,
+) -> Result<f64, SpecialError> {
+    if !(delta.is_finite()
+        && r.is_finite()
+        && theta.is_finite()
+        && ext.delta12.is_finite()
+        && ext.delta34.is_finite())
+    {
         return Err(SpecialError::NotFinite);
     }
     if !(r > 0.0 && r <= 0.9 && theta > 0.0 && theta < std::f64::consts::PI) {
@@ -271,15 +340,15 @@ pub fn four_point_block_polar(
     match d {
         2 => {
             // k(z) k'(z̄) + k'(z) k(z̄) = 2 Re[k(z) k'(z)*].
-            let a = collinear_block_complex(delta + l, r, theta)?;
-            let b = collinear_block_complex(delta - l, r, theta)?;
+            let a = collinear_block_complex(delta + l, ext, r, theta)?;
+            let b = collinear_block_complex(delta - l, ext, r, theta)?;
             let s = 2.0 * a.mul(conj(b)).0;
             finite(if spin == 0 { 0.5 * s } else { s })
         }
         4 => {
             // z z̄/(z - z̄) [k(z) k'(z̄) - k'(z) k(z̄)] = r²/(2i r sin θ) · 2i Im[k(z) k'(z)*].
-            let a = collinear_block_complex(delta + l, r, theta)?;
-            let b = collinear_block_complex(delta - l - 2.0, r, theta)?;
+            let a = collinear_block_complex(delta + l, ext, r, theta)?;
+            let b = collinear_block_complex(delta - l - 2.0, ext, r, theta)?;
             let im = a.mul(conj(b)).1;
             finite(r / theta.sin() * im)
         }

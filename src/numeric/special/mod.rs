@@ -25,8 +25,9 @@ use std::fmt;
 use crate::diagnostic::{Error, ErrorKind};
 
 pub use blocks::{
-    boundary_block, boundary_three_point_block, bulk_block, collinear_block, four_point_block,
-    four_point_block_polar, z_zbar,
+    boundary_block, boundary_three_point_block, bulk_block, collinear_block, collinear_block_mixed,
+    four_point_block, four_point_block_mixed, four_point_block_polar, four_point_block_polar_mixed,
+    z_zbar, Externals,
 };
 pub use gamma::{digamma, gamma, ln_gamma, rgamma};
 pub use hypergeometric::{hyp2f1, hyp2f1_regularized, hyp2f1_scale, hyp2f1_vanishing_bc};
