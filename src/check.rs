@@ -308,6 +308,29 @@ impl<'a> Checker<'a> {
                 };
                 self.push(item, input, finding);
             }
+            (
+                ItemKind::Perturb {
+                    corr,
+                    coupling,
+                    operators,
+                    points,
+                    order,
+                    expects,
+                },
+                _,
+            ) => {
+                let s = self.session()?;
+                let input = text.strip_prefix("perturb ").unwrap_or(&text).to_string();
+                let finding = match perturbed(s, corr, coupling, operators, points, *order, expects)
+                {
+                    Ok(p) => Finding::Perturb(p),
+                    Err(e) if e.kind == ErrorKind::Numeric || e.kind == ErrorKind::Placement => {
+                        failure("perturb", &e)
+                    }
+                    Err(e) => return Err(e),
+                };
+                self.push(item, input, finding);
+            }
             (ItemKind::Structures { corr, fit, output }, _) => {
                 let input = text.to_string();
                 let started = std::time::Instant::now();
@@ -592,6 +615,72 @@ fn failure(keyword: &str, e: &Error) -> Finding {
     Finding::Failed(Failure {
         statement: keyword.to_string(),
         reason: lines.join("\n"),
+    })
+}
+
+/// `perturb`: the orders, their sum, and each `expect` by the agreement
+/// rule.
+fn perturbed(
+    s: &Session,
+    corr: &Term,
+    coupling: &Term,
+    operators: &[String],
+    points: &[crate::term::Point],
+    order: usize,
+    expects: &[(Option<usize>, Term)],
+) -> Result<crate::outcome::Perturbed> {
+    let orders = s.perturb(corr, coupling, operators, points, order)?;
+    let mut total = Value::exact(0.0);
+    for o in &orders {
+        let v = &o.value;
+        total.value += v.value;
+        total.error += v.error;
+        total.nodes += v.nodes;
+        total.scale += v.scale;
+        total.rounding += v.rounding + f64::EPSILON * total.value.abs();
+        total.underflow |= v.underflow;
+        total.terms = total.terms.max(v.terms);
+    }
+    let coupling_value = s.evaluate(coupling, &[])?;
+    let g = coupling_value
+        .components
+        .first()
+        .map_or(f64::NAN, |(_, v)| v.value);
+    let mut checked = Vec::new();
+    for (which, e) in expects {
+        let expected = s
+            .evaluate(e, &[])?
+            .components
+            .first()
+            .map(|(_, v)| *v)
+            .unwrap_or_else(|| Value::exact(f64::NAN));
+        let computed = match which {
+            Some(k) => orders.get(*k).map_or(Value::exact(f64::NAN), |o| o.value),
+            None => total,
+        };
+        checked.push(crate::outcome::PerturbExpected {
+            order: *which,
+            computed,
+            expected,
+            relative_difference: agreement::relative_difference(&computed, &expected),
+            verdict: agreement::agreement(&computed, &expected),
+        });
+    }
+    let verdict = if checked.is_empty() {
+        None
+    } else {
+        Some(
+            checked
+                .iter()
+                .fold(Agreement::Agree, |all, c| all.and(c.verdict.clone())),
+        )
+    };
+    Ok(crate::outcome::Perturbed {
+        coupling: g,
+        orders,
+        total,
+        expects: checked,
+        verdict,
     })
 }
 

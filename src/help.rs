@@ -178,6 +178,11 @@ pub const STATEMENTS: &[Entry] = &[
         example: "structures <T[mu,nu](x) D(s1) D(s2)>",
         meaning: "the independent tensor structures of a correlator with spinning insertions (rank at random configurations against the count the symmetry predicts), its cross-ratios, and for one conserved insertion the exact differential relations among the coefficient functions; `decompose <…> in structures into \"name\"`: the model's correlator expanded in them, f_i(η) in name.csv/.svg, and the wall limit against ⟨D …⟩ (docs/conventions.md §16)",
     },
+    Entry {
+        keyword: "perturb",
+        example: "perturb <P(x1) P(x2)> by g H C on boundary z1 z2 to order 2 expect order 1 = 0",
+        meaning: "conformal perturbation theory in g ∫ H C over the wall (H C: boundary scalars of the unperturbed model, at one point): the corrections of order g and g² as wall integrals of the model's connected correlators (bulk insertions only), with error estimates; at second order the cutoff |z - z'| > ε, the power divergences and the coefficient of ln(1/ε) reported apart from the finite part; `expect order n = E`, `expect total = E` compared (docs/conventions.md §17)",
+    },
 ];
 
 /// What `wardsmith help language` prints after the statements.

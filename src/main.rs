@@ -29,14 +29,15 @@ enum Command {
     Simplify(FileArgs),
     /// Check every statement of FILE that states something: each `claim`,
     /// each `simplify … expect …`, each step of a `derivation`, and on the
-    /// file's model each `compare`, `flux`, `scan`, `decompose` and `structures`; print
+    /// file's model each `compare`, `flux`, `scan`, `decompose`, `structures` and
+    /// `perturb … expect`; print
     /// what `simplify`, `evaluate`, `classify` and `solve` find.
     ///
     /// Statements: dimension, halfspace, scalar, vector, tensor, boundary,
     /// points, parameters, positive, parallel, function, let, rules, killing,
     /// classify, simplify, claim, derivation, slip, place, model,
     /// coefficient, values, sample, tolerance, evaluate, compare, flux,
-    /// solve, scan, decompose, structures.
+    /// solve, scan, decompose, structures, perturb.
     /// One example each: `wardsmith help language`.
     #[command(after_help = CONVENTIONS)]
     Check(FileArgs),

@@ -368,6 +368,8 @@ pub enum Finding {
     Compare(Compared),
     Scan(Scanned),
     Decompose(Decomposed),
+    /// `perturb ⟨X⟩ by g O on boundary … to order N`.
+    Perturb(Perturbed),
     /// `structures ⟨…⟩`, `decompose ⟨…⟩ in structures`.
     Structures(StructuresFound),
     /// A numeric statement that could not be carried out (a quadrature
@@ -392,6 +394,7 @@ impl Finding {
             } else {
                 Status::NotProved
             }),
+            Finding::Perturb(p) => p.verdict.as_ref().map(Status::of_agreement),
             Finding::Structures(s) => Some(if s.holds {
                 Status::Confirmed
             } else {
@@ -414,6 +417,7 @@ impl Finding {
             Finding::Compare(_) => "compare",
             Finding::Scan(_) => "scan",
             Finding::Decompose(_) => "decompose",
+            Finding::Perturb(_) => "perturb",
             Finding::Structures(s) => {
                 if s.fit.is_some() {
                     "decompose"
@@ -669,6 +673,32 @@ pub struct Solved {
     pub exact: Option<Expr>,
     /// Where the equation with the exact value holds only away from these.
     pub exact_away_from: Vec<Coincidence>,
+}
+
+/// `perturb ⟨X⟩ by g O on boundary … to order N` (docs/conventions.md
+/// §17): each order's correction at the coupling, their sum, and the
+/// `expect`s checked by the agreement rule.
+#[derive(Clone, Debug, Serialize)]
+pub struct Perturbed {
+    /// The coupling's value.
+    pub coupling: f64,
+    /// Orders 0 (the unperturbed correlator) to N.
+    pub orders: Vec<crate::numeric::perturb::OrderTerm>,
+    /// The sum of the orders.
+    pub total: Value,
+    pub expects: Vec<PerturbExpected>,
+    /// All expects together; none without an `expect`.
+    pub verdict: Option<Agreement>,
+}
+
+/// One `expect order n = E` (`order` n) or `expect total = E` (no order).
+#[derive(Clone, Debug, Serialize)]
+pub struct PerturbExpected {
+    pub order: Option<usize>,
+    pub computed: Value,
+    pub expected: Value,
+    pub relative_difference: f64,
+    pub verdict: Agreement,
 }
 
 /// `compare L = R`, component by component.

@@ -78,6 +78,20 @@ pub enum ItemKind {
     /// `evaluate E`: numeric values in the file's model, one per value of
     /// the free indices.
     Evaluate { expr: Term, free: Vec<String> },
+    /// `perturb ⟨X⟩ by g O… on boundary z… to order N`: conformal
+    /// perturbation theory in g ∫ O over the wall (docs/conventions.md §17).
+    Perturb {
+        /// The correlator ⟨X⟩, bulk scalar insertions only.
+        corr: Term,
+        coupling: Term,
+        /// The boundary operators whose product at one point is O.
+        operators: Vec<String>,
+        /// The integration points, one per order.
+        points: Vec<Point>,
+        order: usize,
+        /// `expect order n = E` (`Some(n)`) or `expect total = E` (`None`).
+        expects: Vec<(Option<usize>, Term)>,
+    },
     /// `compare L = R`: both sides numerically.
     Compare {
         lhs: Term,
@@ -175,7 +189,11 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
         lowerer.nodes.set(0);
         lowerer.in_numeric.set(matches!(
             stmt,
-            Stmt::Evaluate { .. } | Stmt::Solve { .. } | Stmt::Scan { .. } | Stmt::Compare { .. }
+            Stmt::Evaluate { .. }
+                | Stmt::Solve { .. }
+                | Stmt::Scan { .. }
+                | Stmt::Compare { .. }
+                | Stmt::Perturb { .. }
         ));
         match stmt {
             Stmt::Simplify { expr, expect, span } => {
@@ -620,6 +638,23 @@ pub fn lower(source: &Arc<Source>, file: &ast::File) -> Result<Program> {
                     line: source.line(span.start),
                 });
             }
+            Stmt::Perturb {
+                corr,
+                coupling,
+                operators,
+                points,
+                order,
+                expects,
+                span,
+            } => {
+                seen_expression = true;
+                let kind = lowerer.perturb(corr, coupling, operators, points, order, expects)?;
+                items.push(Item {
+                    kind,
+                    span: *span,
+                    line: source.line(span.start),
+                });
+            }
             Stmt::Compare { lhs, rhs, span } => {
                 seen_expression = true;
                 let (lhs, rhs) = (
@@ -745,6 +780,171 @@ struct Lowerer {
 impl Lowerer {
     fn err(&self, kind: ErrorKind, span: Span, message: impl Into<String>) -> Error {
         Error::at(kind, &self.source, span, message)
+    }
+
+    /// A whole number in 0..=max written as a literal.
+    fn small_number(&self, e: &Expr, max: usize, what: &str) -> Result<usize> {
+        constant_value(e)
+            .filter(|v| v.is_integer())
+            .and_then(|v| num_traits::ToPrimitive::to_usize(&v.to_integer()))
+            .filter(|n| *n <= max)
+            .ok_or_else(|| {
+                self.err(
+                    ErrorKind::Syntax,
+                    e.span,
+                    format!("{what} must be a whole number from 0 to {max}"),
+                )
+                .with_label("not an order carried out")
+            })
+    }
+
+    /// `perturb ⟨X⟩ by g O… on boundary z… to order N [expect …]`: the
+    /// checks a parser cannot make.
+    fn perturb(
+        &mut self,
+        corr: &Expr,
+        coupling: &Expr,
+        operators: &[Name],
+        points: &[Name],
+        order: &Expr,
+        expects: &[(Option<Expr>, Expr)],
+    ) -> Result<ItemKind> {
+        let n = self.small_number(order, 2, "the order of `perturb`")?;
+        if n == 0 {
+            return Err(self
+                .err(
+                    ErrorKind::Syntax,
+                    order.span,
+                    "the order of `perturb` is 1 or 2",
+                )
+                .with_label("order 0 is the unperturbed correlator"));
+        }
+        let lowered = self.expr(corr)?;
+        let Term::Corr(ops) = &lowered else {
+            return Err(self
+                .err(ErrorKind::Syntax, corr.span, "`perturb` takes one correlator")
+                .with_label("not a correlator")
+                .with_note("write the correlator alone: `perturb <P(x1) P(x2)> by g H C on boundary z1 z2 to order 2`"));
+        };
+        for op in ops {
+            if self.ctx.is_boundary_point(&op.point) || !op.indices.is_empty() {
+                return Err(self
+                    .err(
+                        ErrorKind::Placement,
+                        corr.span,
+                        format!(
+                            "`perturb` handles correlators of bulk scalars at bulk points; `{}({})` is not one",
+                            op.name, op.point.name
+                        ),
+                    )
+                    .with_label("here")
+                    .with_note("the wall integrals are then smooth except where two integration points meet"));
+            }
+        }
+        let mut names = Vec::new();
+        for o in operators {
+            match self.ctx.operator(&o.text) {
+                Some(decl) if decl.boundary && decl.rank == 0 => names.push(o.text.clone()),
+                Some(_) => {
+                    return Err(self
+                        .err(
+                            ErrorKind::Name,
+                            o.span,
+                            format!("`{}` is not a boundary scalar", o.text),
+                        )
+                        .with_label("the coupling is to boundary scalars")
+                        .with_note("declare it `boundary scalar NAME dim …`"))
+                }
+                None => {
+                    return Err(self
+                        .err(
+                            ErrorKind::Name,
+                            o.span,
+                            format!("`{}` is not a declared operator", o.text),
+                        )
+                        .with_label("unknown operator")
+                        .with_note("declare it `boundary scalar NAME dim …`"))
+                }
+            }
+        }
+        let mut at = Vec::new();
+        for p in points {
+            let Some((rank, decl)) = self.ctx.point(&p.text) else {
+                return Err(self
+                    .err(
+                        ErrorKind::Name,
+                        p.span,
+                        format!("`{}` is not a declared point", p.text),
+                    )
+                    .with_label("unknown point")
+                    .with_note("declare the integration points `boundary points z1 z2`"));
+            };
+            if !decl.boundary {
+                return Err(self
+                    .err(
+                        ErrorKind::Placement,
+                        p.span,
+                        format!("`{}` is not a boundary point", p.text),
+                    )
+                    .with_label("integrated over the wall")
+                    .with_note("declare the integration points `boundary points z1 z2`"));
+            }
+            let point = Point::named(rank, p.text.clone());
+            if lowered.mentions_point(&point) || at.contains(&point) {
+                return Err(self
+                    .err(
+                        ErrorKind::Placement,
+                        p.span,
+                        format!("`{}` is used twice", p.text),
+                    )
+                    .with_label("an integration point must be a point of its own"));
+            }
+            at.push(point);
+        }
+        if at.len() != n {
+            let span = points.last().map_or(order.span, |p| p.span);
+            return Err(self
+                .err(
+                    ErrorKind::Syntax,
+                    span,
+                    format!(
+                        "order {n} integrates over {n} point(s) of the wall, and {} are named",
+                        at.len()
+                    ),
+                )
+                .with_label("one boundary point per order")
+                .with_note("`… on boundary z1 z2 to order 2`"));
+        }
+        let mut lowered_expects = Vec::new();
+        for (which, e) in expects {
+            let k = match which {
+                Some(w) => {
+                    let k = self.small_number(w, n, "an expected order")?;
+                    Some(k)
+                }
+                None => None,
+            };
+            let e = &self.numeric_components(e)?;
+            let free = self.free_indices(e)?;
+            if !free.is_empty() {
+                return Err(self
+                    .err(
+                        ErrorKind::Index,
+                        e.span,
+                        "an expected correction has no free indices",
+                    )
+                    .with_label("free indices"));
+            }
+            lowered_expects.push((k, self.expr(e)?));
+        }
+        Ok(ItemKind::Perturb {
+            corr: lowered.clone(),
+            coupling: self.expr(coupling)?,
+            operators: names,
+            points: at,
+            order: n,
+            expects: lowered_expects,
+        })
     }
 
     // ───────────────────────── declarations ─────────────────────────
@@ -946,6 +1146,7 @@ impl Lowerer {
             | Stmt::Decompose { .. }
             | Stmt::Structures { .. }
             | Stmt::Derivation { .. }
+            | Stmt::Perturb { .. }
             | Stmt::Compare { .. } => {}
         }
         Ok(())

@@ -13,6 +13,7 @@ pub mod decompose;
 pub mod eval;
 pub mod models;
 pub mod nonzero;
+pub mod perturb;
 pub mod quadrature;
 pub mod series;
 pub mod session;

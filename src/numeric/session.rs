@@ -1472,6 +1472,220 @@ impl<'a> Session<'a> {
         })
     }
 
+    /// Conformal perturbation theory in g ∫ O over the wall
+    /// (docs/conventions.md §17): the correlator `corr` of the model and
+    /// its corrections through `order`, each at the coupling's value, with
+    /// the quadrature's error estimates. O is the product of `operators` at
+    /// one point, integrated at `points` (one per order).
+    pub fn perturb(
+        &self,
+        corr: &Term,
+        coupling: &Term,
+        operators: &[String],
+        points: &[Point],
+        order: usize,
+    ) -> Result<Vec<super::perturb::OrderTerm>> {
+        use super::perturb::{scaled, singular_terms, Double, OrderTerm, PowerDivergence};
+        let values = self.values().clone();
+        let dim = values.dim;
+        if !(MIN_DIM..=MAX_DIM).contains(&dim) {
+            return Err(Error::new(
+                ErrorKind::Numeric,
+                format!("integrals over the wall are done in dimensions {MIN_DIM} to {MAX_DIM}, and this file is in dimension {dim}"),
+            ));
+        }
+        let g = self.value(coupling, &[], &values)?.value;
+        let Term::Corr(x) = corr else {
+            return Err(Error::new(
+                ErrorKind::Numeric,
+                "`perturb` takes one correlator",
+            ));
+        };
+        let insertions: Vec<Vec<f64>> = x
+            .iter()
+            .map(|op| self.position(&op.point))
+            .collect::<Result<_>>()?;
+        let started = std::time::Instant::now();
+        let zeroth = self.value(corr, &[], &values)?;
+        let mut out = vec![OrderTerm {
+            order: 0,
+            value: zeroth,
+            log: None,
+            powers: Vec::new(),
+            seconds: started.elapsed().as_secs_f64(),
+        }];
+        // The factors of O after the first sit at auxiliary points of their
+        // own while the model contracts (it refuses two insertions at one
+        // point), moved onto the integration point afterwards. '#' cannot
+        // occur in a declared name; `par` marks them as on the wall.
+        let aux = |p: &Point, k: usize| Point {
+            rank: p.rank,
+            par: true,
+            name: format!("{}#{k}", p.name).into(),
+        };
+        let mut back = std::collections::BTreeMap::new();
+        for p in points {
+            for k in 1..operators.len() {
+                back.insert(aux(p, k).name, p.clone());
+            }
+        }
+        let o_at = |p: &Point| -> Vec<crate::term::Op> {
+            operators
+                .iter()
+                .enumerate()
+                .map(|(k, name)| crate::term::Op {
+                    point: if k == 0 { p.clone() } else { aux(p, k) },
+                    name: name.clone(),
+                    indices: Vec::new(),
+                })
+                .collect()
+        };
+        let corr_of = |parts: &[&Point], with_x: bool| -> Term {
+            let mut ops = if with_x { x.clone() } else { Vec::new() };
+            for p in parts {
+                ops.extend(o_at(p));
+            }
+            Term::Corr(ops)
+        };
+        let neg = |t: Term| Term::Mul(vec![Term::int(-1), t]);
+        let tol = Tolerance::relative(self.tolerance).with_abs(QUADRATURE_FLOOR * self.tolerance);
+        let frame = super::perturb::plane_frame(&insertions).ok_or_else(|| {
+            Error::new(
+                ErrorKind::Placement,
+                "`perturb` needs an insertion of the correlator off the wall",
+            )
+        })?;
+        // First order: -g ∫ dz (⟨X O⟩ - ⟨X⟩⟨O⟩).
+        let started = std::time::Instant::now();
+        let z1 = &points[0];
+        let k1 = Term::Add(vec![
+            corr_of(&[z1], true),
+            neg(Term::Mul(vec![corr.clone(), corr_of(&[z1], false)])),
+        ]);
+        let k1 = self.connected_form(&k1, operators, &back)?;
+        let first = if k1.is_zero() {
+            Value::exact(0.0)
+        } else {
+            let program = compile(self.ctx, &k1, &[], dim)?;
+            let e = super::perturb::plane_integral(&program, &values, &z1.name, &frame, tol)?;
+            scaled(&e, 0.0, -g)
+        };
+        out.push(OrderTerm {
+            order: 1,
+            value: first,
+            log: None,
+            powers: Vec::new(),
+            seconds: started.elapsed().as_secs_f64(),
+        });
+        if order < 2 {
+            return Ok(out);
+        }
+        // Second order: (g²/2) ∫∫ dz dz' κ(X, O(z), O(z')).
+        let started = std::time::Instant::now();
+        let z2 = &points[1];
+        let c = |ps: &[&Point], with_x: bool| corr_of(ps, with_x);
+        let k2 = Term::Add(vec![
+            c(&[z1, z2], true),
+            neg(Term::Mul(vec![corr.clone(), c(&[z1, z2], false)])),
+            neg(Term::Mul(vec![c(&[z1], true), c(&[z2], false)])),
+            neg(Term::Mul(vec![c(&[z2], true), c(&[z1], false)])),
+            Term::Mul(vec![
+                Term::int(2),
+                corr.clone(),
+                c(&[z1], false),
+                c(&[z2], false),
+            ]),
+        ]);
+        let k2 = self.connected_form(&k2, operators, &back)?;
+        let half_g2 = 0.5 * g * g;
+        let second = if k2.is_zero() {
+            OrderTerm {
+                order: 2,
+                value: Value::exact(0.0),
+                log: None,
+                powers: Vec::new(),
+                seconds: 0.0,
+            }
+        } else {
+            let singular = singular_terms(&k2, z1, z2, dim).map_err(|why| {
+                Error::new(
+                    ErrorKind::Numeric,
+                    format!("the second-order integrand: {why}"),
+                )
+            })?;
+            let full = compile(self.ctx, &k2, &[], dim)?;
+            let residues: Vec<(f64, super::eval::Program)> = singular
+                .iter()
+                .map(|s| {
+                    let t = normalize(self.ctx, &s.residue)?;
+                    Ok((s.exponent, compile(self.ctx, &t, &[], dim)?))
+                })
+                .collect::<Result<_>>()?;
+            let double = Double {
+                full: &full,
+                singular: residues.iter().map(|(q, p)| (*q, p)).collect(),
+                first: &z1.name,
+                second: &z2.name,
+                insertions: insertions.clone(),
+            };
+            let r = double.integrate(&values, self.tolerance, QUADRATURE_FLOOR * self.tolerance)?;
+            let mut value = scaled(&r.finite, r.inner_error, half_g2);
+            value.nodes = r.evaluations;
+            OrderTerm {
+                order: 2,
+                value,
+                log: Some(match &r.log {
+                    Some(e) => scaled(e, 0.0, half_g2),
+                    None => Value::exact(0.0),
+                }),
+                powers: r
+                    .powers
+                    .iter()
+                    .map(|(k, e)| PowerDivergence {
+                        exponent: *k,
+                        coefficient: scaled(e, 0.0, half_g2),
+                        converged: e.converged,
+                    })
+                    .collect(),
+                seconds: 0.0,
+            }
+        };
+        out.push(OrderTerm {
+            seconds: started.elapsed().as_secs_f64(),
+            ..second
+        });
+        Ok(out)
+    }
+
+    /// The explicit normal form of a connected correlator of `perturb`,
+    /// refused when the model contracts the factors of the perturbing
+    /// operator with one another (a distance from a point to itself).
+    fn connected_form(
+        &self,
+        t: &Term,
+        operators: &[String],
+        back: &std::collections::BTreeMap<crate::term::Name, Point>,
+    ) -> Result<Term> {
+        // Scalars only, so no Ward rule applies: straight to the model.
+        let modelled = apply(self.model.as_ref(), self.ctx, t)?;
+        let e = normalize(self.ctx, &modelled)?;
+        let e = normalize(self.ctx, &super::models::substitute_points(&e, back))?;
+        if self_distance(&e) {
+            return Err(Error::new(
+                ErrorKind::Numeric,
+                format!(
+                    "the model contracts the factors of the perturbing operator {} with one another at one point",
+                    operators.join(" ")
+                ),
+            )
+            .with_note(
+                "perturb by factors the unperturbed model does not contract, as φ̂ χ with \
+                 `model free-scalar neumann coupling 0` (the coupling written as 0)",
+            ));
+        }
+        Ok(e)
+    }
+
     /// Centre and width of the boundary-plane rule: below the bulk point
     /// nearest to the wall among those the integrand involves.
     fn plane_centre(&self, body: &Term) -> Result<(Vec<f64>, f64)> {
@@ -1507,6 +1721,18 @@ impl<'a> Session<'a> {
             )
             .with_note(placement_note(self.ctx, &p.name))
         })
+    }
+}
+
+/// True if a distance from a point to itself occurs in the term.
+fn self_distance(t: &Term) -> bool {
+    match t {
+        Term::Dist(p, q) => p.name == q.name,
+        Term::Pow(a, b) => self_distance(a) || self_distance(b),
+        Term::Mul(ts) | Term::Add(ts) | Term::Fun(_, _, ts) => ts.iter().any(self_distance),
+        Term::Der(_, _, body) => self_distance(body),
+        Term::Integral(i) => self_distance(&i.body),
+        _ => false,
     }
 }
 

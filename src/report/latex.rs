@@ -278,6 +278,39 @@ fn statement(out: &mut String, s: &Statement) {
             ));
             display(out, &lines);
         }
+        Finding::Perturb(p) => {
+            let mut lines = Vec::new();
+            for o in &p.orders {
+                lines.push(format!("\\delta_{{{}}} &= {}", o.order, value(&o.value)));
+                if let Some(log) = &o.log {
+                    lines.push(format!(
+                        "\\text{{coefficient of }} \\ln(1/\\varepsilon) &= {}",
+                        value(log)
+                    ));
+                }
+                for d in &o.powers {
+                    lines.push(format!(
+                        "\\text{{dropped: }} \\varepsilon^{{{}}} &\\times {}",
+                        number(d.exponent, 3),
+                        value(&d.coefficient)
+                    ));
+                }
+            }
+            lines.push(format!("\\text{{total}} &= {}", value(&p.total)));
+            for e in &p.expects {
+                let which = match e.order {
+                    Some(k) => format!("\\delta_{{{k}}}"),
+                    None => "\\text{total}".to_string(),
+                };
+                lines.push(format!(
+                    "{which}\\ \\text{{expected}} &= {} && \\text{{{}, relative difference }} {}",
+                    value(&e.expected),
+                    agreement(&e.verdict),
+                    number(e.relative_difference, 1)
+                ));
+            }
+            display(out, &lines);
+        }
         Finding::Compare(c) => {
             let mut lines = Vec::new();
             for k in &c.components {

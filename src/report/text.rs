@@ -8,7 +8,7 @@ use crate::numeric::agreement::{Agreement, Value};
 use crate::outcome::{
     Change, Check, ClaimCheck, Classification, Coincidence, Compared, Decomposed, Derivation,
     Evaluated, Expectation, Expr, Failure, FileOutcome, Finding, FluxChecked, Indices, Mode,
-    PointAt, Scanned, Search, Simplification, Slip, SlipMark, Solved, Statement, Status,
+    Perturbed, PointAt, Scanned, Search, Simplification, Slip, SlipMark, Solved, Statement, Status,
     StepNumeric, TermChange,
 };
 use crate::term::print::Style;
@@ -212,6 +212,7 @@ impl Text {
             Finding::Solve(x) => self.solved(line, input, x),
             Finding::Flux(x) => self.flux(line, input, x),
             Finding::Compare(x) => self.compared(line, input, x),
+            Finding::Perturb(x) => self.perturbed(line, input, x),
             Finding::Scan(x) => self.scanned(line, input, x),
             Finding::Decompose(x) => self.decomposed(line, input, x),
             Finding::Structures(x) => {
@@ -557,6 +558,79 @@ impl Text {
                 match &c.verdict {
                     Agreement::Agree => String::new(),
                     Agreement::Disagree => "  ← not conserved".to_string(),
+                    Agreement::Unknown(why) => format!("  ← unknown: {why}"),
+                }
+            );
+        }
+    }
+
+    /// `line N: perturb` with each order's correction, the divergences
+    /// separated at second order, the sum, and each `expect`.
+    fn perturbed(&mut self, line: usize, input: &str, p: &Perturbed) {
+        let verdict = match &p.verdict {
+            None => "",
+            Some(Agreement::Agree) => " agree",
+            Some(Agreement::Disagree) => " DISAGREE",
+            Some(Agreement::Unknown(_)) => " UNKNOWN",
+        };
+        let _ = writeln!(
+            self.out,
+            "line {line}: perturb{verdict}: {}",
+            abbreviate(input, INPUT_WIDTH)
+        );
+        for o in &p.orders {
+            let what = match o.order {
+                0 => "order 0 (unperturbed)".to_string(),
+                1 => "order g (finite)".to_string(),
+                n => format!("order g^{n} (finite part)"),
+            };
+            let _ = writeln!(
+                self.out,
+                "  {what}: {} [{:.2} s]",
+                number(&o.value),
+                o.seconds
+            );
+            if let Some(log) = &o.log {
+                let _ = writeln!(
+                    self.out,
+                    "    coefficient of ln(1/ε) (|z - z'| > ε): {}",
+                    number(log)
+                );
+            }
+            for d in &o.powers {
+                let coefficient = if d.converged {
+                    number(&d.coefficient)
+                } else {
+                    "a wall integral that does not converge (it diverges at large distances)"
+                        .to_string()
+                };
+                let _ = writeln!(
+                    self.out,
+                    "    power divergence dropped (a boundary counterterm): ε^({}) × {coefficient}",
+                    d.exponent,
+                );
+            }
+        }
+        let _ = writeln!(
+            self.out,
+            "  total at coupling {}: {}",
+            p.coupling,
+            number(&p.total)
+        );
+        for e in &p.expects {
+            let which = match e.order {
+                Some(k) => format!("order {k}"),
+                None => "total".to_string(),
+            };
+            let _ = writeln!(
+                self.out,
+                "  expect {which}: computed {}, expected {}, relative difference {:.1e}{}",
+                number(&e.computed),
+                number(&e.expected),
+                e.relative_difference,
+                match &e.verdict {
+                    Agreement::Agree => String::new(),
+                    Agreement::Disagree => "  ← disagree".into(),
                     Agreement::Unknown(why) => format!("  ← unknown: {why}"),
                 }
             );

@@ -429,6 +429,18 @@ pub enum Stmt {
         seed: Expr,
         span: Span,
     },
+    /// `perturb ⟨X⟩ by g O1 O2 on boundary z1 z2 to order N [expect …]`:
+    /// conformal perturbation theory in g ∫ O1 O2 over the wall.
+    Perturb {
+        corr: Expr,
+        coupling: Expr,
+        operators: Vec<Name>,
+        points: Vec<Name>,
+        order: Expr,
+        /// `expect order n = E` (`Some(n)`) or `expect total = E` (`None`).
+        expects: Vec<(Option<Expr>, Expr)>,
+        span: Span,
+    },
     /// `compare L = R`: both sides numerically in the model.
     Compare {
         lhs: Expr,

@@ -1054,6 +1054,51 @@ fn parse_statement(source: &Arc<Source>, pair: Pair<Rule>) -> Result<Stmt> {
                 span,
             }
         }
+        Rule::perturb_stmt => {
+            let corr = build_expr(source, next(&mut inner), 0)?;
+            let value = next(&mut inner);
+            let coupling = climb(source, &mut value.into_inner().peekable(), 0, 0)?;
+            let mut operators = Vec::new();
+            let mut points = Vec::new();
+            let mut order = None;
+            let mut expects = Vec::new();
+            for part in inner {
+                match part.as_rule() {
+                    Rule::perturb_ops => operators.extend(part.into_inner().map(parse_name)),
+                    Rule::perturb_points => points.extend(part.into_inner().map(parse_name)),
+                    Rule::number => order = Some(parse_primary(source, part, 0)?),
+                    Rule::perturb_expect => {
+                        let mut parts = part.into_inner();
+                        let first = next(&mut parts);
+                        let which = if first.as_rule() == Rule::perturb_total {
+                            None
+                        } else {
+                            Some(parse_primary(source, first, 0)?)
+                        };
+                        let expr = build_expr(source, next(&mut parts), 0)?;
+                        expects.push((which, expr));
+                    }
+                    _ => {}
+                }
+            }
+            let Some(order) = order else {
+                return Err(Error::at(
+                    ErrorKind::Syntax,
+                    source,
+                    span,
+                    "`perturb` needs `to order N`",
+                ));
+            };
+            Stmt::Perturb {
+                corr,
+                coupling,
+                operators,
+                points,
+                order,
+                expects,
+                span,
+            }
+        }
         Rule::compare_stmt => {
             let lhs = build_expr(source, next(&mut inner), 0)?;
             let rhs = build_expr(source, next(&mut inner), 0)?;
