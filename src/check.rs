@@ -658,12 +658,30 @@ fn perturbed(
             Some(k) => orders.get(*k).map_or(Value::exact(f64::NAN), |o| o.value),
             None => total,
         };
+        // The outer wall integral of the second order decays slowly and its
+        // error estimate has been seen to be too small (4.8e-3 estimated
+        // against 7e-3 true in d = 3): a second-order value is printed, never
+        // confirmed.
+        let second_order = match which {
+            Some(k) => *k >= 2,
+            None => order >= 2,
+        };
+        let verdict = if second_order {
+            Agreement::Unknown(
+                "the second-order wall integral's error estimate is not reliable yet \
+                 (its outer integrand decays slowly at large distance along the wall); \
+                 the value is shown, not confirmed"
+                    .to_string(),
+            )
+        } else {
+            agreement::agreement(&computed, &expected)
+        };
         checked.push(crate::outcome::PerturbExpected {
             order: *which,
             computed,
             expected,
             relative_difference: agreement::relative_difference(&computed, &expected),
-            verdict: agreement::agreement(&computed, &expected),
+            verdict,
         });
     }
     let verdict = if checked.is_empty() {
