@@ -599,8 +599,8 @@ mod tests {
     #[test]
     fn subtraction_pieces_match_the_radial_integral() {
         for (q, dim) in [(-3.0, 3usize), (-4.0, 4), (-2.0, 3), (-3.0, 4), (-2.5, 3)] {
-            let r = 0.7;
-            let eps = 1e-4;
+            let r: f64 = 0.7;
+            let eps: f64 = 1e-4;
             let k = q + dim as f64 - 1.0;
             // ∫_ε^∞ r^{k-1} e^{-r²/R²} dr by the substitution r = ε e^t.
             let n = 200_000;
