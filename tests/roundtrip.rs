@@ -82,6 +82,7 @@ fn check_file(path: &str) {
                 .collect(),
             ItemKind::Decompose { corr, .. } => vec![corr],
             ItemKind::Structures { corr, .. } => vec![corr],
+            ItemKind::Perturb { corr, .. } => vec![corr],
             ItemKind::Classify { .. } => vec![],
         };
         for expr in exprs {
