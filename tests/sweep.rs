@@ -57,6 +57,30 @@ const TOL: f64 = 1e-7;
 /// Differences below this are rounding: points are O(1) apart and
 /// parameters O(1), so the terms are of order one.
 const FLOOR: f64 = 1e-13;
+/// Files left out of the sweep, with why: their Wick correlators (⟨T T φ φ⟩
+/// and ⟨T J J⟩ of the free scalar, several thousand terms) make the jet
+/// oracle take minutes each, and every claim they prove is checked by the
+/// flux statements in the same file (tests/cases.rs runs them), which
+/// integrate the model's correlator around each insertion.
+const CHECKED_BY_THEIR_OWN_FLUXES: &[(&str, &str)] = &[
+    (
+        "spin-two-stress-d3.ward",
+        "checked by the file's own fluxes",
+    ),
+    (
+        "spin-two-stress-d4.ward",
+        "checked by the file's own fluxes",
+    ),
+    (
+        "spin-two-currents-d3.ward",
+        "checked by the file's own fluxes",
+    ),
+    (
+        "spin-two-currents-d4.ward",
+        "checked by the file's own fluxes",
+    ),
+];
+
 /// Random configurations per statement and dimension.
 const SAMPLES: u64 = 2;
 
@@ -823,6 +847,14 @@ fn shipped_proofs_agree_numerically() {
     let mut wrong = Vec::new();
     let mut total = 0;
     for path in shipped_files() {
+        let name = path.file_name().unwrap().to_string_lossy().to_string();
+        if let Some((_, why)) = CHECKED_BY_THEIR_OWN_FLUXES
+            .iter()
+            .find(|(file, _)| *file == name)
+        {
+            skipped.entry(why.to_string()).or_default().push(name);
+            continue;
+        }
         let (program, proofs) = proofs(&path);
         for p in &proofs {
             total += 1;

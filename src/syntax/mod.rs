@@ -507,6 +507,7 @@ pub(crate) const STATEMENT_STARTS: &[&str] = &[
     "scan",
     "decompose",
     "structures",
+    "perturb",
     "derivation",
     "slip",
 ];
