@@ -3,8 +3,10 @@
 //! g ∫ d^{d-1}z O(z) added to the action, as integrals over the boundary
 //! plane of the unperturbed model's connected correlators,
 //!
-//!     δ₁⟨X⟩ = -g ∫ dz ⟨X O(z)⟩_c,
-//!     δ₂⟨X⟩ = (g²/2) ∫∫ dz dz' ⟨X O(z) O(z')⟩_c,
+//! ```text
+//! δ₁⟨X⟩ = -g ∫ dz ⟨X O(z)⟩_c,
+//! δ₂⟨X⟩ = (g²/2) ∫∫ dz dz' ⟨X O(z) O(z')⟩_c,
+//! ```
 //!
 //! with X of bulk insertions only (the integrands are then smooth except
 //! where z' meets z).
@@ -15,15 +17,19 @@
 //! checked, not assumed: a factor of any other shape is refused). With
 //! |z - z'| > ε, a monomial with q + d - 1 = k ≤ 0 diverges:
 //!
-//!     ∫_{|u|>ε} d^{d-1}u |u|^q G(z, z + u)
-//!         = S_{d-1} G(z, z) (-ε^k/k  or  ln(1/ε)) + finite + O(ε^{k+2}),
+//! ```text
+//! ∫_{|u|>ε} d^{d-1}u |u|^q G(z, z + u)
+//!     = S_{d-1} G(z, z) (-ε^k/k  or  ln(1/ε)) + finite + O(ε^{k+2}),
+//! ```
 //!
 //! the odd terms of G in u dropping out of the sphere average (the
 //! integrand is symmetrised in u → -u) and the even ones being integrable
 //! for -2 < k. The finite part is computed as
 //!
-//!     ∫ du [½(F(z, z+u) + F(z, z-u)) - Σ G(z, z) |u|^q e^{-|u|²/R²}]
-//!         + Σ S_{d-1} G(z, z) · (½ R^k Γ(k/2)  or  ln R - γ/2),
+//! ```text
+//! ∫ du [½(F(z, z+u) + F(z, z-u)) - Σ G(z, z) |u|^q e^{-|u|²/R²}]
+//!     + Σ S_{d-1} G(z, z) · (½ R^k Γ(k/2)  or  ln R - γ/2),
+//! ```
 //!
 //! R any width (here the distance from z to the nearest insertion of X),
 //! the second line being the Gaussian's own integral outside ε with its
