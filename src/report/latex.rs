@@ -589,6 +589,7 @@ fn numeric_words(n: &StepNumeric) -> String {
 fn coefficient_tex(c: &super::Coefficient) -> String {
     use super::Shape;
     match c.shape {
+        Shape::Zero if c.value == 0.0 && c.spread == 0.0 => "0".to_string(),
         Shape::Zero => format!("0 \\pm {}", number(c.spread, 1)),
         Shape::Undetermined => format!(
             "{} \\pm {}\\ \\text{{(not determined)}}",

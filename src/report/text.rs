@@ -863,6 +863,8 @@ fn coefficient_text(c: &super::Coefficient) -> String {
     use super::Shape;
     let v = c.value;
     match c.shape {
+        // An exact series solve gives 0 with no uncertainty at all.
+        Shape::Zero if v == 0.0 && c.spread == 0.0 => "0 (exactly)".to_string(),
         Shape::Zero => format!("0 (|{v:.1e}| within its uncertainty {:.1e})", c.spread),
         Shape::Undetermined => format!(
             "{v:.6e} (not determined: moves by {:.1e} with the range)",

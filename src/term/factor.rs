@@ -66,14 +66,31 @@ pub fn factored(t: &Term) -> Term {
                     );
                 }
             }
-            None => match fraction_content(&base).zip(exp.to_integer().to_i32()) {
-                // `(2 g + 3)/2`, not `(g + 3/2)`: fractions come out of a sum.
-                Some(((content, whole), e)) if e > 0 => {
+            None => match descending(&base).zip(exp.to_integer().to_i32()) {
+                // `d^2 - 3 d + 1`, not `- (3 d - d^2 - 1)`: highest power
+                // first, with a positive leading coefficient.
+                Some(((negative, ordered), e)) if ordered != base => {
                     changed = true;
-                    coefficient *= pow(&content, e);
-                    push(&mut out, whole, exp);
+                    if negative && e % 2 != 0 {
+                        coefficient = -coefficient;
+                    }
+                    match fraction_content(&ordered) {
+                        Some((content, whole)) if e > 0 => {
+                            coefficient *= pow(&content, e);
+                            push(&mut out, whole, exp);
+                        }
+                        _ => push(&mut out, ordered, exp),
+                    }
                 }
-                _ => push(&mut out, base, exp),
+                _ => match fraction_content(&base).zip(exp.to_integer().to_i32()) {
+                    // `(2 g + 3)/2`, not `(g + 3/2)`: fractions come out of a sum.
+                    Some(((content, whole), e)) if e > 0 => {
+                        changed = true;
+                        coefficient *= pow(&content, e);
+                        push(&mut out, whole, exp);
+                    }
+                    _ => push(&mut out, base, exp),
+                },
             },
         }
     }
@@ -536,6 +553,20 @@ pub(crate) fn factor_sum(t: &Term) -> Option<(BigRational, Vec<(Term, u32)>)> {
         out.push((from_coefficients(&sym, &rest), 1));
     }
     Some((leading, out))
+}
+
+/// A polynomial in one symbol written highest power first with a positive
+/// leading coefficient, and whether that took a sign out.
+fn descending(t: &Term) -> Option<(bool, Term)> {
+    let (symbol, mut coefs) = polynomial(t)?;
+    if coefs.len() < 2 {
+        return None;
+    }
+    let negative = coefs.last()?.is_negative();
+    if negative {
+        coefs.iter_mut().for_each(|c| *c = -c.clone());
+    }
+    Some((negative, from_coefficients(&Term::Sym(symbol), &coefs)))
 }
 
 /// The symbol and coefficients (constant first) of a sum that is a

@@ -119,7 +119,10 @@ fn sum(ctx: &Context, t: &Term, out: &mut String) {
             (_, true) => out.push_str(" - "),
             (_, false) => out.push_str(" + "),
         }
-        product(ctx, &magnitude, out);
+        match &magnitude {
+            Term::Add(_) if !negative => sum(ctx, &magnitude, out),
+            _ => product(ctx, &magnitude, out),
+        }
     }
 }
 

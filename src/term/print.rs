@@ -61,7 +61,10 @@ impl<'a> Printer<'a> {
                     (0, false) => "",
                     (_, false) => "+ ",
                 });
-                self.product(&magnitude, &mut out);
+                match &magnitude {
+                    Term::Add(_) if !negative => self.sum(&magnitude, &mut out),
+                    _ => self.product(&magnitude, &mut out),
+                }
                 out
             })
             .collect()
@@ -105,7 +108,12 @@ impl<'a> Printer<'a> {
                 (_, true) => out.push_str(" - "),
                 (_, false) => out.push_str(" + "),
             }
-            self.product(&magnitude, out);
+            // A displayed polynomial (`d^2 - 3 d + 1`) needs no brackets
+            // unless a sign stands before it.
+            match &magnitude {
+                Term::Add(_) if !negative => self.sum(&magnitude, out),
+                _ => self.product(&magnitude, out),
+            }
         }
     }
 
