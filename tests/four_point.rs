@@ -431,3 +431,41 @@ fn the_equal_dimension_casimir_is_refuted_on_mixed_blocks() {
     assert_eq!(out.code, 1);
     assert!(out.report.contains("claim NOT PROVED"), "{}", out.report);
 }
+
+#[test]
+fn odd_spins_of_identical_scalars_are_exactly_absent() {
+    // Identical scalars exchange no odd spin in the s-channel (Bose
+    // symmetry; common practice): asked for spins 0 to 3, the series solve
+    // gives exactly 0 for ℓ = 1 and 3, and the report says so in words;
+    // the even spins carry Fitzpatrick & Kaplan's exact fractions
+    // (gff_coefficient above; 525/8192 at n = 1, ℓ = 2, Δφ = 3/2, d = 4).
+    use std::path::Path;
+    use wardsmith::diagnostic::Source;
+    use wardsmith::run::{run_source, Mode, Options};
+    let text = "dimension 4\nparameters u v Dphi\nmodel conformal\nvalues Dphi = 3/2\n\
+                decompose 1 + u^Dphi + (u/v)^Dphi in s-channel blocks twist 2 Dphi to 2 Dphi + 2 step 2, spin 0 to 3\n";
+    let (item, code) = decompose(text);
+    assert_eq!(code, 0, "{item}");
+    assert_eq!(item["method"], "series", "{item}");
+    let spins = item["spins"].as_array().unwrap();
+    let exact = item["exact"].as_array().unwrap();
+    for (k, l) in spins.iter().enumerate() {
+        if l.as_u64().unwrap() % 2 == 1 {
+            assert_eq!(exact[1 + k], "0", "{item}");
+        }
+    }
+    assert!((gff_coefficient(4, 1.5, 1, 2) - 525.0 / 8192.0).abs() < 1e-15);
+    let source = Source::new("odd.ward", text);
+    let out = run_source(&source, Path::new("."), Mode::Check, &Options::default())
+        .unwrap_or_else(|e| panic!("{}", e.render()));
+    assert!(
+        out.report.contains("ℓ = 1: λ² = 0 (exactly)\n"),
+        "{}",
+        out.report
+    );
+    assert!(
+        out.report.contains("ℓ = 2: λ² = 525/8192 ("),
+        "{}",
+        out.report
+    );
+}

@@ -803,8 +803,16 @@ impl Text {
         );
         }
         let coefficients = super::coefficients(found);
+        // The series solve's exact fraction where it has one: `525/8192`,
+        // not a decimal that no small fraction fits.
+        let shift = usize::from(coefficients.identity.is_some());
+        let text = |k: usize, c: &super::Coefficient| match found.exact.get(k) {
+            Some(e) if e == "0" => "0 (exactly)".to_string(),
+            Some(e) if e.len() <= 24 => format!("{e} ({:.12e})", c.value),
+            _ => coefficient_text(c),
+        };
         if let Some(c) = &coefficients.identity {
-            let _ = writeln!(self.out, "  identity: {}", coefficient_text(c));
+            let _ = writeln!(self.out, "  identity: {}", text(0, c));
         }
         for (k, (dim, c)) in found.dims.iter().zip(&coefficients.blocks).enumerate() {
             let spin = found
@@ -814,7 +822,7 @@ impl Text {
             let _ = writeln!(
                 self.out,
                 "  {name} = {dim}{spin}: {coefficient} = {}{}",
-                coefficient_text(c),
+                text(k + shift, c),
                 relative_text(c)
             );
         }
@@ -879,6 +887,9 @@ fn coefficient_text(c: &super::Coefficient) -> String {
 
 /// ` = 1/2 × the identity's`, in units of the identity's coefficient.
 fn relative_text(c: &super::Coefficient) -> String {
+    if c.value == 0.0 {
+        return String::new();
+    }
     match c.relative {
         None => String::new(),
         Some((_, Some((p, 1)))) => format!(" = {p} × the identity's"),
