@@ -257,6 +257,14 @@ impl Context {
         name != STRESS_TENSOR && self.operators.get(name).is_some_and(|o| o.rank >= 2)
     }
 
+    /// True for a boundary operator of spin ≥ 2 (its indices run along the
+    /// wall).
+    pub fn is_boundary_tensor(&self, name: &str) -> bool {
+        self.operators
+            .get(name)
+            .is_some_and(|o| o.boundary && o.rank >= 2)
+    }
+
     /// True for T and for operators declared `conserved`.
     pub fn is_conserved(&self, name: &str) -> bool {
         name == STRESS_TENSOR

@@ -121,7 +121,7 @@ pub const STATEMENTS: &[Entry] = &[
     Entry {
         keyword: "model",
         example: "model conformal",
-        meaning: "correlators for numeric work: `conformal`, `gff`, `free-scalar dirichlet`",
+        meaning: "correlators for numeric work: `conformal`, `gff`, `free-scalar dirichlet`, `free-scalar complex neumann with J = current, K = boundary-current`",
     },
     Entry {
         keyword: "coefficient",

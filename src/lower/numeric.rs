@@ -113,23 +113,29 @@ impl Lowerer {
                         .err(ErrorKind::Placement, span, message)
                         .with_label("model"));
                 }
-                if *complex && (dirichlet.is_some() || family.is_some()) {
+                if *complex && family.is_some() {
                     return Err(self
                         .err(
                             ErrorKind::Placement,
                             span,
-                            "the complex free scalar is modelled without a wall",
+                            "the complex free scalar is modelled without a wall or with a \
+                             Neumann or Dirichlet wall",
                         )
                         .with_label("model")
                         .with_note(
-                            "write `model free-scalar complex` in a file without `halfspace`",
+                            "write `model free-scalar complex neumann` or `complex dirichlet`",
                         ));
                 }
                 let mut out = Vec::new();
                 for (name, composite) in fields {
                     self.need_operator(name)?;
-                    let complex_only = matches!(composite.as_str(), "phibar" | "current");
-                    let real_only = composite.starts_with("boundary-") || composite == "chi";
+                    let complex_only = matches!(
+                        composite.as_str(),
+                        "phibar" | "current" | "boundary-current"
+                    );
+                    let real_only = (composite.starts_with("boundary-")
+                        && !matches!(composite.as_str(), "boundary-tn" | "boundary-current"))
+                        || composite == "chi";
                     if (complex_only && !*complex) || (real_only && *complex) {
                         return Err(self
                             .err(
@@ -158,8 +164,10 @@ impl Lowerer {
                                  `dirichlet coupling g` (χ of dimension d/2 - 1)",
                             ));
                     }
-                    if matches!(composite.as_str(), "chi" | "boundary-tn")
-                        && !self.ctx.operator(&name.text).is_some_and(|o| o.boundary)
+                    if matches!(
+                        composite.as_str(),
+                        "chi" | "boundary-tn" | "boundary-current"
+                    ) && !self.ctx.operator(&name.text).is_some_and(|o| o.boundary)
                     {
                         return Err(self
                             .err(
@@ -171,10 +179,12 @@ impl Lowerer {
                                 ),
                             )
                             .with_label("declared without `boundary`")
-                            .with_note(if composite == "chi" {
-                                format!("declare it `boundary scalar {} dim …`", name.text)
-                            } else {
-                                format!("declare it `boundary vector {} dim d`", name.text)
+                            .with_note(match composite.as_str() {
+                                "chi" => format!("declare it `boundary scalar {} dim …`", name.text),
+                                "boundary-current" => {
+                                    format!("declare it `boundary vector {} dim d - 1`", name.text)
+                                }
+                                _ => format!("declare it `boundary vector {} dim d`", name.text),
                             }));
                     }
                     let chi_side = match &family {
@@ -222,7 +232,7 @@ impl Lowerer {
         let half = |t: Term| Term::Mul(vec![Term::Num(BigRational::new(1.into(), 2.into())), t]);
         let expected = match composite {
             "phi" | "phibar" | "boundary-phi" => half(Term::Add(vec![d, Term::int(-2)])),
-            "current" => Term::Add(vec![d, Term::int(-1)]),
+            "current" | "boundary-current" => Term::Add(vec![d, Term::int(-1)]),
             "phi2" | "boundary-phi2" => Term::Add(vec![d, Term::int(-2)]),
             "boundary-dphi" => half(d),
             "boundary-tn" => d,

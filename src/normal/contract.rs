@@ -10,7 +10,10 @@
 //!   x[n]^k δ(y(x)) = 0 for k > 0,
 //!   p[k] q[k] = (|p|² + |q|² - |p - q|²)/2 over all directions,
 //!   ∂[n](s) = 0 at a boundary point s (boundary points move only along
-//!   the boundary).
+//!   the boundary),
+//!   Ŵ[…n…] = 0 for a boundary tensor Ŵ of spin ≥ 2 (its indices run
+//!   along the wall), and an index summed over one of its slots is named
+//!   as a parallel index.
 
 use std::collections::{BTreeMap, BTreeSet};
 
@@ -19,7 +22,7 @@ use num_traits::{One, Signed};
 
 use super::{derivative, expand, Mono};
 use crate::context::{Context, IndexKind};
-use crate::term::{Index, Point, Term};
+use crate::term::{Index, Op, Point, Term};
 
 fn two() -> BigRational {
     BigRational::from_integer(2.into())
@@ -147,6 +150,16 @@ fn step(ctx: &Context, m: &Mono) -> Option<Vec<Mono>> {
                     }
                     let mut rest = m.clone();
                     rest.factors.remove(k);
+                    // δ[m,c] Ŵ[…c…] with Ŵ a boundary tensor and m not
+                    // parallel stays as it is: Ŵ[…m…] would not read back
+                    // (its indices run along the wall), and the projector
+                    // is what δ[m,c] over a parallel c means.
+                    if !ctx.is_parallel(other)
+                        && *other != Index::N
+                        && on_boundary_tensor(ctx, &rest.factors, name)
+                    {
+                        continue;
+                    }
                     let split = ctx.index_kind(name) == IndexKind::Parallel
                         && matches!(other, Index::Named(o) if ctx.index_kind(o) == IndexKind::Bulk);
                     let mut out = vec![rename(&rest, name, other)];
@@ -208,6 +221,7 @@ fn local(ctx: &Context, f: &Term) -> Local {
         }
         Term::Der(..) if normal_derivative_at_boundary(ctx, f) => Local::Zero,
         Term::Der(..) | Term::Corr(_) if traced_traceless(ctx, f) => Local::Zero,
+        Term::Der(..) | Term::Corr(_) if normal_on_boundary_tensor(ctx, f) => Local::Zero,
         _ => Local::Keep,
     }
 }
@@ -228,6 +242,37 @@ fn traced_traceless(ctx: &Context, f: &Term) -> bool {
         }
         _ => false,
     }
+}
+
+/// True if a correlator (under derivatives) holds a boundary tensor
+/// (spin ≥ 2) with the index n: its indices run along the wall, so that
+/// component is zero (docs/conventions.md §13). A boundary vector keeps
+/// its normal component (T_nn at the wall is D).
+fn normal_on_boundary_tensor(ctx: &Context, f: &Term) -> bool {
+    match f {
+        Term::Der(_, _, body) => normal_on_boundary_tensor(ctx, body),
+        Term::Corr(ops) => ops
+            .iter()
+            .any(|op| ctx.is_boundary_tensor(&op.name) && op.indices.contains(&Index::N)),
+        _ => false,
+    }
+}
+
+/// True if `name` is an index of a boundary tensor (spin ≥ 2) in one of
+/// the factors: summed there, it runs along the wall.
+fn on_boundary_tensor(ctx: &Context, factors: &[Term], name: &str) -> bool {
+    fn corr<'a>(f: &'a Term) -> Option<&'a [Op]> {
+        match f {
+            Term::Der(_, _, body) => corr(body),
+            Term::Corr(ops) => Some(ops),
+            _ => None,
+        }
+    }
+    factors.iter().filter_map(corr).any(|ops| {
+        ops.iter().any(|op| {
+            ctx.is_boundary_tensor(&op.name) && op.indices.iter().any(|i| i.name() == Some(name))
+        })
+    })
 }
 
 fn has_normal(f: &Term) -> bool {
@@ -491,6 +536,10 @@ fn rename_canonically(ctx: &Context, mut m: Mono) -> Mono {
                 // normal coordinate is 0): one form, the bulk one, so that
                 // it meets |s1 - s2|² expanded in coordinates.
                 IndexKind::Parallel if on_wall_only(ctx, &m.factors, name) => IndexKind::Bulk,
+                // Summed over a boundary tensor's slot, a bulk index runs
+                // along the wall (the normal component is zero): named as
+                // the language writes it, with a parallel name.
+                IndexKind::Bulk if on_boundary_tensor(ctx, &m.factors, name) => IndexKind::Parallel,
                 kind => kind,
             };
             let mut pool: Vec<String> = ctx

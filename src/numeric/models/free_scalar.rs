@@ -114,6 +114,9 @@ pub enum Composite {
     FieldBar,
     /// The U(1) current J_μ = ∂_μφ̄ φ - φ̄∂_μφ of the complex field.
     Current,
+    /// J_μ at y → 0+, a boundary vector normal-ordered on the wall (complex
+    /// field next to a Neumann or Dirichlet wall).
+    BoundaryCurrent,
 }
 
 impl Composite {
@@ -126,13 +129,14 @@ impl Composite {
                 | Composite::BoundaryFieldSquared
                 | Composite::WallStress
                 | Composite::Chi
+                | Composite::BoundaryCurrent
         )
     }
 
     fn rank(self) -> usize {
         match self {
             Composite::Stress => 2,
-            Composite::WallStress | Composite::Current => 1,
+            Composite::WallStress | Composite::Current | Composite::BoundaryCurrent => 1,
             _ => 0,
         }
     }
@@ -150,6 +154,7 @@ impl Composite {
             Composite::Chi => "χ",
             Composite::FieldBar => "φ̄",
             Composite::Current => "J_μ",
+            Composite::BoundaryCurrent => "J_μ at the wall",
         }
     }
 }
@@ -437,7 +442,7 @@ impl FreeScalar {
                 Composite::FieldSquared => {
                     return vec![Product::complex(Term::one(), vec![], vec![])]
                 }
-                Composite::Current => {
+                Composite::Current | Composite::BoundaryCurrent => {
                     let i = op.indices[0].clone();
                     return vec![
                         Product::complex(Term::one(), vec![i.clone()], vec![]),
@@ -452,12 +457,19 @@ impl FreeScalar {
                         op.indices[1].clone(),
                     )
                 }
+                // T_nn and T_nμ at y → 0+ (the sum of the two real D's:
+                // ∂_nφ̄∂_nφ for Dirichlet, -∂_aφ̄∂_aφ + 2ξ∂_a∂_a(φ̄φ) for
+                // Neumann, once the wall's condition is used).
+                Composite::Displacement => return self.complex_stress(ctx, k, Index::N, Index::N),
+                Composite::WallStress => {
+                    return self.complex_stress(ctx, k, Index::N, op.indices[0].clone())
+                }
                 _ => {}
             }
         }
         match c {
             // Only in the complex model (`check` refuses them otherwise).
-            Composite::FieldBar | Composite::Current => vec![],
+            Composite::FieldBar | Composite::Current | Composite::BoundaryCurrent => vec![],
             Composite::Field | Composite::BoundaryField => vec![one(Term::one(), vec![vec![]])],
             Composite::BoundaryNormalDerivative => vec![one(Term::one(), vec![vec![Index::N]])],
             Composite::FieldSquared | Composite::BoundaryFieldSquared => {
@@ -786,7 +798,10 @@ impl FreeScalar {
                     ));
                 }
             }
-            let complex_only = matches!(c, Composite::FieldBar | Composite::Current);
+            let complex_only = matches!(
+                c,
+                Composite::FieldBar | Composite::Current | Composite::BoundaryCurrent
+            );
             if complex_only && !self.complex {
                 return Err(unknown(
                     NAME,
@@ -794,11 +809,29 @@ impl FreeScalar {
                     format!("{} belongs to the complex scalar", c.describe()),
                 ));
             }
-            if self.complex && (c.on_boundary() || self.has_wall()) {
+            // The complex field next to a Neumann or Dirichlet wall: each
+            // real component has the image term, so ⟨φ φ̄⟩ has it too.
+            if self.complex && self.reflection.is_some() {
                 return Err(unknown(
                     NAME,
                     ops,
-                    "the complex scalar is modelled without a wall",
+                    "the complex scalar is modelled without a wall or with a Neumann or \
+                     Dirichlet wall, not with a reflecting one",
+                ));
+            }
+            let complex_boundary = matches!(
+                c,
+                Composite::Displacement | Composite::WallStress | Composite::BoundaryCurrent
+            );
+            if self.complex && c.on_boundary() && !complex_boundary {
+                return Err(unknown(
+                    NAME,
+                    ops,
+                    format!(
+                        "{} belongs to the real scalar; the complex one has D, T_nμ and J_μ \
+                         at the wall",
+                        c.describe()
+                    ),
                 ));
             }
             out.push(c);
@@ -844,6 +877,7 @@ impl Model for FreeScalar {
                 Some(
                     Composite::Stress
                         | Composite::Current
+                        | Composite::BoundaryCurrent
                         | Composite::Displacement
                         | Composite::BoundaryNormalDerivative
                         | Composite::WallStress
