@@ -1826,6 +1826,7 @@ pub fn build_model(
                     "phi2" => Composite::FieldSquared,
                     "phibar" => Composite::FieldBar,
                     "current" => Composite::Current,
+                    "stress" => Composite::Stress,
                     "boundary-phi" => Composite::BoundaryField,
                     "boundary-dphi" => Composite::BoundaryNormalDerivative,
                     "boundary-tn" => Composite::WallStress,
