@@ -19,6 +19,10 @@
 //! - `phi2_displacement_coupling_*`: b_{φ²D} = ∓1/S_d² in the (2y)
 //!   convention (docs/conventions.md §7, derived), and the conformal model's Ward
 //!   value b_OD = -Δa_O/S_d agrees, in both conventions.
+//! - `stress_current_current_free_*`: ⟨T J J⟩ of the free complex scalar
+//!   by Wick contraction equals the conformal form with two conserved
+//!   structures (Osborn & Petkou 1994, from memory; docs/conventions.md
+//!   §13, derived) at C_J = -2/((d-2)S_d²), b = -d²/((d-1)S_d³), d = 3, 4, 5.
 //! - further checks of the conformal forms against the free scalar
 //!   (one-point, bulk-to-boundary, ⟨T O⟩ next to a wall), conservation and
 //!   tracelessness through `Der` of an applied model, the broken Ward

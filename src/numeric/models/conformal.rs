@@ -24,7 +24,12 @@
 //!   with ⟨A B⟩ = C_AB, the charge Ward identity
 //!   ∂_μ⟨V_μ(x) X⟩ = -Σ q_i δ(x - x_i)⟨X⟩ fixes λ = -q_A C_AB/S_d unless
 //!   declared (docs/conventions.md §13, derived);
-//! - ⟨O⟩ = ⟨T⟩ = ⟨T O⟩ = ⟨V⟩ = ⟨V O⟩ = 0 without a boundary.
+//! - ⟨T_μν(x_1) J_α(x_2) K_β(x_3)⟩ of conserved currents of dimension
+//!   d - 1: the two conserved structures P, Q with coefficients a, b (the
+//!   form after Osborn & Petkou 1994, from memory; the structures and
+//!   a = b/(d - 2) - d C_JK/S_d derived, docs/conventions.md §13), b
+//!   declared as `coefficient <T J K>`;
+//! - ⟨O⟩ = ⟨T⟩ = ⟨T O⟩ = ⟨V⟩ = ⟨V O⟩ = ⟨T V⟩ = 0 without a boundary.
 //!
 //! With a half-space y ≥ 0, in the (2y) or the y convention (a setting,
 //! [`Convention`], printed by [`Model::describe`]):
@@ -748,10 +753,34 @@ impl Conformal {
         // H = S3 + S4 contracted: X̂_μ δ_νγ X̂_δ → w² X_μ I_αν(u) Y3_β,
         // X̂_μ δ_νδ X̂_γ → u² X_μ I_βν(w) Y2_α, symmetric traceless in (μ, ν).
         let big_h = add(vec![
-            mul(vec![half(), sq(x1, x3), x_vec(m), inversion(x2, al, n), y3(be)]),
-            mul(vec![half(), sq(x1, x3), x_vec(n), inversion(x2, al, m), y3(be)]),
-            mul(vec![half(), sq(x1, x2), x_vec(m), inversion(x3, be, n), y2(al)]),
-            mul(vec![half(), sq(x1, x2), x_vec(n), inversion(x3, be, m), y2(al)]),
+            mul(vec![
+                half(),
+                sq(x1, x3),
+                x_vec(m),
+                inversion(x2, al, n),
+                y3(be),
+            ]),
+            mul(vec![
+                half(),
+                sq(x1, x3),
+                x_vec(n),
+                inversion(x2, al, m),
+                y3(be),
+            ]),
+            mul(vec![
+                half(),
+                sq(x1, x2),
+                x_vec(m),
+                inversion(x3, be, n),
+                y2(al),
+            ]),
+            mul(vec![
+                half(),
+                sq(x1, x2),
+                x_vec(n),
+                inversion(x3, be, m),
+                y2(al),
+            ]),
             neg(mul(vec![
                 Term::int(2),
                 inv_d.clone(),
