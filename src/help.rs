@@ -121,12 +121,12 @@ pub const STATEMENTS: &[Entry] = &[
     Entry {
         keyword: "model",
         example: "model conformal",
-        meaning: "correlators for numeric work: `conformal`, `gff`, `free-scalar dirichlet`, `free-scalar complex neumann with J = current, K = boundary-current`",
+        meaning: "correlators for numeric work: `conformal`, `gff`, `free-scalar dirichlet`, `free-scalar complex neumann with J = current, K = boundary-current`; `free-scalar with P = phi2, S = stress` maps declared operators to the free scalar's composites (`stress`: a `tensor … spin 2` standing for its stress tensor)",
     },
     Entry {
         keyword: "coefficient",
         example: "coefficient <O O> = 1",
-        meaning: "a coefficient of the conformal model",
+        meaning: "a coefficient of the conformal model (`<T J J> = b`: the free coefficient of ⟨T J J⟩ of a conserved current; the Ward identity fixes the other from `<J J>`)",
     },
     Entry {
         keyword: "values",

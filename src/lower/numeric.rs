@@ -150,6 +150,28 @@ impl Lowerer {
                             .with_label("not a composite of this model")
                             .with_note("`model free-scalar complex with P = phi, Pb = phibar, J = current` maps the complex scalar's fields and current"));
                     }
+                    if composite == "stress"
+                        && name.text != STRESS_TENSOR
+                        && !self
+                            .ctx
+                            .operator(&name.text)
+                            .is_some_and(|o| o.rank == 2 && !o.boundary)
+                    {
+                        return Err(self
+                            .err(
+                                ErrorKind::Placement,
+                                name.span,
+                                format!(
+                                    "`{}` stands for the stress tensor, which is a bulk tensor of spin 2",
+                                    name.text
+                                ),
+                            )
+                            .with_label("not declared as a bulk spin-2 tensor")
+                            .with_note(format!(
+                                "declare it `tensor {} dim d, spin 2` (with the file's dimension for d)",
+                                name.text
+                            )));
+                    }
                     if composite == "chi" && !matches!(family, Some(Family::Coupling { .. })) {
                         return Err(self
                             .err(
@@ -233,6 +255,7 @@ impl Lowerer {
         let expected = match composite {
             "phi" | "phibar" | "boundary-phi" => half(Term::Add(vec![d, Term::int(-2)])),
             "current" | "boundary-current" => Term::Add(vec![d, Term::int(-1)]),
+            "stress" => d,
             "phi2" | "boundary-phi2" => Term::Add(vec![d, Term::int(-2)]),
             "boundary-dphi" => half(d),
             "boundary-tn" => d,

@@ -1827,6 +1827,7 @@ pub fn build_model(
                     "phibar" => Composite::FieldBar,
                     "current" => Composite::Current,
                     "boundary-current" => Composite::BoundaryCurrent,
+                    "stress" => Composite::Stress,
                     "boundary-phi" => Composite::BoundaryField,
                     "boundary-dphi" => Composite::BoundaryNormalDerivative,
                     "boundary-tn" => Composite::WallStress,

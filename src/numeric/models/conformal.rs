@@ -24,7 +24,12 @@
 //!   with ⟨A B⟩ = C_AB, the charge Ward identity
 //!   ∂_μ⟨V_μ(x) X⟩ = -Σ q_i δ(x - x_i)⟨X⟩ fixes λ = -q_A C_AB/S_d unless
 //!   declared (docs/conventions.md §13, derived);
-//! - ⟨O⟩ = ⟨T⟩ = ⟨T O⟩ = ⟨V⟩ = ⟨V O⟩ = 0 without a boundary.
+//! - ⟨T_μν(x_1) J_α(x_2) K_β(x_3)⟩ of conserved currents of dimension
+//!   d - 1: the two conserved structures P, Q with coefficients a, b (the
+//!   form after Osborn & Petkou 1994, from memory; the structures and
+//!   a = b/(d - 2) - d C_JK/S_d derived, docs/conventions.md §13), b
+//!   declared as `coefficient <T J K>`;
+//! - ⟨O⟩ = ⟨T⟩ = ⟨T O⟩ = ⟨V⟩ = ⟨V O⟩ = ⟨T V⟩ = 0 without a boundary.
 //!
 //! With a half-space y ≥ 0, in the (2y) or the y convention (a setting,
 //! [`Convention`], printed by [`Model::describe`]):
@@ -231,10 +236,15 @@ impl Model for Conformal {
                     let b = of(Kind::BulkScalar);
                     self.vector_scalar_scalar_fn(ctx, ops, of(Kind::BulkVector)[0], b[0], b[1])
                 }
+                (1, 0, 1) => Ok(Term::zero()),
+                (1, 0, 2) => {
+                    let v = of(Kind::BulkVector);
+                    self.stress_current_current_fn(ctx, ops, of(Kind::Stress)[0], v[0], v[1])
+                }
                 _ => Err(unknown(
                     NAME,
                     ops,
-                    "the conformal forms with vectors are ⟨V W⟩ and ⟨V O O'⟩",
+                    "the conformal forms with vectors are ⟨V W⟩, ⟨V O O'⟩ and ⟨T J J'⟩",
                 )),
             };
         }
@@ -600,6 +610,208 @@ impl Conformal {
             factors.push(dist_pow(points[i], points[j], e));
         }
         Ok(mul(factors))
+    }
+
+    /// ⟨T_μν(x1) J_α(x2) K_β(x3)⟩ of conserved currents of dimension d - 1
+    /// (docs/conventions.md §13):
+    ///
+    /// ```text
+    /// I_αγ(x21) I_βδ(x31) t_μνγδ(X) / (x12^{2(d-1)} x13^{2(d-1)}),
+    /// t = |X|^{2-d} (a P + b Q),
+    /// P = h_μν δ_γδ - H_μνγδ,   Q = h_μν X̂_γX̂_δ + H_μνγδ/d + 2 E_μνγδ/(d(d-2)),
+    /// ```
+    ///
+    /// h_μν = X̂_μX̂_ν - δ_μν/d, H the symmetric traceless part in (μ, ν) of
+    /// X̂_μ δ_νγ X̂_δ + X̂_μ δ_νδ X̂_γ, E that of δ_μγ δ_νδ; X as in ⟨T O O⟩.
+    /// b is declared (`coefficient <T J K> = b`); the Ward identity fixes
+    /// a = b/(d - 2) - d C_JK/S_d from ⟨J K⟩ = C_JK I/x^{2(d-1)}.
+    fn stress_current_current_fn(
+        &self,
+        ctx: &Context,
+        ops: &[Op],
+        t: &Op,
+        j: &Op,
+        k: &Op,
+    ) -> Result<Term> {
+        let d = ctx.dim();
+        let current = minus(d.clone(), Term::one());
+        for v in [j, k] {
+            let conserved = ctx.is_conserved(&v.name);
+            let dim = dimension(ctx, ops, v)?;
+            if !conserved || same_dimension(ctx, &dim, &current)? != Some(true) {
+                return Err(unknown(
+                    NAME,
+                    ops,
+                    format!(
+                        "⟨T J J'⟩ is a fixed form for conserved currents of dimension d - 1; \
+                         declare `vector {} dim d - 1, conserved`",
+                        v.name
+                    ),
+                ));
+            }
+        }
+        let c = Self::coefficient(
+            &self.two_point,
+            ops,
+            &j.name,
+            &k.name,
+            "two-point coefficient C_J (it fixes one coefficient of ⟨T J J'⟩)",
+        )?;
+        let b = self
+            .stress_coupling
+            .get(&pair(&j.name, &k.name))
+            .cloned()
+            .ok_or_else(|| {
+                unknown(
+                    NAME,
+                    ops,
+                    format!(
+                        "⟨T {} {}⟩ has two conserved structures and the Ward identity fixes \
+                         one combination; declare the other, `coefficient <T {} {}> = b` \
+                         (docs/conventions.md §13)",
+                        j.name, k.name, j.name, k.name
+                    ),
+                )
+            })?;
+        // a = b/(d - 2) - d C/S_d
+        let a = minus(
+            mul(vec![b.clone(), inv(minus(d.clone(), Term::int(2)))]),
+            mul(vec![d.clone(), c.clone(), inv(sphere())]),
+        );
+        let (x1, x2, x3) = (&t.point, &j.point, &k.point);
+        let (m, n) = (&t.indices[0], &t.indices[1]);
+        let (al, be) = (&j.indices[0], &k.indices[0]);
+        // Written without summed indices: with u = x2 - x1, w = x3 - x1,
+        // v = x3 - x2, I(u)X̂ = (|u||v|/|w|) Y2 and I(w)X̂ = (|v||w|/|u|) Y3,
+        // Y2 = -u/u² - v/v², Y3 = w/w² - v/v², |X| = |v|/(|u||w|), and
+        // u·w = (u² + w² - v²)/2; every odd power of a distance cancels.
+        let kron = |p: &Index, q: &Index| Term::Kron(p.clone(), q.clone());
+        let sq = |p: &Point, q: &Point| dist_pow(p, q, Term::int(2));
+        let over_sq = |p: &Point, q: &Point| dist_pow(p, q, Term::int(-2));
+        let u = |i: &Index| difference(x2, x1, i);
+        let w = |i: &Index| difference(x3, x1, i);
+        let v = |i: &Index| difference(x3, x2, i);
+        let x_vec = |i: &Index| {
+            minus(
+                mul(vec![u(i), over_sq(x1, x2)]),
+                mul(vec![w(i), over_sq(x1, x3)]),
+            )
+        };
+        let y2 = |i: &Index| {
+            neg(add(vec![
+                mul(vec![u(i), over_sq(x1, x2)]),
+                mul(vec![v(i), over_sq(x2, x3)]),
+            ]))
+        };
+        let y3 = |i: &Index| {
+            minus(
+                mul(vec![w(i), over_sq(x1, x3)]),
+                mul(vec![v(i), over_sq(x2, x3)]),
+            )
+        };
+        // I_ij(p - x1)
+        let inversion = |p: &Point, i: &Index, l: &Index| {
+            minus(
+                kron(i, l),
+                mul(vec![
+                    Term::int(2),
+                    difference(p, x1, i),
+                    difference(p, x1, l),
+                    dist_pow(p, x1, Term::int(-2)),
+                ]),
+            )
+        };
+        // K_αβ = I_αγ(u) I_γβ(w)
+        let k_ab = add(vec![
+            kron(al, be),
+            mul(vec![Term::int(-2), u(al), u(be), over_sq(x1, x2)]),
+            mul(vec![Term::int(-2), w(al), w(be), over_sq(x1, x3)]),
+            mul(vec![
+                Term::int(2),
+                add(vec![sq(x1, x2), sq(x1, x3), neg(sq(x2, x3))]),
+                u(al),
+                w(be),
+                over_sq(x1, x2),
+                over_sq(x1, x3),
+            ]),
+        ]);
+        let inv_d = inv(d.clone());
+        let half = || rational(1, 2);
+        // h_μν = X̂_μX̂_ν - δ_μν/d, X̂_μX̂_ν = X_μX_ν u²w²/v²
+        let hmn = minus(
+            mul(vec![
+                x_vec(m),
+                x_vec(n),
+                sq(x1, x2),
+                sq(x1, x3),
+                over_sq(x2, x3),
+            ]),
+            mul(vec![kron(m, n), inv_d.clone()]),
+        );
+        // (I(u)X̂)_α (I(w)X̂)_β = v² Y2_α Y3_β
+        let a2a3 = mul(vec![sq(x2, x3), y2(al), y3(be)]);
+        // H = S3 + S4 contracted: X̂_μ δ_νγ X̂_δ → w² X_μ I_αν(u) Y3_β,
+        // X̂_μ δ_νδ X̂_γ → u² X_μ I_βν(w) Y2_α, symmetric traceless in (μ, ν).
+        let big_h = add(vec![
+            mul(vec![
+                half(),
+                sq(x1, x3),
+                x_vec(m),
+                inversion(x2, al, n),
+                y3(be),
+            ]),
+            mul(vec![
+                half(),
+                sq(x1, x3),
+                x_vec(n),
+                inversion(x2, al, m),
+                y3(be),
+            ]),
+            mul(vec![
+                half(),
+                sq(x1, x2),
+                x_vec(m),
+                inversion(x3, be, n),
+                y2(al),
+            ]),
+            mul(vec![
+                half(),
+                sq(x1, x2),
+                x_vec(n),
+                inversion(x3, be, m),
+                y2(al),
+            ]),
+            neg(mul(vec![
+                Term::int(2),
+                inv_d.clone(),
+                kron(m, n),
+                a2a3.clone(),
+            ])),
+        ]);
+        // E contracted: ½ (I_αμ(u) I_βν(w) + I_αν(u) I_βμ(w)) - δ_μν K_αβ/d
+        let big_e = add(vec![
+            mul(vec![half(), inversion(x2, al, m), inversion(x3, be, n)]),
+            mul(vec![half(), inversion(x2, al, n), inversion(x3, be, m)]),
+            neg(mul(vec![inv_d.clone(), kron(m, n), k_ab.clone()])),
+        ]);
+        let p_structure = minus(mul(vec![hmn.clone(), k_ab]), big_h.clone());
+        let q_structure = add(vec![
+            mul(vec![hmn, a2a3]),
+            mul(vec![inv_d.clone(), big_h]),
+            mul(vec![
+                Term::int(2),
+                inv_d,
+                inv(minus(d.clone(), Term::int(2))),
+                big_e,
+            ]),
+        ]);
+        // |X|^{2-d}/(x12^{2(d-1)} x13^{2(d-1)}) = x12^{-d} x13^{-d} x23^{2-d}
+        Ok(mul(vec![
+            add(vec![mul(vec![a, p_structure]), mul(vec![b, q_structure])]),
+            dist_pow(x1, x2, neg(d.clone())),
+            dist_pow(x1, x3, neg(d.clone())),
+            dist_pow(x2, x3, minus(Term::int(2), d)),
+        ]))
     }
 
     fn stress_two_point_fn(&self, ctx: &Context, ops: &[Op], t1: &Op, t2: &Op) -> Result<Term> {
