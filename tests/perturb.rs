@@ -66,7 +66,11 @@ fn setup(d: usize) -> (Program, Program, Values) {
 }
 
 fn dist(p: &[f64], q: &[f64]) -> f64 {
-    p.iter().zip(q).map(|(a, b)| (a - b) * (a - b)).sum::<f64>().sqrt()
+    p.iter()
+        .zip(q)
+        .map(|(a, b)| (a - b) * (a - b))
+        .sum::<f64>()
+        .sqrt()
 }
 
 /// The inner finite part at wall points near the insertions and far from
@@ -93,7 +97,9 @@ fn inner_integral_is_the_normal_derivative_of_the_propagator() {
             z[0] = 0.2 + r * (0.7 + 0.1 * k as f64).cos();
             z[1] = -1.0 / 3.0 + r * (0.7 + 0.1 * k as f64).sin();
             let (r1, r2) = (dist(x1, &z), dist(x2, &z));
-            let exact = -(d as f64 - 2.0) * 0.5 * sd
+            let exact = -(d as f64 - 2.0)
+                * 0.5
+                * sd
                 * (y2 * r1.powf(2.0 - d as f64) * r2.powf(-(d as f64))
                     + y1 * r2.powf(2.0 - d as f64) * r1.powf(-(d as f64)));
             let got = double

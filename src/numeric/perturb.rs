@@ -46,9 +46,9 @@ use serde::Serialize;
 
 use super::agreement::Value;
 use super::eval::Program;
-use crate::diagnostic::{Error, ErrorKind};
 use super::quadrature::{integrate_batch, Estimate, Surface, Tolerance};
 use super::Values;
+use crate::diagnostic::{Error, ErrorKind};
 use crate::term::{Point, Term};
 
 /// Euler's constant γ (common practice).
@@ -454,7 +454,8 @@ impl Double<'_> {
             .abs()
             .max(1e-3 * at_centre.magnitude / height.powi(dim as i32 - 1));
         let n = (dim - 1) as f64;
-        let spread = |z: &[f64]| (1.0 + dist2(z, centre) / (height * height)).powf(-0.5 * (n + 0.5));
+        let spread =
+            |z: &[f64]| (1.0 + dist2(z, centre) / (height * height)).powf(-0.5 * (n + 0.5));
         let gamma = |x: f64| super::special::gamma::gamma(x).unwrap_or(f64::NAN);
         let spread_integral =
             height.powf(n) * PI.powf(0.5 * n) * gamma(0.25) / gamma(0.5 * (n + 0.5));
