@@ -150,3 +150,18 @@ fn double_integral_is_the_order_g_squared_term_of_the_exact_family() {
         );
     }
 }
+
+/// A wrong first-order expectation (the sign flipped) is refuted; the file
+/// is not a snapshot case because the report prints each order's time.
+#[test]
+fn a_wrong_first_order_is_refuted() {
+    use wardsmith::run::{run_path, Mode, Options};
+    let out = run_path(
+        std::path::Path::new("tests/cases/perturb/first-order-wrong-sign.ward"),
+        Mode::Check,
+        &Options::default(),
+    )
+    .unwrap_or_else(|e| panic!("{}", e.render()));
+    assert_eq!(out.code, 1, "{}", out.report);
+    assert!(out.report.contains("disagree"), "{}", out.report);
+}
