@@ -618,6 +618,10 @@ fn failure(keyword: &str, e: &Error) -> Finding {
     })
 }
 
+/// How many times the agreement rule's allowance a second-order value of
+/// `perturb` must miss its expectation by to be refuted.
+const SECOND_ORDER_REFUTE: f64 = 1000.0;
+
 /// `perturb`: the orders, their sum, and each `expect` by the agreement
 /// rule.
 fn perturbed(
@@ -658,23 +662,32 @@ fn perturbed(
             Some(k) => orders.get(*k).map_or(Value::exact(f64::NAN), |o| o.value),
             None => total,
         };
-        // The outer wall integral of the second order decays slowly and its
-        // error estimate has been seen to be too small (4.8e-3 estimated
-        // against 7e-3 true in d = 3): a second-order value is printed, never
-        // confirmed.
+        // The second order's error estimate is not yet shown to cover its
+        // error at the accuracies asked (docs/conventions.md §17): an
+        // agreement there is UNKNOWN with its value; a difference a
+        // thousand times what the agreement rule allows is a refutation.
         let second_order = match which {
             Some(k) => *k >= 2,
             None => order >= 2,
         };
-        let verdict = if second_order {
-            Agreement::Unknown(
-                "the second-order wall integral's error estimate is not reliable yet \
-                 (its outer integrand decays slowly at large distance along the wall); \
+        let verdict = match agreement::agreement(&computed, &expected) {
+            Agreement::Agree if second_order => Agreement::Unknown(
+                "the second-order wall integral's error estimate is not shown reliable yet; \
                  the value is shown, not confirmed"
                     .to_string(),
-            )
-        } else {
-            agreement::agreement(&computed, &expected)
+            ),
+            Agreement::Disagree
+                if second_order
+                    && (computed.value - expected.value).abs()
+                        <= SECOND_ORDER_REFUTE * agreement::allowed(&computed, &expected) =>
+            {
+                Agreement::Unknown(
+                    "the second-order value differs from the expected one, by less than a \
+                     thousand times what its error estimate allows, which is not shown reliable yet"
+                        .to_string(),
+                )
+            }
+            v => v,
         };
         checked.push(crate::outcome::PerturbExpected {
             order: *which,

@@ -48,6 +48,7 @@ use super::agreement::Value;
 use super::eval::Program;
 use super::quadrature::{integrate_batch, Estimate, Surface, Tolerance};
 use super::Values;
+use crate::diagnostic::{Error, ErrorKind};
 use crate::term::{Point, Term};
 
 /// Euler's constant γ (common practice).
@@ -252,25 +253,23 @@ pub fn plane_frame(insertions: &[Vec<f64>]) -> Option<(Vec<f64>, f64)> {
         })
 }
 
-/// ∫ dz f(z) over the wall, f a program with `point` moving.
-pub fn plane_integral(
-    program: &Program,
-    values: &Values,
-    point: &str,
-    frame: &(Vec<f64>, f64),
+/// [`integrate_batch`] with an integrand that may fail: after the first
+/// error every value is NaN (which ends the driver) and the error is
+/// returned; otherwise the estimate, converged or not.
+fn integrate_fallible(
+    surface: &Surface,
+    mut f: impl FnMut(&[f64], &mut [f64]) -> Result<(), Error>,
     tol: Tolerance,
-) -> Result<Estimate, crate::diagnostic::Error> {
-    let surface = Surface::plane(&frame.0, frame.1).map_err(quadrature_error)?;
-    let batch = program.batch(values, point, None)?;
+) -> Result<Estimate, Error> {
     let mut failure = None;
     let e = integrate_batch(
-        &surface,
+        surface,
         |points, _normals, out| {
             if failure.is_some() {
                 out.fill(f64::NAN);
                 return;
             }
-            if let Err(e) = batch.eval(points, &[], out) {
+            if let Err(e) = f(points, out) {
                 failure = Some(e);
                 out.fill(f64::NAN);
             }
@@ -279,8 +278,112 @@ pub fn plane_integral(
     );
     match failure {
         Some(e) => Err(e),
-        None => converged(e),
+        None => Ok(e),
     }
+}
+
+/// ∫ dz f(z) over the wall, f a program with `point` moving, by the plane
+/// rule ([`Surface::plane`]).
+pub fn plane_integral(
+    program: &Program,
+    values: &Values,
+    point: &str,
+    frame: &(Vec<f64>, f64),
+    tol: Tolerance,
+) -> Result<Estimate, Error> {
+    let surface = Surface::plane(&frame.0, frame.1).map_err(quadrature_error)?;
+    let batch = program.batch(values, point, None)?;
+    converged(integrate_fallible(
+        &surface,
+        |points, out| batch.eval(points, &[], out),
+        tol,
+    )?)
+}
+
+/// The whole wall R^{d-1} about `centre`, as the disc of radius 2 about it
+/// mapped radially by σ ↦ ρ = a (σ/(2 - σ))^m. In ln ρ the map is
+/// ln a + m ln(σ/(2 - σ)), so that distances from 10⁻⁶ a to 10⁶ a share
+/// the disc without crowding at its rim: a feature whose width is a fixed
+/// fraction of its distance costs about the same nodes wherever it lies
+/// (the tan map of [`Surface::plane`] crowds large distances into the
+/// last nodes). An integrand that falls off like a power ρ^{-p} at
+/// infinity becomes (2 - σ)^{m(p - d + 1) - 1} at the rim, and one that
+/// behaves like ρ^s at the centre becomes σ^{m(s + d - 1) - d + 1} against
+/// the disc's weight σ^{d-2}: whole powers, smooth for the disc's
+/// Gauss–Jacobi rule, when p and s are whole numbers (derived).
+pub struct Wall {
+    centre: Vec<f64>,
+    scale: f64,
+    power: i32,
+    disc: Surface,
+}
+
+impl Wall {
+    /// The wall about `centre` (on it) with width `scale` and power m ≥ 1.
+    pub fn new(centre: &[f64], scale: f64, power: i32) -> Result<Wall, Error> {
+        if !(scale > 0.0 && scale.is_finite()) || power < 1 {
+            return Err(Error::new(
+                ErrorKind::Numeric,
+                format!("a wall rule needs a positive width and power, not {scale} and {power}"),
+            ));
+        }
+        let disc = Surface::disc(centre, 2.0).map_err(quadrature_error)?;
+        Ok(Wall {
+            centre: centre.to_vec(),
+            scale,
+            power,
+            disc,
+        })
+    }
+
+    /// ∫ d^{d-1}z f(z) over the wall: `f(points, out)` receives points on
+    /// the wall (d coordinates each, flat) and writes one value per point.
+    pub fn integrate(
+        &self,
+        mut f: impl FnMut(&[f64], &mut [f64]) -> Result<(), Error>,
+        tol: Tolerance,
+    ) -> Result<Estimate, Error> {
+        let mut mapped = Vec::new();
+        let mut jacobian = Vec::new();
+        integrate_fallible(
+            &self.disc,
+            |points, out| {
+                self.map(points, &mut mapped, &mut jacobian);
+                f(&mapped, out)?;
+                for (v, j) in out.iter_mut().zip(&jacobian) {
+                    // Far out the Jacobian may overflow where the
+                    // integrand has fallen to 0.
+                    *v = if *v == 0.0 { 0.0 } else { *v * j };
+                }
+                Ok(())
+            },
+            tol,
+        )
+    }
+
+    /// The disc's nodes moved onto the wall, and per node the Jacobian
+    /// (ρ/σ)^{d-2} dρ/dσ, dρ/dσ = 2mρ/(σ(2 - σ)).
+    fn map(&self, points: &[f64], mapped: &mut Vec<f64>, jacobian: &mut Vec<f64>) {
+        let dim = self.centre.len();
+        let m = f64::from(self.power);
+        mapped.clear();
+        jacobian.clear();
+        for p in points.chunks_exact(dim) {
+            let sigma = dist2(p, &self.centre).sqrt();
+            let rho = self.scale * (sigma / (2.0 - sigma)).powi(self.power);
+            let ratio = rho / sigma;
+            let drho = 2.0 * m * rho / (sigma * (2.0 - sigma));
+            jacobian.push(ratio.powi(dim as i32 - 2) * drho);
+            for (x, c) in p.iter().zip(&self.centre) {
+                mapped.push(c + (x - c) * ratio);
+            }
+        }
+    }
+}
+
+/// |p - q|².
+fn dist2(p: &[f64], q: &[f64]) -> f64 {
+    p.iter().zip(q).map(|(a, b)| (a - b) * (a - b)).sum()
 }
 
 /// The pieces the second-order double integral needs.
@@ -297,6 +400,7 @@ pub struct Double<'p> {
 
 /// The result of [`Double::integrate`]: the finite part I of
 /// ∫∫ dz dz' ⟨X O O⟩_c, and the coefficients of its divergences.
+#[derive(Clone, Debug)]
 pub struct DoubleResult {
     pub finite: Estimate,
     /// A bound on what the inner integrals' errors add to `finite`.
@@ -307,74 +411,71 @@ pub struct DoubleResult {
     pub powers: Vec<(f64, Estimate)>,
 }
 
+/// One inner integral: the finite part at one z, its error estimate, the
+/// evaluations it took and Σ|w f| of its pieces.
+#[derive(Clone, Copy, Debug)]
+pub struct Inner {
+    pub value: f64,
+    pub error: f64,
+    pub nodes: usize,
+    pub magnitude: f64,
+}
+
 impl Double<'_> {
-    /// The outer integral over z of the inner finite part over z', both
-    /// by the plane rules; `tol` is the relative accuracy asked of the
-    /// outer one, the inner ones are asked for a tenth of it.
-    pub fn integrate(
-        &self,
-        values: &Values,
-        tol: f64,
-        floor: f64,
-    ) -> Result<DoubleResult, crate::diagnostic::Error> {
+    /// The outer integral over z of the inner finite part over z' by a
+    /// [`Wall`] rule; `tol` is the relative accuracy asked of the outer
+    /// one. The inner ones are asked for an absolute accuracy
+    /// τ M s(z), τ = `tol`/20, M = |F| below the lowest insertion (F the
+    /// outer integrand), s(z) = (1 + |z - c|²/y²)^{-(d - 1/2)/2} about that
+    /// point c at height y: s falls off more slowly than F (like
+    /// |z|^{2-2d} here) yet is integrable, with
+    /// ∫ s = y^{d-1} π^{(d-1)/2} Γ(1/4)/Γ((d - 1/2)/2) (common practice), so
+    /// the inner errors add at most τ M ∫ s to the outer integral, which is
+    /// added to its error estimate. An inner integral that does not reach
+    /// its accuracy is an error.
+    pub fn integrate(&self, values: &Values, tol: f64, floor: f64) -> Result<DoubleResult, Error> {
         let dim = values.dim;
         let frame = plane_frame(&self.insertions).ok_or_else(|| {
-            crate::diagnostic::Error::new(
-                crate::diagnostic::ErrorKind::Placement,
+            Error::new(
+                ErrorKind::Placement,
                 "the correlator needs a bulk insertion with a position",
             )
         })?;
-        let outer_surface = Surface::plane(&frame.0, frame.1).map_err(quadrature_error)?;
-        let inner_tol = 0.1 * tol;
-        let inner_floor = 0.1 * floor;
-        let mut failure: Option<crate::diagnostic::Error> = None;
-        let mut evaluations = 0usize;
-        let mut ratio = 0.0f64;
+        let (centre, height) = (&frame.0, frame.1);
+        let outer = Wall::new(centre, height, OUTER_POWER)?;
+        let inner_tol = INNER_SHARE * tol;
         let mut local = values.clone();
-        let mut mirrored = Vec::new();
-        let mut out2 = Vec::new();
-        let finite = integrate_batch(
-            &outer_surface,
-            |points, _normals, out| {
+        // The scale M: the outer integrand below the lowest insertion, to
+        // a relative accuracy (or, should it vanish there, a thousandth of
+        // its pieces' size).
+        let at_centre = self.inner(centre, &mut local, 0.0, inner_tol)?;
+        let scale = at_centre
+            .value
+            .abs()
+            .max(1e-3 * at_centre.magnitude / height.powi(dim as i32 - 1));
+        let n = (dim - 1) as f64;
+        let spread =
+            |z: &[f64]| (1.0 + dist2(z, centre) / (height * height)).powf(-0.5 * (n + 0.5));
+        let gamma = |x: f64| super::special::gamma::gamma(x).unwrap_or(f64::NAN);
+        let spread_integral =
+            height.powf(n) * PI.powf(0.5 * n) * gamma(0.25) / gamma(0.5 * (n + 0.5));
+        let mut evaluations = at_centre.nodes;
+        let finite = outer.integrate(
+            |points, out| {
                 for (z, v) in points.chunks_exact(dim).zip(out.iter_mut()) {
-                    if failure.is_some() {
-                        *v = f64::NAN;
-                        continue;
-                    }
-                    match self.inner(
-                        z,
-                        &mut local,
-                        inner_tol,
-                        inner_floor,
-                        &mut mirrored,
-                        &mut out2,
-                    ) {
-                        Ok((value, error, nodes)) => {
-                            evaluations += nodes;
-                            *v = value;
-                            if value != 0.0 {
-                                ratio = ratio.max(error / value.abs());
-                            } else if error > 0.0 {
-                                ratio = f64::INFINITY;
-                            }
-                        }
-                        Err(e) => {
-                            failure = Some(e);
-                            *v = f64::NAN;
-                        }
-                    }
+                    let r = self.inner(z, &mut local, inner_tol * scale * spread(z), 0.0)?;
+                    evaluations += r.nodes;
+                    *v = r.value;
                 }
+                Ok(())
             },
             Tolerance::relative(tol)
                 .with_abs(floor)
                 .with_max_nodes(OUTER_BUDGET),
-        );
-        if let Some(e) = failure {
-            return Err(e);
-        }
+        )?;
         let finite = converged(finite)?;
         evaluations += finite.nodes;
-        let inner_error = ratio * finite.magnitude;
+        let inner_error = inner_tol * scale * spread_integral;
         // The divergences: S_{d-1} ∫ dz G(z, z) times -1/k, or for k = 0 the
         // coefficient of ln(1/ε).
         let mut log = None;
@@ -394,7 +495,7 @@ impl Double<'_> {
                     .with_max_nodes(400_000),
             ) {
                 Ok(e) => e,
-                Err(e) if e.kind == crate::diagnostic::ErrorKind::Numeric => Estimate {
+                Err(e) if e.kind == ErrorKind::Numeric => Estimate {
                     value: f64::NAN,
                     error: f64::INFINITY,
                     nodes: 0,
@@ -425,38 +526,33 @@ impl Double<'_> {
         })
     }
 
-    /// The finite part of ∫ dz' ⟨X O(z) O(z')⟩_c at one z: (value, error
-    /// estimate, evaluations). The integrand is split by the partition of
-    /// unity 1 = φ(u) + (1 - e^{-|u|²/a²})^M, u = z' - z, a half the
-    /// distance from z to the nearest insertion: the near part φF, with the
-    /// subtraction, by a polar rule about z (symmetrised in u → -u); the
-    /// far part, which vanishes like |u|^{2M} at z, by the plane rule under
-    /// the insertions, where the rest of the integrand varies.
-    fn inner(
-        &self,
-        z: &[f64],
-        local: &mut Values,
-        tol: f64,
-        floor: f64,
-        mirrored: &mut Vec<f64>,
-        out2: &mut Vec<f64>,
-    ) -> Result<(f64, f64, usize), crate::diagnostic::Error> {
+    /// The finite part of ∫ dz' ⟨X O(z) O(z')⟩_c at one z, to the absolute
+    /// accuracy `abs` or, when `abs` is 0, the relative accuracy `rel`.
+    /// The integrand F is split by the partition of unity 1 = w + (1 - w),
+    /// w = 1/(1 + S), S = Σ_i (|z' - z|/|z' - x_i|)^{2M} over the
+    /// insertions x_i of X: w is 1 at z to order |u|^{2M} (u = z' - z) and
+    /// falls like (distance of x_i from the wall/|z - x_i|)^{2M} at the
+    /// foot of x_i, so that the near part does not hold the peaks under
+    /// the insertions however far z is from them (the earlier partition
+    /// (1 - e^{-|u|²/a²})^M left 14% of them in it, at an angular width
+    /// that shrinks with the distance). The near part wF, with the
+    /// subtraction, by the plane rule about z with width a = half the
+    /// distance to the nearest insertion (symmetrised in u → -u; the tan
+    /// map keeps its nodes at |u| ≳ 10⁻⁴a, where the rounding of the
+    /// subtracted difference, ε G |u|^q, stays small); the far part
+    /// (1 - w)F, which vanishes like |u|^{2M} at z, by the plane rule under
+    /// the insertions.
+    pub fn inner(&self, z: &[f64], local: &mut Values, abs: f64, rel: f64) -> Result<Inner, Error> {
         let dim = local.dim;
         local.points.insert(self.first.to_string(), z.to_vec());
         let r = self
             .insertions
             .iter()
-            .map(|p| {
-                p.iter()
-                    .zip(z)
-                    .map(|(a, b)| (a - b) * (a - b))
-                    .sum::<f64>()
-                    .sqrt()
-            })
+            .map(|p| dist2(p, z).sqrt())
             .fold(f64::INFINITY, f64::min);
         if !(r.is_finite() && r > 0.0) {
-            return Err(crate::diagnostic::Error::new(
-                crate::diagnostic::ErrorKind::Placement,
+            return Err(Error::new(
+                ErrorKind::Placement,
                 "an insertion of the correlator lies on the wall",
             ));
         }
@@ -470,20 +566,23 @@ impl Double<'_> {
             residues.push((*q, g0));
         }
         let batch = self.full.batch(local, self.second, None)?;
-        let far = |u2: f64| (1.0 - (-u2 / (a * a)).exp()).powi(PARTITION_POWER);
-        let tolerance = Tolerance::relative(tol)
-            .with_abs(floor)
+        let tolerance = Tolerance::relative(0.5 * rel)
+            .with_abs(0.5 * abs)
             .with_max_nodes(INNER_BUDGET);
+        let partition = |p: &[f64]| -> f64 {
+            let u2 = dist2(p, z);
+            self.insertions
+                .iter()
+                .map(|x| (u2 / dist2(p, x)).powi(PARTITION_POWER))
+                .sum()
+        };
         // The near part.
+        let mut mirrored = Vec::new();
+        let mut out2 = Vec::new();
         let surface = Surface::plane(z, a).map_err(quadrature_error)?;
-        let mut failure = None;
-        let near = integrate_batch(
+        let near = integrate_fallible(
             &surface,
-            |points, _normals, out| {
-                if failure.is_some() {
-                    out.fill(f64::NAN);
-                    return;
-                }
+            |points, out| {
                 mirrored.clear();
                 for p in points.chunks_exact(dim) {
                     for (x, c) in p.iter().zip(z) {
@@ -492,26 +591,20 @@ impl Double<'_> {
                 }
                 out2.clear();
                 out2.resize(out.len(), 0.0);
-                if let Err(e) = batch
-                    .eval(points, &[], out)
-                    .and_then(|_| batch.eval(mirrored, &[], out2))
-                {
-                    failure = Some(e);
-                    out.fill(f64::NAN);
-                    return;
-                }
+                batch.eval(points, &[], out)?;
+                batch.eval(&mirrored, &[], &mut out2)?;
                 // Each half minus the subtraction at its own distance, as
                 // the program computes it from the stored coordinates (the
                 // difference of two close doubles is exact), so that the
                 // singular parts cancel to rounding of the smooth factor.
                 let half = |p: &[f64], f: f64| -> f64 {
-                    let u2: f64 = p.iter().zip(z).map(|(x, c)| (x - c) * (x - c)).sum();
+                    let u2 = dist2(p, z);
                     let gauss = (-u2 / (a * a)).exp();
                     let sub: f64 = residues
                         .iter()
                         .map(|(q, g0)| g0 * u2.powf(0.5 * q) * gauss)
                         .sum();
-                    (1.0 - far(u2)) * f - sub
+                    f / (1.0 + partition(p)) - sub
                 };
                 for (((p, m), v), w) in points
                     .chunks_exact(dim)
@@ -521,68 +614,60 @@ impl Double<'_> {
                 {
                     *v = 0.5 * (half(p, *v) + half(m, *w));
                 }
+                Ok(())
             },
             tolerance,
-        );
-        if let Some(e) = failure {
-            return Err(e);
-        }
+        )?;
         let near = converged(near)?;
         // The far part.
         let (centre, scale) = plane_frame(&self.insertions).unwrap_or((z.to_vec(), r));
         // A width incommensurate with the outer rule's, so that no node of
         // this rule falls on z, a node of the outer one.
-        let surface =
-            Surface::plane(&centre, scale * (1.0 + 1.0 / PI)).map_err(quadrature_error)?;
-        let mut failure = None;
-        let away = integrate_batch(
-            &surface,
-            |points, _normals, out| {
-                if failure.is_some() {
-                    out.fill(f64::NAN);
-                    return;
-                }
-                if let Err(e) = batch.eval(points, &[], out) {
-                    failure = Some(e);
-                    out.fill(f64::NAN);
-                    return;
-                }
-                for (p, v) in points.chunks_exact(dim).zip(out.iter_mut()) {
-                    let u2: f64 = p.iter().zip(z).map(|(x, c)| (x - c) * (x - c)).sum();
-                    // At z itself the factor is 0 and F has no value.
-                    *v = if u2 == 0.0 { 0.0 } else { far(u2) * *v };
-                }
-            },
+        let far_f = |points: &[f64], out: &mut [f64]| -> Result<(), Error> {
+            batch.eval(points, &[], out)?;
+            for (p, v) in points.chunks_exact(dim).zip(out.iter_mut()) {
+                let s = partition(p);
+                // At z itself the factor is 0 and F has no value.
+                *v = if s == 0.0 { 0.0 } else { s / (1.0 + s) * *v };
+            }
+            Ok(())
+        };
+        let far = integrate_fallible(
+            &Surface::plane(&centre, scale * (1.0 + 1.0 / PI)).map_err(quadrature_error)?,
+            far_f,
             tolerance,
-        );
-        if let Some(e) = failure {
-            return Err(e);
-        }
-        let away = converged(away)?;
-        Ok((
-            near.value + away.value + analytic,
-            near.error + away.error,
-            2 * near.nodes + away.nodes,
-        ))
+        )?;
+        let far = converged(far)?;
+        Ok(Inner {
+            value: near.value + far.value + analytic,
+            error: near.error + far.error,
+            nodes: 2 * near.nodes + far.nodes,
+            magnitude: near.magnitude + far.magnitude,
+        })
     }
 }
 
-/// The power M of the far factor (1 - e^{-|u|²/a²})^M: it vanishes like
-/// |u|^{2M} at z, so that F times it is smooth enough there for the plane
-/// rule under the insertions (|u|^{2M-d-1} at worst).
+/// The power M of the partition: the far part vanishes like |u|^{2M} at z,
+/// so that F times it is smooth enough there for the rule under the
+/// insertions (|u|^{2M-d-1} at worst).
 const PARTITION_POWER: i32 = 8;
+/// The [`Wall`] power of the outer rule (its integrand is smooth and falls
+/// off like a power).
+const OUTER_POWER: i32 = 1;
+/// The share of the outer tolerance the inner integrals are asked for.
+const INNER_SHARE: f64 = 0.05;
 /// The most outer nodes of the double integral (each an inner integral).
 const OUTER_BUDGET: usize = 200_000;
-/// The most evaluations of one inner integral.
+/// The most evaluations of one part of an inner integral.
 const INNER_BUDGET: usize = 400_000;
 
 /// The estimate, or an error when the driver did not converge.
-fn converged(e: Estimate) -> Result<Estimate, crate::diagnostic::Error> {
+fn converged(e: Estimate) -> Result<Estimate, Error> {
     if e.converged {
         Ok(e)
     } else {
-        Err(crate::diagnostic::Error::new(
-            crate::diagnostic::ErrorKind::Numeric,
+        Err(Error::new(
+            ErrorKind::Numeric,
             format!(
                 "quadrature over the wall did not converge: {} ± {:.1e} after {} evaluations",
                 e.value, e.error, e.nodes
@@ -592,8 +677,8 @@ fn converged(e: Estimate) -> Result<Estimate, crate::diagnostic::Error> {
     }
 }
 
-fn quadrature_error(e: super::quadrature::QuadratureError) -> crate::diagnostic::Error {
-    crate::diagnostic::Error::new(crate::diagnostic::ErrorKind::Numeric, e.to_string())
+fn quadrature_error(e: super::quadrature::QuadratureError) -> Error {
+    Error::new(ErrorKind::Numeric, e.to_string())
 }
 
 #[cfg(test)]

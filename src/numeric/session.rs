@@ -65,6 +65,10 @@ pub struct Session<'a> {
     /// Their compiled forms, by input term and component: a scan or a grid
     /// evaluates the same component at many configurations.
     compiled_cache: Arc<Mutex<CompiledCache>>,
+    /// Second-order double integrals of `perturb` already done, by the
+    /// connected correlator, the values and the tolerance: they do not
+    /// depend on the coupling, so several couplings share one.
+    double_cache: Arc<Mutex<std::collections::HashMap<String, super::perturb::DoubleResult>>>,
     /// The relative accuracy asked of quadrature (`tolerance`, or
     /// [`QUADRATURE_TOLERANCE`]).
     tolerance: f64,
@@ -184,6 +188,7 @@ impl<'a> Session<'a> {
             current: AtomicUsize::new(0),
             explicit_cache: Arc::new(Mutex::new(std::collections::HashMap::new())),
             compiled_cache: Arc::new(Mutex::new(std::collections::HashMap::new())),
+            double_cache: Arc::new(Mutex::new(std::collections::HashMap::new())),
             tolerance: spec.tolerance.unwrap_or(QUADRATURE_TOLERANCE),
             exact: Arc::new(
                 spec.values
@@ -206,6 +211,7 @@ impl<'a> Session<'a> {
             current: AtomicUsize::new(0),
             explicit_cache: Arc::clone(&self.explicit_cache),
             compiled_cache: Arc::clone(&self.compiled_cache),
+            double_cache: Arc::clone(&self.double_cache),
             tolerance: self.tolerance,
             exact: Arc::clone(&self.exact),
         };
@@ -1628,7 +1634,29 @@ impl<'a> Session<'a> {
                 second: &z2.name,
                 insertions: insertions.clone(),
             };
-            let r = double.integrate(&values, self.tolerance, QUADRATURE_FLOOR * self.tolerance)?;
+            let key = format!(
+                "{k2:?}|{}|{}|{values:?}|{:e}",
+                z1.name, z2.name, self.tolerance
+            );
+            let cached = self
+                .double_cache
+                .lock()
+                .ok()
+                .and_then(|c| c.get(&key).cloned());
+            let r = match cached {
+                Some(r) => r,
+                None => {
+                    let r = double.integrate(
+                        &values,
+                        self.tolerance,
+                        QUADRATURE_FLOOR * self.tolerance,
+                    )?;
+                    if let Ok(mut c) = self.double_cache.lock() {
+                        c.insert(key, r.clone());
+                    }
+                    r
+                }
+            };
             let mut value = scaled(&r.finite, r.inner_error, half_g2);
             value.nodes = r.evaluations;
             OrderTerm {
