@@ -25,6 +25,8 @@ mod monomial;
 
 use std::collections::BTreeMap;
 
+use rustc_hash::FxHashMap;
+
 use num_rational::BigRational;
 use num_traits::{One, Signed, ToPrimitive, Zero};
 
@@ -97,7 +99,7 @@ pub fn normal_form_with(ctx: &Context, t: &Term, memo: Option<&Memo>) -> Result<
 /// Integrals already expanded, with the caveats their expansion recorded.
 #[derive(Default)]
 pub struct Memo {
-    integrals: std::sync::Mutex<std::collections::HashMap<Term, (Vec<Mono>, Caveats)>>,
+    integrals: std::sync::Mutex<FxHashMap<Term, (Vec<Mono>, Caveats)>>,
 }
 
 impl Memo {
@@ -148,16 +150,17 @@ pub fn normalize_products_pointwise(ctx: &Context, products: &[Vec<Term>]) -> Re
         ..Norm::new(ctx)
     };
     // A polynomial in the scalar atoms, with exact coefficients.
-    type Poly = std::collections::HashMap<Atoms, BigRational>;
+    type Poly = FxHashMap<Atoms, BigRational>;
     // The monomials of each distinct factor, grouped by their non-scalar
     // factors.
-    let mut expanded: std::collections::HashMap<&Term, Vec<(Vec<Term>, Poly)>> =
-        std::collections::HashMap::new();
+    let mut expanded: FxHashMap<&Term, Vec<(Vec<Term>, Poly)>> = FxHashMap::default();
     // Every product's monomials, merged: factors → polynomial.
-    let mut pending: std::collections::HashMap<Vec<Term>, Poly> = std::collections::HashMap::new();
+    let mut pending: FxHashMap<Vec<Term>, Poly> = FxHashMap::default();
     for product in products {
-        let mut acc: Vec<(Vec<Term>, Poly)> =
-            vec![(Vec::new(), Poly::from([(Atoms::new(), BigRational::one())]))];
+        let mut acc: Vec<(Vec<Term>, Poly)> = vec![(
+            Vec::new(),
+            Poly::from_iter([(Atoms::new(), BigRational::one())]),
+        )];
         for t in product {
             if !expanded.contains_key(t) {
                 let mut groups: Vec<(Vec<Term>, Poly)> = Vec::new();
@@ -165,7 +168,7 @@ pub fn normalize_products_pointwise(ctx: &Context, products: &[Vec<Term>]) -> Re
                     let slot = match groups.iter().position(|(f, _)| *f == m.factors) {
                         Some(k) => k,
                         None => {
-                            groups.push((m.factors, Poly::new()));
+                            groups.push((m.factors, Poly::default()));
                             groups.len() - 1
                         }
                     };
@@ -190,7 +193,7 @@ pub fn normalize_products_pointwise(ctx: &Context, products: &[Vec<Term>]) -> Re
                     let slot = match next.iter().position(|(f, _)| *f == factors) {
                         Some(k) => k,
                         None => {
-                            next.push((factors, Poly::new()));
+                            next.push((factors, Poly::default()));
                             next.len() - 1
                         }
                     };
@@ -240,8 +243,8 @@ pub fn normalize_products_pointwise(ctx: &Context, products: &[Vec<Term>]) -> Re
     // coefficient and atoms as [`canonical`] treats them, summed by their
     // factors (`collect` sums like monomials itself, so this is `merge`
     // done a list of factors at a time).
-    let mut sums: std::collections::HashMap<Vec<Term>, Poly> = std::collections::HashMap::new();
-    let add_to = |sums: &mut std::collections::HashMap<Vec<Term>, Poly>, m: Mono| {
+    let mut sums: FxHashMap<Vec<Term>, Poly> = FxHashMap::default();
+    let add_to = |sums: &mut FxHashMap<Vec<Term>, Poly>, m: Mono| {
         *sums
             .entry(m.factors)
             .or_default()
@@ -359,7 +362,7 @@ fn multiply_atoms(a: &Atoms, b: &Atoms) -> Atoms {
 /// in many orders and combinations share their inner derivatives.
 #[derive(Debug, Default)]
 pub struct Derivatives {
-    expanded: std::sync::Mutex<std::collections::HashMap<Term, Vec<Mono>>>,
+    expanded: std::sync::Mutex<FxHashMap<Term, Vec<Mono>>>,
 }
 
 impl Derivatives {
@@ -403,10 +406,10 @@ pub struct Norm<'c> {
     pointwise: bool,
     /// Symbolic powers of one base already combined: the atoms → their
     /// product in canonical form.
-    powers: std::cell::RefCell<std::collections::HashMap<Vec<(Term, BigRational)>, Mono>>,
+    powers: std::cell::RefCell<FxHashMap<Vec<(Term, BigRational)>, Mono>>,
     /// The index algebra already applied, by the factors of a monomial
     /// (see [`contracted`]).
-    contracted: std::cell::RefCell<std::collections::HashMap<Vec<Term>, Vec<Mono>>>,
+    contracted: std::cell::RefCell<FxHashMap<Vec<Term>, Vec<Mono>>>,
     /// Derivatives expanded in earlier pointwise normalisations.
     derivatives: Option<&'c Derivatives>,
 }
@@ -586,8 +589,8 @@ fn combine_powers(ctx: &Norm, mut m: Mono) -> Result<Mono> {
 /// Adds up monomials that differ only in their coefficient.
 /// The order of the result is unspecified; `collect` sorts.
 pub(super) fn merge(monos: Vec<Mono>) -> Vec<Mono> {
-    let mut sums: std::collections::HashMap<(Atoms, Vec<Term>), BigRational> =
-        std::collections::HashMap::with_capacity(monos.len());
+    let mut sums: FxHashMap<(Atoms, Vec<Term>), BigRational> =
+        FxHashMap::with_capacity_and_hasher(monos.len(), Default::default());
     for m in monos {
         *sums
             .entry((m.atoms, m.factors))

@@ -1014,6 +1014,12 @@ impl<'a> Session<'a> {
             &Term::Der(index.clone(), var.clone(), Box::new(modelled.clone())),
         )?;
         let field = normalize(self.ctx, &modelled)?;
+        // The programs are the same at every check (only the position of
+        // `var` moves): compiled on first use, by assignment and component.
+        let mut divergences: std::collections::HashMap<usize, super::eval::Program> =
+            std::collections::HashMap::new();
+        let mut fields: std::collections::HashMap<(usize, usize), super::eval::Program> =
+            std::collections::HashMap::new();
         let mut away = Vec::new();
         for check in &around {
             let mut at = self.values().points[&check.point].clone();
@@ -1034,9 +1040,17 @@ impl<'a> Session<'a> {
             values.points.insert(var.name.to_string(), at.clone());
             let mut largest = Value::exact(0.0);
             let mut scale: f64 = 0.0;
-            for assignment in assignments(self.ctx, free, values.dim) {
-                let b = compile(self.ctx, &divergence, &assignment, values.dim)?
-                    .eval_bounded(&values)?;
+            for (a, assignment) in assignments(self.ctx, free, values.dim)
+                .into_iter()
+                .enumerate()
+            {
+                let program = match divergences.entry(a) {
+                    std::collections::hash_map::Entry::Occupied(e) => e.into_mut(),
+                    std::collections::hash_map::Entry::Vacant(e) => {
+                        e.insert(compile(self.ctx, &divergence, &assignment, values.dim)?)
+                    }
+                };
+                let b = program.eval_bounded(&values)?;
                 if b.value.abs() >= largest.value.abs() {
                     largest.value = b.value;
                 }
@@ -1052,12 +1066,13 @@ impl<'a> Session<'a> {
                     if let Index::Named(name) = index {
                         with_index.push((name.to_string(), k));
                     }
-                    scale = scale.max(
-                        compile(self.ctx, &field, &with_index, values.dim)?
-                            .eval(&values)?
-                            .abs()
-                            / r,
-                    );
+                    let program = match fields.entry((a, k)) {
+                        std::collections::hash_map::Entry::Occupied(e) => e.into_mut(),
+                        std::collections::hash_map::Entry::Vacant(e) => {
+                            e.insert(compile(self.ctx, &field, &with_index, values.dim)?)
+                        }
+                    };
+                    scale = scale.max(program.eval(&values)?.abs() / r);
                 }
             }
             away.push(Conservation { at, largest, scale });

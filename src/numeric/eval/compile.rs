@@ -13,7 +13,9 @@
 //! code is split into the part that depends on it and the part that does
 //! not.
 
-use std::collections::{BTreeMap, HashMap};
+use std::collections::BTreeMap;
+
+use rustc_hash::FxHashMap as HashMap;
 use std::rc::Rc;
 
 use num_rational::BigRational;
@@ -161,10 +163,16 @@ struct Builder<'c> {
     /// For a base and the fractional part of an exponent: the first such
     /// power written, so that others are a whole power times it.
     classes: HashMap<(Reg, BigRational), (BigRational, Reg)>,
-    /// Free indices of subterms, by address (the term outlives the build).
+    /// Free indices of subterms, by address (the term outlives the build);
+    /// leaves are not remembered (they are cheaper to look at again).
     frees: HashMap<usize, Rc<[String]>>,
+    /// No free index, shared.
+    none: Rc<[String]>,
     origins: Vec<String>,
     origin_of: HashMap<usize, u32>,
+    /// The same, by value: equal subterms at other addresses are printed
+    /// once.
+    origin_by_value: HashMap<Term, u32>,
     /// The subterm instructions are being written for.
     origin: u32,
     unrolled: usize,
@@ -178,16 +186,18 @@ impl<'c> Builder<'c> {
             template: Vec::new(),
             masks: Vec::new(),
             code: Vec::new(),
-            memo: HashMap::new(),
-            consts: HashMap::new(),
+            memo: HashMap::default(),
+            consts: HashMap::default(),
             inputs: Vec::new(),
-            scalars: HashMap::new(),
-            tensors: HashMap::new(),
-            points: HashMap::new(),
-            classes: HashMap::new(),
-            frees: HashMap::new(),
+            scalars: HashMap::default(),
+            tensors: HashMap::default(),
+            points: HashMap::default(),
+            classes: HashMap::default(),
+            frees: HashMap::default(),
+            none: Rc::from([]),
             origins: Vec::new(),
-            origin_of: HashMap::new(),
+            origin_of: HashMap::default(),
+            origin_by_value: HashMap::default(),
             origin: NO_ORIGIN,
             unrolled: 0,
         }
@@ -526,19 +536,41 @@ impl<'c> Builder<'c> {
 
     /// Free indices of a subterm (cached by address).
     fn free(&mut self, t: &Term) -> Result<Rc<[String]>> {
+        // Leaves, not remembered.
+        match t {
+            Term::Num(_) | Term::Sym(_) | Term::Dist(..) | Term::DeltaFn(..) | Term::DeltaY(_) => {
+                return Ok(self.none.clone())
+            }
+            Term::Comp(_, i) | Term::Normal(i) | Term::OutNormal(i) => {
+                return Ok(match i {
+                    Index::N => self.none.clone(),
+                    Index::Named(n) => Rc::from([n.clone()]),
+                })
+            }
+            Term::Kron(Index::N, Index::N) => return Ok(self.none.clone()),
+            Term::Kron(i, j) => return once(names(&[i.clone(), j.clone()])),
+            Term::Param(_, idx) => return once(names(idx)),
+            // |p - q|^c: no index.
+            Term::Pow(a, b) if matches!(**a, Term::Dist(..)) && matches!(**b, Term::Num(_)) => {
+                return Ok(self.none.clone())
+            }
+            _ => {}
+        }
         let key = t as *const Term as usize;
         if let Some(f) = self.frees.get(&key) {
             return Ok(f.clone());
         }
         let f: Rc<[String]> = match t {
-            Term::Num(_) | Term::Sym(_) | Term::Dist(..) | Term::DeltaFn(..) | Term::DeltaY(_) => {
-                Rc::from([])
-            }
-            Term::Comp(_, i) | Term::Normal(i) | Term::OutNormal(i) => {
-                names(std::slice::from_ref(i)).into()
-            }
-            Term::Kron(i, j) => once(names(&[i.clone(), j.clone()]))?,
-            Term::Param(_, idx) => once(names(idx))?,
+            Term::Num(_)
+            | Term::Sym(_)
+            | Term::Dist(..)
+            | Term::DeltaFn(..)
+            | Term::DeltaY(_)
+            | Term::Comp(..)
+            | Term::Normal(_)
+            | Term::OutNormal(_)
+            | Term::Kron(..)
+            | Term::Param(..) => self.none.clone(),
             Term::Pow(a, b) => once([&self.free(a)?[..], &self.free(b)?[..]].concat())?,
             Term::Mul(ts) | Term::Fun(_, _, ts) => {
                 let mut all = Vec::new();
@@ -874,8 +906,15 @@ impl<'c> Builder<'c> {
         self.origin = match self.origin_of.get(&key) {
             Some(o) => *o,
             None => {
-                let o = self.origins.len() as u32;
-                self.origins.push(self.quote(t));
+                let o = match self.origin_by_value.get(t) {
+                    Some(o) => *o,
+                    None => {
+                        let o = self.origins.len() as u32;
+                        self.origins.push(self.quote(t));
+                        self.origin_by_value.insert(t.clone(), o);
+                        o
+                    }
+                };
                 self.origin_of.insert(key, o);
                 o
             }
