@@ -123,7 +123,8 @@ fn inner_integral_is_the_normal_derivative_of_the_propagator() {
 /// bound) covers the actual error, which is below the tolerance asked.
 #[test]
 fn double_integral_is_the_order_g_squared_term_of_the_exact_family() {
-    for d in [3usize] {
+    {
+        let d = 3usize;
         let (full, residue, values) = setup(d);
         let double = Double {
             full: &full,

@@ -261,7 +261,7 @@ fn normal_on_boundary_tensor(ctx: &Context, f: &Term) -> bool {
 /// True if `name` is an index of a boundary tensor (spin ≥ 2) in one of
 /// the factors: summed there, it runs along the wall.
 fn on_boundary_tensor(ctx: &Context, factors: &[Term], name: &str) -> bool {
-    fn corr<'a>(f: &'a Term) -> Option<&'a [Op]> {
+    fn corr(f: &Term) -> Option<&[Op]> {
         match f {
             Term::Der(_, _, body) => corr(body),
             Term::Corr(ops) => Some(ops),
