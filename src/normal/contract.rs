@@ -211,7 +211,7 @@ fn local(ctx: &Context, f: &Term) -> Local {
         Term::Normal(i) if parallel(i) => Local::Zero,
         // A coordinate or parameter component with only normal indices is a
         // scalar; with a normal index on a parallel parameter it vanishes.
-        Term::Comp(..) | Term::Param(..) if has_normal(f) => {
+        Term::Comp(..) | Term::Param(..) if has_normal(ctx, f) => {
             Local::Scalar(super::expand(&super::Norm::new(ctx), f).unwrap_or_default())
         }
         Term::Param(name, indices)
@@ -275,10 +275,20 @@ fn on_boundary_tensor(ctx: &Context, factors: &[Term], name: &str) -> bool {
     })
 }
 
-fn has_normal(f: &Term) -> bool {
+/// A coordinate's normal component, a parameter with only normal indices
+/// (a scalar), or a parallel parameter with a normal index (zero). A
+/// parameter such as ω[ρ, n] with a named index besides n stays a factor:
+/// expanding it gives it back unchanged, and treating it as a scalar made
+/// the contraction loop on it until its guard ran out, leaving the
+/// monomial (and every later one) uncontracted.
+fn has_normal(ctx: &Context, f: &Term) -> bool {
     match f {
         Term::Comp(_, i) => *i == Index::N,
-        Term::Param(_, indices) => indices.contains(&Index::N),
+        Term::Param(name, indices) => {
+            indices.contains(&Index::N)
+                && (indices.iter().all(|i| *i == Index::N)
+                    || ctx.params.get(name).is_some_and(|d| d.parallel))
+        }
         _ => false,
     }
 }
