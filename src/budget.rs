@@ -59,6 +59,25 @@ pub fn is_too_many_terms(e: &Error) -> bool {
         && e.message.ends_with(&format!(" terms (limit {MAX_TERMS})"))
 }
 
+/// The start of the message of [`contraction_unfinished`].
+const CONTRACTION_UNFINISHED: &str = "index contraction did not finish in ";
+
+/// The error for an index contraction that met its step bound
+/// (`CONTRACTION_STEPS` in the index algebra): a claim that meets it is
+/// unknown (`Stop::ContractionLimit`), not an input error.
+pub fn contraction_unfinished(steps: usize) -> Error {
+    Error::new(
+        ErrorKind::Limit,
+        format!("{CONTRACTION_UNFINISHED}{steps} steps"),
+    )
+    .with_note("a monomial's indices kept being rewritten without the work getting smaller; this is a defect in the index algebra, please report the file")
+}
+
+/// True when `e` is [`contraction_unfinished`].
+pub fn is_contraction_unfinished(e: &Error) -> bool {
+    e.kind == ErrorKind::Limit && e.message.starts_with(CONTRACTION_UNFINISHED)
+}
+
 thread_local! {
     /// (nested normalisations running on this thread, monomials they have
     /// produced since the outermost one began).

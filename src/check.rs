@@ -177,9 +177,7 @@ impl<'a> Checker<'a> {
             ) => {
                 let v = engine.check(expr, r)?;
                 // The normal form `test --accept` would write instead.
-                let replacement = if v.holds()
-                    || matches!(v.simplified().stop, crate::egraph::Stop::TermLimit(_))
-                {
+                let replacement = if v.holds() || v.simplified().stop.is_normaliser_limit() {
                     None
                 } else {
                     Some(self.expr(&engine.simplify(expr)?.term))

@@ -183,15 +183,18 @@ impl Engine {
             // An expansion past the term budget decides nothing: the claim
             // is unknown, with the difference as written and the reason.
             Err(e) if crate::budget::is_too_many_terms(&e) => {
-                return Ok(Verdict::NotProved(Simplified {
-                    term: difference,
-                    stop: Stop::TermLimit(crate::budget::MAX_TERMS),
-                    nodes: 0,
-                    iterations: 0,
-                    rounds: 0,
-                    applied: BTreeMap::new(),
-                    caveats: Default::default(),
-                }))
+                return Ok(unfinished(
+                    difference,
+                    Stop::TermLimit(crate::budget::MAX_TERMS),
+                ))
+            }
+            // So does an index contraction that met its bound: a defect,
+            // but one that must not be read as a remainder.
+            Err(e) if crate::budget::is_contraction_unfinished(&e) => {
+                return Ok(unfinished(
+                    difference,
+                    Stop::ContractionLimit(crate::normal::CONTRACTION_STEPS),
+                ))
             }
             Err(e) => return Err(e),
         };
@@ -461,5 +464,19 @@ fn only_at(t: &Term, caveats: &Caveats) -> bool {
                 Singular::Zeros(_) => false,
             })
         })
+    })
+}
+
+/// A claim the normaliser gave up on: unknown, with the difference as
+/// written and the reason.
+fn unfinished(difference: Term, stop: Stop) -> Verdict {
+    Verdict::NotProved(Simplified {
+        term: difference,
+        stop,
+        nodes: 0,
+        iterations: 0,
+        rounds: 0,
+        applied: BTreeMap::new(),
+        caveats: Default::default(),
     })
 }

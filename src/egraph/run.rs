@@ -62,6 +62,10 @@ pub enum Stop {
     /// The normaliser produced more monomials than its budget
     /// ([`crate::budget::MAX_TERMS`]) while expanding the claim.
     TermLimit(usize),
+    /// The index algebra met its step bound on a monomial
+    /// (`CONTRACTION_STEPS`, 10,000): a defect, reported as unknown rather
+    /// than as a half-contracted remainder.
+    ContractionLimit(usize),
     Other(String),
     /// The rules saturated, but the remainder left is one the engine cannot
     /// tell from zero (see `Engine::check`): the reason.
@@ -75,6 +79,12 @@ pub enum Stop {
 impl Stop {
     pub fn is_saturated(&self) -> bool {
         *self == Stop::Saturated
+    }
+
+    /// The normaliser gave up (term budget or contraction bound): the
+    /// remainder is the difference as written, not a normal form.
+    pub fn is_normaliser_limit(&self) -> bool {
+        matches!(self, Stop::TermLimit(_) | Stop::ContractionLimit(_))
     }
 
     pub fn describe(&self) -> String {
@@ -91,6 +101,9 @@ impl Stop {
             ),
             Stop::TermLimit(n) => format!(
                 "stopped at its term budget ({n} monomials): the expansion grows past what can be checked"
+            ),
+            Stop::ContractionLimit(n) => format!(
+                "stopped: an index contraction did not finish in {n} steps (a defect in the index algebra; please report the file)"
             ),
             Stop::Other(s) => format!("stopped: {s}"),
             Stop::Undecided(_) => "saturated; the remainder is undecided".into(),

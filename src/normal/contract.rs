@@ -22,6 +22,7 @@ use num_traits::{One, Signed};
 
 use super::{derivative, expand, Mono};
 use crate::context::{Context, IndexKind};
+use crate::diagnostic::Result;
 use crate::term::{Index, Op, Point, Term};
 
 fn two() -> BigRational {
@@ -29,20 +30,32 @@ fn two() -> BigRational {
 }
 
 /// Applies the index algebra until nothing changes.
-pub fn contract(ctx: &Context, m: Mono) -> Vec<Mono> {
+pub fn contract(ctx: &Context, m: Mono) -> Result<Vec<Mono>> {
+    contract_within(ctx, m, CONTRACTION_STEPS)
+}
+
+/// Rewriting steps one call of [`contract`] may take. Every step removes a
+/// factor or an index occurrence, so the loop ends; the bound guards against
+/// a step that does not. Meeting it is an error (the claim is then unknown,
+/// `Stop::ContractionLimit`), never a monomial left half contracted.
+pub const CONTRACTION_STEPS: usize = 10_000;
+
+/// [`contract`] with a given number of steps.
+fn contract_within(ctx: &Context, m: Mono, steps: usize) -> Result<Vec<Mono>> {
     let mut work = vec![m];
     let mut done = Vec::new();
-    // Every step removes a factor or an index occurrence, so this ends; the
-    // bound is a guard against a future step that does not.
-    let mut budget = 10_000usize;
+    let mut left = steps;
     while let Some(m) = work.pop() {
-        budget = budget.saturating_sub(1);
         match step(ctx, &m) {
-            Some(next) if budget > 0 => work.extend(next),
-            _ => done.push(finish(ctx, m)),
+            Some(_) if left == 0 => return Err(crate::budget::contraction_unfinished(steps)),
+            Some(next) => {
+                left -= 1;
+                work.extend(next)
+            }
+            None => done.push(finish(ctx, m)),
         }
     }
-    done
+    Ok(done)
 }
 
 /// One rewriting step, or `None` if the monomial is fully contracted.
@@ -616,4 +629,31 @@ fn signature(factors: &[Term], dummy: &str, dummies: &BTreeSet<String>) -> Vec<T
         .collect();
     out.sort();
     out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// δ[n,n] = 1 takes one rewriting step (common practice).
+    fn delta_nn() -> Mono {
+        Mono::factor(Term::Kron(Index::N, Index::N))
+    }
+
+    #[test]
+    fn contraction_within_its_bound_finishes() {
+        let ctx = Context::default();
+        let done = contract_within(&ctx, delta_nn(), CONTRACTION_STEPS).unwrap();
+        assert_eq!(done, vec![Mono::scalar(BigRational::one())]);
+    }
+
+    /// A contraction that meets its bound is an error naming it, which the
+    /// engine turns into UNKNOWN; never the monomial half contracted.
+    #[test]
+    fn contraction_meeting_its_bound_is_an_error_not_a_remainder() {
+        let ctx = Context::default();
+        let e = contract_within(&ctx, delta_nn(), 0).unwrap_err();
+        assert!(crate::budget::is_contraction_unfinished(&e), "{e:?}");
+        assert!(!crate::budget::is_too_many_terms(&e));
+    }
 }

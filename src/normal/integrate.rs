@@ -235,7 +235,7 @@ fn volume(ctx: &Norm, var: &Point, region: &Region, m: Mono) -> Result<Vec<Mono>
     // The body's own index algebra (x[n] δ(y(x)) = 0, contractions) first:
     // it may leave nothing to integrate.
     let mut out = Vec::new();
-    for body in super::contract::contract(ctx, inside) {
+    for body in super::contract::contract(ctx, inside)? {
         if body.coef.is_zero() {
             continue;
         }

@@ -16,6 +16,7 @@
 mod calculus;
 mod cancel;
 mod contract;
+pub use contract::CONTRACTION_STEPS;
 mod distribution;
 mod flux;
 pub mod hypergeometric;
@@ -46,7 +47,7 @@ pub fn normalize(ctx: &Context, t: &Term) -> Result<Term> {
 pub fn monomials(ctx: &Context, t: &Term) -> Result<Vec<Mono>> {
     let _work = crate::budget::Work::enter();
     let cx = Norm::new(ctx);
-    Ok(merge(canonical(&cx, expand(&cx, t)?)))
+    Ok(merge(canonical(&cx, expand(&cx, t)?)?))
 }
 
 /// True if a normal form is zero as a function although its monomials did
@@ -261,7 +262,7 @@ pub fn normalize_products_pointwise(ctx: &Context, products: &[Vec<Term>]) -> Re
                     factors: factors.clone(),
                 })
                 .collect();
-            for m in canonical(&cx, monos) {
+            for m in canonical(&cx, monos)? {
                 add_to(&mut sums, m);
             }
             continue;
@@ -273,7 +274,7 @@ pub fn normalize_products_pointwise(ctx: &Context, products: &[Vec<Term>]) -> Re
                 atoms: Atoms::new(),
                 factors,
             },
-        );
+        )?;
         // Each contracted monomial with its renaming (sign, factors).
         type Renamed = Option<(bool, Vec<Term>)>;
         let done: Vec<(Mono, Renamed)> = done
@@ -443,14 +444,14 @@ impl std::ops::Deref for Norm<'_> {
 /// Normalisation inside the pipeline, sharing the caveats of `cx`.
 pub(crate) fn normalize_in(ctx: &Norm, t: &Term) -> Result<Term> {
     let _work = crate::budget::Work::enter();
-    Ok(collect(merge(canonical(ctx, expand(ctx, t)?))))
+    Ok(collect(merge(canonical(ctx, expand(ctx, t)?)?)))
 }
 
 /// Contracts indices and renames summed indices canonically.
-fn canonical(ctx: &Norm, monos: Vec<Mono>) -> Vec<Mono> {
+fn canonical(ctx: &Norm, monos: Vec<Mono>) -> Result<Vec<Mono>> {
     let mut out = Vec::new();
     for m in monos {
-        for m in contracted(ctx, m) {
+        for m in contracted(ctx, m)? {
             // A failure leaves the powers as they were: still exact.
             let m = match combine_powers(ctx, m.clone()) {
                 Ok(combined) => combined,
@@ -459,7 +460,7 @@ fn canonical(ctx: &Norm, monos: Vec<Mono>) -> Vec<Mono> {
             out.push(contract::canonical_dummies(ctx, m));
         }
     }
-    out
+    Ok(out)
 }
 
 /// Most factor lists [`contracted`] remembers in one normalisation (a
@@ -472,7 +473,7 @@ const MAX_CONTRACTED: usize = 1 << 15;
 /// whether the height vanishes), so a monomial is its coefficient and atoms
 /// times the contraction of its factors alone. In a Wick expansion the
 /// same index structure recurs with many different atoms.
-fn contracted(ctx: &Norm, m: Mono) -> Vec<Mono> {
+fn contracted(ctx: &Norm, m: Mono) -> Result<Vec<Mono>> {
     if m.factors.is_empty() || m.factors.iter().any(|f| matches!(f, Term::DeltaY(_))) {
         return contract::contract(ctx, m);
     }
@@ -487,7 +488,7 @@ fn contracted(ctx: &Norm, m: Mono) -> Vec<Mono> {
         factors: Vec::new(),
     };
     if let Some(done) = ctx.contracted.borrow().get(&factors) {
-        return done.iter().map(|s| rest.mul(s)).collect();
+        return Ok(done.iter().map(|s| rest.mul(s)).collect());
     }
     let done = contract::contract(
         ctx,
@@ -496,14 +497,14 @@ fn contracted(ctx: &Norm, m: Mono) -> Vec<Mono> {
             atoms: Atoms::new(),
             factors: factors.clone(),
         },
-    );
+    )?;
     let out = done.iter().map(|s| rest.mul(s)).collect();
     let mut memo = ctx.contracted.borrow_mut();
     if memo.len() >= MAX_CONTRACTED {
         memo.clear();
     }
     memo.insert(factors, done);
-    out
+    Ok(out)
 }
 
 /// One symbolic power per base: |p - q|^(-d) |p - q|^(d - 2 Δ) is

@@ -291,7 +291,7 @@ impl Text {
                     "UNKNOWN"
                 };
                 let _ = writeln!(self.out, "line {line}: {what} {status}: {input}");
-                if let crate::egraph::Stop::TermLimit(_) = &c.search.stop {
+                if c.search.stop.is_normaliser_limit() {
                     let _ = writeln!(
                         self.out,
                         "  left side minus right side, not normalised:\n    {}",
@@ -861,7 +861,9 @@ impl Text {
 fn stopper(stop: &crate::egraph::Stop) -> &'static str {
     match stop {
         crate::egraph::Stop::RoundLimit(_) => "the engine",
-        crate::egraph::Stop::TermLimit(_) => "the normaliser",
+        crate::egraph::Stop::TermLimit(_) | crate::egraph::Stop::ContractionLimit(_) => {
+            "the normaliser"
+        }
         _ => "the e-graph",
     }
 }
