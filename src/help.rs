@@ -206,6 +206,7 @@ Expressions:
   ∫[x in space] { … }     integrals over space, halfspace, boundary, ball(x1, r) (ASCII int)
   ∮[x on ball(x1, r)] { N[mu] … }   a flux through a sphere, outward normal N (ASCII oint)
   S_d                     the area 2π^(d/2)/Γ(d/2) of the unit sphere
+  pi, π                   the number π, in a whole dimension; printed through S_d (S_d/4 in d = 3)
   1.5e-3                  numbers: whole, decimal, or with a power of ten
 
 A name and its bracket are written together (O(x1), F(u)); a space before a

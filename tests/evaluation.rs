@@ -737,3 +737,41 @@ fn one_over_a_vanishing_distance_is_an_error() {
         e.notes
     );
 }
+
+/// `pi` in dimension d is read through S_d = 2 π^(d/2)/Γ(d/2) (common
+/// practice); its numeric value must be π itself (handbook value
+/// 3.14159265358979323846…) in every whole dimension, and the claim relating
+/// it to S_d (S_2 = 2π, S_3 = 4π, S_4 = 2π², S_5 = 8π²/3, S_6 = π³, S_7 =
+/// 16π³/15, S_8 = π⁴/3, handbook values) must be proved, not refuted.
+#[test]
+fn pi_is_pi_in_every_whole_dimension() {
+    use wardsmith::run::{run_source, Mode, Options};
+    let areas = [
+        (2, "2 pi"),
+        (3, "4 pi"),
+        (4, "2 pi^2"),
+        (5, "8/3 pi^2"),
+        (6, "pi^3"),
+        (7, "16/15 pi^3"),
+        (8, "1/3 pi^4"),
+    ];
+    for (d, area) in areas {
+        let text = format!(
+            "dimension {d}\nmodel conformal\nclaim {area} = S_d\ncompare π = 3.14159265358979323846\n"
+        );
+        let source = Source::new(format!("pi-d{d}.ward"), text);
+        let outcome = run_source(
+            &source,
+            std::path::Path::new("."),
+            Mode::Check,
+            &Options::default(),
+        )
+        .unwrap_or_else(|e| panic!("d = {d}: {}", e.render()));
+        assert_eq!(outcome.code, 0, "d = {d}:\n{}", outcome.report);
+        assert!(
+            outcome.report.contains("1 proved, 1 confirmed numerically"),
+            "d = {d}:\n{}",
+            outcome.report
+        );
+    }
+}

@@ -1159,6 +1159,8 @@ impl Lowerer {
             (NORMAL, "the unit normal"),
             (STRESS_TENSOR, "the stress tensor"),
             (DISPLACEMENT, "the displacement operator"),
+            (PI_NAMES[0], "the number π"),
+            (PI_NAMES[1], "the number π"),
         ];
         if let Some((_, meaning)) = builtin.iter().find(|(b, _)| *b == name.text) {
             return Err(self
@@ -1171,7 +1173,9 @@ impl Lowerer {
                     ),
                 )
                 .with_label("reserved name")
-                .with_note("the names T, D, d and n are reserved; choose another name"));
+                .with_note(
+                    "the names T, D, d, n, S_d, pi and π are reserved; choose another name",
+                ));
         }
         if let Some((kind, first)) = self.declared.get(&name.text) {
             let line = self.source.line(first.start);
@@ -1652,6 +1656,25 @@ impl Lowerer {
         }
     }
 
+    /// π in the file's dimension, written through S_d (see [`pi_through_sphere_area`]).
+    fn pi(&self, n: &Name) -> Result<Term> {
+        let d = match self.ctx.dimension.as_ref() {
+            Some(Term::Num(d)) if d.is_integer() => d.to_integer().to_string().parse::<u32>().ok(),
+            _ => None,
+        };
+        d.and_then(pi_through_sphere_area).ok_or_else(|| {
+            self.err(
+                ErrorKind::Name,
+                n.span,
+                "π needs a whole number of dimensions, at least 2",
+            )
+            .with_label("π here")
+            .with_note(
+                "with a symbolic dimension write it through S_d = 2 π^(d/2)/Γ(d/2), the area of the unit sphere; with `dimension 3`, `pi` is S_d/4",
+            )
+        })
+    }
+
     fn scalar_name(&self, n: &Name) -> Result<Term> {
         if let Some(t) = self.bound_parameter(&n.text) {
             return Ok(t);
@@ -1663,6 +1686,12 @@ impl Lowerer {
         // exact work, a number in numeric work.
         if n.text == crate::context::SPHERE_AREA {
             return Ok(Term::Sym(n.text.clone()));
+        }
+        // π, in a fixed dimension, through S_d, so that the two are never
+        // taken for independent symbols (a claim 1/(4 π) = 1/S_d in d = 3
+        // would otherwise read as refuted).
+        if PI_NAMES.contains(&n.text.as_str()) {
+            return self.pi(n);
         }
         match self.declared.get(&n.text) {
             Some((Declared::Parameter, _)) => Ok(Term::Sym(n.text.clone())),
@@ -1946,6 +1975,44 @@ impl Lowerer {
 
 /// The largest spin a declaration may give.
 const MAX_SPIN: i64 = 16;
+
+/// The names of the number π in expressions.
+const PI_NAMES: [&str; 2] = ["pi", "π"];
+
+/// π through S_d = 2 π^(d/2)/Γ(d/2) in dimension `d` (common practice): for
+/// d = 2m, S_d = 2 π^m/(m - 1)!; for d = 2m + 1, Γ(m + 1/2) = (2m)! √π/(4^m m!)
+/// gives S_d = 2^(2m+1) m! π^m/(2m)!. So π = (S_d/c)^(1/m) with c the
+/// rational prefactor (d = 3: S_d/4; d = 4: (S_d/2)^(1/2); d = 6: S_d^(1/3)).
+/// `None` for d < 2 (S_1 = 2 holds no π) and for dimensions so large that
+/// the factorials would be unwieldy (d > 64).
+pub(crate) fn pi_through_sphere_area(d: u32) -> Option<Term> {
+    use num_bigint::BigInt;
+    if !(2..=64).contains(&d) {
+        return None;
+    }
+    let factorial = |k: u32| (1..=k).fold(BigInt::from(1), |acc, j| acc * j);
+    let m = d / 2;
+    let c = if d % 2 == 0 {
+        BigRational::new(BigInt::from(2), factorial(m - 1))
+    } else {
+        BigRational::new(
+            BigInt::from(2).pow(2 * m + 1) * factorial(m),
+            factorial(2 * m),
+        )
+    };
+    let base = Term::Mul(vec![
+        Term::Num(c.recip()),
+        Term::Sym(crate::context::SPHERE_AREA.to_string()),
+    ]);
+    Some(if m == 1 {
+        base
+    } else {
+        Term::Pow(
+            Box::new(base),
+            Box::new(Term::Num(BigRational::new(1.into(), BigInt::from(m)))),
+        )
+    })
+}
 
 /// "no index", "1 index", "2 indices".
 fn count_indices(n: usize) -> String {
