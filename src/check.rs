@@ -146,7 +146,15 @@ impl<'a> Checker<'a> {
         let mode = self.settings.mode;
         let engine = self.engine;
         match (&item.kind, mode) {
-            (ItemKind::Simplify { expr, .. }, Mode::Simplify) => {
+            // A bare `simplify` prints its normal form in both modes; with
+            // `expect` it is checked (below) when checking.
+            (ItemKind::Simplify { expr, .. }, Mode::Simplify)
+            | (
+                ItemKind::Simplify {
+                    expr, expect: None, ..
+                },
+                Mode::Check,
+            ) => {
                 let s = engine.simplify(expr)?;
                 let input = text.strip_prefix("simplify ").unwrap_or(&text);
                 let input = input.split(" expect ").next().unwrap_or(input);
@@ -157,15 +165,6 @@ impl<'a> Checker<'a> {
                     search: Search::of(&s),
                 });
                 self.push(item, input.to_string(), finding);
-            }
-            // Nothing to prove, but an input error must still be reported.
-            (
-                ItemKind::Simplify {
-                    expr, expect: None, ..
-                },
-                Mode::Check,
-            ) => {
-                engine.simplify(expr)?;
             }
             (
                 ItemKind::Simplify {
