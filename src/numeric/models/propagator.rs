@@ -89,6 +89,10 @@ pub(crate) fn derivative(
     }
 }
 
+/// What [`matchings`] calls with each matching: its pairs and its single
+/// slots.
+type Found<'a> = dyn FnMut(&[(usize, usize)], &[usize]) + 'a;
+
 /// Calls `found` with every partial matching of the slots from `next` on
 /// that are not yet `used`: the pairs and the single slots.
 fn matchings(
@@ -97,7 +101,7 @@ fn matchings(
     used: &mut Vec<bool>,
     pairs: &mut Vec<(usize, usize)>,
     singles: &mut Vec<usize>,
-    found: &mut dyn FnMut(&[(usize, usize)], &[usize]),
+    found: &mut Found,
 ) {
     let Some(first) = (next..slots.len()).find(|&k| !used[k]) else {
         found(pairs, singles);
