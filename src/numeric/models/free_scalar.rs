@@ -14,7 +14,7 @@
 //! finite at g = 0, where χ is the free generalised free field.
 //!
 //! with |x - x̄'|² = |x - x'|² + 4 y y' written as a sum in the term (a power
-//! of a sum is a scalar atom the normaliser differentiates).
+//! of a sum is a scalar atom of the normal form).
 //!
 //! Operators are composites of φ, named by a [`Mapping`] (T and D by
 //! default): φ, :φ²:, the stress tensor
@@ -37,10 +37,10 @@
 //!
 //! Point splitting: every field of every composite sits at its own
 //! auxiliary bulk point, the derivatives of the composite act on the
-//! propagators there (symbolic `Der` terms, differentiated by the
-//! normaliser), and then every auxiliary point is set equal to the
-//! insertion point. For a boundary insertion this sets y → 0 after the
-//! normal derivatives are taken.
+//! propagators there (in closed form, [`super::propagator`]: no symbolic
+//! derivative is left for the normaliser), and then every auxiliary point
+//! is set equal to the insertion point. For a boundary insertion this sets
+//! y → 0 after the normal derivatives are taken.
 //!
 //! Work done once: each contraction is computed (and normalised) once per
 //! pair of insertions and derivative structure, whatever the names of the
@@ -52,15 +52,13 @@
 use std::collections::{BTreeMap, BTreeSet, HashMap};
 use std::sync::{Arc, Mutex};
 
-use super::{add, dist_pow, inv, minus, mul, normal_coord, pow, rational, sphere, unknown, Model};
+use super::propagator::{derivative, Part};
+use super::{add, inv, minus, mul, pow, rational, sphere, unknown, Model};
 use super::{describe_op, index_names, node_count, rename_indices, substitute_points};
 use crate::budget::Pairings;
 use crate::context::{Context, DISPLACEMENT, STRESS_TENSOR};
 use crate::diagnostic::Result;
-use crate::normal::{
-    normalize_pointwise as normalize, normalize_pointwise_with, normalize_products_pointwise,
-    Derivatives,
-};
+use crate::normal::{normalize_pointwise as normalize, normalize_products_pointwise};
 use crate::term::{Index, Op, Point, Term};
 
 /// The boundary condition at y = 0.
@@ -297,8 +295,6 @@ pub struct FreeScalar {
 struct Memory {
     correlators: Mutex<HashMap<Vec<Op>, Term>>,
     contractions: Mutex<HashMap<SharedKey, Option<Contracted>>>,
-    /// The propagators' derivatives, expanded.
-    derivatives: Derivatives,
 }
 
 /// What determines a contraction across correlators: each end's point and
@@ -607,7 +603,9 @@ impl FreeScalar {
     /// taken (so that the two ends of one propagator are differentiated
     /// separately, and normal derivatives are taken before a boundary
     /// insertion sets y = 0); then the auxiliary points are replaced by the
-    /// insertion points.
+    /// insertion points. The derivatives are written in closed form
+    /// ([`super::propagator`]), so the term is normalised once, at the
+    /// insertion points, with no symbolic derivative in it.
     fn contraction(
         &self,
         ctx: &Context,
@@ -657,48 +655,33 @@ impl FreeScalar {
             let weight = if chis == 2 { &chi.two } else { &chi.one };
             c = mul(vec![weight.clone(), c]);
         }
+        // The derivatives in closed form (propagator.rs) at the auxiliary
+        // points, which then become the insertion points.
         let mut parts = Vec::new();
         if !same {
             parts.push(mul(vec![
                 c.clone(),
-                dist_pow(&a.point, &b.point, minus(Term::int(2), d.clone())),
+                derivative(Part::Direct, &a.point, &b.point, a.derivs, b.derivs, &d),
             ]));
         }
         if let Some(sign) = image {
-            // |x - x̄'|² = |x - x'|² + 4 y y'
-            let image = add(vec![
-                dist_pow(&a.point, &b.point, Term::int(2)),
-                mul(vec![
-                    Term::int(4),
-                    normal_coord(&a.point),
-                    normal_coord(&b.point),
-                ]),
-            ]);
             parts.push(mul(vec![
                 sign,
                 c,
-                pow(image, mul(vec![rational(1, 2), minus(Term::int(2), d)])),
+                derivative(Part::Image, &a.point, &b.point, a.derivs, b.derivs, &d),
             ]));
         }
         if parts.is_empty() {
             return Ok(None);
         }
-        let mut t = add(parts);
-        for i in b.derivs.iter().rev() {
-            t = Term::Der(i.clone(), b.point.clone(), Box::new(t));
-        }
-        for i in a.derivs.iter().rev() {
-            t = Term::Der(i.clone(), a.point.clone(), Box::new(t));
-        }
-        let split = match &self.memory {
-            Some(memory) => normalize_pointwise_with(ctx, &t, &memory.derivatives)?,
-            None => normalize(ctx, &t)?,
-        };
         let back = BTreeMap::from([
             (a.point.name.clone(), ops[a.op].point.clone()),
             (b.point.name.clone(), ops[b.op].point.clone()),
         ]);
-        Ok(Some(normalize(ctx, &substitute_points(&split, &back))?))
+        Ok(Some(normalize(
+            ctx,
+            &substitute_points(&add(parts), &back),
+        )?))
     }
 
     fn check(&self, ctx: &Context, ops: &[Op]) -> Result<Vec<Composite>> {

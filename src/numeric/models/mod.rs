@@ -29,6 +29,7 @@
 pub mod conformal;
 pub mod free_scalar;
 pub mod gff;
+mod propagator;
 
 use std::collections::{BTreeMap, BTreeSet};
 
