@@ -65,6 +65,18 @@ fn setup(d: usize) -> (Program, Program, Values) {
     (full, residue, values)
 }
 
+/// The double integral's pieces on the integrand of [`setup`]: the
+/// singular family |z1 - z2|^{-d} with its residue, the insertions x1, x2.
+fn double<'p>(d: usize, full: &'p Program, residue: &'p Program, values: &Values) -> Double<'p> {
+    Double {
+        full,
+        singular: vec![(-(d as f64), residue)],
+        first: "z1",
+        second: "z2",
+        insertions: vec![values.points["x1"].clone(), values.points["x2"].clone()],
+    }
+}
+
 fn dist(p: &[f64], q: &[f64]) -> f64 {
     p.iter()
         .zip(q)
@@ -74,20 +86,14 @@ fn dist(p: &[f64], q: &[f64]) -> f64 {
 }
 
 /// The inner finite part at wall points near the insertions and far from
-/// them (up to 24 times their height), d = 3 and 4, against the closed
-/// form -(d - 2)(S_d/2)(y2 r1^{2-d} r2^{-d} + y1 r2^{2-d} r1^{-d}).
-#[test]
-#[ignore = "fails: in d = 4 the near part of the inner integral below the insertions exhausts its budget (400 000 nodes) at 1e-5 already; docs/conventions.md §17, open"]
-fn inner_integral_is_the_normal_derivative_of_the_propagator() {
-    for d in [3usize, 4] {
+/// them (up to 24 times their height) against the closed form
+/// -(d - 2)(S_d/2)(y2 r1^{2-d} r2^{-d} + y1 r2^{2-d} r1^{-d}), to the
+/// absolute accuracy `tol` times its size: the estimate covers the actual
+/// error.
+fn inner_integral_against_its_closed_form(d: usize, tol: f64) {
+    {
         let (full, residue, values) = setup(d);
-        let double = Double {
-            full: &full,
-            singular: vec![(-(d as f64), &residue)],
-            first: "z1",
-            second: "z2",
-            insertions: vec![values.points["x1"].clone(), values.points["x2"].clone()],
-        };
+        let double = double(d, &full, &residue, &values);
         let (x1, x2) = (&values.points["x1"], &values.points["x2"]);
         let (y1, y2) = (x1[d - 1], x2[d - 1]);
         let sd = sphere_area(d);
@@ -104,17 +110,31 @@ fn inner_integral_is_the_normal_derivative_of_the_propagator() {
                 * (y2 * r1.powf(2.0 - d as f64) * r2.powf(-(d as f64))
                     + y1 * r2.powf(2.0 - d as f64) * r1.powf(-(d as f64)));
             let got = double
-                .inner(&z, &mut local, 1e-7 * exact.abs(), 0.0)
+                .inner(&z, &mut local, tol * exact.abs(), 0.0)
                 .unwrap_or_else(|e| panic!("{}", e.render()));
             let actual = (got.value - exact).abs();
             assert!(
-                actual <= got.error + 1e-13 * got.magnitude && actual < 1e-6 * exact.abs(),
+                actual <= got.error + 1e-13 * got.magnitude && actual < 10.0 * tol * exact.abs(),
                 "d = {d}, z = {z:?}: {} ± {:.1e} against {exact} (off by {actual:.1e})",
                 got.value,
                 got.error
             );
         }
     }
+}
+
+/// d = 3: the near part by the radial rule about z (docs/conventions.md
+/// §17), to 1e-7.
+#[test]
+fn inner_integral_is_the_normal_derivative_of_the_propagator_d3() {
+    inner_integral_against_its_closed_form(3, 1e-7);
+}
+
+/// d = 4, to 1e-4.
+#[test]
+#[ignore = "fails: in d = 4 the far part (the Wall rule under the insertions) exhausts its budget of 400 000 nodes at 24 times the insertions' height already at 1e-4; docs/conventions.md §17, open"]
+fn inner_integral_is_the_normal_derivative_of_the_propagator_d4() {
+    inner_integral_against_its_closed_form(4, 1e-4);
 }
 
 /// The double integral in d = 3 to a loose 1e-2 (seconds in the test
@@ -126,13 +146,7 @@ fn double_integral_is_the_order_g_squared_term_of_the_exact_family() {
     {
         let d = 3usize;
         let (full, residue, values) = setup(d);
-        let double = Double {
-            full: &full,
-            singular: vec![(-(d as f64), &residue)],
-            first: "z1",
-            second: "z2",
-            insertions: vec![values.points["x1"].clone(), values.points["x2"].clone()],
-        };
+        let double = double(d, &full, &residue, &values);
         let (x1, x2) = (&values.points["x1"], &values.points["x2"]);
         let mut image = x2.clone();
         image[d - 1] = -image[d - 1];
