@@ -132,7 +132,7 @@ fn inner_integral_is_the_normal_derivative_of_the_propagator_d3() {
 
 /// d = 4, to 1e-4.
 #[test]
-#[ignore = "fails: in d = 4 the far part (the Wall rule under the insertions) exhausts its budget of 400 000 nodes at 24 times the insertions' height already at 1e-4; docs/conventions.md §17, open"]
+#[ignore = "fails: in d = 4 an inner part exhausts its budget of 400 000 nodes at 24 times the insertions' height already at 1e-4 (the far part, a Wall rule under the insertions, costs most); docs/conventions.md §17, open"]
 fn inner_integral_is_the_normal_derivative_of_the_propagator_d4() {
     inner_integral_against_its_closed_form(4, 1e-4);
 }

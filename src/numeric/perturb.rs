@@ -23,16 +23,18 @@
 //! ```
 //!
 //! the odd terms of G in u dropping out of the sphere average (the
-//! integrand is symmetrised in u → -u) and the even ones being integrable
+//! angular rules are symmetric under u → -u) and the even ones being integrable
 //! for -2 < k. The finite part is computed as
 //!
 //! ```text
-//! ∫ du [½(F(z, z+u) + F(z, z-u)) - Σ G(z, z) |u|^q e^{-|u|²/R²}]
-//!     + Σ S_{d-1} G(z, z) · (½ R^k Γ(k/2)  or  ln R - γ/2),
+//! ∫ du [F(z, z+u) - Σ G(z, z) |u|^q] χ(|u|) + ∫ du (1 - χ(|u|)) F(z, z+u)
+//!     + Σ S_{d-1} G(z, z) · (L^k Γ(k/m)/m  or  ln L - γ/m),
 //! ```
 //!
-//! R any width (here the distance from z to the nearest insertion of X),
-//! the second line being the Gaussian's own integral outside ε with its
+//! χ(r) = e^{-(r/L)^m} of any width L (here 0.6 times the distance from z
+//! to the nearest insertion of X; m = 5 or 6), the first integral by a
+//! radial rule about z whose angular rules cancel the odd terms in u, the
+//! second line being the cutoff's own integral outside ε with its
 //! divergent term dropped. That is the Hadamard finite part, which equals
 //! analytic regularisation when k ≠ 0 (the boundary "mass" power
 //! divergence -ε^k/k is a counterterm of the boundary operator O×O
@@ -629,11 +631,11 @@ impl Double<'_> {
     /// The integrand F is split by the partition of unity 1 = χ + (1 - χ),
     /// χ = e^{-(|u|/L)^m} a function of the distance |u| = |z' - z| alone,
     /// L = [`NEAR_WIDTH`] times the distance from z to the nearest
-    /// insertion of X, m = [`CUTOFF_POWER`] (or one more, so that m + q is
+    /// insertion of X, m = [`CUTOFF_POWER`] (or one less, so that m + q is
     /// even for an odd exponent q: then (1 - χ)F, which vanishes like
     /// |u|^{m+q} at z, is smooth there). The near part χF, with the
     /// subtraction Σ G(z, z)|u|^q χ, by the radial rule about z
-    /// ([`near_part`]); the far part (1 - χ)F by the plane rule under
+    /// ([`near_part`]); the far part (1 - χ)F by a [`Wall`] rule under
     /// the insertions, which holds their peaks.
     pub fn inner(&self, z: &[f64], local: &mut Values, abs: f64, rel: f64) -> Result<Inner, Error> {
         let dim = local.dim;
@@ -916,7 +918,7 @@ const FAR_POWER: i32 = 1;
 /// The width L of the near part's cutoff, as a fraction of the distance
 /// from z to the nearest insertion.
 const NEAR_WIDTH: f64 = 0.6;
-/// The power m of the cutoff e^{-(|u|/L)^m} (one more for odd q).
+/// The power m of the cutoff e^{-(|u|/L)^m} (one less for odd q).
 const CUTOFF_POWER: f64 = 6.0;
 /// e^{-42}: where the cutoff ends the near part.
 const NEGLIGIBLE: f64 = 42.0;
@@ -965,7 +967,7 @@ mod tests {
 
     /// The cut-off subtraction's pieces against a direct radial integral
     /// outside ε (derived): S_{d-1} ∫_ε^∞ r^{k-1} e^{-(r/L)^m} dr, for the
-    /// Gaussian (m = 2) and the near part's cutoffs (m = 8, 9).
+    /// Gaussian (m = 2) and other cutoffs (m = 8, 9).
     #[test]
     fn subtraction_pieces_match_the_radial_integral() {
         for m in [2.0, 8.0, 9.0] {
