@@ -247,11 +247,14 @@ fn sphere_rule(n: usize, level: usize) -> (Vec<f64>, Vec<f64>) {
     }
 }
 
-/// The sphere rules at the levels [`ANGULAR_LEVELS`], built once per
+/// Sphere rules at successive levels: (directions, weights) each.
+type Rules = Vec<(Vec<f64>, Vec<f64>)>;
+
+/// The sphere rules at the levels of [`angular_levels`], built once per
 /// dimension of the wall.
-fn sphere_rules(n: usize) -> std::sync::Arc<Vec<(Vec<f64>, Vec<f64>)>> {
+fn sphere_rules(n: usize) -> std::sync::Arc<Rules> {
     use std::sync::{Arc, Mutex, OnceLock};
-    static RULES: OnceLock<Mutex<Vec<Option<Arc<Vec<(Vec<f64>, Vec<f64>)>>>>>> = OnceLock::new();
+    static RULES: OnceLock<Mutex<Vec<Option<Arc<Rules>>>>> = OnceLock::new();
     let cache = RULES.get_or_init(|| Mutex::new(Vec::new()));
     let mut cache = match cache.lock() {
         Ok(c) => c,
@@ -744,7 +747,6 @@ pub fn near_part(
     let (width, m) = cutoff;
     let dim = z.len();
     let n = dim - 1;
-    let area = super::models::sphere_area(n);
     let rules = sphere_rules(n);
     let radius = width * NEGLIGIBLE.powf(1.0 / m);
     // r = R t^p: p = 1 when every q + d is whole, 2 otherwise.
