@@ -180,3 +180,34 @@ fn a_wrong_first_order_is_refuted() {
     assert_eq!(out.code, 1, "{}", out.report);
     assert!(out.report.contains("disagree"), "{}", out.report);
 }
+
+/// Three couplings, 1/10, 1/20, 1/40, in d = 3 against the exact family
+/// expanded to order g² (tests/cases/perturb/second-order-three-couplings-d3.ward,
+/// derived, docs/conventions.md §17): each expectation agrees under the
+/// agreement rule, which the gate on the second order reports as UNKNOWN
+/// with its value ("the value is shown, not confirmed"); a miss would say
+/// "differs" or "disagree". Not a numeric case (those must check clean),
+/// and d = 4 is left out: its inner integrals exhaust their budget (§17).
+#[test]
+fn second_order_agrees_with_the_exact_family_at_three_couplings() {
+    use wardsmith::run::{run_path, Mode, Options};
+    let out = run_path(
+        std::path::Path::new("tests/cases/perturb/second-order-three-couplings-d3.ward"),
+        Mode::Check,
+        &Options::default(),
+    )
+    .unwrap_or_else(|e| panic!("{}", e.render()));
+    assert_eq!(
+        out.report
+            .matches("the value is shown, not confirmed")
+            .count(),
+        3,
+        "{}",
+        out.report
+    );
+    assert!(
+        !out.report.contains("disagree") && !out.report.contains("differs"),
+        "{}",
+        out.report
+    );
+}
