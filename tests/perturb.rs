@@ -65,6 +65,18 @@ fn setup(d: usize) -> (Program, Program, Values) {
     (full, residue, values)
 }
 
+/// The double integral's pieces on the integrand of [`setup`]: the
+/// singular family |z1 - z2|^{-d} with its residue, the insertions x1, x2.
+fn double<'p>(d: usize, full: &'p Program, residue: &'p Program, values: &Values) -> Double<'p> {
+    Double {
+        full,
+        singular: vec![(-(d as f64), residue)],
+        first: "z1",
+        second: "z2",
+        insertions: vec![values.points["x1"].clone(), values.points["x2"].clone()],
+    }
+}
+
 fn dist(p: &[f64], q: &[f64]) -> f64 {
     p.iter()
         .zip(q)
@@ -74,20 +86,14 @@ fn dist(p: &[f64], q: &[f64]) -> f64 {
 }
 
 /// The inner finite part at wall points near the insertions and far from
-/// them (up to 24 times their height), d = 3 and 4, against the closed
-/// form -(d - 2)(S_d/2)(y2 r1^{2-d} r2^{-d} + y1 r2^{2-d} r1^{-d}).
-#[test]
-#[ignore = "fails: in d = 4 the near part of the inner integral below the insertions exhausts its budget (400 000 nodes) at 1e-5 already; docs/conventions.md §17, open"]
-fn inner_integral_is_the_normal_derivative_of_the_propagator() {
-    for d in [3usize, 4] {
+/// them (up to 24 times their height) against the closed form
+/// -(d - 2)(S_d/2)(y2 r1^{2-d} r2^{-d} + y1 r2^{2-d} r1^{-d}), to the
+/// absolute accuracy `tol` times its size: the estimate covers the actual
+/// error.
+fn inner_integral_against_its_closed_form(d: usize, tol: f64) {
+    {
         let (full, residue, values) = setup(d);
-        let double = Double {
-            full: &full,
-            singular: vec![(-(d as f64), &residue)],
-            first: "z1",
-            second: "z2",
-            insertions: vec![values.points["x1"].clone(), values.points["x2"].clone()],
-        };
+        let double = double(d, &full, &residue, &values);
         let (x1, x2) = (&values.points["x1"], &values.points["x2"]);
         let (y1, y2) = (x1[d - 1], x2[d - 1]);
         let sd = sphere_area(d);
@@ -104,17 +110,31 @@ fn inner_integral_is_the_normal_derivative_of_the_propagator() {
                 * (y2 * r1.powf(2.0 - d as f64) * r2.powf(-(d as f64))
                     + y1 * r2.powf(2.0 - d as f64) * r1.powf(-(d as f64)));
             let got = double
-                .inner(&z, &mut local, 1e-7 * exact.abs(), 0.0)
+                .inner(&z, &mut local, tol * exact.abs(), 0.0)
                 .unwrap_or_else(|e| panic!("{}", e.render()));
             let actual = (got.value - exact).abs();
             assert!(
-                actual <= got.error + 1e-13 * got.magnitude && actual < 1e-6 * exact.abs(),
+                actual <= got.error + 1e-13 * got.magnitude && actual < 10.0 * tol * exact.abs(),
                 "d = {d}, z = {z:?}: {} ± {:.1e} against {exact} (off by {actual:.1e})",
                 got.value,
                 got.error
             );
         }
     }
+}
+
+/// d = 3: the near part by the radial rule about z (docs/conventions.md
+/// §17), to 1e-7.
+#[test]
+fn inner_integral_is_the_normal_derivative_of_the_propagator_d3() {
+    inner_integral_against_its_closed_form(3, 1e-7);
+}
+
+/// d = 4, to 1e-6 (each part of an inner integral may take 4 000 000
+/// evaluations; 400 000 were not enough at 24 times the height).
+#[test]
+fn inner_integral_is_the_normal_derivative_of_the_propagator_d4() {
+    inner_integral_against_its_closed_form(4, 1e-6);
 }
 
 /// The double integral in d = 3 to a loose 1e-2 (seconds in the test
@@ -126,13 +146,7 @@ fn double_integral_is_the_order_g_squared_term_of_the_exact_family() {
     {
         let d = 3usize;
         let (full, residue, values) = setup(d);
-        let double = Double {
-            full: &full,
-            singular: vec![(-(d as f64), &residue)],
-            first: "z1",
-            second: "z2",
-            insertions: vec![values.points["x1"].clone(), values.points["x2"].clone()],
-        };
+        let double = double(d, &full, &residue, &values);
         let (x1, x2) = (&values.points["x1"], &values.points["x2"]);
         let mut image = x2.clone();
         image[d - 1] = -image[d - 1];
@@ -165,4 +179,43 @@ fn a_wrong_first_order_is_refuted() {
     .unwrap_or_else(|e| panic!("{}", e.render()));
     assert_eq!(out.code, 1, "{}", out.report);
     assert!(out.report.contains("disagree"), "{}", out.report);
+}
+
+/// Three couplings, 1/10, 1/20, 1/40, against the exact family expanded to
+/// order g² (tests/cases/perturb/second-order-three-couplings-d3/d4.ward,
+/// derived, docs/conventions.md §17): each expectation agrees under the
+/// agreement rule, which the gate on the second order reports as UNKNOWN
+/// with its value ("the value is shown, not confirmed"); a miss would say
+/// "differs" or "disagree". Not numeric cases (those must check clean).
+fn three_couplings_agree(path: &str) {
+    use wardsmith::run::{run_path, Mode, Options};
+    let out = run_path(std::path::Path::new(path), Mode::Check, &Options::default())
+        .unwrap_or_else(|e| panic!("{}", e.render()));
+    assert_eq!(
+        out.report
+            .matches("the value is shown, not confirmed")
+            .count(),
+        3,
+        "{}",
+        out.report
+    );
+    assert!(
+        !out.report.contains("disagree") && !out.report.contains("differs"),
+        "{}",
+        out.report
+    );
+}
+
+/// d = 3 at 1e-3 (about 2 s in a release build).
+#[test]
+fn second_order_agrees_with_the_exact_family_at_three_couplings_d3() {
+    three_couplings_agree("tests/cases/perturb/second-order-three-couplings-d3.ward");
+}
+
+/// d = 4 at 1e-3: about 90 s in a release build (9·10⁸ evaluations), far
+/// longer in the test profile.
+#[test]
+#[ignore = "release only: about 90 s with `cargo test --release --test perturb -- --ignored`"]
+fn second_order_agrees_with_the_exact_family_at_three_couplings_d4() {
+    three_couplings_agree("tests/cases/perturb/second-order-three-couplings-d4.ward");
 }
