@@ -201,7 +201,7 @@ pub fn normalize_products_pointwise(ctx: &Context, products: &[Vec<Term>]) -> Re
                     count = count.saturating_add(pa.len().saturating_mul(pb.len()));
                     for (aa, ca) in pa {
                         for (ab, cb) in pb {
-                            let atoms = multiply_atoms(aa, ab);
+                            let atoms = aa.times(ab);
                             *poly.entry(atoms).or_insert_with(BigRational::zero) += ca * cb;
                         }
                     }
@@ -339,21 +339,6 @@ pub fn normalize_products_pointwise(ctx: &Context, products: &[Vec<Term>]) -> Re
         }
     }
     Ok(collect(out))
-}
-
-/// The product of two monomials' atoms (exponents added, zeros dropped),
-/// as [`Mono::mul`] forms it.
-fn multiply_atoms(a: &Atoms, b: &Atoms) -> Atoms {
-    let (small, large) = if a.len() < b.len() { (a, b) } else { (b, a) };
-    let mut atoms = large.clone();
-    for (k, e) in small {
-        let slot = atoms.entry(k.clone()).or_insert_with(BigRational::zero);
-        *slot += e;
-        if slot.is_zero() {
-            atoms.remove(k);
-        }
-    }
-    atoms
 }
 
 /// Derivatives of explicit functions already expanded, by term, shared by
