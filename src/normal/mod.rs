@@ -395,6 +395,10 @@ pub struct Norm<'c> {
     /// The index algebra already applied, by the factors of a monomial
     /// (see [`contracted`]).
     contracted: std::cell::RefCell<FxHashMap<Vec<Term>, Vec<Mono>>>,
+    /// The canonical renaming of summed indices already found, by the
+    /// factors of a monomial: whether it negates, and the renamed factors
+    /// (see [`renamed`]).
+    renamed: std::cell::RefCell<FxHashMap<Vec<Term>, Option<(bool, Vec<Term>)>>>,
     /// Derivatives expanded in earlier pointwise normalisations.
     derivatives: Option<&'c Derivatives>,
 }
@@ -408,6 +412,7 @@ impl<'c> Norm<'c> {
             pointwise: false,
             powers: Default::default(),
             contracted: Default::default(),
+            renamed: Default::default(),
             derivatives: None,
         }
     }
@@ -441,10 +446,50 @@ fn canonical(ctx: &Norm, monos: Vec<Mono>) -> Vec<Mono> {
                 Ok(combined) => combined,
                 Err(_) => m,
             };
-            out.push(contract::canonical_dummies(ctx, m));
+            out.push(renamed(ctx, m));
         }
     }
     out
+}
+
+/// [`contract::canonical_dummies`] through a memo on the factors: the
+/// renaming rewrites the factors and at most flips the sign of the
+/// coefficient, whatever the coefficient and the atoms
+/// ([`contract::dummies_renamed`]); with an antisymmetric parameter among
+/// the factors it is done in full.
+fn renamed(ctx: &Norm, mut m: Mono) -> Mono {
+    if m.factors.is_empty() || m.coef.is_zero() {
+        return contract::canonical_dummies(ctx, m);
+    }
+    if let Some(known) = ctx.renamed.borrow().get(&m.factors) {
+        return match known {
+            None => contract::canonical_dummies(ctx, m),
+            Some((negate, factors)) => {
+                if *negate {
+                    m.coef = -m.coef;
+                }
+                m.factors.clone_from(factors);
+                m
+            }
+        };
+    }
+    let found = contract::dummies_renamed(ctx, m.factors.clone());
+    let mut memo = ctx.renamed.borrow_mut();
+    if memo.len() >= MAX_CONTRACTED {
+        memo.clear();
+    }
+    memo.insert(m.factors.clone(), found.clone());
+    drop(memo);
+    match found {
+        None => contract::canonical_dummies(ctx, m),
+        Some((negate, factors)) => {
+            if negate {
+                m.coef = -m.coef;
+            }
+            m.factors = factors;
+            m
+        }
+    }
 }
 
 /// Most factor lists [`contracted`] remembers in one normalisation (a

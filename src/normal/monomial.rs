@@ -229,7 +229,7 @@ impl Mono {
         factors.extend(self.factors.iter().cloned());
         factors.extend(other.factors.iter().cloned());
         Mono {
-            coef: &self.coef * &other.coef,
+            coef: times(&self.coef, &other.coef),
             atoms: self.atoms.times(&other.atoms),
             factors,
         }
@@ -282,6 +282,20 @@ impl Mono {
             }
         }
         Ok(out)
+    }
+}
+
+/// `a · b`, without the greatest common divisors of the general product
+/// when a factor is 1 or both are whole (the same reduced fraction).
+fn times(a: &BigRational, b: &BigRational) -> BigRational {
+    if a.is_one() {
+        b.clone()
+    } else if b.is_one() {
+        a.clone()
+    } else if a.is_integer() && b.is_integer() {
+        BigRational::from_integer(a.numer() * b.numer())
+    } else {
+        a * b
     }
 }
 
