@@ -396,11 +396,14 @@ pub struct Norm<'c> {
     /// (see [`contracted`]).
     contracted: std::cell::RefCell<FxHashMap<Vec<Term>, Vec<Mono>>>,
     /// The canonical renaming of summed indices already found, by the
-    /// factors of a monomial: whether it negates, and the renamed factors
-    /// (see [`renamed`]).
+    /// factors of a monomial: whether it negates and the renamed factors,
+    /// or `None` when the monomial is zero (see [`renamed`]).
     renamed: std::cell::RefCell<FxHashMap<Vec<Term>, Option<(bool, Vec<Term>)>>>,
     /// Derivatives expanded in earlier pointwise normalisations.
     derivatives: Option<&'c Derivatives>,
+    /// Powers already expanded in this normalisation, by term (pointwise
+    /// only, where expanding records no caveats; see [`expand`]).
+    expanded_powers: std::cell::RefCell<FxHashMap<Term, Vec<Mono>>>,
 }
 
 impl<'c> Norm<'c> {
@@ -413,6 +416,7 @@ impl<'c> Norm<'c> {
             powers: Default::default(),
             contracted: Default::default(),
             renamed: Default::default(),
+            expanded_powers: Default::default(),
             derivatives: None,
         }
     }
@@ -454,34 +458,38 @@ fn canonical(ctx: &Norm, monos: Vec<Mono>) -> Vec<Mono> {
 
 /// [`contract::canonical_dummies`] through a memo on the factors: the
 /// renaming rewrites the factors and at most flips the sign of the
-/// coefficient, whatever the coefficient and the atoms
-/// ([`contract::dummies_renamed`]); with an antisymmetric parameter among
-/// the factors it is done in full.
+/// coefficient, and with an antisymmetric parameter it may find the
+/// monomial equal to its negative, whatever the (nonzero) coefficient and
+/// the atoms (which it never reads), so it is worked out once per list of
+/// factors on the coefficient 1: `None` for zero, else whether it negates
+/// and the renamed factors.
 fn renamed(ctx: &Norm, mut m: Mono) -> Mono {
     if m.factors.is_empty() || m.coef.is_zero() {
         return contract::canonical_dummies(ctx, m);
     }
-    if let Some(known) = ctx.renamed.borrow().get(&m.factors) {
-        return match known {
-            None => contract::canonical_dummies(ctx, m),
-            Some((negate, factors)) => {
-                if *negate {
-                    m.coef = -m.coef;
-                }
-                m.factors.clone_from(factors);
-                m
+    let known = ctx.renamed.borrow().get(&m.factors).cloned();
+    let found = match known {
+        Some(found) => found,
+        None => {
+            let unit = contract::canonical_dummies(
+                ctx,
+                Mono {
+                    coef: BigRational::one(),
+                    atoms: Atoms::new(),
+                    factors: m.factors.clone(),
+                },
+            );
+            let found = (!unit.coef.is_zero()).then(|| (unit.coef.is_negative(), unit.factors));
+            let mut memo = ctx.renamed.borrow_mut();
+            if memo.len() >= MAX_CONTRACTED {
+                memo.clear();
             }
-        };
-    }
-    let found = contract::dummies_renamed(ctx, m.factors.clone());
-    let mut memo = ctx.renamed.borrow_mut();
-    if memo.len() >= MAX_CONTRACTED {
-        memo.clear();
-    }
-    memo.insert(m.factors.clone(), found.clone());
-    drop(memo);
+            memo.insert(m.factors.clone(), found.clone());
+            found
+        }
+    };
     match found {
-        None => contract::canonical_dummies(ctx, m),
+        None => Mono::scalar(BigRational::zero()),
         Some((negate, factors)) => {
             if negate {
                 m.coef = -m.coef;
@@ -673,6 +681,20 @@ fn expand(ctx: &Norm, t: &Term) -> Result<Vec<Mono>> {
                 }
             }
             acc
+        }
+        Term::Pow(b, e) if ctx.pointwise => {
+            // A propagator's power recurs in every term of a correlator's
+            // divergence: expanded once (a pure function of the term here).
+            if let Some(known) = ctx.expanded_powers.borrow().get(t) {
+                return Ok(known.clone());
+            }
+            let out = power(ctx, b, e)?;
+            let mut memo = ctx.expanded_powers.borrow_mut();
+            if memo.len() >= MAX_CONTRACTED {
+                memo.clear();
+            }
+            memo.insert(t.clone(), out.clone());
+            out
         }
         Term::Pow(b, e) => power(ctx, b, e)?,
         Term::DeltaFn(p, q) => {
