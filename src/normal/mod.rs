@@ -381,6 +381,10 @@ pub fn normalize_pointwise_with(
     normalize_in(&cx, t)
 }
 
+/// A canonical renaming of summed indices: `None` when the monomial is
+/// zero, else whether it negates and the renamed factors.
+type Renaming = Option<(bool, Vec<Term>)>;
+
 /// The declarations of a file while one term is normalised, and what the
 /// derivatives of explicit functions found on the way.
 pub struct Norm<'c> {
@@ -398,7 +402,7 @@ pub struct Norm<'c> {
     /// The canonical renaming of summed indices already found, by the
     /// factors of a monomial: whether it negates and the renamed factors,
     /// or `None` when the monomial is zero (see [`renamed`]).
-    renamed: std::cell::RefCell<FxHashMap<Vec<Term>, Option<(bool, Vec<Term>)>>>,
+    renamed: std::cell::RefCell<FxHashMap<Vec<Term>, Renaming>>,
     /// Derivatives expanded in earlier pointwise normalisations.
     derivatives: Option<&'c Derivatives>,
     /// Powers already expanded in this normalisation, by term (pointwise
