@@ -184,8 +184,8 @@ fn multiply(a: &Poly, b: &Poly) -> Poly {
 /// `a · b^sign` for monomials (sign ±1).
 fn times(a: &Atoms, b: &Atoms, sign: i32) -> Atoms {
     let mut out = a.clone();
-    for (k, e) in b {
-        let slot = out.entry(k.clone()).or_insert_with(BigRational::zero);
+    for (k, e) in b.shared() {
+        let slot = out.entry_or_zero(k.clone());
         if sign > 0 {
             *slot += e;
         } else {

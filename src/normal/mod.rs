@@ -202,7 +202,7 @@ pub fn normalize_products_pointwise(ctx: &Context, products: &[Vec<Term>]) -> Re
                     count = count.saturating_add(pa.len().saturating_mul(pb.len()));
                     for (aa, ca) in pa {
                         for (ab, cb) in pb {
-                            let atoms = multiply_atoms(aa, ab);
+                            let atoms = aa.times(ab);
                             *poly.entry(atoms).or_insert_with(BigRational::zero) += ca * cb;
                         }
                     }
@@ -342,21 +342,6 @@ pub fn normalize_products_pointwise(ctx: &Context, products: &[Vec<Term>]) -> Re
     Ok(collect(out))
 }
 
-/// The product of two monomials' atoms (exponents added, zeros dropped),
-/// as [`Mono::mul`] forms it.
-fn multiply_atoms(a: &Atoms, b: &Atoms) -> Atoms {
-    let (small, large) = if a.len() < b.len() { (a, b) } else { (b, a) };
-    let mut atoms = large.clone();
-    for (k, e) in small {
-        let slot = atoms.entry(k.clone()).or_insert_with(BigRational::zero);
-        *slot += e;
-        if slot.is_zero() {
-            atoms.remove(k);
-        }
-    }
-    atoms
-}
-
 /// Derivatives of explicit functions already expanded, by term, shared by
 /// pointwise normalisations in one file's context
 /// ([`normalize_pointwise_with`]): the derivatives of one propagator taken
@@ -397,6 +382,10 @@ pub fn normalize_pointwise_with(
     normalize_in(&cx, t)
 }
 
+/// A canonical renaming of summed indices: `None` when the monomial is
+/// zero, else whether it negates and the renamed factors.
+type Renaming = Option<(bool, Vec<Term>)>;
+
 /// The declarations of a file while one term is normalised, and what the
 /// derivatives of explicit functions found on the way.
 pub struct Norm<'c> {
@@ -411,8 +400,15 @@ pub struct Norm<'c> {
     /// The index algebra already applied, by the factors of a monomial
     /// (see [`contracted`]).
     contracted: std::cell::RefCell<FxHashMap<Vec<Term>, Vec<Mono>>>,
+    /// The canonical renaming of summed indices already found, by the
+    /// factors of a monomial: whether it negates and the renamed factors,
+    /// or `None` when the monomial is zero (see [`renamed`]).
+    renamed: std::cell::RefCell<FxHashMap<Vec<Term>, Renaming>>,
     /// Derivatives expanded in earlier pointwise normalisations.
     derivatives: Option<&'c Derivatives>,
+    /// Powers already expanded in this normalisation, by term (pointwise
+    /// only, where expanding records no caveats; see [`expand`]).
+    expanded_powers: std::cell::RefCell<FxHashMap<Term, Vec<Mono>>>,
 }
 
 impl<'c> Norm<'c> {
@@ -424,6 +420,8 @@ impl<'c> Norm<'c> {
             pointwise: false,
             powers: Default::default(),
             contracted: Default::default(),
+            renamed: Default::default(),
+            expanded_powers: Default::default(),
             derivatives: None,
         }
     }
@@ -457,10 +455,54 @@ fn canonical(ctx: &Norm, monos: Vec<Mono>) -> Result<Vec<Mono>> {
                 Ok(combined) => combined,
                 Err(_) => m,
             };
-            out.push(contract::canonical_dummies(ctx, m));
+            out.push(renamed(ctx, m));
         }
     }
     Ok(out)
+}
+
+/// [`contract::canonical_dummies`] through a memo on the factors: the
+/// renaming rewrites the factors and at most flips the sign of the
+/// coefficient, and with an antisymmetric parameter it may find the
+/// monomial equal to its negative, whatever the (nonzero) coefficient and
+/// the atoms (which it never reads), so it is worked out once per list of
+/// factors on the coefficient 1: `None` for zero, else whether it negates
+/// and the renamed factors.
+fn renamed(ctx: &Norm, mut m: Mono) -> Mono {
+    if m.factors.is_empty() || m.coef.is_zero() {
+        return contract::canonical_dummies(ctx, m);
+    }
+    let known = ctx.renamed.borrow().get(&m.factors).cloned();
+    let found = match known {
+        Some(found) => found,
+        None => {
+            let unit = contract::canonical_dummies(
+                ctx,
+                Mono {
+                    coef: BigRational::one(),
+                    atoms: Atoms::new(),
+                    factors: m.factors.clone(),
+                },
+            );
+            let found = (!unit.coef.is_zero()).then(|| (unit.coef.is_negative(), unit.factors));
+            let mut memo = ctx.renamed.borrow_mut();
+            if memo.len() >= MAX_CONTRACTED {
+                memo.clear();
+            }
+            memo.insert(m.factors.clone(), found.clone());
+            found
+        }
+    };
+    match found {
+        None => Mono::scalar(BigRational::zero()),
+        Some((negate, factors)) => {
+            if negate {
+                m.coef = -m.coef;
+            }
+            m.factors = factors;
+            m
+        }
+    }
 }
 
 /// Most factor lists [`contracted`] remembers in one normalisation (a
@@ -644,6 +686,20 @@ fn expand(ctx: &Norm, t: &Term) -> Result<Vec<Mono>> {
                 }
             }
             acc
+        }
+        Term::Pow(b, e) if ctx.pointwise => {
+            // A propagator's power recurs in every term of a correlator's
+            // divergence: expanded once (a pure function of the term here).
+            if let Some(known) = ctx.expanded_powers.borrow().get(t) {
+                return Ok(known.clone());
+            }
+            let out = power(ctx, b, e)?;
+            let mut memo = ctx.expanded_powers.borrow_mut();
+            if memo.len() >= MAX_CONTRACTED {
+                memo.clear();
+            }
+            memo.insert(t.clone(), out.clone());
+            out
         }
         Term::Pow(b, e) => power(ctx, b, e)?,
         Term::DeltaFn(p, q) => {
