@@ -128,7 +128,7 @@ fn verify_special_conformal_n_points(bencher: divan::Bencher, n: usize) {
 #[divan::bench]
 fn verify_special_conformal_engine(bencher: divan::Bencher) {
     use std::sync::Arc;
-    use wardsmith::engine::{Engine, Verdict};
+    use wardsmith::engine::Engine;
     use wardsmith::lower::{lower, ItemKind};
     let source = Source::new("special.ward", SPECIAL);
     let program = lower(
@@ -147,7 +147,9 @@ fn verify_special_conformal_engine(bencher: divan::Bencher) {
     };
     bencher.bench(|| {
         let v = engine.check(lhs, rhs).expect("checks");
-        assert!(matches!(v, Verdict::Proved(_)));
+        // Derivatives of powers of distances hold away from coincident
+        // points: the file's verdict is "proved away", which also passes.
+        assert!(v.holds(), "the special conformal claim holds");
         v
     });
 }
