@@ -198,19 +198,11 @@ mod tests {
     use super::*;
     use std::collections::BTreeMap;
 
-    /// SplitMix64 (common practice), for seeded points.
+    /// Seeded points from the crate's splitmix64 (`numeric::splitmix`).
     struct Rng(u64);
     impl Rng {
-        fn next(&mut self) -> f64 {
-            self.0 = self.0.wrapping_add(0x9e37_79b9_7f4a_7c15);
-            let mut z = self.0;
-            z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
-            z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
-            z ^= z >> 31;
-            (z >> 11) as f64 / (1u64 << 53) as f64
-        }
         fn uniform(&mut self, lo: f64, hi: f64) -> f64 {
-            lo + (hi - lo) * self.next()
+            lo + (hi - lo) * crate::numeric::splitmix(&mut self.0)
         }
     }
 
@@ -366,7 +358,10 @@ mod tests {
                         // Free names at random directions; summed ones over all.
                         let mut names = BTreeMap::new();
                         for n in ["i", "j", "k", "l"] {
-                            names.insert(n.to_string(), (rng.next() * d as f64) as usize % d);
+                            names.insert(
+                                n.to_string(),
+                                (crate::numeric::splitmix(&mut rng.0) * d as f64) as usize % d,
+                            );
                         }
                         let summed: Vec<&str> =
                             ["s", "t"].into_iter().filter(|n| count(n) == 2).collect();
